@@ -1,0 +1,209 @@
+import { parseArgs } from 'node:util';
+import { ChannelPipeline, type ChannelSnapshot } from '../engine/channel-pipeline.js';
+import { DEFAULT_CHANNEL_OPTIONS, DEFAULT_MAX_SAMPLES, type ChannelOptions } from '../engine/channel-options.js';
+import { ESTIMATOR_NAMES, isEstimatorName } from '../core/tau/tau-estimate.js';
+import type { TargetSpec } from '../core/uncertainty/target-precision.js';
+import { probeCsv, readCsvRows, describeIssues } from '../ingest/csv-table.js';
+import { UsageError } from './cli-error.js';
+import { formatDuration, formatSignificant, roundWithUncertainty, textTable } from './format.js';
+import { CAUTION } from './caution.js';
+
+export const ANALYZE_HELP = `plateau analyze FILE [options]
+
+Replays a logged CSV file (header row; every numeric column a channel; an optional time column)
+through the same streaming engine the daemon runs, and reports each channel's mean with its
+autocorrelation-aware uncertainty.
+
+Options:
+  --json                 print JSON ({ "channels": [...] }) instead of a table
+  --window N             sliding window of the last N samples (default: the whole file)
+  --window-seconds T     sliding window of the last T seconds (needs a time column)
+  --confidence P         coverage probability of U, 0 < P < 1 (default 0.95)
+  --target X             target precision: bound on U in the channel's units
+  --target-rel R         target precision relative to |mean| (0.001 = 0.1 %)
+  --target-on u|U        apply the target to u or to U (default U)
+  --max-lag L            lags of the maintained autocovariance (default 64)
+  --rate HZ              samples per second (default: from the time column)
+  --estimator NAME       ${ESTIMATOR_NAMES.join(', ')} (default ${DEFAULT_CHANNEL_OPTIONS.estimator})
+  --time-column NAME     the column holding time (default: a column named time, t, timestamp, ...)
+  --delimiter C          field separator (default: guessed from the header: , ; or tab)
+`;
+
+export interface AnalyzeReport {
+  file: string;
+  rows: number;
+  timeColumn: string | null;
+  ignoredColumns: string[];
+  notes: string[];
+  channels: ChannelSnapshot[];
+}
+
+interface Io {
+  out: (text: string) => void;
+}
+
+export async function runAnalyze(argv: string[], io: Io): Promise<number> {
+  const { values, positionals } = parseArgs({
+    args: argv,
+    allowPositionals: true,
+    options: {
+      json: { type: 'boolean', default: false },
+      window: { type: 'string' },
+      'window-seconds': { type: 'string' },
+      confidence: { type: 'string' },
+      target: { type: 'string' },
+      'target-rel': { type: 'string' },
+      'target-on': { type: 'string' },
+      'max-lag': { type: 'string' },
+      rate: { type: 'string' },
+      estimator: { type: 'string' },
+      'time-column': { type: 'string' },
+      delimiter: { type: 'string' },
+      help: { type: 'boolean', short: 'h', default: false },
+    },
+  });
+  if (values.help) {
+    io.out(ANALYZE_HELP);
+    return 0;
+  }
+  if (positionals.length !== 1) throw new UsageError(positionals.length === 0 ? 'analyze needs a CSV file: plateau analyze FILE' : `analyze takes one file, got ${positionals.length}`);
+  const file = positionals[0] as string;
+  const options = channelOptionsFromFlags(values);
+  const report = await analyzeFile(file, options, { timeColumn: values['time-column'], delimiter: values.delimiter });
+  io.out(values.json ? `${JSON.stringify(report, finiteOrNull, 2)}\n` : renderReport(report));
+  return 0;
+}
+
+type Flags = Record<string, string | boolean | undefined>;
+
+function numberFlag(flags: Flags, name: string, check: (v: number) => boolean, expected: string): number | undefined {
+  const raw = flags[name];
+  if (raw === undefined) return undefined;
+  const value = Number(raw);
+  if (typeof raw !== 'string' || raw.trim() === '' || !Number.isFinite(value) || !check(value)) {
+    throw new UsageError(`--${name} ${String(raw)}: expected ${expected}`);
+  }
+  return value;
+}
+
+export function channelOptionsFromFlags(flags: Flags): ChannelOptions {
+  const windowSamples = numberFlag(flags, 'window', (v) => Number.isInteger(v) && v >= 4, 'a whole number of samples, at least 4');
+  const windowSeconds = numberFlag(flags, 'window-seconds', (v) => v > 0, 'a positive number of seconds');
+  const confidence = numberFlag(flags, 'confidence', (v) => v > 0 && v < 1, 'a probability between 0 and 1, e.g. 0.95');
+  const target = numberFlag(flags, 'target', (v) => v > 0, 'a positive uncertainty in the channel units');
+  const targetRel = numberFlag(flags, 'target-rel', (v) => v > 0, 'a positive fraction of the mean, e.g. 0.001');
+  const maxLag = numberFlag(flags, 'max-lag', (v) => Number.isInteger(v) && v >= 1 && v <= 4096, 'a whole number of lags from 1 to 4096');
+  const rate = numberFlag(flags, 'rate', (v) => v > 0, 'a positive number of samples per second');
+  const estimator = flags.estimator;
+  if (estimator !== undefined && (typeof estimator !== 'string' || !isEstimatorName(estimator))) {
+    throw new UsageError(`--estimator ${String(estimator)}: expected one of ${ESTIMATOR_NAMES.join(', ')}`);
+  }
+  const on = flags['target-on'];
+  if (on !== undefined && on !== 'u' && on !== 'U') throw new UsageError(`--target-on ${String(on)}: expected u or U`);
+  if (target !== undefined && targetRel !== undefined) throw new UsageError('--target and --target-rel: give one or the other');
+  if (windowSamples !== undefined && windowSeconds !== undefined) throw new UsageError('--window and --window-seconds: give one or the other');
+  let targetSpec: TargetSpec | null = null;
+  if (target !== undefined) targetSpec = { value: target, relative: false, on: (on as 'u' | 'U' | undefined) ?? 'U' };
+  if (targetRel !== undefined) targetSpec = { value: targetRel, relative: true, on: (on as 'u' | 'U' | undefined) ?? 'U' };
+  const sliding = windowSamples !== undefined || windowSeconds !== undefined;
+  return {
+    ...DEFAULT_CHANNEL_OPTIONS,
+    window: sliding
+      ? { kind: 'sliding', maxSamples: windowSamples ?? DEFAULT_MAX_SAMPLES, ...(windowSamples !== undefined ? { samples: windowSamples } : {}), ...(windowSeconds !== undefined ? { seconds: windowSeconds } : {}) }
+      : { kind: 'growing', maxSamples: DEFAULT_MAX_SAMPLES },
+    confidence: confidence ?? DEFAULT_CHANNEL_OPTIONS.confidence,
+    target: targetSpec,
+    maxLag: maxLag ?? DEFAULT_CHANNEL_OPTIONS.maxLag,
+    rate: rate ?? null,
+    estimator: (estimator as ChannelOptions['estimator'] | undefined) ?? DEFAULT_CHANNEL_OPTIONS.estimator,
+  };
+}
+
+/** Replays a CSV file through one pipeline per channel: the streaming code path, row by row. */
+export async function analyzeFile(file: string, options: ChannelOptions, csv: { timeColumn?: string | undefined; delimiter?: string | undefined } = {}): Promise<AnalyzeReport> {
+  const layout = await probeCsv(file, {
+    ...(csv.timeColumn !== undefined ? { timeColumn: csv.timeColumn } : {}),
+    ...(csv.delimiter !== undefined ? { delimiter: csv.delimiter } : {}),
+  });
+  if (options.window.seconds !== undefined && !layout.timeColumn) {
+    throw new UsageError(`--window-seconds needs a time column, and ${file} has none (name one with --time-column)`);
+  }
+  const pipelines = layout.channels.map((column) => new ChannelPipeline(column.name, options));
+  const notes: string[] = [];
+  let timeIssues = 0;
+  let firstTimeIssue = '';
+  let rows = 0;
+  let previousTime = Number.NEGATIVE_INFINITY;
+  let backwards = 0;
+  for await (const row of readCsvRows(layout, (line, text) => {
+    timeIssues++;
+    if (!firstTimeIssue) firstTimeIssue = `${file} row ${line}, column "${layout.timeColumn?.name}": "${text}" is not a time`;
+  })) {
+    rows++;
+    if (row.time < previousTime) backwards++;
+    if (!Number.isNaN(row.time)) previousTime = row.time;
+    for (let c = 0; c < pipelines.length; c++) {
+      const value = row.values[c];
+      if (value !== null && value !== undefined) (pipelines[c] as ChannelPipeline).push(value, row.time);
+    }
+  }
+  if (layout.ignored.length > 0) notes.push(`${file}: columns not numeric, ignored: ${layout.ignored.map((n) => `"${n}"`).join(', ')}`);
+  if (timeIssues > 0) notes.push(`${firstTimeIssue}${timeIssues > 1 ? ` (${timeIssues} rows in all)` : ''}; those rows have no time`);
+  if (backwards > 0) notes.push(`${file}: time goes backwards at ${backwards} rows; rate estimates may be off`);
+  const channels = pipelines.map((pipeline, c) => {
+    const snapshot = pipeline.snapshot();
+    const column = layout.channels[c];
+    if (column) snapshot.notes.unshift(...describeIssues(file, column));
+    return snapshot;
+  });
+  return {
+    file,
+    rows,
+    timeColumn: layout.timeColumn?.name ?? null,
+    ignoredColumns: layout.ignored,
+    notes,
+    channels,
+  };
+}
+
+/** JSON replacer: no NaN or Infinity ever reaches the output. */
+export function finiteOrNull(_key: string, value: unknown): unknown {
+  return typeof value === 'number' && !Number.isFinite(value) ? null : value;
+}
+
+function renderReport(report: AnalyzeReport): string {
+  const header = ['channel', 'n', 'mean', 'U', 'k', 'u', 'nu_eff', 'tau_int', 'n_eff', 'target'];
+  const rows = report.channels.map((c) => {
+    const rounded = c.mean === null ? { value: '-', uncertainty: null } : roundWithUncertainty(c.mean, c.expandedUncertainty ?? c.standardUncertainty);
+    let target = '-';
+    if (c.target) {
+      if (c.target.reached) target = 'reached';
+      else if (c.target.samplesToTarget !== null) target = `${c.target.samplesToTarget} more${c.target.secondsToTarget !== null ? ` (${formatDuration(c.target.secondsToTarget)})` : ''}`;
+      else target = 'out of reach';
+    }
+    return [
+      c.name,
+      String(c.n),
+      rounded.value,
+      rounded.uncertainty ?? '-',
+      formatSignificant(c.coverageFactor, 3),
+      formatSignificant(c.standardUncertainty, 2),
+      formatSignificant(c.dof, 3),
+      formatSignificant(c.tauInt, 3),
+      formatSignificant(c.nEff, 3),
+      target,
+    ];
+  });
+  const confidence = report.channels[0]?.confidence ?? 0.95;
+  const lines = [
+    `${report.file}: ${report.rows} rows, ${report.channels.length} channel${report.channels.length === 1 ? '' : 's'}${report.timeColumn ? `, time from "${report.timeColumn}"` : ''}`,
+    '',
+    textTable(header, rows),
+    '',
+    `U = k * u at ${(confidence * 100).toPrecision(4).replace(/\.?0+$/, '')} % coverage; k from Student's t at nu_eff; u from the ${report.channels[0]?.estimator ?? ''} estimate of tau_int.`,
+  ];
+  const notes = [...report.notes, ...report.channels.flatMap((c) => c.notes.map((note) => `${c.name}: ${note}`))];
+  if (notes.length > 0) lines.push('', 'Notes:', ...notes.map((note) => `  - ${note}`));
+  lines.push('', CAUTION);
+  return `${lines.join('\n')}\n`;
+}

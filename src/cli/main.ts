@@ -1,0 +1,61 @@
+import { readFileSync } from 'node:fs';
+import { UsageError } from './cli-error.js';
+import { runAnalyze, ANALYZE_HELP } from './analyze.js';
+
+const HELP = `plateau: live steady-state and uncertainty of windowed means for test and calibration rigs
+
+Usage:
+  plateau demo [options]            embedded broker + simulated rig + daemon + dashboard
+  plateau run --config FILE         the daemon: MQTT streams in, verdicts out
+  plateau analyze FILE [options]    replay a logged CSV file through the same engine
+  plateau help [command]            this text, or a command's options
+  plateau version
+
+${ANALYZE_HELP}`;
+
+interface Commands {
+  [name: string]: (argv: string[]) => Promise<number>;
+}
+
+/** Runs the command line; returns the exit status. The only place that turns errors into text. */
+export async function main(argv: string[], extra: Commands = {}): Promise<number> {
+  const out = (text: string) => process.stdout.write(text);
+  const [command, ...rest] = argv;
+  try {
+    switch (command) {
+      case 'analyze':
+        return await runAnalyze(rest, { out });
+      case undefined:
+      case 'help':
+      case '--help':
+      case '-h':
+        out(HELP);
+        return command === undefined ? 2 : 0;
+      case 'version':
+      case '--version':
+        out(`${version()}\n`);
+        return 0;
+      default: {
+        const handler = extra[command];
+        if (handler) return await handler(rest);
+        throw new UsageError(`unknown command "${command}" (try: plateau help)`);
+      }
+    }
+  } catch (error) {
+    return reportError(error);
+  }
+}
+
+export function reportError(error: unknown): number {
+  const err = error as { code?: string; message?: string };
+  const known = err && typeof err.code === 'string' && (err.code.startsWith('ERR_USAGE') || err.code.startsWith('ERR_INPUT') || err.code.startsWith('ERR_CONFIG') || err.code.startsWith('ERR_PARSE_ARGS'));
+  const message = (err?.message ?? String(error)).split('\n')[0];
+  process.stderr.write(`plateau: ${known ? '' : 'internal error: '}${message}\n`);
+  if (!known && process.env.PLATEAU_DEBUG) process.stderr.write(`${(error as Error).stack}\n`);
+  return known ? 2 : 70;
+}
+
+function version(): string {
+  const pkg = JSON.parse(readFileSync(new URL('../../package.json', import.meta.url), 'utf8')) as { version: string };
+  return `plateau ${pkg.version}`;
+}

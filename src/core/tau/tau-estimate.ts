@@ -1,0 +1,35 @@
+/** The estimators of the integrated autocorrelation time that plateau offers. */
+export const ESTIMATOR_NAMES = ['blocking', 'sokal', 'geyer', 'batch-means', 'iid'] as const;
+export type EstimatorName = (typeof ESTIMATOR_NAMES)[number];
+
+export function isEstimatorName(name: string): name is EstimatorName {
+  return (ESTIMATOR_NAMES as readonly string[]).includes(name);
+}
+
+/**
+ * What every estimator of the variance of a windowed mean returns.
+ * tauInt = n * varianceOfMean / sampleVariance, so n / tauInt is the effective sample size.
+ */
+export interface TauEstimate {
+  method: EstimatorName;
+  /** Integrated autocorrelation time, in samples. */
+  tauInt: number;
+  /** Estimated variance of the window mean (squared data units). */
+  varianceOfMean: number;
+  /** Degrees of freedom of that variance estimate (chi-square equivalent). */
+  dof: number;
+  /** Lags summed (window estimators) or samples per batch (batch estimators). */
+  window: number;
+  /** False when the estimator had too little data to be trusted; `note` says why. */
+  reliable: boolean;
+  note?: string;
+}
+
+/**
+ * Floor on tau_int: n_eff may not exceed n * log10(n), the cap that ArviZ and Stan apply to
+ * anticorrelated series (A. Vehtari et al. (2021), Bayesian Analysis 16(2), 667-718), so that a
+ * sum of negative autocorrelations can never shrink the uncertainty to nothing.
+ */
+export function tauFloor(n: number): number {
+  return n > 10 ? 1 / Math.log10(n) : 1;
+}

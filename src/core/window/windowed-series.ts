@@ -1,0 +1,190 @@
+import { SampleRing } from './sample-ring.js';
+import { ShiftedMoments } from './shifted-moments.js';
+import { LaggedProducts, autocovarianceFromProducts } from '../acf/lagged-products.js';
+import { BlockPyramid } from './block-pyramid.js';
+
+/**
+ * Windowed series: one channel's averaging window and the sums that every estimator reads.
+ *
+ * Holds the window's samples (SampleRing), and in one shifted coordinate system (d = x - anchor)
+ * the running moments (ShiftedMoments), the lagged cross-products up to maxLag (LaggedProducts)
+ * and the block pyramid (BlockPyramid). Samples enter at the back; they leave from the front when
+ * a sliding window is full or when the caller cuts the front (warm-up truncation).
+ *
+ * Exactness: every `recomputeEvery` removals (a multiple of the window size) the sums are rebuilt
+ * from the stored samples, and the anchor moves to the window's current mean whenever the mean has
+ * wandered more than a few standard deviations from it, so round-off cannot build up and the
+ * shifted values stay small (the remedy recommended by Chan, Golub & LeVeque 1983).
+ *
+ * Cost: O(maxLag) per sample for the lagged products, O(1) amortised for the rest; a rebuild costs
+ *   O(n * maxLag) and happens at most once per `recomputeEvery` removals.
+ * Memory: 16 bytes per windowed sample (value and time) plus about 8 for the pyramid.
+ */
+export interface WindowedSeriesOptions {
+  /** Largest number of samples the window holds; the oldest leaves when a new one would exceed it. */
+  maxSamples: number;
+  /** Largest lag of the maintained autocovariance. */
+  maxLag: number;
+  /** Allocate the whole window up front (fixed sliding windows). */
+  preallocate?: boolean;
+}
+
+/** Removals between exact rebuilds, as a multiple of the window's capacity. */
+const REBUILD_AFTER_WINDOWS = 4;
+/** Re-anchor when the shifted mean exceeds this many standard deviations. */
+const REANCHOR_SIGMAS = 8;
+
+export class WindowedSeries {
+  readonly maxSamples: number;
+  readonly maxLag: number;
+  readonly ring: SampleRing;
+  readonly moments = new ShiftedMoments();
+  readonly lags: LaggedProducts;
+  readonly pyramid: BlockPyramid;
+  /** Value subtracted from every sample before it enters the sums. */
+  anchor = Number.NaN;
+  /** Absolute index (0-based, since the series began) of the oldest sample in the window. */
+  firstIndex = 0;
+  /** Absolute index the next sample will get. */
+  nextIndex = 0;
+  private removalsSinceRebuild = 0;
+  private nextAnchorCheck = 16;
+
+  constructor(options: WindowedSeriesOptions) {
+    const { maxSamples, maxLag } = options;
+    if (!Number.isInteger(maxSamples) || maxSamples < 4) throw new RangeError('windowed series requires maxSamples of at least 4');
+    this.maxSamples = maxSamples;
+    this.maxLag = maxLag;
+    const preallocate = options.preallocate ?? false;
+    this.ring = new SampleRing(preallocate ? maxSamples : Math.min(maxSamples, 1024), maxSamples);
+    this.lags = new LaggedProducts(maxLag, (i) => this.ring.at(i) - this.anchor);
+    this.pyramid = new BlockPyramid(maxSamples, preallocate);
+  }
+
+  get length(): number {
+    return this.ring.length;
+  }
+
+  /** Appends a sample; drops the oldest first when the window is full. */
+  push(value: number, time: number): void {
+    if (this.ring.isFull) this.shift();
+    if (this.ring.length === 0) {
+      this.anchor = value;
+      this.firstIndex = this.nextIndex;
+      this.pyramid.reset(this.firstIndex);
+    }
+    const shifted = value - this.anchor;
+    this.ring.push(value, time);
+    this.moments.add(shifted);
+    this.lags.addNewest(shifted);
+    this.pyramid.add(this.nextIndex, shifted);
+    this.nextIndex++;
+    if (this.ring.length >= this.nextAnchorCheck) this.checkAnchor();
+  }
+
+  /** Drops the oldest sample. */
+  shift(): void {
+    const n = this.ring.length;
+    if (n === 0) return;
+    const leaving = this.ring.at(0) - this.anchor;
+    this.ring.shift();
+    this.lags.removeOldest(leaving);
+    this.moments.remove(leaving);
+    this.firstIndex++;
+    this.pyramid.dropBefore(this.firstIndex);
+    if (++this.removalsSinceRebuild >= REBUILD_AFTER_WINDOWS * this.maxSamples) this.rebuild(this.mean);
+  }
+
+  /** Drops every sample with absolute index below `index` (warm-up truncation). */
+  dropBefore(index: number): void {
+    const target = Math.min(index, this.nextIndex);
+    if (target <= this.firstIndex) return;
+    const count = target - this.firstIndex;
+    if (count * 4 >= this.ring.length) {
+      // Cheaper to rebuild than to remove one by one.
+      for (let i = 0; i < count; i++) this.ring.shift();
+      this.firstIndex = target;
+      this.rebuild(this.ring.length > 0 ? this.ring.at(0) : Number.NaN);
+      return;
+    }
+    for (let i = 0; i < count; i++) this.shift();
+  }
+
+  /** Removes every sample; the next one starts a new window at the next absolute index. */
+  clear(): void {
+    this.ring.clear();
+    this.moments.reset();
+    this.lags.reset();
+    this.firstIndex = this.nextIndex;
+    this.pyramid.reset(this.firstIndex);
+    this.removalsSinceRebuild = 0;
+    this.nextAnchorCheck = 16;
+  }
+
+  /** Mean of the window. */
+  get mean(): number {
+    return this.anchor + this.moments.shiftedMean;
+  }
+
+  /** Sample variance (divisor n - 1). */
+  get variance(): number {
+    return this.moments.variance;
+  }
+
+  /** Shifted value of the i-th oldest sample. */
+  shiftedAt(i: number): number {
+    return this.ring.at(i) - this.anchor;
+  }
+
+  /** Biased autocovariance at lags 0..min(maxLag, n - 1) from the maintained products. Cost O(maxLag). */
+  autocovariance(out?: Float64Array): Float64Array {
+    const ring = this.ring;
+    const n = ring.length;
+    const anchor = this.anchor;
+    return autocovarianceFromProducts(
+      this.lags.products(),
+      n,
+      this.moments.shiftedSum,
+      (i) => ring.at(i) - anchor,
+      (i) => ring.at(n - 1 - i) - anchor,
+      out,
+    );
+  }
+
+  /** The window's values, oldest first (a copy). */
+  values(): Float64Array {
+    return this.ring.copyValues();
+  }
+
+  /** Bytes held by the window's buffers. */
+  get byteLength(): number {
+    return this.ring.capacity * 16 + this.pyramid.byteLength + this.lags.byteLength;
+  }
+
+  /** Rebuilds every sum exactly from the stored samples, around `anchor`. Cost O(n * maxLag). */
+  rebuild(anchor: number): void {
+    const n = this.ring.length;
+    this.anchor = n > 0 ? anchor : Number.NaN;
+    this.moments.reset();
+    this.lags.reset();
+    this.pyramid.reset(this.firstIndex);
+    for (let i = 0; i < n; i++) {
+      const shifted = this.ring.at(i) - this.anchor;
+      this.moments.add(shifted);
+      this.lags.addNewest(shifted);
+      this.pyramid.add(this.firstIndex + i, shifted);
+    }
+    this.removalsSinceRebuild = 0;
+    this.nextAnchorCheck = Math.max(16, 2 * n);
+  }
+
+  private checkAnchor(): void {
+    // Checked at doubling lengths (and after rebuilds), so the cost is amortised O(1).
+    this.nextAnchorCheck = Math.max(16, 2 * this.ring.length);
+    const mean = this.moments.shiftedMean;
+    const variance = this.moments.variance;
+    if (mean * mean > REANCHOR_SIGMAS * REANCHOR_SIGMAS * variance && mean !== 0) {
+      this.rebuild(this.anchor + mean);
+    }
+  }
+}

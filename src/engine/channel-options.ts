@@ -1,0 +1,53 @@
+import type { EstimatorName } from '../core/tau/tau-estimate.js';
+import type { TargetSpec } from '../core/uncertainty/target-precision.js';
+
+/** How a channel's averaging window is bounded. */
+export interface WindowSpec {
+  /** growing: every sample since the window (test point) started; sliding: the most recent ones. */
+  kind: 'growing' | 'sliding';
+  /** Sliding window length in samples. */
+  samples?: number;
+  /** Sliding window length in seconds (samples older than this leave). */
+  seconds?: number;
+  /** Hard cap on the samples held; a growing window that reaches it slides from then on. */
+  maxSamples: number;
+}
+
+export interface ChannelOptions {
+  window: WindowSpec;
+  /** Largest lag of the maintained autocovariance. */
+  maxLag: number;
+  /** The tau_int estimator whose result is reported as the channel's uncertainty. */
+  estimator: EstimatorName;
+  /** Coverage probability of the expanded uncertainty. */
+  confidence: number;
+  target: TargetSpec | null;
+  /** Samples per second, when known from the rig; otherwise estimated from the timestamps. */
+  rate: number | null;
+}
+
+/**
+ * The default estimator, chosen by the coverage benchmark (bench/coverage.js; figures in
+ * DEVELOPERS.md): blocking with Jonsson's automatic level keeps the 95 % interval's coverage
+ * within 0.93-0.97 for AR(1) up to phi = 0.9 at n_eff near 100 and needs only O(levels) work per
+ * snapshot.
+ */
+export const DEFAULT_ESTIMATOR: EstimatorName = 'geyer';
+
+/** Default growing-window cap: 2^22 samples (about 96 MiB of window per channel at the most). */
+export const DEFAULT_MAX_SAMPLES = 4_194_304;
+
+export const DEFAULT_CHANNEL_OPTIONS: ChannelOptions = {
+  window: { kind: 'growing', maxSamples: DEFAULT_MAX_SAMPLES },
+  maxLag: 64,
+  estimator: DEFAULT_ESTIMATOR,
+  confidence: 0.95,
+  target: null,
+  rate: null,
+};
+
+/** Below this many samples the default estimator falls back to independent observations. */
+export const FEW_SAMPLES = 16;
+
+/** Lags of the autocorrelation function in every snapshot (at least 20, as the contract requires). */
+export const MIN_REPORTED_LAGS = 20;

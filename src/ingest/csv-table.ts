@@ -1,0 +1,185 @@
+import { access } from 'node:fs/promises';
+import { guessDelimiter, readDelimitedLines, splitFields } from './csv-lines.js';
+import { parseMeasurement, PROBLEM_TEXT, type ValueProblem } from './cell-value.js';
+import { createReadStream } from 'node:fs';
+
+/**
+ * A logged CSV file read as measurement channels: a header row, every numeric column a channel,
+ * an optional time column (numbers in seconds, or ISO 8601 date-times).
+ *
+ * Column roles are decided from the first rows (up to PROBE_ROWS): a column is a channel when most
+ * of its non-empty cells there are numbers. Later cells that are not finite numbers are skipped,
+ * counted per channel with the row of the first few, and never reach a statistic.
+ */
+export class CsvInputError extends Error {
+  readonly code = 'ERR_INPUT_CSV';
+}
+
+export interface CsvColumnIssue {
+  problem: ValueProblem | 'missing';
+  count: number;
+  firstRows: number[];
+}
+
+export interface CsvChannelColumn {
+  name: string;
+  index: number;
+  issues: Map<ValueProblem | 'missing', CsvColumnIssue>;
+}
+
+export interface CsvLayout {
+  path: string;
+  delimiter: string;
+  header: string[];
+  channels: CsvChannelColumn[];
+  timeColumn: { name: string; index: number; kind: 'seconds' | 'date' } | null;
+  ignored: string[];
+}
+
+const PROBE_ROWS = 100;
+const TIME_NAMES = /^(t|time|times|timestamp|datetime|date|date_time|seconds|secs|time_s|time_sec|elapsed|elapsed_s|epoch|unix_time)$/i;
+
+export async function probeCsv(path: string, options: { timeColumn?: string; delimiter?: string } = {}): Promise<CsvLayout> {
+  try {
+    await access(path);
+  } catch {
+    throw new CsvInputError(`${path}: no such file`);
+  }
+  const headerLine = await firstLine(path);
+  if (headerLine === null || headerLine.trim() === '') throw new CsvInputError(`${path}: the file is empty (a header row is needed)`);
+  const delimiter = options.delimiter ?? guessDelimiter(headerLine);
+  const header = splitFields(headerLine, delimiter).map((name) => name.trim());
+  header.forEach((name, i) => {
+    if (name === '') header[i] = `column${i + 1}`;
+  });
+  const seen = new Set<string>();
+  for (const name of header) {
+    if (seen.has(name)) throw new CsvInputError(`${path} row 1: column name "${name}" appears twice`);
+    seen.add(name);
+  }
+  const numeric = header.map(() => 0);
+  const dates = header.map(() => 0);
+  const filled = header.map(() => 0);
+  let rows = 0;
+  for await (const [line, fields] of readDelimitedLines(path, delimiter)) {
+    if (line === 1) continue;
+    if (rows++ >= PROBE_ROWS) break;
+    fields.forEach((cell, i) => {
+      if (i >= header.length || cell.trim() === '') return;
+      filled[i]!++;
+      if (typeof parseMeasurement(cell) === 'number') numeric[i]!++;
+      else if (!Number.isNaN(Date.parse(cell.trim()))) dates[i]!++;
+    });
+  }
+  if (rows === 0) throw new CsvInputError(`${path}: no data rows after the header`);
+  let timeColumn: CsvLayout['timeColumn'] = null;
+  if (options.timeColumn !== undefined) {
+    const index = header.indexOf(options.timeColumn);
+    if (index < 0) throw new CsvInputError(`${path} row 1: no column named "${options.timeColumn}" for --time-column (columns: ${header.join(', ')})`);
+    timeColumn = { name: options.timeColumn, index, kind: numeric[index]! >= dates[index]! ? 'seconds' : 'date' };
+  } else {
+    const index = header.findIndex((name) => TIME_NAMES.test(name));
+    if (index >= 0 && (numeric[index]! > 0 || dates[index]! > 0)) {
+      timeColumn = { name: header[index] as string, index, kind: numeric[index]! >= dates[index]! ? 'seconds' : 'date' };
+    }
+  }
+  const channels: CsvChannelColumn[] = [];
+  const ignored: string[] = [];
+  header.forEach((name, index) => {
+    if (timeColumn && index === timeColumn.index) return;
+    if (filled[index]! > 0 && numeric[index]! * 2 > filled[index]!) channels.push({ name, index, issues: new Map() });
+    else ignored.push(name);
+  });
+  if (channels.length === 0) {
+    throw new CsvInputError(`${path}: no numeric column found (columns: ${header.join(', ')})`);
+  }
+  return { path, delimiter, header, channels, timeColumn, ignored };
+}
+
+async function firstLine(path: string): Promise<string | null> {
+  const stream = createReadStream(path, { encoding: 'utf8', highWaterMark: 1 << 16 });
+  let text = '';
+  for await (const chunk of stream as AsyncIterable<string>) {
+    text += chunk;
+    const end = text.indexOf('\n');
+    if (end >= 0) {
+      stream.destroy();
+      text = text.slice(0, end);
+      break;
+    }
+  }
+  if (text.charCodeAt(0) === 0xfeff) text = text.slice(1);
+  if (text.endsWith('\r')) text = text.slice(0, -1);
+  return text.length > 0 ? text : null;
+}
+
+/** One data row's accepted values: for each channel a number, or null when the cell was rejected. */
+export interface CsvRow {
+  line: number;
+  time: number; // seconds, NaN when the file has no time column or the cell is unusable
+  values: (number | null)[];
+}
+
+/**
+ * Streams the data rows, recording every rejected cell in its channel's issues. `onTimeIssue`
+ * receives rows whose time cell is unusable.
+ */
+export async function* readCsvRows(layout: CsvLayout, onTimeIssue: (line: number, text: string) => void): AsyncGenerator<CsvRow> {
+  const { channels, timeColumn, delimiter, path } = layout;
+  for await (const [line, fields] of readDelimitedLines(path, delimiter)) {
+    if (line === 1) continue;
+    if (fields.length === 1 && (fields[0] as string).trim() === '') continue; // blank line
+    let time = Number.NaN;
+    if (timeColumn) {
+      const cell = fields[timeColumn.index] ?? '';
+      if (timeColumn.kind === 'seconds') {
+        const parsed = parseMeasurement(cell);
+        if (typeof parsed === 'number') time = parsed;
+        else onTimeIssue(line, cell);
+      } else {
+        const ms = Date.parse(cell.trim());
+        if (Number.isNaN(ms)) onTimeIssue(line, cell);
+        else time = ms / 1000;
+      }
+    }
+    const values: (number | null)[] = new Array(channels.length);
+    for (let c = 0; c < channels.length; c++) {
+      const column = channels[c] as CsvChannelColumn;
+      const cell = fields[column.index];
+      if (cell === undefined) {
+        values[c] = null;
+        noteIssue(column, 'missing', line);
+        continue;
+      }
+      const parsed = parseMeasurement(cell);
+      if (typeof parsed === 'number') values[c] = parsed;
+      else {
+        values[c] = null;
+        noteIssue(column, parsed, line);
+      }
+    }
+    yield { line, time, values };
+  }
+}
+
+function noteIssue(column: CsvChannelColumn, problem: ValueProblem | 'missing', line: number): void {
+  let issue = column.issues.get(problem);
+  if (!issue) {
+    issue = { problem, count: 0, firstRows: [] };
+    column.issues.set(problem, issue);
+  }
+  issue.count++;
+  if (issue.firstRows.length < 3) issue.firstRows.push(line);
+}
+
+/** One line per kind of rejected cell: "file row 12, column "T_in": empty cell (skipped; 3 in all, first at rows 12, 40, 41)". */
+export function describeIssues(path: string, column: CsvChannelColumn): string[] {
+  const lines: string[] = [];
+  for (const issue of column.issues.values()) {
+    const what = issue.problem === 'missing' ? 'row has no cell for this column' : PROBLEM_TEXT[issue.problem];
+    const first = issue.firstRows[0];
+    const more = issue.count > 1 ? ` (${issue.count} cells in all, rows ${issue.firstRows.join(', ')}${issue.count > issue.firstRows.length ? ', ...' : ''})` : '';
+    lines.push(`${path} row ${first}, column "${column.name}": ${what}, skipped${more}`);
+  }
+  return lines;
+}
