@@ -33,6 +33,8 @@ export interface WindowedSeriesOptions {
 const REBUILD_AFTER_WINDOWS = 4;
 /** Re-anchor when the shifted mean exceeds this many standard deviations. */
 const REANCHOR_SIGMAS = 8;
+/** Rebuild once the window holds only values this many times smaller than the largest the sums carried. */
+const POLLUTION_RATIO = 32;
 
 export class WindowedSeries {
   readonly maxSamples: number;
@@ -49,6 +51,10 @@ export class WindowedSeries {
   nextIndex = 0;
   private removalsSinceRebuild = 0;
   private nextAnchorCheck = 16;
+  /** Largest |shifted value| that entered the sums since the last rebuild. */
+  private pollution = 0;
+  /** Absolute index of the last sample whose |shifted value| exceeded pollution / POLLUTION_RATIO when it entered. */
+  private lastLargeIndex = -1;
 
   constructor(options: WindowedSeriesOptions) {
     const { maxSamples, maxLag } = options;
@@ -74,6 +80,7 @@ export class WindowedSeries {
       this.pyramid.reset(this.firstIndex);
     }
     const shifted = value - this.anchor;
+    this.track(shifted, this.nextIndex);
     this.ring.push(value, time);
     this.moments.add(shifted);
     this.lags.addNewest(shifted);
@@ -92,7 +99,11 @@ export class WindowedSeries {
     this.moments.remove(leaving);
     this.firstIndex++;
     this.pyramid.dropBefore(this.firstIndex);
-    if (++this.removalsSinceRebuild >= REBUILD_AFTER_WINDOWS * this.maxSamples) this.rebuild(this.mean);
+    const removals = ++this.removalsSinceRebuild;
+    if (this.ring.length === 0) return;
+    if (removals >= REBUILD_AFTER_WINDOWS * this.maxSamples || this.firstIndex > this.lastLargeIndex || this.anchorDrifted()) {
+      this.rebuild(this.mean);
+    }
   }
 
   /** Drops every sample with absolute index below `index` (warm-up truncation). */
@@ -108,6 +119,7 @@ export class WindowedSeries {
       return;
     }
     for (let i = 0; i < count; i++) this.shift();
+    if (this.ring.length > 0 && this.anchorDrifted()) this.rebuild(this.mean);
   }
 
   /** Removes every sample; the next one starts a new window at the next absolute index. */
@@ -119,6 +131,8 @@ export class WindowedSeries {
     this.pyramid.reset(this.firstIndex);
     this.removalsSinceRebuild = 0;
     this.nextAnchorCheck = 16;
+    this.pollution = 0;
+    this.lastLargeIndex = -1;
   }
 
   /** Mean of the window. */
@@ -168,8 +182,11 @@ export class WindowedSeries {
     this.moments.reset();
     this.lags.reset();
     this.pyramid.reset(this.firstIndex);
+    this.pollution = 0;
+    this.lastLargeIndex = -1;
     for (let i = 0; i < n; i++) {
       const shifted = this.ring.at(i) - this.anchor;
+      this.track(shifted, this.firstIndex + i);
       this.moments.add(shifted);
       this.lags.addNewest(shifted);
       this.pyramid.add(this.firstIndex + i, shifted);
@@ -178,13 +195,32 @@ export class WindowedSeries {
     this.nextAnchorCheck = Math.max(16, 2 * n);
   }
 
+  /**
+   * Round-off in the sums scales with the largest value that passed through them. Once every value
+   * left in the window is POLLUTION_RATIO times smaller than that (a spike or an old level has slid
+   * out), `shift` rebuilds the sums exactly.
+   */
+  private track(shifted: number, index: number): void {
+    const size = Math.abs(shifted);
+    if (size > this.pollution) this.pollution = size;
+    if (size * POLLUTION_RATIO > this.pollution) this.lastLargeIndex = index;
+  }
+
   private checkAnchor(): void {
     // Checked at doubling lengths (and after rebuilds), so the cost is amortised O(1).
     this.nextAnchorCheck = Math.max(16, 2 * this.ring.length);
+    if (this.anchorDrifted()) this.rebuild(this.mean);
+  }
+
+  /**
+   * True when the window's mean has moved more than REANCHOR_SIGMAS standard deviations from the
+   * anchor (a level change has passed through a sliding window, or a warm-up has settled), so the
+   * shifted values have grown large against their spread and the sums would lose digits.
+   */
+  private anchorDrifted(): boolean {
     const mean = this.moments.shiftedMean;
     const variance = this.moments.variance;
-    if (mean * mean > REANCHOR_SIGMAS * REANCHOR_SIGMAS * variance && mean !== 0) {
-      this.rebuild(this.anchor + mean);
-    }
+    const representable = 1e-10 * Math.abs(this.anchor);
+    return mean * mean > REANCHOR_SIGMAS * REANCHOR_SIGMAS * variance + representable * representable;
   }
 }
