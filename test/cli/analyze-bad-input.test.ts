@@ -1,0 +1,116 @@
+import { describe, expect, it } from 'vitest';
+import { assertNoNonFinite, runCli, tempFile } from '../helpers/cli.js';
+
+// Every bad input of the analyze command gets one clear line naming the file (and row and column
+// where there is one), or a per-channel note; never a stack trace, never NaN in the output.
+
+function noStackTrace(text: string) {
+  expect(text).not.toMatch(/\n\s+at .+\(.+:\d+:\d+\)/);
+  expect(text).not.toMatch(/node:internal/);
+}
+
+describe('plateau analyze: bad input', () => {
+  it('a missing file: exit 2 and one line naming it', () => {
+    const r = runCli(['analyze', '/nonexistent/bench-7.csv']);
+    expect(r.status).toBe(2);
+    expect(r.stderr.trim()).toBe('plateau: /nonexistent/bench-7.csv: no such file');
+    noStackTrace(r.stderr);
+  });
+
+  it('no numeric column: exit 2, naming the file and its columns', () => {
+    const file = tempFile('labels.csv', 'operator,remark\nkim,ok\nlee,warm\n');
+    const r = runCli(['analyze', file]);
+    expect(r.status).toBe(2);
+    expect(r.stderr.trim()).toBe(`plateau: ${file}: no numeric column found (columns: operator, remark)`);
+  });
+
+  it('an empty file and a header without rows: exit 2 with the reason', () => {
+    const empty = tempFile('empty.csv', '');
+    expect(runCli(['analyze', empty]).stderr.trim()).toBe(`plateau: ${empty}: the file is empty (a header row is needed)`);
+    const header = tempFile('header.csv', 'time,bath_degC\n');
+    const r = runCli(['analyze', header]);
+    expect(r.status).toBe(2);
+    expect(r.stderr.trim()).toBe(`plateau: ${header}: no data rows after the header`);
+  });
+
+  it('empty, non-numeric, NaN and Infinity cells: skipped with a note naming file, row and column', () => {
+    const rows = ['time,probe_a_degC,probe_b_degC'];
+    for (let i = 0; i < 60; i++) rows.push(`${i},${(21 + 0.01 * Math.sin(i)).toFixed(4)},${(22 + 0.02 * Math.cos(i)).toFixed(4)}`);
+    rows[5] = '4,,22.01';
+    rows[9] = '8,21.003,n/a';
+    rows[12] = '11,NaN,22.0';
+    rows[20] = '19,21.0,-Infinity';
+    rows[21] = '20,21.0,inf';
+    const file = tempFile('probes.csv', `${rows.join('\n')}\n`);
+    const r = runCli(['analyze', file, '--json']);
+    expect(r.status).toBe(0);
+    const report = JSON.parse(r.stdout);
+    assertNoNonFinite(report);
+    const [a, b] = report.channels;
+    expect(a.n).toBe(58);
+    expect(b.n).toBe(57);
+    expect(a.notes).toContain(`${file} row 6, column "probe_a_degC": empty cell, skipped`);
+    expect(a.notes).toContain(`${file} row 13, column "probe_a_degC": NaN is not a measurement, skipped`);
+    expect(b.notes).toContain(`${file} row 10, column "probe_b_degC": not a number, skipped`);
+    expect(b.notes).toContain(`${file} row 21, column "probe_b_degC": Infinity is not a measurement, skipped (2 cells in all, rows 21, 22)`);
+  });
+
+  it('a column with one sample: its mean, and a note instead of an uncertainty', () => {
+    const file = tempFile('sparse.csv', 'time,flow_l_min,ref_flow_l_min\n0,12.1,\n1,12.2,11.98\n2,12.0,\n3,12.1,\n');
+    const r = runCli(['analyze', file, '--json']);
+    expect(r.status).toBe(0);
+    const report = JSON.parse(r.stdout);
+    assertNoNonFinite(report);
+    const single = report.channels[1];
+    expect(single.n).toBe(1);
+    expect(single.mean).toBe(11.98);
+    expect(single.standardUncertainty).toBeNull();
+    expect(single.notes).toContain('one sample: no spread, so no uncertainty can be stated');
+  });
+
+  it('a constant column: u = 0 with a note, tau_int null', () => {
+    const rows = ['time,setpoint_bar,line_bar'];
+    for (let i = 0; i < 40; i++) rows.push(`${i},4.000,${(3.98 + 0.001 * (i % 5)).toFixed(3)}`);
+    const file = tempFile('constant.csv', `${rows.join('\n')}\n`);
+    const r = runCli(['analyze', file, '--json']);
+    const report = JSON.parse(r.stdout);
+    assertNoNonFinite(report);
+    const constant = report.channels[0];
+    expect(constant.sd).toBe(0);
+    expect(constant.tauInt).toBeNull();
+    expect(constant.notes[0]).toMatch(/^constant window: every sample is equal/);
+    // The table form says the same, without NaN anywhere.
+    const table = runCli(['analyze', file]);
+    expect(table.status).toBe(0);
+    expect(table.stdout).not.toMatch(/NaN|Infinity/);
+    expect(table.stdout).toContain('setpoint_bar: constant window');
+  });
+
+  it('bad options: one line naming the option and what was expected', () => {
+    const file = tempFile('ok.csv', 'x\n1\n2\n3\n');
+    const cases: [string[], string][] = [
+      [['--confidence', '1.5'], 'plateau: --confidence 1.5: expected a probability between 0 and 1, e.g. 0.95'],
+      [['--window', '2'], 'plateau: --window 2: expected a whole number of samples, at least 4'],
+      [['--estimator', 'magic'], 'plateau: --estimator magic: expected one of blocking, sokal, geyer, batch-means, iid'],
+      [['--target=-1'], 'plateau: --target -1: expected a positive uncertainty in the channel units'],
+      [['--window-seconds', '10'], `plateau: --window-seconds needs a time column, and ${file} has none (name one with --time-column)`],
+    ];
+    for (const [flags, message] of cases) {
+      const r = runCli(['analyze', file, ...flags]);
+      expect(r.status).toBe(2);
+      expect(r.stderr.trim()).toBe(message);
+    }
+    const unknown = runCli(['analyze', file, '--colour']);
+    expect(unknown.status).toBe(2);
+    expect(unknown.stderr).toMatch(/^plateau: Unknown option '--colour'/);
+    noStackTrace(unknown.stderr);
+  });
+
+  it('a time cell that is not a time: those rows keep their values, and a note says so', () => {
+    const file = tempFile('clock.csv', 'time,rpm\n0,1500\n1,1502\nnoon,1499\n3,1501\n4,1500\n');
+    const r = runCli(['analyze', file, '--json']);
+    const report = JSON.parse(r.stdout);
+    expect(report.channels[0].n).toBe(5);
+    expect(report.notes).toContain(`${file} row 4, column "time": "noon" is not a time; those rows have no time`);
+  });
+});
