@@ -3,7 +3,7 @@ import { ChannelPipeline, type ChannelSnapshot } from '../engine/channel-pipelin
 import { DEFAULT_CHANNEL_OPTIONS, DEFAULT_MAX_SAMPLES, type ChannelOptions } from '../engine/channel-options.js';
 import { ESTIMATOR_NAMES, isEstimatorName } from '../core/tau/tau-estimate.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
-import { probeCsv, readCsvRows, describeIssues } from '../ingest/csv-table.js';
+import { probeCsv, forEachCsvRow, describeIssues } from '../ingest/csv-table.js';
 import { UsageError } from './cli-error.js';
 import { formatDuration, formatSignificant, roundWithUncertainty, textTable } from './format.js';
 import { CAUTION } from './caution.js';
@@ -132,21 +132,23 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
   const notes: string[] = [];
   let timeIssues = 0;
   let firstTimeIssue = '';
-  let rows = 0;
   let previousTime = Number.NEGATIVE_INFINITY;
   let backwards = 0;
-  for await (const row of readCsvRows(layout, (line, text) => {
-    timeIssues++;
-    if (!firstTimeIssue) firstTimeIssue = `${file} row ${line}, column "${layout.timeColumn?.name}": "${text}" is not a time`;
-  })) {
-    rows++;
-    if (row.time < previousTime) backwards++;
-    if (!Number.isNaN(row.time)) previousTime = row.time;
-    for (let c = 0; c < pipelines.length; c++) {
-      const value = row.values[c];
-      if (value !== null && value !== undefined) (pipelines[c] as ChannelPipeline).push(value, row.time);
-    }
-  }
+  const rows = await forEachCsvRow(
+    layout,
+    (_line, time, values) => {
+      if (time < previousTime) backwards++;
+      if (!Number.isNaN(time)) previousTime = time;
+      for (let c = 0; c < pipelines.length; c++) {
+        const value = values[c] as number;
+        if (value === value) (pipelines[c] as ChannelPipeline).push(value, time); // NaN marks a rejected cell
+      }
+    },
+    (line, text) => {
+      timeIssues++;
+      if (!firstTimeIssue) firstTimeIssue = `${file} row ${line}, column "${layout.timeColumn?.name}": "${text}" is not a time`;
+    },
+  );
   if (layout.ignored.length > 0) notes.push(`${file}: columns not numeric, ignored: ${layout.ignored.map((n) => `"${n}"`).join(', ')}`);
   if (timeIssues > 0) notes.push(`${firstTimeIssue}${timeIssues > 1 ? ` (${timeIssues} rows in all)` : ''}; those rows have no time`);
   if (backwards > 0) notes.push(`${file}: time goes backwards at ${backwards} rows; rate estimates may be off`);

@@ -1,5 +1,6 @@
 import { WindowedSeries } from '../core/window/windowed-series.js';
 import { EstimatorSet } from '../core/tau/estimator-set.js';
+import { AutocovarianceFft } from '../core/acf/autocovariance-fft.js';
 import type { EstimatorName, TauEstimate } from '../core/tau/tau-estimate.js';
 import { meanUncertainty } from '../core/uncertainty/mean-uncertainty.js';
 import { targetStatus, type TargetStatus } from '../core/uncertainty/target-precision.js';
@@ -51,8 +52,16 @@ export interface ChannelSnapshot {
   rate: number | null;
   /** Total samples the channel has received. */
   received: number;
-  last: { value: number; time: number } | null;
+  last: { value: number; time: number | null } | null;
   notes: string[];
+}
+
+const SHARED_FFT = new AutocovarianceFft();
+
+type SnapshotBase = Pick<ChannelSnapshot, 'name' | 'n' | 'confidence' | 'estimator' | 'window' | 'rate' | 'received' | 'last'>;
+
+function finiteOrNull(value: number): number | null {
+  return Number.isFinite(value) ? value : null;
 }
 
 /**
@@ -64,14 +73,19 @@ export class ChannelPipeline {
   readonly name: string;
   readonly options: ChannelOptions;
   readonly series: WindowedSeries;
-  private readonly estimatorSet = new EstimatorSet();
+  private readonly estimatorSet: EstimatorSet;
   private received = 0;
   private lastValue = Number.NaN;
   private lastTime = Number.NaN;
 
-  constructor(name: string, options: ChannelOptions) {
+  /**
+   * @param fft transform workspace shared by the channels of one process (a snapshot's FFT fallback
+   *   then allocates its tables once, not once per channel); the engine is single-threaded.
+   */
+  constructor(name: string, options: ChannelOptions, fft: AutocovarianceFft = SHARED_FFT) {
     this.name = name;
     this.options = options;
+    this.estimatorSet = new EstimatorSet(fft);
     const { window } = options;
     const capacity = window.kind === 'sliding' && window.samples ? Math.min(window.samples, window.maxSamples) : window.maxSamples;
     this.series = new WindowedSeries({
@@ -114,6 +128,29 @@ export class ChannelPipeline {
     return span > 0 ? (n - 1) / span : null;
   }
 
+  /** Snapshot of an empty, one-sample or constant window: the mean where there is one, and why no uncertainty. */
+  private degenerateSnapshot(base: SnapshotBase, notes: string[]): ChannelSnapshot {
+    const n = base.n;
+    const none = {
+      sd: null,
+      acf: [],
+      tauInt: null,
+      nEff: null,
+      standardUncertainty: null,
+      dof: null,
+      coverageFactor: null,
+      expandedUncertainty: null,
+      target: null,
+      estimators: {},
+      disagreement: [],
+    };
+    if (n === 0) return { ...base, ...none, mean: null, notes: ['no samples in the window'] };
+    const mean = this.series.mean;
+    if (n === 1) return { ...base, ...none, mean, notes: ['one sample: no spread, so no uncertainty can be stated'] };
+    notes.push('constant window: every sample is equal, so its spread gives no uncertainty (check the sensor or the resolution)');
+    return { ...base, ...none, mean, sd: 0, standardUncertainty: 0, dof: n - 1, notes };
+  }
+
   snapshot(): ChannelSnapshot {
     const { options, series } = this;
     const n = series.length;
@@ -129,46 +166,17 @@ export class ChannelPipeline {
         kind: options.window.kind,
         startIndex: series.firstIndex,
         endIndex: series.nextIndex - 1,
-        startTime: n > 0 ? ring.timeAt(0) : null,
-        endTime: n > 0 ? ring.timeAt(n - 1) : null,
+        startTime: n > 0 ? finiteOrNull(ring.timeAt(0)) : null,
+        endTime: n > 0 ? finiteOrNull(ring.timeAt(n - 1)) : null,
         capacity,
       },
       rate: this.rate(),
       received: this.received,
-      last: this.received > 0 ? { value: this.lastValue, time: this.lastTime } : null,
+      last: this.received > 0 ? { value: this.lastValue, time: finiteOrNull(this.lastTime) } : null,
     };
-    const empty = {
-      ...base,
-      sd: null,
-      acf: [],
-      tauInt: null,
-      nEff: null,
-      standardUncertainty: null,
-      dof: null,
-      coverageFactor: null,
-      expandedUncertainty: null,
-      target: null,
-      estimators: {},
-      disagreement: [],
-    };
-    if (n === 0) return { ...empty, mean: null, notes: ['no samples in the window'] };
+    if (n < 2 || !(series.variance > 0)) return this.degenerateSnapshot(base, notes);
     const mean = series.mean;
-    if (n === 1) return { ...empty, mean, notes: ['one sample: no spread, so no uncertainty can be stated'] };
-    const variance = series.variance;
-    const sd = Math.sqrt(variance);
-    if (!(variance > 0)) {
-      notes.push('constant window: every sample is equal, so its spread gives no uncertainty (check the sensor or the resolution)');
-      return {
-        ...empty,
-        mean,
-        sd: 0,
-        standardUncertainty: 0,
-        dof: n - 1,
-        tauInt: null,
-        nEff: null,
-        notes,
-      };
-    }
+    const sd = Math.sqrt(series.variance);
     const result = this.estimatorSet.run(series, Math.max(MIN_REPORTED_LAGS, options.maxLag));
     const gamma0 = result.gamma[0] as number;
     const lagCount = Math.min(n - 1, Math.max(MIN_REPORTED_LAGS, Math.min(options.maxLag, result.gamma.length - 1)));

@@ -6,32 +6,39 @@ import { createReadStream } from 'node:fs';
  * quote). Lines end with LF or CRLF. Yields [lineNumber (1-based), fields].
  */
 export async function* readDelimitedLines(path: string, delimiter: string): AsyncGenerator<[number, string[]]> {
+  for await (const batch of readLineBatches(path)) {
+    for (let i = 0; i < batch.lines.length; i++) yield [batch.firstLine + i, splitFields(batch.lines[i] as string, delimiter)];
+  }
+}
+
+/**
+ * Reads a text file in large chunks and yields its lines in batches (one batch per chunk), so that a
+ * caller can process a million rows synchronously instead of awaiting each one. Lines end with LF
+ * or CRLF; a byte-order mark is dropped. `firstLine` is the 1-based number of the batch's first line.
+ */
+export async function* readLineBatches(path: string): AsyncGenerator<{ firstLine: number; lines: string[] }> {
   const stream = createReadStream(path, { encoding: 'utf8', highWaterMark: 1 << 20 });
   let carry = '';
-  let lineNumber = 0;
+  let lineNumber = 1;
   let first = true;
   for await (const chunk of stream as AsyncIterable<string>) {
     let text = carry + chunk;
     if (first) {
-      if (text.charCodeAt(0) === 0xfeff) text = text.slice(1); // byte-order mark
+      if (text.charCodeAt(0) === 0xfeff) text = text.slice(1);
       first = false;
     }
-    let start = 0;
-    for (;;) {
-      const end = text.indexOf('\n', start);
-      if (end < 0) break;
-      lineNumber++;
-      const lineEnd = end > start && text.charCodeAt(end - 1) === 13 ? end - 1 : end;
-      yield [lineNumber, splitFields(text.slice(start, lineEnd), delimiter)];
-      start = end + 1;
+    const lines = text.split('\n');
+    carry = lines.pop() as string;
+    for (let i = 0; i < lines.length; i++) {
+      const line = lines[i] as string;
+      if (line.charCodeAt(line.length - 1) === 13) lines[i] = line.slice(0, -1);
     }
-    carry = text.slice(start);
+    if (lines.length > 0) {
+      yield { firstLine: lineNumber, lines };
+      lineNumber += lines.length;
+    }
   }
-  if (carry.length > 0) {
-    lineNumber++;
-    const line = carry.endsWith('\r') ? carry.slice(0, -1) : carry;
-    yield [lineNumber, splitFields(line, delimiter)];
-  }
+  if (carry.length > 0) yield { firstLine: lineNumber, lines: [carry.endsWith('\r') ? carry.slice(0, -1) : carry] };
 }
 
 export function splitFields(line: string, delimiter: string): string[] {

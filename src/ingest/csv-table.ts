@@ -1,6 +1,6 @@
 import { access } from 'node:fs/promises';
-import { guessDelimiter, readDelimitedLines, splitFields } from './csv-lines.js';
-import { parseMeasurement, PROBLEM_TEXT, type ValueProblem } from './cell-value.js';
+import { guessDelimiter, readDelimitedLines, readLineBatches, splitFields } from './csv-lines.js';
+import { parseDecimalSpan, parseMeasurement, PROBLEM_TEXT, type ValueProblem } from './cell-value.js';
 import { createReadStream } from 'node:fs';
 
 /**
@@ -113,54 +113,115 @@ async function firstLine(path: string): Promise<string | null> {
   return text.length > 0 ? text : null;
 }
 
-/** One data row's accepted values: for each channel a number, or null when the cell was rejected. */
-export interface CsvRow {
-  line: number;
-  time: number; // seconds, NaN when the file has no time column or the cell is unusable
-  values: (number | null)[];
+/**
+ * Reads the data rows and calls `onRow(line, timeSeconds, values)` for each, synchronously within
+ * each chunk of the file. `values[c]` is the channel's number, or NaN when its cell was rejected
+ * (the rejection is recorded in the channel's issues; NaN never leaves this loop as a value: the
+ * caller skips it). `values` is reused between rows. `timeSeconds` is NaN when the file has no time
+ * column or the cell is unusable (then `onTimeIssue` hears of it).
+ */
+export async function forEachCsvRow(
+  layout: CsvLayout,
+  onRow: (line: number, timeSeconds: number, values: Float64Array) => void,
+  onTimeIssue: (line: number, text: string) => void,
+): Promise<number> {
+  const { channels, timeColumn, delimiter, path } = layout;
+  const values = new Float64Array(channels.length);
+  // Role of each column: a channel's index, TIME, or UNUSED.
+  const columnRole = new Int32Array(layout.header.length).fill(UNUSED);
+  channels.forEach((column, c) => (columnRole[column.index] = c));
+  if (timeColumn) columnRole[timeColumn.index] = TIME;
+  const markMissing = (col: number, line: number) => {
+    const role = columnRole[col] as number;
+    if (role >= 0) {
+      values[role] = Number.NaN;
+      noteIssue(channels[role] as CsvChannelColumn, 'missing', line);
+    }
+  };
+  const readTime = (fields: string[], line: number): number => {
+    if (!timeColumn) return Number.NaN;
+    const cell = fields[timeColumn.index] ?? '';
+    if (timeColumn.kind === 'seconds') {
+      const parsed = parseMeasurement(cell);
+      if (typeof parsed === 'number') return parsed;
+    } else {
+      const ms = Date.parse(cell.trim());
+      if (!Number.isNaN(ms)) return ms / 1000;
+    }
+    onTimeIssue(line, cell);
+    return Number.NaN;
+  };
+  let rows = 0;
+  for await (const batch of readLineBatches(path)) {
+    const lines = batch.lines;
+    for (let b = 0; b < lines.length; b++) {
+      const line = batch.firstLine + b;
+      if (line === 1) continue;
+      const text = lines[b] as string;
+      if (text.length === 0 || text.trim() === '') continue; // blank line
+      let time = Number.NaN;
+      if (text.indexOf('"') < 0) {
+        // Fast path: walk the fields in place, parse only the columns in use.
+        let start = 0;
+        for (let col = 0; col < columnRole.length; col++) {
+          let end = text.indexOf(delimiter, start);
+          if (end < 0) end = text.length;
+          const role = columnRole[col] as number;
+          if (role !== UNUSED) {
+            let value = parseDecimalSpan(text, start, end);
+            let problem: ValueProblem | null = null;
+            if (value !== value) {
+              const parsed = parseMeasurement(text.slice(start, end));
+              if (typeof parsed === 'number') value = parsed;
+              else problem = parsed;
+            }
+            if (role === TIME) {
+              if (problem === null) time = value;
+              else if (timeColumn?.kind === 'date') {
+                const ms = Date.parse(text.slice(start, end).trim());
+                if (Number.isNaN(ms)) onTimeIssue(line, text.slice(start, end));
+                else time = ms / 1000;
+              } else onTimeIssue(line, text.slice(start, end));
+            } else if (problem === null) values[role] = value;
+            else {
+              values[role] = Number.NaN;
+              noteIssue(channels[role] as CsvChannelColumn, problem, line);
+            }
+          }
+          if (end === text.length) {
+            for (let rest = col + 1; rest < columnRole.length; rest++) markMissing(rest, line);
+            break;
+          }
+          start = end + 1;
+        }
+      } else {
+        const fields = splitFields(text, delimiter);
+        time = readTime(fields, line);
+        for (let c = 0; c < channels.length; c++) {
+          const column = channels[c] as CsvChannelColumn;
+          const cell = fields[column.index];
+          if (cell === undefined) {
+            values[c] = Number.NaN;
+            noteIssue(column, 'missing', line);
+            continue;
+          }
+          const parsed = parseMeasurement(cell);
+          if (typeof parsed === 'number') values[c] = parsed;
+          else {
+            values[c] = Number.NaN;
+            noteIssue(column, parsed, line);
+          }
+        }
+      }
+      rows++;
+      onRow(line, time, values);
+    }
+  }
+  return rows;
 }
 
-/**
- * Streams the data rows, recording every rejected cell in its channel's issues. `onTimeIssue`
- * receives rows whose time cell is unusable.
- */
-export async function* readCsvRows(layout: CsvLayout, onTimeIssue: (line: number, text: string) => void): AsyncGenerator<CsvRow> {
-  const { channels, timeColumn, delimiter, path } = layout;
-  for await (const [line, fields] of readDelimitedLines(path, delimiter)) {
-    if (line === 1) continue;
-    if (fields.length === 1 && (fields[0] as string).trim() === '') continue; // blank line
-    let time = Number.NaN;
-    if (timeColumn) {
-      const cell = fields[timeColumn.index] ?? '';
-      if (timeColumn.kind === 'seconds') {
-        const parsed = parseMeasurement(cell);
-        if (typeof parsed === 'number') time = parsed;
-        else onTimeIssue(line, cell);
-      } else {
-        const ms = Date.parse(cell.trim());
-        if (Number.isNaN(ms)) onTimeIssue(line, cell);
-        else time = ms / 1000;
-      }
-    }
-    const values: (number | null)[] = new Array(channels.length);
-    for (let c = 0; c < channels.length; c++) {
-      const column = channels[c] as CsvChannelColumn;
-      const cell = fields[column.index];
-      if (cell === undefined) {
-        values[c] = null;
-        noteIssue(column, 'missing', line);
-        continue;
-      }
-      const parsed = parseMeasurement(cell);
-      if (typeof parsed === 'number') values[c] = parsed;
-      else {
-        values[c] = null;
-        noteIssue(column, parsed, line);
-      }
-    }
-    yield { line, time, values };
-  }
-}
+const UNUSED = -1;
+const TIME = -2;
 
 function noteIssue(column: CsvChannelColumn, problem: ValueProblem | 'missing', line: number): void {
   let issue = column.issues.get(problem);

@@ -10,7 +10,8 @@ import FFT from 'fft.js';
  * `acf(adjusted=False, fft=True)` and to the one emcee's `autocorr.function_1d` normalises.
  * J. W. Cooley & J. W. Tukey (1965), Math. Comp. 19, 297-301; the transform is fft.js (radix 4).
  *
- * Cost: O(n log n) time, 4 * 2^ceil(log2(2n)) doubles of workspace.
+ * Cost: O(n log n) time, 5 * 2^ceil(log2(2n)) doubles of workspace. One instance can serve every
+ * channel of a process (it keeps only the transform tables and scratch space of the last size).
  */
 export class AutocovarianceFft {
   private size = 0;
@@ -42,16 +43,20 @@ export class AutocovarianceFft {
     const spectrum = this.spectrum;
     transform.realTransform(spectrum as unknown as number[], input as unknown as number[]);
     transform.completeSpectrum(spectrum as unknown as number[]);
-    for (let i = 0; i < spectrum.length; i += 2) {
-      const re = spectrum[i] as number;
-      const im = spectrum[i + 1] as number;
-      spectrum[i] = re * re + im * im;
-      spectrum[i + 1] = 0;
+
+    // The power spectrum is real and even, so its inverse transform equals its forward real
+    // transform divided by the size: one more real transform instead of a complex one.
+    const power = this.input;
+    const size = this.size;
+    for (let j = 0; j < size; j++) {
+      const re = spectrum[2 * j] as number;
+      const im = spectrum[2 * j + 1] as number;
+      power[j] = re * re + im * im;
     }
     const back = this.back;
-    transform.inverseTransform(back as unknown as number[], spectrum as unknown as number[]);
+    transform.realTransform(back as unknown as number[], power as unknown as number[]);
     const gamma = new Float64Array(lags + 1);
-    for (let k = 0; k <= lags; k++) gamma[k] = (back[2 * k] as number) / n;
+    for (let k = 0; k <= lags; k++) gamma[k] = (back[2 * k] as number) / (size * n);
     return gamma;
   }
 

@@ -142,7 +142,8 @@ export class LaggedProducts {
  * gamma_k = (1/n) * sum_{i=k}^{n-1} (d_i - m)(d_(i-k) - m)
  *         = (1/n) * [C_k - m * (H_k + T_k) + (n - k) * m^2],
  * with m the mean of the shifted values, H_k the sum without the first k values and T_k the sum
- * without the last k. `front(i)` and `back(i)` give shifted values from either end.
+ * without the last k. `front[i]` and `back[i]` hold the i-th shifted value from either end
+ * (at least maxLag of each, or n when the window is shorter).
  *
  * Cost: O(maxLag).
  */
@@ -150,8 +151,8 @@ export function autocovarianceFromProducts(
   products: Float64Array,
   n: number,
   shiftedSum: number,
-  front: (i: number) => number,
-  back: (i: number) => number,
+  front: Float64Array,
+  back: Float64Array,
   out?: Float64Array,
 ): Float64Array {
   const lags = Math.min(products.length - 1, n - 1);
@@ -162,8 +163,8 @@ export function autocovarianceFromProducts(
   let lastK = 0; // sum of the last k values
   for (let k = 0; k <= lags; k++) {
     if (k > 0) {
-      firstK += front(k - 1);
-      lastK += back(k - 1);
+      firstK += front[k - 1] as number;
+      lastK += back[k - 1] as number;
     }
     const withoutFirst = shiftedSum - firstK;
     const withoutLast = shiftedSum - lastK;

@@ -26,9 +26,14 @@ export interface EstimatorSetResult {
 }
 
 export class EstimatorSet {
-  private readonly fft = new AutocovarianceFft();
+  private readonly fft: AutocovarianceFft;
   private cachedKey = '';
   private cachedGamma: Float64Array | null = null;
+
+  /** `fft` may be shared by every channel of a process: it holds only transform tables and scratch space. */
+  constructor(fft: AutocovarianceFft = new AutocovarianceFft()) {
+    this.fft = fft;
+  }
 
   /** Autocovariance over the whole window by FFT, cached while the window is unchanged. */
   fullAutocovariance(series: WindowedSeries): Float64Array {

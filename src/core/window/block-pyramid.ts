@@ -218,7 +218,9 @@ export class BlockPyramid {
   private emit(j: number, block: number, sum: number): void {
     let level = this.levels[j - 1];
     if (!level) {
-      const maxBlocks = Math.floor(this.maxSamples / 2 ** j) + 1;
+      // The window never holds more than maxSamples samples when a block is added (the oldest leaves
+      // first), so no more than floor(maxSamples / 2^j) aligned blocks fit in it.
+      const maxBlocks = Math.max(2, Math.floor(this.maxSamples / 2 ** j));
       level = new PyramidLevel(j, this.preallocate ? maxBlocks : 16, maxBlocks);
       this.levels[j - 1] = level;
     }

@@ -155,14 +155,14 @@ export class WindowedSeries {
     const ring = this.ring;
     const n = ring.length;
     const anchor = this.anchor;
-    return autocovarianceFromProducts(
-      this.lags.products(),
-      n,
-      this.moments.shiftedSum,
-      (i) => ring.at(i) - anchor,
-      (i) => ring.at(n - 1 - i) - anchor,
-      out,
-    );
+    const edge = Math.min(n, this.maxLag);
+    const front = new Float64Array(edge);
+    const back = new Float64Array(edge);
+    for (let i = 0; i < edge; i++) {
+      front[i] = ring.at(i) - anchor;
+      back[i] = ring.at(n - 1 - i) - anchor;
+    }
+    return autocovarianceFromProducts(this.lags.products(), n, this.moments.shiftedSum, front, back, out);
   }
 
   /** The window's values, oldest first (a copy). */

@@ -1,0 +1,62 @@
+/**
+ * Residuals of a series about its mean or about its least-squares line on t = 1..n, computed in
+ * centred form, shared by the stationarity tests (KPSS residuals, the constant-series check of the
+ * AR spectral density at zero).
+ *
+ * Method: ordinary least squares on (1, t) written about the means (x - xbar, t - tbar), which is
+ * the numerically stable form of the normal equations (no n * sum(t^2) - (sum t)^2 cancellation);
+ * sum_t (t - tbar)^2 = n (n^2 - 1) / 12 exactly. The mean is the two-pass corrected mean
+ * (xbar = s/n, then xbar += sum(x - xbar)/n), which returns a constant series' value exactly, so a
+ * constant series has residuals exactly 0.
+ * Cost: O(n) time, one Float64Array of n values.
+ */
+
+/** Two-pass corrected mean of values[from..to) (to exclusive). */
+export function correctedMean(values: ArrayLike<number>, from = 0, to = values.length): number {
+  const count = to - from;
+  let sum = 0;
+  for (let i = from; i < to; i++) sum += values[i] as number;
+  let mean = sum / count;
+  let correction = 0;
+  for (let i = from; i < to; i++) correction += (values[i] as number) - mean;
+  mean += correction / count;
+  return mean;
+}
+
+export interface LinearResiduals {
+  /** The residuals e_t, t = 1..n. */
+  residuals: Float64Array;
+  /** Sample standard deviation of the residuals, sqrt(sum e^2 / (n - 1)) (as R's sd(residuals(lm))). */
+  residualSd: number;
+  /** Magnitude of the data, max |x_t|, the scale of the relative constant check. */
+  scale: number;
+}
+
+/**
+ * Residuals about the mean (`trend = false`) or about the OLS line on t = 1..n (`trend = true`).
+ * @throws RangeError when fewer than 2 values are given.
+ */
+export function linearResiduals(values: ArrayLike<number>, trend: boolean): LinearResiduals {
+  const n = values.length;
+  if (n < 2) throw new RangeError('linearResiduals requires at least 2 samples');
+  const mean = correctedMean(values);
+  const residuals = new Float64Array(n);
+  let scale = 0;
+  for (let i = 0; i < n; i++) {
+    const x = values[i] as number;
+    residuals[i] = x - mean;
+    const a = Math.abs(x);
+    if (a > scale) scale = a;
+  }
+  if (trend) {
+    const tMean = (n + 1) / 2;
+    let sxt = 0;
+    for (let i = 0; i < n; i++) sxt += (i + 1 - tMean) * (residuals[i] as number);
+    const stt = (n * (n * n - 1)) / 12;
+    const slope = sxt / stt;
+    for (let i = 0; i < n; i++) residuals[i] = (residuals[i] as number) - slope * (i + 1 - tMean);
+  }
+  let sumSquares = 0;
+  for (let i = 0; i < n; i++) sumSquares += (residuals[i] as number) ** 2;
+  return { residuals, residualSd: Math.sqrt(sumSquares / (n - 1)), scale };
+}
