@@ -41,8 +41,9 @@ import chisquareQuantile from '@stdlib/stats-base-dists-chisquare-quantile';
  * Other noise types (flicker, random walk) have fewer edf at long tau; these bars are then too
  *   narrow, which makes averagingLimit() somewhat quick to see a floor (documented there).
  *
- * Cost: O(N) to build the phase, O(N) per averaging factor (overlapping), O(N) per factor
- *   (non-overlapping, O(N/m) after the phase); memory N + 1 doubles.
+ * Cost: O(N) to build the phase (once per call), then O(N) per averaging factor for the
+ *   overlapping ADEV and O(N / m) for the non-overlapping one; O(N log N) for all octaves.
+ *   Memory: N + 1 doubles for the phase.
  */
 export interface AllanPoint {
   /** Averaging factor (samples per average). */

