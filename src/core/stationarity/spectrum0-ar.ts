@@ -30,6 +30,9 @@ import { correctedMean, linearResiduals } from './linear-residuals.js';
  * leaves rounding residuals of a few ulp, while any real signal is far above that).
  * `{ constantCheck: 'absolute' }` reproduces coda (tolerance 2^-26 unless given).
  *
+ * Short series: for n <= 11, order.max = n - 1 and AIC may choose p = n - 1; var.pred and S(0) are
+ * then +Infinity (n - (p + 1) = 0), as in R. Callers should not rely on S(0) below a few tens of
+ * samples.
  * Cost: O(n * order.max) time for the autocovariances (order.max <= 10 log10 n, e.g. 40 at
  *   n = 10^4), O(order.max^2) for the recursion; O(n) memory (one residual array). Call on
  *   snapshots, not per sample.
