@@ -55,8 +55,15 @@ import { assembleBatchMeansResult, chooseLugsail, multivariateEss, type Multivar
  * Cost: O(1) per sample; per completed bucket O(p) to form the row plus amortised O(p^2) for the
  * pyramid (summed over the levels there are two blocks per row, and each block's outer product,
  * p (p + 1) / 2 multiply-adds, is added once and removed once: about 2 p^2 per bucket) and for the
- * periodic recomputation (about as much again); snapshot O(p^3) (the Cholesky tests). Memory: about 2 maxBuckets p doubles for the rings, p^2 per level
- * (log2(maxBuckets) levels), 2 p per open bucket.
+ * periodic recomputation (about as much again); snapshot O(p^3) (the Cholesky tests). Memory:
+ * about 2 maxBuckets p doubles for the rings, p^2 per level (log2(maxBuckets) levels), 2 p per open
+ * bucket; `state()` carries all of it (about 4.4 MB of JSON for p = 30, maxBuckets = 3600).
+ * Measured (Node 20, 2-core machine under load, maxBuckets = 3600, one sample per channel per
+ * bucket): about 2, 4 and 16 microseconds per completed bucket for p = 3, 10 and 30, i.e. 0.6, 0.4
+ * and 0.5 microseconds per sample; with 10 samples per channel per bucket about 0.1 microseconds per
+ * sample for each p; a snapshot 20-110 microseconds.
+ * Bucket boundaries follow floating-point division: a time stamped exactly on a boundary of a
+ * bucketSeconds that is not a binary fraction (0.1 s) may fall on either side of it.
  */
 export interface TimeBucketedCovarianceOptions {
   /** Width of a common time bucket, seconds. */
@@ -215,7 +222,9 @@ export class TimeBucketedCovariance {
   /** Every bucket index at or below this is closed. */
   private closedThrough: number | null = null;
   private lastClosedWithData: number | null = null;
-  private readonly slotIndex: (number | null)[];
+  /** Bucket index held by each open slot, meaningful where slotUsed is 1. */
+  private readonly slotIndex: Float64Array;
+  private readonly slotUsed: Uint8Array;
   private readonly slotSums: Float64Array;
   private readonly slotCounts: Float64Array;
   private totalRows = 0;
@@ -238,7 +247,8 @@ export class TimeBucketedCovariance {
     const p = channelCount;
     this.anchors = new Float64Array(p);
     this.anchored = new Uint8Array(p);
-    this.slotIndex = new Array<number | null>(openBuckets).fill(null);
+    this.slotIndex = new Float64Array(openBuckets);
+    this.slotUsed = new Uint8Array(openBuckets);
     this.slotSums = new Float64Array(openBuckets * p);
     this.slotCounts = new Float64Array(openBuckets * p);
     this.levels = [];
@@ -269,9 +279,10 @@ export class TimeBucketedCovariance {
       return false;
     }
     const slot = modulo(index, this.openBuckets);
-    if (this.slotIndex[slot] !== index) {
+    if (this.slotUsed[slot] === 0 || this.slotIndex[slot] !== index) {
       // The slot's previous bucket is at least openBuckets older, hence closed already.
       this.slotIndex[slot] = index;
+      this.slotUsed[slot] = 1;
       this.slotSums.fill(0, slot * this.channelCount, (slot + 1) * this.channelCount);
       this.slotCounts.fill(0, slot * this.channelCount, (slot + 1) * this.channelCount);
     }
@@ -357,8 +368,8 @@ export class TimeBucketedCovariance {
       newestBucket: this.newestBucket,
       closedThrough: this.closedThrough,
       lastClosedWithData: this.lastClosedWithData,
-      slots: this.slotIndex.map((index, s) => ({
-        index,
+      slots: Array.from(this.slotIndex, (index, s) => ({
+        index: this.slotUsed[s] === 1 ? index : null,
         sums: Array.from(this.slotSums.subarray(s * p, (s + 1) * p)),
         counts: Array.from(this.slotCounts.subarray(s * p, (s + 1) * p)),
       })),
@@ -404,7 +415,8 @@ export class TimeBucketedCovariance {
     out.lastClosedWithData = state.lastClosedWithData;
     state.slots.forEach((slot, s) => {
       check(slot.sums.length === p && slot.counts.length === p, 'open bucket sums');
-      out.slotIndex[s] = slot.index;
+      out.slotIndex[s] = slot.index ?? 0;
+      out.slotUsed[s] = slot.index === null ? 0 : 1;
       out.slotSums.set(slot.sums, s * p);
       out.slotCounts.set(slot.counts, s * p);
     });
@@ -503,20 +515,22 @@ export class TimeBucketedCovariance {
 
   /** Closes every open bucket with index <= limit, oldest first. */
   private closeThrough(limit: number): void {
-    const order: number[] = [];
-    for (let s = 0; s < this.openBuckets; s++) {
-      const index = this.slotIndex[s];
-      if (index !== null && index !== undefined && index <= limit) order.push(s);
+    // openBuckets is small: pick the oldest open slot at or below the limit until none is left.
+    for (;;) {
+      let oldest = -1;
+      for (let s = 0; s < this.openBuckets; s++) {
+        if (this.slotUsed[s] === 1 && (this.slotIndex[s] as number) <= limit && (oldest < 0 || (this.slotIndex[s] as number) < (this.slotIndex[oldest] as number))) oldest = s;
+      }
+      if (oldest < 0) break;
+      this.closeSlot(oldest);
     }
-    order.sort((x, y) => (this.slotIndex[x] as number) - (this.slotIndex[y] as number));
-    for (const s of order) this.closeSlot(s);
     this.closedThrough = Math.max(this.closedThrough as number, limit);
   }
 
   private closeSlot(slot: number): void {
     const p = this.channelCount;
     const index = this.slotIndex[slot] as number;
-    this.slotIndex[slot] = null;
+    this.slotUsed[slot] = 0;
     let present = 0;
     for (let i = 0; i < p; i++) if ((this.slotCounts[slot * p + i] as number) > 0) present++;
     if (present === 0) return;
