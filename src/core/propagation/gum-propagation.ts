@@ -148,6 +148,7 @@ export function propagateUncertainty(input: PropagationInput): PropagationResult
     dof = (variance * variance) / wsDenominator;
   }
   const rounding = input.dofRounding ?? 'fractional';
+  // Truncation never goes below 1, where t_p(nu) still exists.
   const coverageDof = dof === null ? null : rounding === 'truncate' ? Math.max(1, Math.floor(dof)) : dof;
   const k = coverageFactor(confidence, coverageDof ?? Infinity);
   const result: PropagationResult = {
