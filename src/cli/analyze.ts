@@ -7,6 +7,9 @@ import { probeCsv, forEachCsvRow, describeIssues } from '../ingest/csv-table.js'
 import { UsageError } from './cli-error.js';
 import { formatDuration, formatSignificant, roundWithUncertainty, textTable } from './format.js';
 import { CAUTION } from './caution.js';
+import type { ChannelEvent } from '../engine/channel-events.js';
+
+const MAX_EVENTS = 10_000;
 
 export const ANALYZE_HELP = `plateau analyze FILE [options]
 
@@ -129,6 +132,9 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
     throw new UsageError(`--window-seconds needs a time column, and ${file} has none (name one with --time-column)`);
   }
   const pipelines = layout.channels.map((column) => new ChannelPipeline(column.name, options));
+  // Every event in order (a snapshot keeps only the most recent); capped so a pathological file
+  // cannot exhaust memory, with a note when the cap is reached.
+  const events: ChannelEvent[][] = pipelines.map(() => []);
   const notes: string[] = [];
   let timeIssues = 0;
   let firstTimeIssue = '';
@@ -141,7 +147,12 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
       if (!Number.isNaN(time)) previousTime = time;
       for (let c = 0; c < pipelines.length; c++) {
         const value = values[c] as number;
-        if (value === value) (pipelines[c] as ChannelPipeline).push(value, time); // NaN marks a rejected cell
+        if (value !== value) continue; // NaN marks a rejected cell
+        const raised = (pipelines[c] as ChannelPipeline).push(value, time);
+        if (raised.length > 0) {
+          const list = events[c] as ChannelEvent[];
+          for (const event of raised) if (list.length < MAX_EVENTS) list.push(event);
+        }
       }
     },
     (line, text) => {
@@ -153,9 +164,10 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
   if (timeIssues > 0) notes.push(`${firstTimeIssue}${timeIssues > 1 ? ` (${timeIssues} rows in all)` : ''}; those rows have no time`);
   if (backwards > 0) notes.push(`${file}: time goes backwards at ${backwards} rows; rate estimates may be off`);
   const channels = pipelines.map((pipeline, c) => {
-    const snapshot = pipeline.snapshot();
+    const snapshot = { ...pipeline.snapshot(), events: events[c] as ChannelEvent[] };
     const column = layout.channels[c];
-    if (column) snapshot.notes.unshift(...describeIssues(file, column));
+    snapshot.notes = [...(column ? describeIssues(file, column) : []), ...snapshot.notes];
+    if (snapshot.eventCount > MAX_EVENTS) snapshot.notes.push(`${snapshot.eventCount} events: only the first ${MAX_EVENTS} are listed`);
     return snapshot;
   });
   return {
@@ -174,7 +186,7 @@ export function finiteOrNull(_key: string, value: unknown): unknown {
 }
 
 function renderReport(report: AnalyzeReport): string {
-  const header = ['channel', 'n', 'mean', 'U', 'k', 'u', 'nu_eff', 'tau_int', 'n_eff', 'target'];
+  const header = ['channel', 'state', 'n', 'mean', 'U', 'k', 'u', 'nu_eff', 'tau_int', 'n_eff', 'target'];
   const rows = report.channels.map((c) => {
     const rounded = c.mean === null ? { value: '-', uncertainty: null } : roundWithUncertainty(c.mean, c.expandedUncertainty ?? c.standardUncertainty);
     let target = '-';
@@ -185,6 +197,7 @@ function renderReport(report: AnalyzeReport): string {
     }
     return [
       c.name,
+      c.state,
       String(c.n),
       rounded.value,
       rounded.uncertainty ?? '-',

@@ -24,6 +24,10 @@ export interface ChannelOptions {
   target: TargetSpec | null;
   /** Samples per second, when known from the rig; otherwise estimated from the timestamps. */
   rate: number | null;
+  /** Mean samples between false stationarity alarms on a stationary channel (the detectors' budget). */
+  falseAlarmSamples: number;
+  /** No sample for this long (by the daemon's clock) makes the channel stale. */
+  staleSeconds: number;
 }
 
 /**
@@ -44,6 +48,8 @@ export const DEFAULT_CHANNEL_OPTIONS: ChannelOptions = {
   confidence: 0.95,
   target: null,
   rate: null,
+  falseAlarmSamples: 1_000_000,
+  staleSeconds: 30,
 };
 
 /** Below this many samples the default estimator falls back to independent observations. */

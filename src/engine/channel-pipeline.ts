@@ -5,6 +5,14 @@ import type { EstimatorName, TauEstimate } from '../core/tau/tau-estimate.js';
 import { meanUncertainty } from '../core/uncertainty/mean-uncertainty.js';
 import { targetStatus, type TargetStatus } from '../core/uncertainty/target-precision.js';
 import { type ChannelOptions, FEW_SAMPLES, MIN_REPORTED_LAGS } from './channel-options.js';
+import { CaoRhinehartFilter, type CaoRhinehartState } from '../core/stationarity/cao-rhinehart.js';
+import { batchSizeFromTau } from '../core/stationarity/mser.js';
+import { overlappingAllanDeviation, octaveFactors, averagingLimit } from '../core/allan/allan-deviation.js';
+import { StationarityMonitor, type MonitorState, type StationarityBreak } from './stationarity-monitor.js';
+import { detectWarmup } from './warmup-detector.js';
+import type { ChannelEvent, ChannelState } from './channel-events.js';
+import { stationarityReport, allanReport, type StationarityReport, type AllanReport } from './stationarity-report.js';
+import type { WindowedSeriesState } from '../core/window/windowed-series.js';
 
 /** One estimator's result as reported in a snapshot. */
 export interface EstimatorReport {
@@ -53,21 +61,67 @@ export interface ChannelSnapshot {
   /** Total samples the channel has received. */
   received: number;
   last: { value: number; time: number | null } | null;
+  /** warming, steady, precise, unsteady or stale. */
+  state: ChannelState;
+  /** Samples dropped from the window as warm-up, or because they came before a break. */
+  excluded: number;
+  /** Steady-state evidence: the warm-up end, the reported tests, the monitor, the last break. */
+  stationarity: StationarityReport | null;
+  /** Overlapping Allan deviation at octave averaging factors. */
+  allan: AllanReport['points'];
+  averagingLimit: AllanReport['averagingLimit'];
+  /** The channel's most recent events (up to 256), oldest first. */
+  events: ChannelEvent[];
+  eventCount: number;
   notes: string[];
 }
 
 const SHARED_FFT = new AutocovarianceFft();
+const NO_EVENTS: readonly ChannelEvent[] = Object.freeze([]);
 
-type SnapshotBase = Pick<ChannelSnapshot, 'name' | 'n' | 'confidence' | 'estimator' | 'window' | 'rate' | 'received' | 'last'>;
+type SnapshotBase = Pick<ChannelSnapshot, 'name' | 'n' | 'confidence' | 'estimator' | 'window' | 'rate' | 'received' | 'last' | 'state' | 'excluded' | 'events' | 'eventCount'>;
 
 function finiteOrNull(value: number): number | null {
   return Number.isFinite(value) ? value : null;
 }
 
+/** Samples the window must hold before the first warm-up check. */
+const FIRST_CHECK = 64;
+/** Most recent events kept for snapshots (all events go to the caller as they happen). */
+const RECENT_EVENTS = 256;
+/** Blocks of this many tau_int feed the stationarity monitor. */
+const MONITOR_BLOCK_TAUS = 8;
+/** Effective samples since a break before stationarity may be regained (hysteresis). */
+const REGAIN_EFFECTIVE = 200;
+/** Effective samples of uninterrupted steadiness after a regain that end a streak of losses. */
+const LONG_STEADY = 5000;
+/** precision-reached re-arms when U climbs this far above the bound (hysteresis). */
+const PRECISION_REARM = 1.1;
+
+type Phase = 'warming' | 'steady' | 'unsteady';
+
+export interface ChannelPipelineState {
+  series: WindowedSeriesState;
+  numbers: number[];
+  phase: Phase;
+  flags: boolean[];
+  monitor: MonitorState | null;
+  indicator: CaoRhinehartState;
+  lastBreak: StationarityBreak | null;
+  recentEvents: ChannelEvent[];
+}
+
 /**
- * A channel's pipeline: the window, its estimators and the snapshot that answers "how precise is
- * the mean now". Deterministic given the samples: the daemon and `plateau analyze` both feed
- * samples here, one at a time, in arrival order.
+ * A channel's pipeline: the window, its estimators, the detectors that decide when averaging is
+ * valid, the channel's state and its events. Deterministic given the samples: the daemon and
+ * `plateau analyze` both feed samples here, one at a time, in arrival order, and get the same
+ * events at the same sample indices.
+ *
+ * Phases: warming (no steady state yet: the warm-up detector runs on a geometric schedule),
+ * steady (the stationarity monitor watches every sample; the precision check runs on a schedule),
+ * unsteady (after a break: a growing window restarts at the change point and the warm-up detector
+ * looks for steady state again). The displayed state adds precise (steady and at the target) and
+ * stale (no data by the daemon's clock).
  */
 export class ChannelPipeline {
   readonly name: string;
@@ -77,6 +131,35 @@ export class ChannelPipeline {
   private received = 0;
   private lastValue = Number.NaN;
   private lastTime = Number.NaN;
+  private phase: Phase = 'warming';
+  private precise = false;
+  private stale = false;
+  private lostBefore = false;
+  private averagingLimitSeen = false;
+  private monitor: StationarityMonitor | null = null;
+  private lastBreak: StationarityBreak | null = null;
+  private lastBreakAt = -1;
+  /** Losses in the current streak, and where the last regain happened. */
+  private lossStreak = 0;
+  private regainedAt = -1;
+  /** Long-run variance before the last break (the channel's noise when it was steady). */
+  private breakNoise = 0;
+  /** Absolute index of the first sample after the warm-up (null while warming). */
+  private warmupEnd: number | null = null;
+  /** Samples dropped from the window as warm-up (or before a break) since the window began. */
+  private excluded = 0;
+  /** Absolute index where the current window began (test point start or channel start). */
+  private windowOrigin = 0;
+  private nextWarmupCheck = FIRST_CHECK;
+  private nextPrecisionCheck = 0;
+  private nextAllanCheck = 256;
+  private indicator = new CaoRhinehartFilter();
+  private indicatorBlock = 16;
+  private indicatorSum = 0;
+  private indicatorCount = 0;
+  private recentEvents: ChannelEvent[] = [];
+  private eventCount = 0;
+  private snapshotCache: { key: string; snapshot: ChannelSnapshot } | null = null;
 
   /**
    * @param fft transform workspace shared by the channels of one process (a snapshot's FFT fallback
@@ -95,27 +178,84 @@ export class ChannelPipeline {
     });
   }
 
-  /** Feeds one sample (time in seconds). Values must be finite: the decoders reject the rest. */
-  push(value: number, timeSeconds: number): void {
+  /**
+   * Feeds one sample (time in seconds; NaN when unknown). Values must be finite: the decoders and
+   * the CSV reader reject the rest. Returns the events this sample raised (usually none).
+   */
+  push(value: number, timeSeconds: number): readonly ChannelEvent[] {
+    const index = this.series.nextIndex;
     this.series.push(value, timeSeconds);
     this.received++;
     this.lastValue = value;
     this.lastTime = timeSeconds;
-    const seconds = this.options.window.seconds;
-    if (seconds !== undefined && this.options.window.kind === 'sliding') {
+    const { window } = this.options;
+    if (window.seconds !== undefined && window.kind === 'sliding') {
       const ring = this.series.ring;
-      const oldest = timeSeconds - seconds;
+      const oldest = timeSeconds - window.seconds;
       while (ring.length > 1 && ring.timeAt(0) < oldest) this.series.shift();
     }
+    let events: ChannelEvent[] | null = null;
+    const raise = (event: ChannelEvent) => {
+      (events ??= []).push(event);
+      this.remember(event);
+    };
+    if (this.stale) {
+      this.stale = false;
+      raise({ kind: 'fresh', at: index });
+    }
+    this.feedIndicator(value);
+    if (this.phase === 'steady' && this.monitor) {
+      const found = this.monitor.push(value, index);
+      if (found) this.breakFound(found, index, raise);
+    }
+    if (this.phase !== 'steady' && index >= this.nextWarmupCheck) this.checkWarmup(index, raise);
+    if (this.phase === 'steady' && index >= this.nextPrecisionCheck) this.checkPrecision(index, raise);
+    if (index >= this.nextAllanCheck) this.checkAveragingLimit(index, raise);
+    return events ?? NO_EVENTS;
   }
 
-  /** Starts a new growing window at the next sample (a test point starts). */
+  /**
+   * The daemon's clock: a channel with no sample for staleSeconds turns stale (one event, at the
+   * index of its last sample). `plateau analyze` has no clock and never calls this.
+   */
+  checkStale(nowSeconds: number): ChannelEvent | null {
+    if (this.stale || this.received === 0 || !Number.isFinite(this.lastTime)) return null;
+    const silent = nowSeconds - this.lastTime;
+    if (silent < this.options.staleSeconds) return null;
+    this.stale = true;
+    const event: ChannelEvent = { kind: 'stale', at: this.received - 1, silentSeconds: silent };
+    this.remember(event);
+    return event;
+  }
+
+  /** Starts a new growing window at the next sample (a test point starts): warming again. */
   restartWindow(): void {
     this.series.clear();
+    this.windowOrigin = this.series.nextIndex;
+    this.resetDetectors();
+    this.lostBefore = false;
+    this.lastBreak = null;
+    this.breakNoise = 0;
+    this.lossStreak = 0;
+    this.regainedAt = -1;
+    this.excluded = 0;
+    this.averagingLimitSeen = false;
+    this.nextAllanCheck = this.windowOrigin + 256;
   }
 
   get count(): number {
     return this.series.length;
+  }
+
+  get totalReceived(): number {
+    return this.received;
+  }
+
+  get state(): ChannelState {
+    if (this.stale) return 'stale';
+    if (this.phase === 'warming') return 'warming';
+    if (this.phase === 'unsteady') return 'unsteady';
+    return this.precise ? 'precise' : 'steady';
   }
 
   /** Samples per second: configured, else from the window's first and last timestamps. */
@@ -126,6 +266,202 @@ export class ChannelPipeline {
     if (n < 2) return null;
     const span = ring.timeAt(n - 1) - ring.timeAt(0);
     return span > 0 ? (n - 1) / span : null;
+  }
+
+  /** Plain-data state: restoring it into a pipeline with the same name and options continues bit for bit. */
+  saveState(): ChannelPipelineState {
+    return {
+      series: this.series.saveState(),
+      numbers: [this.received, this.lastValue, this.lastTime, this.warmupEnd ?? -1, this.excluded, this.windowOrigin, this.nextWarmupCheck, this.nextPrecisionCheck, this.nextAllanCheck, this.indicatorBlock, this.indicatorSum, this.indicatorCount, this.eventCount, this.lastBreakAt, this.breakNoise, this.lossStreak, this.regainedAt],
+      phase: this.phase,
+      flags: [this.precise, this.stale, this.lostBefore, this.averagingLimitSeen],
+      monitor: this.monitor ? this.monitor.saveState() : null,
+      indicator: this.indicator.state(),
+      lastBreak: this.lastBreak ? { ...this.lastBreak } : null,
+      recentEvents: this.recentEvents.map((event) => ({ ...event })),
+    };
+  }
+
+  loadState(state: ChannelPipelineState): void {
+    this.series.loadState(state.series);
+    let warmupEnd: number;
+    [this.received, this.lastValue, this.lastTime, warmupEnd, this.excluded, this.windowOrigin, this.nextWarmupCheck, this.nextPrecisionCheck, this.nextAllanCheck, this.indicatorBlock, this.indicatorSum, this.indicatorCount, this.eventCount, this.lastBreakAt, this.breakNoise, this.lossStreak, this.regainedAt] = state.numbers as number[] as [number, number, number, number, number, number, number, number, number, number, number, number, number, number, number, number, number];
+    this.warmupEnd = warmupEnd >= 0 ? warmupEnd : null;
+    this.phase = state.phase;
+    [this.precise, this.stale, this.lostBefore, this.averagingLimitSeen] = state.flags as [boolean, boolean, boolean, boolean];
+    this.monitor = state.monitor ? StationarityMonitor.fromState(state.monitor) : null;
+    this.indicator = CaoRhinehartFilter.fromState(state.indicator);
+    this.lastBreak = state.lastBreak;
+    this.recentEvents = state.recentEvents;
+    this.snapshotCache = null;
+  }
+
+  private remember(event: ChannelEvent): void {
+    this.eventCount++;
+    this.recentEvents.push(event);
+    if (this.recentEvents.length > RECENT_EVENTS) this.recentEvents.shift();
+    this.snapshotCache = null;
+  }
+
+  private resetDetectors(): void {
+    this.phase = 'warming';
+    this.precise = false;
+    this.monitor = null;
+    this.warmupEnd = null;
+    this.nextWarmupCheck = this.series.firstIndex + FIRST_CHECK;
+    this.indicator.reset();
+    this.indicatorSum = 0;
+    this.indicatorCount = 0;
+  }
+
+  /** Cao-Rhinehart R on block means: the cheap per-sample steadiness indicator. */
+  private feedIndicator(value: number): void {
+    this.indicatorSum += value - (Number.isFinite(this.series.anchor) ? this.series.anchor : 0);
+    if (++this.indicatorCount < this.indicatorBlock) return;
+    const mean = this.indicatorSum / this.indicatorCount;
+    this.indicatorSum = 0;
+    this.indicatorCount = 0;
+    this.indicator.update(mean + (Number.isFinite(this.series.anchor) ? this.series.anchor : 0));
+  }
+
+  private tauNow(): number {
+    if (this.series.length < 8 || !(this.series.variance > 0)) return 1;
+    return Math.max(1, this.estimatorSet.estimate(this.series, this.options.estimator).tauInt);
+  }
+
+  private checkWarmup(index: number, raise: (event: ChannelEvent) => void): void {
+    const n = this.series.length;
+    this.nextWarmupCheck = index + Math.max(FIRST_CHECK, Math.floor(n / 8));
+    // After a break a sliding window waits until the change point has slid out.
+    if (this.lastBreak && this.series.firstIndex <= this.lastBreak.changePoint && this.options.window.kind === 'sliding') return;
+    if (n < FIRST_CHECK || !(this.series.variance > 0)) return;
+    const tau = this.tauNow();
+    this.indicatorBlock = Math.max(8, Math.ceil(4 * tau));
+    const values = this.series.values();
+    const verdict = detectWarmup(values, tau);
+    if (!verdict.steady) return;
+    if (this.lostBefore && !this.regainConfirmed(values.subarray(verdict.truncation), tau)) return;
+    const end = this.series.firstIndex + verdict.truncation;
+    if (this.options.window.kind === 'growing' && verdict.truncation > 0) {
+      this.excluded += verdict.truncation;
+      this.series.dropBefore(end);
+    }
+    this.warmupEnd = end;
+    this.phase = 'steady';
+    this.startMonitor(index);
+    const excluded = this.excluded;
+    if (this.lostBefore) this.regainedAt = index;
+    raise(this.lostBefore ? { kind: 'stationarity-regained', at: index, warmupEnd: end, excluded } : { kind: 'steady', at: index, warmupEnd: end, excluded });
+    this.nextPrecisionCheck = index;
+  }
+
+  /**
+   * Hysteresis after a break: stationarity is regained only on twice the evidence that declared it
+   * first (REGAIN_EFFECTIVE effective samples since the cut) and with no trend left in the block
+   * means (|z| < 2 against the pre-break long-run variance), so an ongoing drift cannot flap between lost
+   * and regained.
+   */
+  private regainConfirmed(kept: Float64Array, tau: number): boolean {
+    // Each loss in a streak doubles the evidence the next regain needs (a slow drift looks steady
+    // over short stretches), so lost/regained cannot alternate quickly.
+    if (kept.length / tau < REGAIN_EFFECTIVE * 2 ** Math.min(10, this.lossStreak - 1)) return false;
+    // A stretch shorter than twice the time the last break took to show cannot rule it out.
+    const delay = this.lastBreak ? this.lastBreakAt - this.lastBreak.changePoint : 0;
+    if (kept.length < 2 * delay) return false;
+    const blockSize = Math.max(4, Math.ceil(MONITOR_BLOCK_TAUS * tau));
+    const blocks = Math.floor(kept.length / blockSize);
+    if (blocks < 8) return false;
+    const means = new Float64Array(blocks);
+    for (let b = 0; b < blocks; b++) {
+      let sum = 0;
+      for (let i = b * blockSize; i < (b + 1) * blockSize; i++) sum += kept[i] as number;
+      means[b] = sum / blockSize;
+    }
+    // The noise level from before the break: a drift would inflate an estimate from the drifting
+    // data itself and hide its own trend.
+    const estimate = this.estimatorSet.estimate(this.series, this.options.estimator);
+    const longRunVariance = this.breakNoise > 0 ? this.breakNoise : estimate.varianceOfMean * this.series.length;
+    const sigmaBlock = Math.sqrt(longRunVariance / blockSize);
+    const centre = (blocks - 1) / 2;
+    let sxy = 0;
+    let sxx = 0;
+    for (let b = 0; b < blocks; b++) {
+      sxy += (b - centre) * (means[b] as number);
+      sxx += (b - centre) ** 2;
+    }
+    const z = sxy / sxx / (sigmaBlock / Math.sqrt(sxx));
+    return Math.abs(z) < 2;
+  }
+
+  private startMonitor(index: number): void {
+    const tau = this.tauNow();
+    const estimate = this.estimatorSet.estimate(this.series, this.options.estimator);
+    const blockSize = Math.max(16, Math.ceil(MONITOR_BLOCK_TAUS * tau));
+    let longRunVariance = Math.max(estimate.varianceOfMean * this.series.length, Number.MIN_VALUE);
+    // After a shift or a trend the noise is the channel's own: keep the pre-break level, since a
+    // drift still in the data would inflate a fresh estimate. After a variance change, the new one.
+    if (this.lastBreak && this.lastBreak.cause !== 'variance' && this.breakNoise > 0) longRunVariance = Math.min(longRunVariance, this.breakNoise);
+    this.monitor = new StationarityMonitor(
+      {
+        blockSize,
+        longRunVariance,
+        longRunDof: Math.max(1, estimate.dof),
+        falseAlarmSamples: this.options.falseAlarmSamples,
+      },
+      index + 1,
+      this.series.mean,
+    );
+  }
+
+  private breakFound(found: StationarityBreak, index: number, raise: (event: ChannelEvent) => void): void {
+    // A break within LONG_STEADY effective samples of the last regain continues the streak.
+    if (this.lossStreak > 0 && this.regainedAt >= 0 && (index - this.regainedAt) / this.tauNow() > LONG_STEADY) this.lossStreak = 0;
+    this.lossStreak++;
+    this.lastBreak = found;
+    this.lastBreakAt = index;
+    this.breakNoise = this.monitor?.settings.longRunVariance ?? this.breakNoise;
+    this.lostBefore = true;
+    raise({ kind: 'stationarity-lost', at: index, cause: found.cause, changePoint: found.changePoint, detail: found.detail });
+    const kind = this.options.window.kind;
+    this.phase = 'unsteady';
+    this.precise = false;
+    this.monitor = null;
+    this.warmupEnd = null;
+    if (kind === 'growing' && found.changePoint > this.series.firstIndex) {
+      // The level before the break is not the level now: the window restarts at the change point.
+      this.excluded += found.changePoint - this.series.firstIndex;
+      this.series.dropBefore(found.changePoint);
+    }
+    this.nextWarmupCheck = index + FIRST_CHECK;
+  }
+
+  private checkPrecision(index: number, raise: (event: ChannelEvent) => void): void {
+    const n = this.series.length;
+    this.nextPrecisionCheck = index + Math.max(this.monitor?.settings.blockSize ?? 16, Math.floor(n / 32));
+    if (n < 2 || !(this.series.variance > 0)) return;
+    const estimate = this.estimatorSet.estimate(this.series, this.options.estimator);
+    this.monitor?.refresh(estimate.varianceOfMean * n, estimate.dof);
+    const target = this.options.target;
+    if (!target) return;
+    const u = meanUncertainty(estimate, this.options.confidence);
+    const status = targetStatus(target, { mean: this.series.mean, n, standardUncertainty: u.standardUncertainty, dof: u.dof, confidence: this.options.confidence, rate: null, capacity: Number.POSITIVE_INFINITY });
+    if (!this.precise && status.reached && status.bound !== null) {
+      this.precise = true;
+      raise({ kind: 'precision-reached', at: index, standardUncertainty: u.standardUncertainty, expandedUncertainty: u.expandedUncertainty, bound: status.bound });
+    } else if (this.precise && status.bound !== null) {
+      const achieved = target.on === 'u' ? u.standardUncertainty : (u.expandedUncertainty ?? Number.POSITIVE_INFINITY);
+      if (achieved > PRECISION_REARM * status.bound) this.precise = false;
+    }
+  }
+
+  private checkAveragingLimit(index: number, raise: (event: ChannelEvent) => void): void {
+    const n = this.series.length;
+    this.nextAllanCheck = index + Math.max(256, n);
+    if (this.averagingLimitSeen || this.phase === 'warming' || n < 4096) return;
+    const report = allanReport(this.series.values(), this.rate(), this.tauNow());
+    if (!report.averagingLimit) return;
+    this.averagingLimitSeen = true;
+    raise({ kind: 'averaging-limit', at: index, m: report.averagingLimit.m, tauSeconds: report.averagingLimit.tauSeconds, adev: report.averagingLimit.adev });
   }
 
   /** Snapshot of an empty, one-sample or constant window: the mean where there is one, and why no uncertainty. */
@@ -143,6 +479,9 @@ export class ChannelPipeline {
       target: null,
       estimators: {},
       disagreement: [],
+      stationarity: null,
+      allan: [],
+      averagingLimit: null,
     };
     if (n === 0) return { ...base, ...none, mean: null, notes: ['no samples in the window'] };
     const mean = this.series.mean;
@@ -151,13 +490,25 @@ export class ChannelPipeline {
     return { ...base, ...none, mean, sd: 0, standardUncertainty: 0, dof: n - 1, notes };
   }
 
+  /**
+   * The channel now. Cached until the next sample or event, so polling costs nothing; the
+   * stationarity tests and the Allan deviation are computed here, on demand.
+   */
   snapshot(): ChannelSnapshot {
+    const key = `${this.series.firstIndex}:${this.series.nextIndex}:${this.eventCount}`;
+    if (this.snapshotCache?.key === key) return this.snapshotCache.snapshot;
+    const snapshot = this.computeSnapshot();
+    this.snapshotCache = { key, snapshot };
+    return snapshot;
+  }
+
+  private computeSnapshot(): ChannelSnapshot {
     const { options, series } = this;
     const n = series.length;
     const notes: string[] = [];
     const capacity = series.maxSamples;
     const ring = series.ring;
-    const base = {
+    const base: SnapshotBase = {
       name: this.name,
       n,
       confidence: options.confidence,
@@ -173,7 +524,12 @@ export class ChannelPipeline {
       rate: this.rate(),
       received: this.received,
       last: this.received > 0 ? { value: this.lastValue, time: finiteOrNull(this.lastTime) } : null,
+      state: this.state,
+      excluded: this.excluded,
+      events: this.recentEvents.slice(),
+      eventCount: this.eventCount,
     };
+    if (this.excluded > 0) notes.push(`${this.excluded} samples before steady state (or before a break) are excluded from the mean`);
     if (n < 2 || !(series.variance > 0)) return this.degenerateSnapshot(base, notes);
     const mean = series.mean;
     const sd = Math.sqrt(series.variance);
@@ -203,6 +559,7 @@ export class ChannelPipeline {
         ...(estimate.note ? { note: estimate.note } : {}),
       };
     }
+    const allan = allanReport(series.values(), base.rate, result.estimates[options.estimator].tauInt);
     const target = options.target
       ? targetStatus(options.target, {
           mean,
@@ -230,6 +587,18 @@ export class ChannelPipeline {
       target,
       estimators,
       disagreement: result.disagreements,
+      stationarity: stationarityReport({
+        values: series.values(),
+        tauInt: chosen.tauInt,
+        phase: this.phase,
+        warmupEnd: this.warmupEnd,
+        excluded: this.excluded,
+        indicator: this.indicator.ratio(),
+        monitor: this.monitor,
+        lastBreak: this.lastBreak,
+      }),
+      allan: allan.points,
+      averagingLimit: allan.averagingLimit,
       notes,
     };
   }

@@ -103,4 +103,26 @@ describe('WindowedSeries', () => {
       { numRuns: 200 },
     );
   });
+
+  it('save, restore into a fresh series, continue: bit-identical to never stopping (persistence)', () => {
+    fc.assert(
+      fc.property(sampleArrays, fc.integer({ min: 0, max: 399 }), fc.boolean(), fc.integer({ min: 4, max: 70 }), (values, cutAt, sliding, width) => {
+        const options = sliding ? { maxSamples: width, maxLag: 9, preallocate: true } : { maxSamples: 1 << 12, maxLag: 9 };
+        const straight = new WindowedSeries(options);
+        const first = new WindowedSeries(options);
+        const split = Math.min(cutAt, values.length);
+        values.forEach((v, i) => straight.push(v * 3 + (i % 7), i));
+        values.slice(0, split).forEach((v, i) => first.push(v * 3 + (i % 7), i));
+        const state = structuredClone(first.saveState());
+        const resumed = new WindowedSeries(options);
+        resumed.loadState(state);
+        values.slice(split).forEach((v, j) => resumed.push(v * 3 + ((split + j) % 7), split + j));
+        expect(resumed.mean).toBe(straight.mean);
+        expect(resumed.variance).toBe(straight.variance);
+        expect(Array.from(resumed.autocovariance())).toEqual(Array.from(straight.autocovariance()));
+        for (let j = 1; j < 6; j++) expect(resumed.pyramid.stats(j)).toEqual(straight.pyramid.stats(j));
+      }),
+      { numRuns: 300 },
+    );
+  });
 });

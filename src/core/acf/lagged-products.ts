@@ -19,6 +19,13 @@
  */
 export type FrontReader = (i: number) => number;
 
+export interface LaggedProductsState {
+  committed: Float64Array;
+  addBuffer: Float64Array;
+  removeBuffer: Float64Array;
+  counters: number[];
+}
+
 export class LaggedProducts {
   readonly maxLag: number;
   readonly chunk: number;
@@ -84,6 +91,25 @@ export class LaggedProducts {
     this.pendingAdds = 0;
     this.pendingRemoves = 0;
     this.windowLength = 0;
+  }
+
+  saveState(): LaggedProductsState {
+    return {
+      committed: this.committed.slice(),
+      addBuffer: this.addBuffer.slice(),
+      removeBuffer: this.removeBuffer.slice(),
+      counters: [this.history, this.pendingAdds, this.pendingRemoves, this.windowLength],
+    };
+  }
+
+  loadState(state: LaggedProductsState): void {
+    if (state.committed.length !== this.committed.length || state.addBuffer.length !== this.addBuffer.length) {
+      throw new RangeError('lagged products state was saved with another maxLag or chunk');
+    }
+    this.committed.set(state.committed);
+    this.addBuffer.set(state.addBuffer);
+    this.removeBuffer.set(state.removeBuffer);
+    [this.history, this.pendingAdds, this.pendingRemoves, this.windowLength] = state.counters as [number, number, number, number];
   }
 
   /** Values in the window whose products are committed (excludes pending adds). */

@@ -45,6 +45,30 @@ export class EstimatorSet {
     return this.cachedGamma;
   }
 
+  /**
+   * One estimator only (the pipeline's periodic precision check): the window estimators read the
+   * maintained lags and fall back to the FFT like `run`; the batch estimators read the pyramid.
+   */
+  estimate(series: WindowedSeries, method: EstimatorName): TauEstimate {
+    const n = series.length;
+    const variance = series.variance;
+    if (method === 'iid') return independentSamples(n, variance);
+    if (method === 'blocking' || method === 'batch-means') {
+      const gamma = series.autocovariance();
+      const levels = pyramidLevels(series, gamma);
+      return method === 'blocking' ? blocking({ n, sampleVariance: variance, levels }) : batchMeans({ n, sampleVariance: variance, levels });
+    }
+    const windowEstimator = method === 'sokal' ? sokalWindow : geyerMonotone;
+    const first = windowEstimator(series.autocovariance(), n, variance, false);
+    if (!('needsLags' in first)) return first;
+    const full = windowEstimator(this.fullAutocovariance(series), n, variance, true) as TauEstimate;
+    // Keep enough lags from now on that the next estimate needs no FFT (bounded: beyond MAX_GROWN_LAGS
+    // the per-sample cost would outgrow an occasional transform).
+    const wanted = Math.min(MAX_GROWN_LAGS, Math.ceil(1.5 * (full.window + 2)));
+    if (wanted > series.maxLag) series.growLags(wanted);
+    return full;
+  }
+
   run(series: WindowedSeries, minimumLags: number): EstimatorSetResult {
     const n = series.length;
     const variance = series.variance;
@@ -95,6 +119,9 @@ export function pyramidLevels(series: WindowedSeries, gamma: Float64Array): Pyra
   }
   return levels;
 }
+
+/** Most lags the pipeline will maintain by itself; longer windows use the FFT of the window. */
+export const MAX_GROWN_LAGS = 384;
 
 const COMPARED: EstimatorName[] = ['blocking', 'sokal', 'geyer'];
 

@@ -33,6 +33,16 @@ export interface PyramidLevelStats {
   successiveDifferenceSquares: number;
 }
 
+export interface PyramidLevelState {
+  sums: Float64Array;
+  numbers: number[];
+}
+
+export interface BlockPyramidState {
+  levels: (PyramidLevelState | null)[];
+  numbers: number[];
+}
+
 class PyramidLevel {
   readonly level: number;
   readonly blockSize: number;
@@ -108,6 +118,21 @@ class PyramidLevel {
     for (let i = 0; i < this.count; i++) grown[i] = this.at(i);
     this.sums = grown;
     this.head = 0;
+  }
+
+  saveState(): PyramidLevelState {
+    const sums = new Float64Array(this.count);
+    for (let i = 0; i < this.count; i++) sums[i] = this.at(i);
+    return { sums, numbers: [this.frontBlock, this.total, this.totalSquares, this.neighbourProducts, this.carrySum, this.carryBlock] };
+  }
+
+  loadState(state: PyramidLevelState): void {
+    const count = state.sums.length;
+    if (count > this.sums.length) this.sums = new Float64Array(Math.min(this.maxBlocks, Math.max(count, 2)));
+    this.sums.set(state.sums);
+    this.head = 0;
+    this.count = count;
+    [this.frontBlock, this.total, this.totalSquares, this.neighbourProducts, this.carrySum, this.carryBlock] = state.numbers as [number, number, number, number, number, number];
   }
 
   get byteLength(): number {
@@ -215,13 +240,34 @@ export class BlockPyramid {
     return bytes;
   }
 
+  saveState(): BlockPyramidState {
+    const levels: (PyramidLevelState | null)[] = [];
+    for (let i = 0; i < this.levels.length; i++) levels.push(this.levels[i] ? (this.levels[i] as PyramidLevel).saveState() : null);
+    return { levels, numbers: [this.rawCarry, this.rawCarryIndex, this.windowStart] };
+  }
+
+  loadState(state: BlockPyramidState): void {
+    this.levels.length = 0;
+    state.levels.forEach((levelState, i) => {
+      if (!levelState) return;
+      const level = this.createLevel(i + 1, levelState.sums.length);
+      level.loadState(levelState);
+      this.levels[i] = level;
+    });
+    [this.rawCarry, this.rawCarryIndex, this.windowStart] = state.numbers as [number, number, number];
+  }
+
+  private createLevel(j: number, atLeast: number): PyramidLevel {
+    // The window never holds more than maxSamples samples when a block is added (the oldest leaves
+    // first), so no more than floor(maxSamples / 2^j) aligned blocks fit in it.
+    const maxBlocks = Math.max(2, Math.floor(this.maxSamples / 2 ** j));
+    return new PyramidLevel(j, this.preallocate ? maxBlocks : Math.max(16, atLeast), maxBlocks);
+  }
+
   private emit(j: number, block: number, sum: number): void {
     let level = this.levels[j - 1];
     if (!level) {
-      // The window never holds more than maxSamples samples when a block is added (the oldest leaves
-      // first), so no more than floor(maxSamples / 2^j) aligned blocks fit in it.
-      const maxBlocks = Math.max(2, Math.floor(this.maxSamples / 2 ** j));
-      level = new PyramidLevel(j, this.preallocate ? maxBlocks : 16, maxBlocks);
+      level = this.createLevel(j, 16);
       this.levels[j - 1] = level;
     }
     level.push(block, sum);

@@ -9,6 +9,11 @@
  * Cost: push and shift are O(1) (amortised O(1) while growing); `at(i)` is O(1).
  * Memory: 16 bytes per slot (8 for the value, 8 for the time).
  */
+export interface SampleRingState {
+  values: Float64Array;
+  times: Float64Array;
+}
+
 export class SampleRing {
   private valueSlots: Float64Array;
   private timeSlots: Float64Array;
@@ -93,6 +98,26 @@ export class SampleRing {
   clear(): void {
     this.head = 0;
     this.count = 0;
+  }
+
+  /** Plain-data state (live samples only), for persistence. */
+  saveState(): SampleRingState {
+    return { values: this.copyValues(), times: this.copyTimes() };
+  }
+
+  /** Restores a saved state; the ring then holds exactly those samples, oldest first. */
+  loadState(state: SampleRingState): void {
+    const count = state.values.length;
+    if (count > this.maxCapacity) throw new RangeError('sample ring state holds more samples than the ring can');
+    const size = Math.max(this.valueSlots.length, Math.min(this.maxCapacity, Math.max(1, count)));
+    if (size !== this.valueSlots.length) {
+      this.valueSlots = new Float64Array(size);
+      this.timeSlots = new Float64Array(size);
+    }
+    this.valueSlots.set(state.values);
+    this.timeSlots.set(state.times);
+    this.head = 0;
+    this.count = count;
   }
 
   private grow(): void {

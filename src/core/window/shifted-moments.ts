@@ -67,6 +67,14 @@ export class ShiftedMoments {
     return this.count > 1 ? this.squaredDeviations / (this.count - 1) : 0;
   }
 
+  saveState(): number[] {
+    return [this.count, this.sum, this.sumCompensation, this.sumSquares, this.sumSquaresCompensation];
+  }
+
+  loadState(state: number[]): void {
+    [this.count, this.sum, this.sumCompensation, this.sumSquares, this.sumSquaresCompensation] = state as [number, number, number, number, number];
+  }
+
   private accumulate(value: number, square: number): void {
     // Neumaier's variant of Kahan summation: the compensation also holds when |value| > |sum|.
     let t = this.sum + value;

@@ -1,7 +1,7 @@
-import { SampleRing } from './sample-ring.js';
+import { SampleRing, type SampleRingState } from './sample-ring.js';
 import { ShiftedMoments } from './shifted-moments.js';
-import { LaggedProducts, autocovarianceFromProducts } from '../acf/lagged-products.js';
-import { BlockPyramid } from './block-pyramid.js';
+import { LaggedProducts, autocovarianceFromProducts, type LaggedProductsState } from '../acf/lagged-products.js';
+import { BlockPyramid, type BlockPyramidState } from './block-pyramid.js';
 
 /**
  * Windowed series: one channel's averaging window and the sums that every estimator reads.
@@ -20,6 +20,14 @@ import { BlockPyramid } from './block-pyramid.js';
  *   O(n * maxLag) and happens at most once per `recomputeEvery` removals.
  * Memory: 16 bytes per windowed sample (value and time) plus about 8 for the pyramid.
  */
+export interface WindowedSeriesState {
+  ring: SampleRingState;
+  moments: number[];
+  lags: LaggedProductsState;
+  pyramid: BlockPyramidState;
+  numbers: number[];
+}
+
 export interface WindowedSeriesOptions {
   /** Largest number of samples the window holds; the oldest leaves when a new one would exceed it. */
   maxSamples: number;
@@ -38,10 +46,10 @@ const POLLUTION_RATIO = 32;
 
 export class WindowedSeries {
   readonly maxSamples: number;
-  readonly maxLag: number;
+  maxLag: number;
   readonly ring: SampleRing;
   readonly moments = new ShiftedMoments();
-  readonly lags: LaggedProducts;
+  lags: LaggedProducts;
   readonly pyramid: BlockPyramid;
   /** Value subtracted from every sample before it enters the sums. */
   anchor = Number.NaN;
@@ -173,6 +181,41 @@ export class WindowedSeries {
   /** Bytes held by the window's buffers. */
   get byteLength(): number {
     return this.ring.capacity * 16 + this.pyramid.byteLength + this.lags.byteLength;
+  }
+
+  /** Plain-data state: restoring it continues the series bit for bit (typed arrays are copies). */
+  saveState(): WindowedSeriesState {
+    return {
+      ring: this.ring.saveState(),
+      moments: this.moments.saveState(),
+      lags: this.lags.saveState(),
+      pyramid: this.pyramid.saveState(),
+      numbers: [this.anchor, this.firstIndex, this.nextIndex, this.removalsSinceRebuild, this.nextAnchorCheck, this.pollution, this.lastLargeIndex, this.maxLag],
+    };
+  }
+
+  loadState(state: WindowedSeriesState): void {
+    const maxLag = state.numbers[7] ?? this.maxLag;
+    if (maxLag !== this.maxLag) {
+      this.maxLag = maxLag;
+      this.lags = new LaggedProducts(maxLag, (i) => this.ring.at(i) - this.anchor);
+    }
+    this.ring.loadState(state.ring);
+    this.moments.loadState(state.moments);
+    this.lags.loadState(state.lags);
+    this.pyramid.loadState(state.pyramid);
+    [this.anchor, this.firstIndex, this.nextIndex, this.removalsSinceRebuild, this.nextAnchorCheck, this.pollution, this.lastLargeIndex] = state.numbers as [number, number, number, number, number, number, number];
+  }
+
+  /**
+   * Maintains more lags from now on (a window estimator needed lags beyond maxLag): the lagged
+   * products are rebuilt over the window with the new count. Cost O(n * maxLag).
+   */
+  growLags(maxLag: number): void {
+    if (maxLag <= this.maxLag) return;
+    this.maxLag = maxLag;
+    this.lags = new LaggedProducts(maxLag, (i) => this.ring.at(i) - this.anchor);
+    this.rebuild(this.anchor);
   }
 
   /** Rebuilds every sum exactly from the stored samples, around `anchor`. Cost O(n * maxLag). */

@@ -1,0 +1,21 @@
+import type { BreakCause } from './stationarity-monitor.js';
+
+/**
+ * What a channel tells the world. Events are edge-triggered: each marks a change of state, once.
+ * `at` is the 0-based index of the sample that caused it, counted from the channel's first sample
+ * (in `plateau analyze`, the channel's first accepted cell).
+ */
+export type ChannelState = 'warming' | 'steady' | 'precise' | 'unsteady' | 'stale';
+
+export type ChannelEvent =
+  | { kind: 'steady'; at: number; warmupEnd: number; excluded: number }
+  | { kind: 'stationarity-regained'; at: number; warmupEnd: number; excluded: number }
+  | { kind: 'precision-reached'; at: number; standardUncertainty: number; expandedUncertainty: number | null; bound: number }
+  | { kind: 'stationarity-lost'; at: number; cause: BreakCause; changePoint: number; detail: string }
+  | { kind: 'averaging-limit'; at: number; m: number; tauSeconds: number | null; adev: number }
+  | { kind: 'stale'; at: number; silentSeconds: number }
+  | { kind: 'fresh'; at: number };
+
+export type EventKind = ChannelEvent['kind'];
+
+export const EVENT_KINDS: EventKind[] = ['steady', 'precision-reached', 'stationarity-lost', 'stationarity-regained', 'averaging-limit', 'stale', 'fresh'];

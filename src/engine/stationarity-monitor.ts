@@ -1,0 +1,336 @@
+import { TwoSidedCusum, decisionIntervalForArl, type CusumState } from '../core/stationarity/cusum.js';
+import { varianceChangeTest } from '../core/stationarity/variance-change.js';
+import normalQuantile from '@stdlib/stats-base-dists-normal-quantile';
+
+/**
+ * Watches a steady channel for the end of stationarity: a shift, a trend or a change in noise.
+ *
+ * The samples are averaged in blocks of `blockSize` (several times tau_int, so block means are
+ * nearly independent and nearly normal), and each block mean feeds three detectors:
+ *   - a two-sided CUSUM (E. S. Page (1954), Biometrika 41, 100-115) on self-starting
+ *     standardised block means: z_j = (m_j - mean of the previous blocks) / (sigma_b sqrt(1 + 1/(j-1))),
+ *     with sigma_b^2 = (long-run variance) / blockSize (D. M. Hawkins (1987), "Self-starting CUSUM
+ *     charts for location and scale", The Statistician 36, 299-316: the running reference
+ *     removes the Phase I estimation error that a frozen reference mean would carry into the
+ *     false-alarm rate). Its decision interval comes from the false-alarm budget through
+ *     Siegmund's approximation (core/stationarity/cusum.ts);
+ *   - a variance-change F test: the sample variance of the last RECENT_BLOCKS block means against
+ *     sigma_b^2 (core/stationarity/variance-change.ts);
+ *   - a trend test on the last TREND_BLOCKS block means: the least-squares slope against its
+ *     standard error sigma_b / sqrt(S_jj), which is autocorrelation-consistent because sigma_b comes
+ *     from the long-run variance (W. K. Newey & K. D. West (1987), Econometrica 55, 703-708, for the
+ *     principle; the block means carry the correlation).
+ * The false-alarm budget (mean samples between false alarms on a stationary channel) is shared:
+ * the CUSUM gets an in-control run length of 3 budgets, each test a per-test size of one tenth of
+ * a budget's worth of tests, so that together they stay under one false alarm per budget
+ * (1/3 + 1/10 + 1/10, with room for the error of the estimated long-run variance; measured in
+ * bench/detect.js).
+ *
+ * On an alarm the cause is decided by fitting the block means since the reference start with a
+ * step (level change at one block) and with a ramp (level constant, then linear from one block):
+ * the better fit names the cause (shift or trend) and its break block is the change point; the
+ * variance test names the cause variance.
+ *
+ * Cost: O(1) per sample (one addition), O(1) per block for the CUSUM, O(RECENT_BLOCKS) every
+ * RECENT_BLOCKS blocks for the tests, O(K^2) in the K stored block means only when an alarm is
+ * classified. Memory: HISTORY_BLOCKS doubles for the block means (8 KiB).
+ */
+export type BreakCause = 'shift' | 'trend' | 'variance';
+
+export interface StationarityBreak {
+  cause: BreakCause;
+  /** Absolute sample index where the break is estimated to have begun. */
+  changePoint: number;
+  /** The statistic that raised it: CUSUM side and sum, test z or F ratio. */
+  detail: string;
+}
+
+export interface MonitorSettings {
+  /** Samples per block. */
+  blockSize: number;
+  /** Long-run variance sigma_inf^2 = tau_int * variance, in squared data units. */
+  longRunVariance: number;
+  /** Degrees of freedom of that estimate. */
+  longRunDof: number;
+  /** Mean samples between false alarms. */
+  falseAlarmSamples: number;
+}
+
+export interface MonitorState {
+  settings: MonitorSettings;
+  cusum: CusumState;
+  numbers: number[];
+  history: Float64Array;
+  historyStart: number;
+}
+
+const HISTORY_BLOCKS = 1024;
+const RECENT_BLOCKS = 16;
+const TREND_BLOCKS = 64;
+/** Blocks of self-starting reference before the CUSUM may alarm. */
+const BURN_IN_BLOCKS = 8;
+const CUSUM_REFERENCE = 0.5;
+/** Blocks during which the long-run variance may still be refined. */
+const REFERENCE_BLOCKS = 64;
+
+export class StationarityMonitor {
+  settings: MonitorSettings;
+  private cusum: TwoSidedCusum;
+  private blockSum = 0;
+  private blockCount = 0;
+  /** Absolute sample index of the first sample of the current block. */
+  private blockStart = 0;
+  /** Block means since the reference start (up to HISTORY_BLOCKS, oldest dropped), shifted by `origin`. */
+  private history = new Float64Array(HISTORY_BLOCKS);
+  private historyLength = 0;
+  /** Absolute sample index where block 0 of `history` began. */
+  private historyStart = 0;
+  /** Blocks since the reference start. */
+  private blocks = 0;
+  /** Running mean of block means since the reference start (shifted). */
+  private referenceMean = 0;
+  /** Value subtracted from every sample (keeps the block sums small). */
+  private origin = 0;
+  private readonly thresholds: { varianceAlpha: number; trendZ: number };
+
+  constructor(settings: MonitorSettings, startIndex: number, origin: number) {
+    this.settings = settings;
+    this.cusum = new TwoSidedCusum({ reference: CUSUM_REFERENCE, decisionInterval: cusumInterval(settings) });
+    this.blockStart = startIndex;
+    this.historyStart = startIndex;
+    this.origin = origin;
+    this.thresholds = testThresholds(settings);
+  }
+
+  /** Adds a sample (absolute index `index`); returns a break when one is detected at this sample. */
+  push(value: number, index: number): StationarityBreak | null {
+    this.blockSum += value - this.origin;
+    this.blockCount++;
+    if (this.blockCount < this.settings.blockSize) return null;
+    const mean = this.blockSum / this.blockCount;
+    this.blockSum = 0;
+    this.blockCount = 0;
+    this.blockStart = index + 1;
+    return this.addBlock(mean, index);
+  }
+
+  /**
+   * Updates the long-run variance (and its dof) as the estimate improves, during the reference
+   * period only (the first REFERENCE_BLOCKS blocks, longer while the estimate has fewer than 200
+   * degrees of freedom): later, a slow drift would inflate the estimate and hide itself. The block
+   * size stays.
+   */
+  refresh(longRunVariance: number, longRunDof: number): void {
+    if (!(longRunVariance > 0) || (this.blocks >= REFERENCE_BLOCKS && this.settings.longRunDof >= 200)) return;
+    this.settings = { ...this.settings, longRunVariance, longRunDof };
+  }
+
+  get blockTotal(): number {
+    return this.blocks;
+  }
+
+  /** The current CUSUM sums in standard deviations (for display). */
+  get cusumSums(): { upper: number; lower: number; decisionInterval: number } {
+    return { upper: this.cusum.upper, lower: this.cusum.lower, decisionInterval: this.cusum.decisionInterval };
+  }
+
+  saveState(): MonitorState {
+    return {
+      settings: { ...this.settings },
+      cusum: this.cusum.state(),
+      numbers: [this.blockSum, this.blockCount, this.blockStart, this.historyLength, this.historyStart, this.blocks, this.referenceMean, this.origin],
+      history: this.history.slice(),
+      historyStart: this.historyStart,
+    };
+  }
+
+  static fromState(state: MonitorState): StationarityMonitor {
+    const monitor = new StationarityMonitor(state.settings, 0, 0);
+    monitor.cusum = TwoSidedCusum.restore(state.cusum);
+    [monitor.blockSum, monitor.blockCount, monitor.blockStart, monitor.historyLength, monitor.historyStart, monitor.blocks, monitor.referenceMean, monitor.origin] = state.numbers as [number, number, number, number, number, number, number, number];
+    monitor.history.set(state.history);
+    return monitor;
+  }
+
+  private addBlock(mean: number, index: number): StationarityBreak | null {
+    const { blockSize, longRunVariance, longRunDof } = this.settings;
+    // The long-run variance is an estimate with nu degrees of freedom; scaling by its value one
+    // standard error high (1 + sqrt(2 / nu)) keeps an early, uncertain estimate from crowding the
+    // false-alarm budget in the first hours of monitoring.
+    const sigmaBlock = Math.sqrt((longRunVariance * (1 + Math.sqrt(2 / Math.max(1, longRunDof)))) / blockSize);
+    const j = this.blocks; // blocks before this one
+    this.record(mean);
+    let alarm: 'up' | 'down' | null = null;
+    if (j >= 1 && sigmaBlock > 0) {
+      const z = (mean - this.referenceMean) / (sigmaBlock * Math.sqrt(1 + 1 / j));
+      const side = this.cusum.update(z);
+      if (j >= BURN_IN_BLOCKS) alarm = side;
+    }
+    this.referenceMean += (mean - this.referenceMean) / (j + 1);
+    this.blocks = j + 1;
+    if (alarm) {
+      const detail = `CUSUM ${alarm === 'up' ? 'upper' : 'lower'} sum ${(alarm === 'up' ? this.cusum.upper : this.cusum.lower).toFixed(2)} over h = ${this.cusum.decisionInterval.toFixed(2)}`;
+      return this.classify(detail, index);
+    }
+    if (this.blocks >= BURN_IN_BLOCKS + RECENT_BLOCKS && this.blocks % RECENT_BLOCKS === 0 && sigmaBlock > 0) {
+      const recent = this.recentVariance();
+      const test = varianceChangeTest(
+        { longRunVariance: recent * blockSize, dof: RECENT_BLOCKS - 1 },
+        { longRunVariance, dof: Math.max(1, this.settings.longRunDof) },
+        this.thresholds.varianceAlpha,
+      );
+      // Only more noise breaks the averaging: less noise leaves the stated uncertainty conservative.
+      if (test.changed && test.direction === 'up') {
+        const start = this.historyStart + (this.historyLength - RECENT_BLOCKS) * blockSize;
+        return { cause: 'variance', changePoint: Math.max(this.historyStart, start), detail: `variance of the last ${RECENT_BLOCKS} block means ${test.ratio?.toFixed(2)} times the reference (p = ${test.pValue?.toPrecision(2)})` };
+      }
+      const trendZ = this.recentSlopeZ(sigmaBlock);
+      if (trendZ !== null && Math.abs(trendZ) > this.thresholds.trendZ) return this.classify(`slope of the last ${Math.min(TREND_BLOCKS, this.historyLength)} block means z = ${trendZ.toFixed(2)}`, index, 'trend');
+    }
+    return null;
+  }
+
+  private record(mean: number): void {
+    if (this.historyLength === HISTORY_BLOCKS) {
+      this.history.copyWithin(0, 1);
+      this.historyLength--;
+      this.historyStart += this.settings.blockSize;
+    }
+    this.history[this.historyLength++] = mean;
+  }
+
+  private recentVariance(): number {
+    let sum = 0;
+    const from = this.historyLength - RECENT_BLOCKS;
+    for (let i = from; i < this.historyLength; i++) sum += this.history[i] as number;
+    const m = sum / RECENT_BLOCKS;
+    let squares = 0;
+    for (let i = from; i < this.historyLength; i++) squares += ((this.history[i] as number) - m) ** 2;
+    return squares / (RECENT_BLOCKS - 1);
+  }
+
+  /** z of the least-squares slope of the last TREND_BLOCKS block means. */
+  private recentSlopeZ(sigmaBlock: number): number | null {
+    const count = Math.min(TREND_BLOCKS, this.historyLength);
+    if (count < RECENT_BLOCKS) return null;
+    const from = this.historyLength - count;
+    const centre = (count - 1) / 2;
+    let sxy = 0;
+    let sxx = 0;
+    for (let i = 0; i < count; i++) {
+      const x = i - centre;
+      sxy += x * (this.history[from + i] as number);
+      sxx += x * x;
+    }
+    return sxy / sxx / (sigmaBlock / Math.sqrt(sxx));
+  }
+
+  /**
+   * Shift, trend or variance: the block means since the reference start are fitted by three
+   * one-change models with the reference block variance sigma_b^2 known before the change:
+   *   step      the level changes at block c                    (maximised over c and the two levels)
+   *   ramp      the level is constant, then linear from block c (over c, level and slope)
+   *   variance  the level stays, the spread changes at block c  (over c and the new spread)
+   * Each has three free parameters, so their maximised log-likelihoods compare directly; the
+   * largest names the cause and its c is the change point (the profile-likelihood change-point
+   * estimate; D. V. Hinkley (1970), "Inference about the change-point in a sequence of random
+   * variables", Biometrika 57(1), 1-17, from memory). The step gets a small head start
+   * (STEP_PREFERENCE, in log-likelihood units): shortly after a break the shapes are hard to tell
+   * apart, and a set-point change or a valve is the most common event on a rig. bench/detect.js
+   * reports how often each kind of change is named correctly.
+   * Cost: O(k^2) in the k stored block means, at alarm time only.
+   */
+  private classify(detail: string, index: number, forced?: BreakCause): StationarityBreak {
+    const k = this.historyLength;
+    const y = this.history;
+    const { blockSize } = this.settings;
+    const sigma2 = Math.max(this.settings.longRunVariance / blockSize, Number.MIN_VALUE);
+    let total = 0;
+    for (let i = 0; i < k; i++) total += y[i] as number;
+    const mean = total / k;
+    let squares = 0;
+    for (let i = 0; i < k; i++) squares += ((y[i] as number) - mean) ** 2;
+    // Step: RSS(c) from prefix sums.
+    let bestStep = Number.NEGATIVE_INFINITY;
+    let stepAt = Math.max(1, k - 1);
+    let prefix = 0;
+    for (let c = 1; c < k; c++) {
+      prefix += y[c - 1] as number;
+      const before = prefix / c;
+      const after = (total - prefix) / (k - c);
+      const rss = squares - c * (before - mean) ** 2 - (k - c) * (after - mean) ** 2;
+      const ll = -rss / (2 * sigma2) + STEP_PREFERENCE;
+      if (ll > bestStep) {
+        bestStep = ll;
+        stepAt = c;
+      }
+    }
+    // Ramp: y = a + b * max(0, i - c); least squares for each c (O(k) each).
+    let bestRamp = Number.NEGATIVE_INFINITY;
+    let rampAt = 0;
+    for (let c = 0; c < k - 2; c++) {
+      let su = 0;
+      let suu = 0;
+      let suy = 0;
+      for (let i = c + 1; i < k; i++) {
+        const u = i - c;
+        su += u;
+        suu += u * u;
+        suy += u * (y[i] as number);
+      }
+      const uMean = su / k;
+      const sxx = suu - k * uMean * uMean;
+      if (!(sxx > 0)) continue;
+      const slope = (suy - uMean * total) / sxx;
+      const ll = -(squares - slope * slope * sxx) / (2 * sigma2);
+      if (ll > bestRamp) {
+        bestRamp = ll;
+        rampAt = c;
+      }
+    }
+    // Variance: level = mean of all blocks; the spread after c is fitted.
+    let bestVariance = Number.NEGATIVE_INFINITY;
+    let varianceAt = Math.max(1, k - 1);
+    let suffix = 0;
+    for (let c = k - 1; c >= 1; c--) {
+      suffix += ((y[c] as number) - mean) ** 2;
+      const post = k - c;
+      if (post < 3) continue;
+      const pre = squares - suffix;
+      const ratio = Math.max(suffix / (post * sigma2), Number.MIN_VALUE);
+      const ll = -pre / (2 * sigma2) - (post / 2) * (Math.log(ratio) + 1);
+      if (ll > bestVariance) {
+        bestVariance = ll;
+        varianceAt = c;
+      }
+    }
+    let cause: BreakCause = 'shift';
+    let block = stepAt;
+    if (forced) {
+      cause = forced;
+      block = forced === 'trend' ? rampAt : forced === 'variance' ? varianceAt : stepAt;
+    } else if (bestRamp > bestStep && bestRamp >= bestVariance) {
+      cause = 'trend';
+      block = rampAt;
+    } else if (bestVariance > bestStep && bestVariance > bestRamp) {
+      cause = 'variance';
+      block = varianceAt;
+    }
+    const changePoint = Math.min(index, this.historyStart + block * blockSize);
+    return { cause, changePoint, detail };
+  }
+}
+
+/** Log-likelihood head start of the step model in classification (about one block's worth of evidence). */
+const STEP_PREFERENCE = 0.5;
+
+function cusumInterval(settings: MonitorSettings): number {
+  const blocksPerBudget = settings.falseAlarmSamples / settings.blockSize;
+  return decisionIntervalForArl(Math.max(10, 3 * blocksPerBudget), CUSUM_REFERENCE);
+}
+
+function testThresholds(settings: MonitorSettings): { varianceAlpha: number; trendZ: number } {
+  const testsPerBudget = Math.max(1, settings.falseAlarmSamples / (settings.blockSize * RECENT_BLOCKS));
+  const alpha = Math.min(0.01, 1 / (10 * testsPerBudget));
+  return { varianceAlpha: alpha, trendZ: normalQuantile(1 - alpha / 2, 0, 1) };
+}

@@ -1,0 +1,104 @@
+import { heidelbergerWelch } from '../core/stationarity/heidelberger-welch.js';
+import { geweke } from '../core/stationarity/geweke.js';
+import { kpss } from '../core/stationarity/kpss.js';
+import { mser, batchMeans, batchSizeFromTau } from '../core/stationarity/mser.js';
+import { CAO_RHINEHART_CRITICAL_VALUE } from '../core/stationarity/cao-rhinehart.js';
+import { overlappingAllanDeviation, octaveFactors, averagingLimit, type AllanPoint } from '../core/allan/allan-deviation.js';
+import type { StationarityBreak, StationarityMonitor } from './stationarity-monitor.js';
+
+/**
+ * The steady-state evidence of a snapshot: the engine's verdict and the tests behind it, each with
+ * its statistic and verdict, computed over the current window on demand (O(n) each, plus an AR fit).
+ */
+export interface StationarityReport {
+  steady: boolean;
+  /** 0-based index of the first sample after the warm-up, or null while warming. */
+  warmupEnd: number | null;
+  excluded: number;
+  tests: {
+    heidelbergerWelch: { statistic: number | null; pValue: number | null; passed: boolean; startIndex: number | null; halfwidthPassed: boolean | null } | null;
+    geweke: { statistic: number | null; passed: boolean | null; note?: string } | null;
+    kpss: { statistic: number; pValue: number; lags: number; passed: boolean; batchSize: number } | null;
+    mser: { truncation: number; batchSize: number; tooShort: boolean } | null;
+    caoRhinehart: { statistic: number | null; critical: number; passed: boolean | null };
+    cusum: { upper: number; lower: number; decisionInterval: number; blockSize: number; blocks: number } | null;
+  };
+  lastBreak: StationarityBreak | null;
+}
+
+export interface StationarityInput {
+  values: Float64Array;
+  tauInt: number;
+  phase: 'warming' | 'steady' | 'unsteady';
+  warmupEnd: number | null;
+  excluded: number;
+  indicator: number | null;
+  monitor: StationarityMonitor | null;
+  lastBreak: StationarityBreak | null;
+}
+
+/** Fewest samples for the window tests to mean anything. */
+const MIN_TEST_SAMPLES = 20;
+
+export function stationarityReport(input: StationarityInput): StationarityReport {
+  const { values, tauInt } = input;
+  const enough = values.length >= MIN_TEST_SAMPLES;
+  const hw = enough ? heidelbergerWelch(values) : null;
+  const gw = enough ? geweke(values) : null;
+  const batchSize = batchSizeFromTau(Math.max(1, tauInt));
+  // KPSS on block means: on raw autocorrelated samples its short lag window rejects a stationary
+  // AR(1) (test/core/stationarity shows tseries doing so), block means several tau_int long do not.
+  const means = batchMeans(values, batchSize);
+  const kp = means.length >= 12 ? kpss(means, { lags: 'short' }) : null;
+  const truncation = values.length >= 2 * batchSize && enough ? mser(values, batchSize) : null;
+  const monitor = input.monitor;
+  return {
+    steady: input.phase === 'steady',
+    warmupEnd: input.warmupEnd,
+    excluded: input.excluded,
+    tests: {
+      heidelbergerWelch: hw ? { statistic: hw.statistic, pValue: hw.pValue, passed: hw.stationary, startIndex: hw.startIndex, halfwidthPassed: hw.halfwidthPassed } : null,
+      geweke: gw ? { statistic: gw.z, passed: gw.z === null ? null : Math.abs(gw.z) < 1.96, ...(gw.note ? { note: gw.note } : {}) } : null,
+      kpss: kp ? { statistic: kp.statistic, pValue: kp.pValue, lags: kp.lags, passed: kp.stationaryAt5Percent, batchSize } : null,
+      mser: truncation ? { truncation: truncation.truncation, batchSize: truncation.batchSize, tooShort: truncation.tooShort } : null,
+      caoRhinehart: { statistic: input.indicator, critical: CAO_RHINEHART_CRITICAL_VALUE, passed: input.indicator === null ? null : input.indicator < CAO_RHINEHART_CRITICAL_VALUE },
+      cusum: monitor ? { ...monitor.cusumSums, blockSize: monitor.settings.blockSize, blocks: monitor.blockTotal } : null,
+    },
+    lastBreak: input.lastBreak,
+  };
+}
+
+export interface AllanReport {
+  points: { m: number; tauSeconds: number | null; adev: number; count: number; edf: number; low: number; high: number }[];
+  averagingLimit: { m: number; tauSeconds: number | null; adev: number } | null;
+}
+
+/**
+ * Overlapping Allan deviation of the window at octave averaging factors (NIST SP 1065, 5.2.4) with
+ * one-sigma error bars, and the averaging limit: the averaging time beyond which it stops falling.
+ * Cost: O(n log n).
+ */
+export function allanReport(values: Float64Array, rate: number | null, tauInt = 1): AllanReport {
+  if (values.length < 4) return { points: [], averagingLimit: null };
+  const points = overlappingAllanDeviation(values, octaveFactors(values.length), 1);
+  const tau0 = rate && rate > 0 ? 1 / rate : null;
+  // The Allan deviation of positively correlated noise rises over the first octaves (averaging has
+  // not yet reached independent samples) and falls as 1/sqrt(m) beyond a few tau_int. The limit is
+  // sought after its first fall: a later rise, significant against the error bars, means drift.
+  // (tau_int is not used to skip the hump: a drift inflates the tau_int estimate itself.)
+  let firstFall = -1;
+  for (let i = 0; i + 1 < points.length; i++) {
+    if ((points[i + 1] as AllanPoint).adev < (points[i] as AllanPoint).adev) {
+      firstFall = i;
+      break;
+    }
+  }
+  void tauInt;
+  // Octaves with fewer than 16 independent averages carry error bars too wide to name a limit.
+  const candidates = firstFall >= 0 ? points.slice(firstFall).filter((p) => p.m <= values.length / 16) : [];
+  const limit = candidates.length >= 3 ? averagingLimit(candidates) : null;
+  return {
+    points: points.map((p) => ({ m: p.m, tauSeconds: tau0 === null ? null : p.m * tau0, adev: p.adev, count: p.count, edf: p.edf, low: p.low, high: p.high })),
+    averagingLimit: limit ? { m: limit.m, tauSeconds: tau0 === null ? null : limit.m * tau0, adev: limit.adev } : null,
+  };
+}
