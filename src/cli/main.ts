@@ -1,6 +1,8 @@
 import { readFileSync } from 'node:fs';
 import { UsageError } from './cli-error.js';
 import { runAnalyze, ANALYZE_HELP } from './analyze.js';
+import { runDaemonCommand } from './run.js';
+import { runDemoCommand } from './demo.js';
 
 const HELP = `plateau: live steady-state and uncertainty of windowed means for test and calibration rigs
 
@@ -25,6 +27,10 @@ export async function main(argv: string[], extra: Commands = {}): Promise<number
     switch (command) {
       case 'analyze':
         return await runAnalyze(rest, { out });
+      case 'run':
+        return await runDaemonCommand(rest);
+      case 'demo':
+        return await runDemoCommand(rest);
       case undefined:
       case 'help':
       case '--help':
@@ -48,9 +54,10 @@ export async function main(argv: string[], extra: Commands = {}): Promise<number
 
 export function reportError(error: unknown): number {
   const err = error as { code?: string; message?: string };
-  const known = err && typeof err.code === 'string' && (err.code.startsWith('ERR_USAGE') || err.code.startsWith('ERR_INPUT') || err.code.startsWith('ERR_CONFIG') || err.code.startsWith('ERR_PARSE_ARGS'));
-  const message = (err?.message ?? String(error)).split('\n')[0];
-  process.stderr.write(`plateau: ${known ? '' : 'internal error: '}${message}\n`);
+  const known = err && typeof err.code === 'string' && (err.code.startsWith('ERR_USAGE') || err.code.startsWith('ERR_INPUT') || err.code.startsWith('ERR_CONFIG') || err.code.startsWith('ERR_PARSE_ARGS') || err.code === 'EADDRINUSE' || err.code === 'EACCES');
+  // A configuration error carries one line per problem; everything else is one line.
+  const lines = err?.code?.startsWith('ERR_CONFIG') ? (err.message ?? '').split('\n') : [(err?.message ?? String(error)).split('\n')[0]];
+  for (const line of lines) process.stderr.write(`plateau: ${known ? '' : 'internal error: '}${line}\n`);
   if (!known && process.env.PLATEAU_DEBUG) process.stderr.write(`${(error as Error).stack}\n`);
   return known ? 2 : 70;
 }

@@ -76,6 +76,25 @@ export interface ChannelSnapshot {
   notes: string[];
 }
 
+/** A channel at a glance (live displays, retained status messages). */
+export interface ChannelSummary {
+  name: string;
+  state: ChannelState;
+  n: number;
+  received: number;
+  last: { value: number; time: number | null } | null;
+  mean: number | null;
+  standardUncertainty: number | null;
+  expandedUncertainty: number | null;
+  coverageFactor: number | null;
+  dof: number | null;
+  confidence: number;
+  tauInt: number | null;
+  nEff: number | null;
+  excluded: number;
+  target: TargetStatus | null;
+}
+
 const SHARED_FFT = new AutocovarianceFft();
 const NO_EVENTS: readonly ChannelEvent[] = Object.freeze([]);
 
@@ -245,6 +264,30 @@ export class ChannelPipeline {
 
   get count(): number {
     return this.series.length;
+  }
+
+  /** Events raised so far (changes whenever a snapshot would). */
+  get snapshotKeyEvents(): number {
+    return this.eventCount;
+  }
+
+  /** The last `count` samples of the window, oldest first (times in seconds, null when unknown). */
+  recentTrace(count: number): { times: (number | null)[]; values: number[]; firstIndex: number } {
+    const ring = this.series.ring;
+    const n = ring.length;
+    const from = Math.max(0, n - count);
+    const times: (number | null)[] = [];
+    const values: number[] = [];
+    for (let i = from; i < n; i++) {
+      times.push(finiteOrNull(ring.timeAt(i)));
+      values.push(ring.at(i));
+    }
+    return { times, values, firstIndex: this.series.firstIndex + from };
+  }
+
+  /** The stationarity monitor's recent CUSUM sums (empty while warming or unsteady). */
+  cusumTrace(): { blockSize: number; decisionInterval: number; upper: number[]; lower: number[] } | null {
+    return this.monitor ? this.monitor.cusumTrace() : null;
   }
 
   get totalReceived(): number {
@@ -488,6 +531,24 @@ export class ChannelPipeline {
     if (n === 1) return { ...base, ...none, mean, notes: ['one sample: no spread, so no uncertainty can be stated'] };
     notes.push('constant window: every sample is equal, so its spread gives no uncertainty (check the sensor or the resolution)');
     return { ...base, ...none, mean, sd: 0, standardUncertainty: 0, dof: n - 1, notes };
+  }
+
+  /**
+   * The light view for live displays and status messages: no stationarity tests, no Allan
+   * deviation, only the configured estimator. Cost: one estimator run (tens of microseconds).
+   */
+  summary(): ChannelSummary {
+    const { series, options } = this;
+    const n = series.length;
+    const base = { name: this.name, state: this.state, n, received: this.received, last: this.received > 0 ? { value: this.lastValue, time: finiteOrNull(this.lastTime) } : null, confidence: options.confidence, excluded: this.excluded };
+    if (n < 2 || !(series.variance > 0)) {
+      return { ...base, mean: n > 0 ? series.mean : null, standardUncertainty: n > 1 ? 0 : null, expandedUncertainty: null, coverageFactor: null, dof: null, tauInt: null, nEff: null, target: null };
+    }
+    const estimate = n < FEW_SAMPLES ? this.estimatorSet.estimate(series, 'iid') : this.estimatorSet.estimate(series, options.estimator);
+    const u = meanUncertainty(estimate, options.confidence);
+    const mean = series.mean;
+    const target = options.target ? targetStatus(options.target, { mean, n, standardUncertainty: u.standardUncertainty, dof: u.dof, confidence: options.confidence, rate: this.rate(), capacity: options.window.kind === 'sliding' ? series.maxSamples : Math.max(series.maxSamples, n) }) : null;
+    return { ...base, mean, standardUncertainty: u.standardUncertainty, expandedUncertainty: u.expandedUncertainty, coverageFactor: u.coverageFactor, dof: u.dof, tauInt: estimate.tauInt, nEff: n / estimate.tauInt, target };
   }
 
   /**

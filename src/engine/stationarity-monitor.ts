@@ -62,9 +62,12 @@ export interface MonitorState {
   numbers: number[];
   history: Float64Array;
   historyStart: number;
+  trace: Float32Array;
+  traceCount: number;
 }
 
 const HISTORY_BLOCKS = 1024;
+const TRACE_BLOCKS = 512;
 const RECENT_BLOCKS = 16;
 const TREND_BLOCKS = 64;
 /** Blocks of self-starting reference before the CUSUM may alarm. */
@@ -92,6 +95,9 @@ export class StationarityMonitor {
   /** Value subtracted from every sample (keeps the block sums small). */
   private origin = 0;
   private readonly thresholds: { varianceAlpha: number; trendZ: number };
+  /** Recent CUSUM sums for display (upper, lower interleaved), a ring of TRACE_BLOCKS. */
+  private trace = new Float32Array(2 * TRACE_BLOCKS);
+  private traceCount = 0;
 
   constructor(settings: MonitorSettings, startIndex: number, origin: number) {
     this.settings = settings;
@@ -129,6 +135,19 @@ export class StationarityMonitor {
     return this.blocks;
   }
 
+  /** The CUSUM sums of the most recent blocks (up to TRACE_BLOCKS), oldest first, with the block length. */
+  cusumTrace(): { blockSize: number; decisionInterval: number; upper: number[]; lower: number[] } {
+    const count = Math.min(this.traceCount, TRACE_BLOCKS);
+    const upper: number[] = [];
+    const lower: number[] = [];
+    for (let i = this.traceCount - count; i < this.traceCount; i++) {
+      const slot = i % TRACE_BLOCKS;
+      upper.push(this.trace[2 * slot] as number);
+      lower.push(this.trace[2 * slot + 1] as number);
+    }
+    return { blockSize: this.settings.blockSize, decisionInterval: this.cusum.decisionInterval, upper, lower };
+  }
+
   /** The current CUSUM sums in standard deviations (for display). */
   get cusumSums(): { upper: number; lower: number; decisionInterval: number } {
     return { upper: this.cusum.upper, lower: this.cusum.lower, decisionInterval: this.cusum.decisionInterval };
@@ -141,6 +160,8 @@ export class StationarityMonitor {
       numbers: [this.blockSum, this.blockCount, this.blockStart, this.historyLength, this.historyStart, this.blocks, this.referenceMean, this.origin],
       history: this.history.slice(),
       historyStart: this.historyStart,
+      trace: this.trace.slice(),
+      traceCount: this.traceCount,
     };
   }
 
@@ -149,6 +170,8 @@ export class StationarityMonitor {
     monitor.cusum = TwoSidedCusum.restore(state.cusum);
     [monitor.blockSum, monitor.blockCount, monitor.blockStart, monitor.historyLength, monitor.historyStart, monitor.blocks, monitor.referenceMean, monitor.origin] = state.numbers as [number, number, number, number, number, number, number, number];
     monitor.history.set(state.history);
+    monitor.trace.set(state.trace);
+    monitor.traceCount = state.traceCount;
     return monitor;
   }
 
@@ -165,6 +188,10 @@ export class StationarityMonitor {
       const z = (mean - this.referenceMean) / (sigmaBlock * Math.sqrt(1 + 1 / j));
       const side = this.cusum.update(z);
       if (j >= BURN_IN_BLOCKS) alarm = side;
+      const slot = this.traceCount % TRACE_BLOCKS;
+      this.trace[2 * slot] = this.cusum.upper;
+      this.trace[2 * slot + 1] = this.cusum.lower;
+      this.traceCount++;
     }
     this.referenceMean += (mean - this.referenceMean) / (j + 1);
     this.blocks = j + 1;

@@ -1,0 +1,114 @@
+import { parseArgs } from 'node:util';
+import { fileURLToPath } from 'node:url';
+import { dirname, join } from 'node:path';
+import { mkdtempSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { loadConfigFile } from '../config/load-config.js';
+import { Daemon } from '../daemon/daemon.js';
+import { startServer, type RunningServer } from '../server/server.js';
+import { startEmbeddedBroker, type EmbeddedBroker } from '../ingest/embedded-broker.js';
+import { RigPublisher } from '../sim/rig-publisher.js';
+import { UsageError } from './cli-error.js';
+import { CAUTION } from './caution.js';
+import { waitForSignal } from './run.js';
+
+export const DEMO_HELP = `plateau demo [options]
+
+Everything on one machine, no other service: an in-process MQTT broker, the simulated "bench
+HX-7" heat exchanger publishing six channels, the daemon and the dashboard. Free ports are taken
+when the usual ones are busy, and printed.
+
+Options:
+  --speed X          simulated seconds per second (default 1; 20 shows warm-up and drift quickly)
+  --broker-port N    MQTT port to try first (default 1883)
+  --http-port N      HTTP port to try first (default 8080)
+  --store FILE       SQLite file (default: a new temporary directory)
+  --seconds N        stop after N seconds (default: run until Ctrl-C)
+`;
+
+const root = join(dirname(fileURLToPath(import.meta.url)), '..', '..');
+
+export interface DemoHandle {
+  broker: EmbeddedBroker;
+  daemon: Daemon;
+  server: RunningServer;
+  publisher: RigPublisher;
+  stop(): Promise<void>;
+}
+
+export async function startDemo(options: { speed: number; brokerPort: number; httpPort: number; store?: string; logLevel?: string }): Promise<DemoHandle> {
+  const config = loadConfigFile(join(root, 'config', 'hx7-heat-exchanger.yaml'));
+  const broker = await startEmbeddedBroker({ port: options.brokerPort });
+  const store = options.store ?? join(mkdtempSync(join(tmpdir(), 'plateau-demo-')), 'hx7.sqlite');
+  const demoConfig = { ...config, broker: { ...config.broker, url: broker.url, clientId: `plateau-demo-${process.pid}` }, store: { ...config.store, path: store }, log: { level: (options.logLevel ?? 'warn') as 'warn' } };
+  const daemon = new Daemon(demoConfig, {});
+  await daemon.start();
+  const server = await startServer(daemon, { host: '127.0.0.1', port: options.httpPort, token: null, maxBodyBytes: config.http.maxBodyBytes, fallbackPort: true });
+  const publisher = new RigPublisher({ url: broker.url, speed: options.speed });
+  await publisher.start();
+  return {
+    broker,
+    daemon,
+    server,
+    publisher,
+    stop: async () => {
+      await publisher.stop();
+      await server.close();
+      await daemon.stop();
+      await broker.close();
+    },
+  };
+}
+
+export async function runDemoCommand(argv: string[]): Promise<number> {
+  const { values } = parseArgs({
+    args: argv,
+    options: {
+      speed: { type: 'string' },
+      'broker-port': { type: 'string' },
+      'http-port': { type: 'string' },
+      store: { type: 'string' },
+      seconds: { type: 'string' },
+      help: { type: 'boolean', short: 'h', default: false },
+    },
+  });
+  if (values.help) {
+    process.stdout.write(DEMO_HELP);
+    return 0;
+  }
+  const number = (name: string, raw: string | undefined, fallback: number, check: (v: number) => boolean, expected: string) => {
+    if (raw === undefined) return fallback;
+    const v = Number(raw);
+    if (raw.trim() === '' || !Number.isFinite(v) || !check(v)) throw new UsageError(`--${name} ${raw}: expected ${expected}`);
+    return v;
+  };
+  const speed = number('speed', values.speed, 1, (v) => v > 0 && v <= 1000, 'a number from 0 to 1000');
+  const brokerPort = number('broker-port', values['broker-port'], 1883, (v) => Number.isInteger(v) && v >= 0 && v < 65536, 'a port number');
+  const httpPort = number('http-port', values['http-port'], 8080, (v) => Number.isInteger(v) && v >= 0 && v < 65536, 'a port number');
+  const seconds = number('seconds', values.seconds, 0, (v) => v >= 0, 'a number of seconds');
+  const demo = await startDemo({ speed, brokerPort, httpPort, ...(values.store ? { store: values.store } : {}) });
+  const notes: string[] = [];
+  if (demo.broker.port !== brokerPort) notes.push(`port ${brokerPort} was busy, the broker took ${demo.broker.port}`);
+  if (demo.server.port !== httpPort) notes.push(`port ${httpPort} was busy, the dashboard took ${demo.server.port}`);
+  process.stdout.write(
+    [
+      'plateau demo: simulated bench HX-7 (glycol/water heat exchanger), six channels',
+      `  dashboard  ${demo.server.url}`,
+      `  broker     ${demo.broker.url} (embedded)  topics rig/hx7/#`,
+      `  store      ${demo.daemon.config.store.path}`,
+      `  speed      ${speed}x real time`,
+      ...notes.map((n) => `  note       ${n}`),
+      '  Start a test point from the dashboard, or:',
+      `    curl -X POST ${demo.server.url}api/test-points -H 'content-type: application/json' -d '{"name":"HX-7 set point 1","channels":["hx7.glycol_in_degC","hx7.glycol_out_degC","hx7.glycol_flow_kg_s"]}'`,
+      `  ${CAUTION}`,
+      '  Ctrl-C stops.',
+      '',
+    ].join('\n'),
+  );
+  if (seconds > 0) {
+    await new Promise((resolve) => setTimeout(resolve, seconds * 1000));
+    await demo.stop();
+    return 0;
+  }
+  return waitForSignal(() => demo.stop());
+}

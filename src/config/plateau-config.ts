@@ -1,0 +1,97 @@
+import type { DecoderSpec } from '../ingest/payload-decoder.js';
+import type { EstimatorName } from '../core/tau/tau-estimate.js';
+import type { TargetSpec } from '../core/uncertainty/target-precision.js';
+import type { WindowSpec } from '../engine/channel-options.js';
+
+/** The daemon's whole configuration, after validation and defaults. Units are in the key names. */
+export interface PlateauConfig {
+  /** Where the file came from, for messages. */
+  source: string;
+  broker: BrokerConfig;
+  subscriptions: SubscriptionConfig[];
+  channels: { defaults: ChannelSettings; groups: ChannelGroup[] };
+  derived: DerivedConfig[];
+  store: StoreConfig;
+  http: HttpConfig;
+  topics: TopicsConfig;
+  log: { level: 'fatal' | 'error' | 'warn' | 'info' | 'debug' | 'trace' | 'silent' };
+}
+
+export interface BrokerConfig {
+  /** mqtt://host:port, mqtts://host:port, or "embedded" for the in-process broker. */
+  url: string;
+  clientId: string;
+  username: string | null;
+  password: string | null;
+  tls: { caFile: string | null; certFile: string | null; keyFile: string | null; rejectUnauthorized: boolean } | null;
+  /** 4 = MQTT 3.1.1, 5 = MQTT 5. */
+  protocolVersion: 4 | 5;
+  qos: 0 | 1;
+  /** MQTT 5 session expiry; MQTT 3.1.1 sessions persist until the broker drops them. */
+  sessionExpirySeconds: number;
+  keepaliveSeconds: number;
+  reconnectPeriodMs: number;
+}
+
+export interface SubscriptionConfig extends DecoderSpec {
+  topic: string;
+}
+
+export interface ChannelSettings {
+  window: WindowSpec;
+  maxLag: number;
+  estimator: EstimatorName;
+  confidence: number;
+  target: TargetSpec | null;
+  /** Mean samples between false stationarity alarms on a stationary channel. */
+  falseAlarmSamples: number;
+  /** No data for this long makes the channel stale. */
+  staleSeconds: number;
+  /** Samples per second, when the rig states it (otherwise from timestamps). */
+  rate: number | null;
+  /** Physical range of the channel, used to check derived expressions for division by zero. */
+  range: [number, number] | null;
+  unit: string | null;
+}
+
+export interface ChannelGroup {
+  /** Glob over channel names: * matches any run of characters, ? one character. */
+  match: string;
+  settings: Partial<ChannelSettings>;
+}
+
+export interface DerivedConfig {
+  name: string;
+  unit: string | null;
+  expression: string;
+  target: TargetSpec | null;
+  confidence: number;
+  /** Key path in the config file, for messages. */
+  keyPath: string;
+}
+
+export interface StoreConfig {
+  /** SQLite file; ":memory:" keeps nothing across restarts. */
+  path: string;
+  /** Samples older than this are deleted (never those a channel still needs to rebuild its state). */
+  retentionSeconds: number;
+  /** Samples are committed in one transaction at most this often. */
+  flushIntervalMs: number;
+}
+
+export interface HttpConfig {
+  host: string;
+  port: number;
+  /** Required for every write when the server listens beyond loopback. */
+  token: string | null;
+  maxBodyBytes: number;
+}
+
+export interface TopicsConfig {
+  /** Every event, as JSON. */
+  events: string;
+  /** Retained per-channel and per-test-point status: <status>/channel/<name>, <status>/test-point/<id>. */
+  status: string;
+  /** Commands from a rig sequencer: <command>/test-point/start, .../stop. */
+  command: string;
+}

@@ -1,0 +1,128 @@
+import type { ChannelSnapshot } from './channel-pipeline.js';
+
+/**
+ * The record of a test point: per channel the result as a test report or calibration certificate
+ * states it, with the evidence behind it. Exported as JSON and as CSV.
+ */
+export interface RecordEntry {
+  channel: string;
+  unit: string | null;
+  mean: number | null;
+  standardUncertainty: number | null;
+  dof: number | null;
+  coverageFactor: number | null;
+  expandedUncertainty: number | null;
+  confidence: number;
+  n: number;
+  nEff: number | null;
+  tauInt: number | null;
+  estimator: string;
+  state: string;
+  steadyStart: number | null;
+  excluded: number;
+  windowStartIndex: number;
+  windowEndIndex: number;
+  windowStartTime: string | null;
+  windowEndTime: string | null;
+  tests: {
+    heidelbergerWelchPassed: boolean | null;
+    heidelbergerWelchPValue: number | null;
+    gewekeZ: number | null;
+    kpssStatistic: number | null;
+    kpssPassed: boolean | null;
+  };
+  statement: string;
+}
+
+export interface TestPointRecord {
+  testPoint: { id: string; name: string };
+  kind: 'ready' | 'stopped';
+  createdAt: string;
+  entries: RecordEntry[];
+  derived: unknown[];
+  caution: string;
+}
+
+export const RECORD_CAUTION =
+  'plateau informs measurement decisions; it is not a safety system and not a substitute for an accredited calibration procedure. Do not use its alerts as interlocks; follow the rig\'s own safety procedures and defer to local codes, accredited calibration procedures and licensed practice.';
+
+function isoOrNull(seconds: number | null): string | null {
+  return seconds === null || !Number.isFinite(seconds) ? null : new Date(seconds * 1000).toISOString();
+}
+
+export function recordEntry(snapshot: ChannelSnapshot, unit: string | null): RecordEntry {
+  const tests = snapshot.stationarity?.tests;
+  return {
+    channel: snapshot.name,
+    unit,
+    mean: snapshot.mean,
+    standardUncertainty: snapshot.standardUncertainty,
+    dof: snapshot.dof,
+    coverageFactor: snapshot.coverageFactor,
+    expandedUncertainty: snapshot.expandedUncertainty,
+    confidence: snapshot.confidence,
+    n: snapshot.n,
+    nEff: snapshot.nEff,
+    tauInt: snapshot.tauInt,
+    estimator: snapshot.estimator,
+    state: snapshot.state,
+    steadyStart: snapshot.stationarity?.warmupEnd ?? null,
+    excluded: snapshot.excluded,
+    windowStartIndex: snapshot.window.startIndex,
+    windowEndIndex: snapshot.window.endIndex,
+    windowStartTime: isoOrNull(snapshot.window.startTime),
+    windowEndTime: isoOrNull(snapshot.window.endTime),
+    tests: {
+      heidelbergerWelchPassed: tests?.heidelbergerWelch?.passed ?? null,
+      heidelbergerWelchPValue: tests?.heidelbergerWelch?.pValue ?? null,
+      gewekeZ: tests?.geweke?.statistic ?? null,
+      kpssStatistic: tests?.kpss?.statistic ?? null,
+      kpssPassed: tests?.kpss?.passed ?? null,
+    },
+    statement: gumStatement(snapshot.name, snapshot.mean, snapshot.standardUncertainty, snapshot.expandedUncertainty, snapshot.coverageFactor, snapshot.dof, snapshot.confidence, unit),
+  };
+}
+
+/**
+ * The result in the wording of JCGM 100:2008, 7.2.4: the estimate, the expanded uncertainty, the
+ * coverage factor with the effective degrees of freedom it came from, and the coverage probability.
+ */
+export function gumStatement(name: string, mean: number | null, u: number | null, expanded: number | null, k: number | null, dof: number | null, confidence: number, unit: string | null): string {
+  const units = unit ? ` ${unit}` : '';
+  if (mean === null) return `${name}: no samples`;
+  if (u === null || expanded === null || k === null || dof === null) return `${name} = ${mean}${units}: no uncertainty can be stated (too few samples, or no spread)`;
+  const rounded = roundPair(mean, expanded);
+  const level = `${(confidence * 100).toPrecision(4).replace(/\.?0+$/, '')} %`;
+  return `${name} = (${rounded.value} ± ${rounded.uncertainty})${units}, where the number following ± is the expanded uncertainty U = k·u with u = ${u.toPrecision(2)}${units} and coverage factor k = ${k.toFixed(2)}, based on the t-distribution for ν_eff = ${dof >= 1e6 ? '∞' : dof.toPrecision(3)} effective degrees of freedom, which defines an interval estimated to have a coverage probability of ${level}`;
+}
+
+function roundPair(value: number, uncertainty: number): { value: string; uncertainty: string } {
+  if (!(uncertainty > 0)) return { value: String(value), uncertainty: '0' };
+  const exponent = Math.floor(Math.log10(uncertainty)) - 1;
+  const decimals = Math.max(0, Math.min(20, -exponent));
+  const scale = 10 ** exponent;
+  return { value: (Math.round(value / scale) * scale).toFixed(decimals), uncertainty: (Math.round(uncertainty / scale) * scale).toFixed(decimals) };
+}
+
+const CSV_COLUMNS: (keyof RecordEntry)[] = ['channel', 'unit', 'mean', 'standardUncertainty', 'dof', 'coverageFactor', 'expandedUncertainty', 'confidence', 'n', 'nEff', 'tauInt', 'estimator', 'state', 'steadyStart', 'excluded', 'windowStartIndex', 'windowEndIndex', 'windowStartTime', 'windowEndTime'];
+
+/** CSV (RFC 4180) of a record's entries; full-precision numbers, one row per channel. */
+export function recordCsv(record: TestPointRecord): string {
+  const header = [...CSV_COLUMNS, 'heidelbergerWelchPassed', 'gewekeZ', 'kpssStatistic', 'statement'];
+  const rows = record.entries.map((entry) => [
+    ...CSV_COLUMNS.map((key) => entry[key] as unknown),
+    entry.tests.heidelbergerWelchPassed,
+    entry.tests.gewekeZ,
+    entry.tests.kpssStatistic,
+    entry.statement,
+  ]);
+  return `${[header, ...rows].map((row) => row.map(csvCell).join(',')).join('\r\n')}\r\n`;
+}
+
+function csvCell(value: unknown): string {
+  if (value === null || value === undefined) return '';
+  const text = typeof value === 'number' ? (Number.isFinite(value) ? String(value) : '') : String(value);
+  // Formula injection guard for spreadsheet users: text starting with = + - @ is prefixed with '.
+  const safe = typeof value === 'string' && /^[=+\-@\t\r]/.test(text) ? `'${text}` : text;
+  return /[",\r\n]/.test(safe) ? `"${safe.replace(/"/g, '""')}"` : safe;
+}

@@ -1,0 +1,181 @@
+import type { ChannelRegistry } from './channel-registry.js';
+import { recordEntry, RECORD_CAUTION, type TestPointRecord } from './test-point-record.js';
+
+/**
+ * Test points: a set of channels held at one set point. Starting one restarts the growing window of
+ * each of its channels at its next sample (a mark the store keeps, so a replay restarts it at the
+ * same sample); the test point is ready when every channel is steady and at its target precision
+ * (state precise) and every derived result it holds is at target. Readiness is edge-triggered: the
+ * record is written once, when it becomes ready, and again when the test point stops.
+ */
+export type TestPointState = 'running' | 'ready' | 'stopped';
+
+export interface TestPoint {
+  id: string;
+  name: string;
+  channels: string[];
+  derived: string[];
+  state: TestPointState;
+  createdMs: number;
+  readyMs: number | null;
+  stoppedMs: number | null;
+  /** Each channel's sample index at the start. */
+  startSeq: Record<string, number>;
+  annotations: { timeMs: number; text: string }[];
+}
+
+export type TestPointChange =
+  | { kind: 'test-point-started'; point: TestPoint; marks: { channel: string; seq: number }[] }
+  | { kind: 'test-point-ready'; point: TestPoint; record: TestPointRecord }
+  | { kind: 'test-point-stopped'; point: TestPoint; record: TestPointRecord };
+
+export interface DerivedStatus {
+  /** Whether the derived result is at its target; null when it has none (treated as met). */
+  atTarget(name: string): boolean | null;
+  recordEntries(names: string[]): unknown[];
+}
+
+const ID_PATTERN = /^[A-Za-z0-9][A-Za-z0-9_.\-]{0,63}$/;
+
+export class TestPointError extends Error {
+  readonly code: string;
+  readonly status: number;
+  constructor(code: string, status: number, message: string) {
+    super(message);
+    this.code = code;
+    this.status = status;
+  }
+}
+
+export class TestPoints {
+  private readonly points = new Map<string, TestPoint>();
+  private readonly registry: ChannelRegistry;
+  private derived: DerivedStatus | null = null;
+  private sequence = 0;
+
+  constructor(registry: ChannelRegistry) {
+    this.registry = registry;
+  }
+
+  useDerived(derived: DerivedStatus): void {
+    this.derived = derived;
+  }
+
+  list(): TestPoint[] {
+    return [...this.points.values()];
+  }
+
+  get(id: string): TestPoint | undefined {
+    return this.points.get(id);
+  }
+
+  /** Restores stored test points (after a restart); their windows are restored by replay. */
+  load(points: TestPoint[]): void {
+    for (const point of points) {
+      this.points.set(point.id, point);
+      const n = Number(/(\d+)$/.exec(point.id)?.[1] ?? 0);
+      if (n > this.sequence) this.sequence = n;
+    }
+  }
+
+  start(request: { id?: string; name?: string; channels: string[]; derived?: string[] }, nowMs: number, knownDerived: string[] = []): TestPointChange {
+    const channels = [...new Set(request.channels)];
+    if (channels.length === 0 && (request.derived ?? []).length === 0) throw new TestPointError('ERR_TEST_POINT_EMPTY', 400, 'a test point needs at least one channel or derived result');
+    for (const name of channels) {
+      if (typeof name !== 'string' || !/^[\p{L}\p{N}_.:\-/]{1,128}$/u.test(name)) throw new TestPointError('ERR_TEST_POINT_CHANNEL', 400, `"${String(name).slice(0, 80)}" is not a valid channel name`);
+    }
+    for (const name of request.derived ?? []) {
+      if (!knownDerived.includes(name)) throw new TestPointError('ERR_TEST_POINT_DERIVED', 400, `no derived result named "${String(name).slice(0, 80)}" (known: ${knownDerived.join(', ') || 'none'})`);
+    }
+    const id = request.id ?? `tp-${++this.sequence}`;
+    if (!ID_PATTERN.test(id)) throw new TestPointError('ERR_TEST_POINT_ID', 400, `test point id "${id.slice(0, 80)}": letters, digits, _ . - only, up to 64 characters`);
+    const existing = this.points.get(id);
+    if (existing && existing.state !== 'stopped') throw new TestPointError('ERR_TEST_POINT_RUNNING', 409, `test point ${id} is already running`);
+    const marks: { channel: string; seq: number }[] = [];
+    const startSeq: Record<string, number> = {};
+    for (const name of channels) {
+      const channel = this.registry.ensure(name, null);
+      const seq = channel.pipeline.totalReceived;
+      startSeq[name] = seq;
+      if (channel.pipeline.options.window.kind === 'growing') {
+        channel.pipeline.restartWindow();
+        marks.push({ channel: name, seq });
+      }
+    }
+    const point: TestPoint = {
+      id,
+      name: (request.name ?? id).slice(0, 200),
+      channels,
+      derived: request.derived ?? [],
+      state: 'running',
+      createdMs: nowMs,
+      readyMs: null,
+      stoppedMs: null,
+      startSeq,
+      annotations: [],
+    };
+    this.points.set(id, point);
+    return { kind: 'test-point-started', point, marks };
+  }
+
+  stop(id: string, nowMs: number): TestPointChange {
+    const point = this.requireRunning(id);
+    point.state = 'stopped';
+    point.stoppedMs = nowMs;
+    return { kind: 'test-point-stopped', point, record: this.record(point, 'stopped', nowMs) };
+  }
+
+  annotate(id: string, text: string, nowMs: number): TestPoint {
+    const point = this.points.get(id);
+    if (!point) throw new TestPointError('ERR_TEST_POINT_UNKNOWN', 404, `no test point ${id}`);
+    if (point.annotations.length >= 200) throw new TestPointError('ERR_TEST_POINT_ANNOTATIONS', 409, `test point ${id} has 200 annotations, the most it keeps`);
+    point.annotations.push({ timeMs: nowMs, text: text.slice(0, 2000) });
+    return point;
+  }
+
+  /** Running test points whose channels (and derived results) are all at target become ready. */
+  evaluate(nowMs: number): TestPointChange[] {
+    const changes: TestPointChange[] = [];
+    for (const point of this.points.values()) {
+      if (point.state !== 'running') continue;
+      const channelsReady = point.channels.every((name) => this.registry.get(name)?.pipeline.state === 'precise');
+      const derivedReady = point.derived.every((name) => this.derived?.atTarget(name) !== false);
+      if (channelsReady && derivedReady) {
+        point.state = 'ready';
+        point.readyMs = nowMs;
+        changes.push({ kind: 'test-point-ready', point, record: this.record(point, 'ready', nowMs) });
+      }
+    }
+    return changes;
+  }
+
+  /** The verdict per channel, for display. */
+  verdict(point: TestPoint): { channel: string; state: string; reached: boolean }[] {
+    return point.channels.map((name) => {
+      const state = this.registry.get(name)?.pipeline.state ?? 'no data';
+      return { channel: name, state, reached: state === 'precise' };
+    });
+  }
+
+  record(point: TestPoint, kind: 'ready' | 'stopped', nowMs: number): TestPointRecord {
+    return {
+      testPoint: { id: point.id, name: point.name },
+      kind,
+      createdAt: new Date(nowMs).toISOString(),
+      entries: point.channels.map((name) => {
+        const channel = this.registry.get(name);
+        if (!channel) throw new TestPointError('ERR_TEST_POINT_CHANNEL', 500, `channel ${name} vanished`);
+        return recordEntry(channel.pipeline.snapshot(), channel.unit);
+      }),
+      derived: this.derived ? this.derived.recordEntries(point.derived) : [],
+      caution: RECORD_CAUTION,
+    };
+  }
+
+  private requireRunning(id: string): TestPoint {
+    const point = this.points.get(id);
+    if (!point) throw new TestPointError('ERR_TEST_POINT_UNKNOWN', 404, `no test point ${id}`);
+    if (point.state === 'stopped') throw new TestPointError('ERR_TEST_POINT_STOPPED', 409, `test point ${id} is already stopped`);
+    return point;
+  }
+}

@@ -1,0 +1,54 @@
+import { createServer, type Server } from 'node:net';
+import { Aedes } from 'aedes';
+
+/**
+ * The in-process MQTT broker of the embedded default (npm aedes, MQTT 3.1.1, sessions and QoS 1
+ * kept in memory). It takes the preferred port when it is free and any free port otherwise, and
+ * says which. It is for the demo and for tests: a rig in production talks to its own broker.
+ */
+export interface EmbeddedBroker {
+  port: number;
+  host: string;
+  url: string;
+  close(): Promise<void>;
+}
+
+export async function startEmbeddedBroker(options: { host?: string; port?: number } = {}): Promise<EmbeddedBroker> {
+  const host = options.host ?? '127.0.0.1';
+  const broker = await Aedes.createBroker({ drainTimeout: 10_000 });
+  const server = createServer(broker.handle as (socket: import('node:net').Socket) => void);
+  const port = await listen(server, host, options.port ?? 0);
+  return {
+    port,
+    host,
+    url: `mqtt://${host}:${port}`,
+    close: () =>
+      new Promise<void>((resolve) => {
+        broker.close(() => server.close(() => resolve()));
+        // Connected clients keep the server open: end them.
+        setTimeout(() => resolve(), 2000).unref();
+      }),
+  };
+}
+
+/** Listens on `port`, or on a free port when it is taken; resolves with the port in use. */
+export function listen(server: Server, host: string, port: number): Promise<number> {
+  return new Promise((resolve, reject) => {
+    const tryPort = (p: number, fallback: boolean) => {
+      const onError = (error: NodeJS.ErrnoException) => {
+        server.off('listening', onListening);
+        if (fallback && error.code === 'EADDRINUSE') tryPort(0, false);
+        else reject(error);
+      };
+      const onListening = () => {
+        server.off('error', onError);
+        const address = server.address();
+        resolve(typeof address === 'object' && address ? address.port : p);
+      };
+      server.once('error', onError);
+      server.once('listening', onListening);
+      server.listen(p, host);
+    };
+    tryPort(port, port !== 0);
+  });
+}

@@ -1,0 +1,306 @@
+import type { DecodeResult, Rejection, RejectReason, Sample } from './sample.js';
+
+/**
+ * Payload decoding: (topic, bytes, subscription, arrival time) -> samples and rejections.
+ *
+ * Pure and total: every input, however hostile, gives a result and never throws. It is the single
+ * place where bad input stops: bytes that are not UTF-8 text or JSON, NaN, Infinity, strings where a
+ * number belongs, wrong types, nesting deeper than allowed, oversize messages and too many samples
+ * in one message are rejected with a reason and a detail naming where.
+ *
+ * Formats:
+ *   number   the payload is one number as text ("21.37")
+ *   json     an object with a value field and optionally a time field, or an array of such objects,
+ *            or an object whose `samplesField` holds that array (many samples per message)
+ *   senml    a SenML JSON pack (RFC 8428): records with base name bn, base time bt, base unit bu,
+ *            base value bv, name n, unit u, value v, time t; records carrying vs/vb/vd (strings,
+ *            booleans, data) are rejected as not numeric
+ * Times: the payload's time when present (seconds or milliseconds since the epoch, or ISO 8601
+ * text), else the arrival time. SenML times below 2^28 are relative to the arrival time
+ * (RFC 8428, section 4.5.3).
+ */
+export interface DecoderSpec {
+  format: 'number' | 'json' | 'senml';
+  /** Channel name: a template over topic levels ({1} is the first level, {topic} the whole topic) and, for SenML, {name}. */
+  channel: string;
+  /** Dot path of the value in a JSON object. */
+  valueField: string;
+  /** Dot path of the time in a JSON object (absent: arrival time). */
+  timeField: string | null;
+  /** Unit of numeric times in JSON payloads. */
+  timeUnit: 's' | 'ms';
+  /** Dot path of an array of sample objects inside a JSON object (many samples per message). */
+  samplesField: string | null;
+  /** Dot path of a per-sample channel suffix or name in JSON objects ({field} in the template). */
+  channelField: string | null;
+  /** Fixed unit, or null to take it from SenML. */
+  unit: string | null;
+  maxBytes: number;
+  maxDepth: number;
+  maxSamples: number;
+}
+
+export const DECODER_DEFAULTS: Omit<DecoderSpec, 'format' | 'channel'> = {
+  valueField: 'v',
+  timeField: 't',
+  timeUnit: 's',
+  samplesField: null,
+  channelField: null,
+  unit: null,
+  maxBytes: 262_144, // bytes
+  maxDepth: 8,
+  maxSamples: 10_000,
+};
+
+const SENML_RELATIVE_LIMIT = 2 ** 28; // seconds: RFC 8428 4.5.3
+const CHANNEL_PATTERN = /^[\p{L}\p{N}_.:\-/]{1,128}$/u;
+const utf8 = new TextDecoder('utf-8', { fatal: true });
+
+export function decodePayload(topic: string, payload: Uint8Array, spec: DecoderSpec, arrivalMs: number): DecodeResult {
+  const out: DecodeResult = { samples: [], rejections: [] };
+  const reject = (reason: RejectReason, detail: string) => {
+    out.rejections.push({ reason, detail: `topic ${truncate(topic)}: ${detail}` });
+    return out;
+  };
+  if (payload.byteLength > spec.maxBytes) return reject('too-large', `${payload.byteLength} bytes, more than the ${spec.maxBytes} allowed`);
+  let text: string;
+  try {
+    text = utf8.decode(payload);
+  } catch {
+    return reject('unparseable', 'payload is not UTF-8 text');
+  }
+  if (spec.format === 'number') {
+    const value = readNumberText(text);
+    if (typeof value === 'string') return reject(value, `payload "${truncate(text)}" is ${REASON_TEXT[value]}`);
+    const channel = channelName(spec.channel, topic, {});
+    if (channel === null) return reject('bad-channel', `channel template "${spec.channel}" gives no valid name for this topic`);
+    out.samples.push(withUnit({ channel, timeMs: arrivalMs, value, stamped: false }, spec.unit));
+    return out;
+  }
+  const depth = nestingDepth(text);
+  if (depth > spec.maxDepth) return reject('too-deep', `JSON nested ${depth} levels, more than the ${spec.maxDepth} allowed`);
+  let document: unknown;
+  try {
+    document = JSON.parse(text);
+  } catch {
+    return reject('unparseable', `payload is not JSON: "${truncate(text)}"`);
+  }
+  if (spec.format === 'senml') decodeSenml(topic, document, spec, arrivalMs, out);
+  else decodeJson(topic, document, spec, arrivalMs, out);
+  return out;
+}
+
+function decodeJson(topic: string, document: unknown, spec: DecoderSpec, arrivalMs: number, out: DecodeResult): void {
+  let records: unknown[];
+  if (typeof document === 'number') {
+    // A bare JSON number is accepted as a value at arrival time.
+    records = [{ [spec.valueField]: document }];
+  } else if (Array.isArray(document)) records = document;
+  else if (isObject(document) && spec.samplesField) {
+    const inner = getPath(document, spec.samplesField);
+    if (!Array.isArray(inner)) {
+      out.rejections.push({ reason: 'missing-field', detail: `topic ${truncate(topic)}: no array at "${spec.samplesField}"` });
+      return;
+    }
+    records = inner;
+  } else if (isObject(document)) records = [document];
+  else {
+    out.rejections.push({ reason: 'wrong-type', detail: `topic ${truncate(topic)}: JSON ${typeName(document)} where an object or array was expected` });
+    return;
+  }
+  if (records.length > spec.maxSamples) {
+    out.rejections.push({ reason: 'too-many-samples', detail: `topic ${truncate(topic)}: ${records.length} samples in one message, more than the ${spec.maxSamples} allowed` });
+    return;
+  }
+  records.forEach((record, index) => {
+    const where = records.length > 1 ? `record ${index}` : 'payload';
+    const fail = (reason: RejectReason, detail: string) => out.rejections.push({ reason, detail: `topic ${truncate(topic)}: ${where}: ${detail}` });
+    let raw: unknown = record;
+    if (isObject(record)) raw = getPath(record, spec.valueField);
+    else if (typeof record !== 'number') return void fail('wrong-type', `${typeName(record)} where an object or number was expected`);
+    if (raw === undefined) return void fail('missing-field', `no "${spec.valueField}" field`);
+    const value = readJsonNumber(raw);
+    if (typeof value === 'string') return void fail(value, `"${spec.valueField}" is ${REASON_TEXT[value]}${typeof raw === 'string' ? ` ("${truncate(raw)}")` : ''}`);
+    let timeMs = arrivalMs;
+    let stamped = false;
+    if (spec.timeField && isObject(record)) {
+      const rawTime = getPath(record, spec.timeField);
+      if (rawTime !== undefined) {
+        const parsed = readTime(rawTime, spec.timeUnit);
+        if (parsed === null) return void fail('bad-time', `"${spec.timeField}" is not a time (${truncate(JSON.stringify(rawTime) ?? '')})`);
+        timeMs = parsed;
+        stamped = true;
+      }
+    }
+    let field: string | undefined;
+    if (spec.channelField && isObject(record)) {
+      const rawName = getPath(record, spec.channelField);
+      if (typeof rawName !== 'string') return void fail('bad-channel', `"${spec.channelField}" is not a string`);
+      field = rawName;
+    }
+    const channel = channelName(spec.channel, topic, field === undefined ? {} : { field });
+    if (channel === null) return void fail('bad-channel', `channel template "${spec.channel}" gives no valid name`);
+    out.samples.push(withUnit({ channel, timeMs, value, stamped }, spec.unit));
+  });
+}
+
+function decodeSenml(topic: string, document: unknown, spec: DecoderSpec, arrivalMs: number, out: DecodeResult): void {
+  const fail = (reason: RejectReason, detail: string) => out.rejections.push({ reason, detail: `topic ${truncate(topic)}: ${detail}` });
+  if (!Array.isArray(document)) return void fail('wrong-type', `SenML needs a JSON array of records, got ${typeName(document)}`);
+  if (document.length > spec.maxSamples) return void fail('too-many-samples', `${document.length} records in one pack, more than the ${spec.maxSamples} allowed`);
+  let baseName = '';
+  let baseTime = 0;
+  let baseUnit: string | undefined;
+  let baseValue = 0;
+  document.forEach((record, index) => {
+    const where = `record ${index}`;
+    if (!isObject(record)) return void fail('wrong-type', `${where}: ${typeName(record)} where a SenML record object was expected`);
+    if (record.bn !== undefined) {
+      if (typeof record.bn !== 'string') return void fail('wrong-type', `${where}: bn is not a string`);
+      baseName = record.bn;
+    }
+    if (record.bt !== undefined) {
+      if (typeof record.bt !== 'number' || !Number.isFinite(record.bt)) return void fail('bad-time', `${where}: bt is not a finite number`);
+      baseTime = record.bt;
+    }
+    if (record.bu !== undefined) {
+      if (typeof record.bu !== 'string') return void fail('wrong-type', `${where}: bu is not a string`);
+      baseUnit = record.bu;
+    }
+    if (record.bv !== undefined) {
+      if (typeof record.bv !== 'number' || !Number.isFinite(record.bv)) return void fail('not-a-number', `${where}: bv is not a finite number`);
+      baseValue = record.bv;
+    }
+    const hasValue = record.v !== undefined || record.vs !== undefined || record.vb !== undefined || record.vd !== undefined || record.s !== undefined;
+    if (!hasValue) {
+      if (record.n !== undefined || record.t !== undefined) fail('missing-field', `${where}: no value (v)`);
+      return; // a record that only sets base fields
+    }
+    if (record.v === undefined) return void fail('wrong-type', `${where}: only numeric values (v) are measurements; vs, vb, vd and s are not`);
+    const value = readJsonNumber(record.v);
+    if (typeof value === 'string') return void fail(value, `${where}: v is ${REASON_TEXT[value]}`);
+    const name = record.n === undefined ? '' : record.n;
+    if (typeof name !== 'string') return void fail('wrong-type', `${where}: n is not a string`);
+    const fullName = baseName + name;
+    let t = baseTime;
+    if (record.t !== undefined) {
+      if (typeof record.t !== 'number' || !Number.isFinite(record.t)) return void fail('bad-time', `${where}: t is not a finite number`);
+      t += record.t;
+    }
+    const relative = Math.abs(t) < SENML_RELATIVE_LIMIT;
+    const timeMs = relative ? arrivalMs + t * 1000 : t * 1000;
+    const unit = record.u !== undefined ? record.u : baseUnit;
+    if (unit !== undefined && typeof unit !== 'string') return void fail('wrong-type', `${where}: u is not a string`);
+    const channel = channelName(spec.channel, topic, { name: fullName });
+    if (channel === null) return void fail('bad-channel', `${where}: name "${truncate(fullName)}" is not a valid channel name`);
+    const sample: Sample = { channel, timeMs, value: value + baseValue, stamped: !relative };
+    const fixed = spec.unit ?? unit;
+    if (fixed !== undefined && fixed !== null) sample.unit = fixed;
+    out.samples.push(sample);
+  });
+}
+
+const REASON_TEXT: Record<string, string> = {
+  'not-a-number': 'not a number',
+  nan: 'NaN, which is not a measurement',
+  infinite: 'infinite, which is not a measurement',
+  'wrong-type': 'of the wrong type',
+  'empty-text': 'empty',
+};
+
+function readNumberText(text: string): number | RejectReason {
+  const trimmed = text.trim();
+  if (trimmed === '') return 'not-a-number';
+  if (/^[+-]?nan$/i.test(trimmed)) return 'nan';
+  if (/^[+-]?inf(inity)?$/i.test(trimmed)) return 'infinite';
+  if (!/^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/.test(trimmed)) return 'not-a-number';
+  const value = Number(trimmed);
+  return Number.isFinite(value) ? value : 'infinite';
+}
+
+function readJsonNumber(raw: unknown): number | RejectReason {
+  if (typeof raw === 'number') return Number.isFinite(raw) ? raw : 'infinite';
+  if (typeof raw === 'string') {
+    // Text such as "NaN" or "Infinity" is named as such; other strings are the wrong type.
+    if (/^[+-]?nan$/i.test(raw.trim())) return 'nan';
+    if (/^[+-]?inf(inity)?$/i.test(raw.trim())) return 'infinite';
+    return 'wrong-type';
+  }
+  return 'wrong-type';
+}
+
+/** Epoch milliseconds from seconds, milliseconds or ISO 8601 text; null when it is not a plausible time. */
+function readTime(raw: unknown, unit: 's' | 'ms'): number | null {
+  let ms: number;
+  if (typeof raw === 'number') ms = unit === 's' ? raw * 1000 : raw;
+  else if (typeof raw === 'string') ms = Date.parse(raw);
+  else return null;
+  // Accept 1970 .. 2200: anything else is a unit mistake or garbage.
+  return Number.isFinite(ms) && ms >= 0 && ms < 7_258_118_400_000 ? ms : null;
+}
+
+/** Fills a channel template from topic levels ({1}, {2}, ...), {topic}, {name} and {field}. */
+export function channelName(template: string, topic: string, extra: { name?: string; field?: string }): string | null {
+  const levels = topic.split('/');
+  let missing = false;
+  const name = template.replace(/\{(\w+)\}/g, (_match, key: string) => {
+    if (key === 'topic') return topic;
+    if (key === 'name') return extra.name ?? ((missing = true), '');
+    if (key === 'field') return extra.field ?? ((missing = true), '');
+    const index = Number(key);
+    if (Number.isInteger(index) && index >= 1 && index <= levels.length) return levels[index - 1] as string;
+    missing = true;
+    return '';
+  });
+  return !missing && CHANNEL_PATTERN.test(name) ? name : null;
+}
+
+function withUnit(sample: Sample, unit: string | null): Sample {
+  if (unit !== null) sample.unit = unit;
+  return sample;
+}
+
+function getPath(object: Record<string, unknown>, path: string): unknown {
+  let current: unknown = object;
+  for (const key of path.split('.')) {
+    if (!isObject(current) || !Object.prototype.hasOwnProperty.call(current, key)) return undefined;
+    current = current[key];
+  }
+  return current;
+}
+
+function isObject(value: unknown): value is Record<string, unknown> {
+  return typeof value === 'object' && value !== null && !Array.isArray(value);
+}
+
+function typeName(value: unknown): string {
+  if (value === null) return 'null';
+  if (Array.isArray(value)) return 'an array';
+  return `a ${typeof value}`;
+}
+
+/** Deepest bracket nesting of JSON text, ignoring brackets inside strings; O(length), no recursion. */
+export function nestingDepth(text: string): number {
+  let depth = 0;
+  let deepest = 0;
+  let inString = false;
+  for (let i = 0; i < text.length; i++) {
+    const c = text.charCodeAt(i);
+    if (inString) {
+      if (c === 92) i++; // backslash escape
+      else if (c === 34) inString = false;
+    } else if (c === 34) inString = true;
+    else if (c === 123 || c === 91) {
+      depth++;
+      if (depth > deepest) deepest = depth;
+    } else if (c === 125 || c === 93) depth--;
+  }
+  return deepest;
+}
+
+function truncate(text: string, length = 60): string {
+  const clean = text.replace(/[\u0000-\u001f\u007f]/g, '?');
+  return clean.length > length ? `${clean.slice(0, length)}...` : clean;
+}
+
+export type { Rejection };

@@ -1,0 +1,39 @@
+/** One accepted measurement: a channel, a time (epoch milliseconds) and a finite value. */
+export interface Sample {
+  channel: string;
+  timeMs: number;
+  value: number;
+  unit?: string;
+  /** The time came from the payload (true) or is the arrival time (false). */
+  stamped: boolean;
+}
+
+/** Why a payload, or part of one, was not accepted. Counted per reason; listed in the README. */
+export const REJECT_REASONS = [
+  'too-large',
+  'unparseable',
+  'too-deep',
+  'wrong-type',
+  'missing-field',
+  'not-a-number',
+  'nan',
+  'infinite',
+  'bad-time',
+  'bad-channel',
+  'unknown-topic',
+  'too-many-samples',
+  'duplicate',
+  'out-of-order',
+] as const;
+export type RejectReason = (typeof REJECT_REASONS)[number];
+
+export interface Rejection {
+  reason: RejectReason;
+  /** Where and what, for the log: "topic rig/hx1/inlet: record 3 field v is a string". */
+  detail: string;
+}
+
+export interface DecodeResult {
+  samples: Sample[];
+  rejections: Rejection[];
+}

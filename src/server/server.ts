@@ -1,0 +1,38 @@
+import type { FastifyInstance } from 'fastify';
+import { buildHttpApp } from './http-app.js';
+import { WsHub } from './ws-hub.js';
+import { listen } from '../ingest/embedded-broker.js';
+import type { Daemon } from '../daemon/daemon.js';
+
+/** The daemon's HTTP server: the API, the dashboard and the WebSocket hub on /ws. */
+export interface RunningServer {
+  app: FastifyInstance;
+  hub: WsHub;
+  url: string;
+  port: number;
+  close(): Promise<void>;
+}
+
+export async function startServer(daemon: Daemon, options: { host: string; port: number; token: string | null; maxBodyBytes: number; fallbackPort?: boolean }): Promise<RunningServer> {
+  const app = buildHttpApp(daemon, { token: options.token, maxBodyBytes: options.maxBodyBytes });
+  const hub = new WsHub(daemon);
+  app.server.on('upgrade', (request, socket, head) => {
+    const path = (request.url ?? '').split('?')[0];
+    if (path === '/ws') hub.handleUpgrade(request, socket, head);
+    else socket.destroy();
+  });
+  await app.ready();
+  const port = await listen(app.server, options.host, options.fallbackPort ? options.port : options.port);
+  if (!options.fallbackPort && port !== options.port && options.port !== 0) throw new Error(`port ${options.port} is taken`);
+  const host = options.host.includes(':') ? `[${options.host}]` : options.host;
+  return {
+    app,
+    hub,
+    port,
+    url: `http://${host}:${port}/`,
+    close: async () => {
+      hub.close();
+      await app.close();
+    },
+  };
+}
