@@ -166,6 +166,7 @@ export class Daemon {
       this.counters.accepted++;
       if (sample.stamped && sample.timeMs > latestStamp) latestStamp = sample.timeMs;
       const channel = result.channel;
+      channel.lastArrivalMs = arrival;
       if (channel.id < 0) channel.id = this.store.addChannel(channel.name, channel.unit, arrival);
       let chunk = this.pendingChunks.get(channel.id);
       if (!chunk) {
@@ -379,10 +380,12 @@ export class Daemon {
   }
 
   private checkStale(): void {
-    const nowSeconds = this.now() / 1000;
+    const now = this.now();
     let any = false;
     for (const channel of this.registry.all()) {
-      const event = channel.pipeline.checkStale(nowSeconds);
+      // A channel restored from the store counts its silence from the daemon's start.
+      if (Number.isNaN(channel.lastArrivalMs)) channel.lastArrivalMs = now;
+      const event = channel.pipeline.checkStale((now - channel.lastArrivalMs) / 1000);
       if (event) {
         this.queueChannelEvent(channel, event);
         any = true;

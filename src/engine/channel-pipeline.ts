@@ -234,12 +234,14 @@ export class ChannelPipeline {
   }
 
   /**
-   * The daemon's clock: a channel with no sample for staleSeconds turns stale (one event, at the
-   * index of its last sample). `plateau analyze` has no clock and never calls this.
+   * The daemon's clock: a channel that has had no sample for staleSeconds of wall-clock time (the
+   * daemon measures the silence from arrival times, not from the samples' own time stamps, which may
+   * come from a replayed log) turns stale: one event, at the index of its last sample. `plateau
+   * analyze` has no clock and never calls this.
    */
-  checkStale(nowSeconds: number): ChannelEvent | null {
-    if (this.stale || this.received === 0 || !Number.isFinite(this.lastTime)) return null;
-    const silent = nowSeconds - this.lastTime;
+  checkStale(silentSeconds: number): ChannelEvent | null {
+    if (this.stale || this.received === 0) return null;
+    const silent = silentSeconds;
     if (silent < this.options.staleSeconds) return null;
     this.stale = true;
     const event: ChannelEvent = { kind: 'stale', at: this.received - 1, silentSeconds: silent };

@@ -16,8 +16,10 @@ export interface RegisteredChannel {
   name: string;
   unit: string | null;
   pipeline: ChannelPipeline;
-  /** Epoch milliseconds of the last accepted sample. */
+  /** Epoch milliseconds of the last accepted sample (its own time stamp). */
   lastTimeMs: number;
+  /** Wall-clock milliseconds when the last sample arrived (for staleness). */
+  lastArrivalMs: number;
   /** Store id, filled in by the daemon. */
   id: number;
 }
@@ -49,7 +51,7 @@ export class ChannelRegistry {
   ensure(name: string, unit: string | null, id = -1): RegisteredChannel {
     let channel = this.channels.get(name);
     if (!channel) {
-      channel = { name, unit, pipeline: new ChannelPipeline(name, this.optionsFor(name)), lastTimeMs: Number.NEGATIVE_INFINITY, id };
+      channel = { name, unit, pipeline: new ChannelPipeline(name, this.optionsFor(name)), lastTimeMs: Number.NEGATIVE_INFINITY, lastArrivalMs: Number.NaN, id };
       this.channels.set(name, channel);
     } else if (unit && !channel.unit) channel.unit = unit;
     return channel;
