@@ -75,8 +75,8 @@ export interface StoreConfig {
   path: string;
   /** Samples older than this are deleted (never those a channel still needs to rebuild its state). */
   retentionSeconds: number;
-  /** Samples are committed in one transaction at most this often. */
-  flushIntervalMs: number;
+  /** A channel's state is checkpointed after this many samples (and every two window lengths). */
+  checkpointSamples: number;
 }
 
 export interface HttpConfig {

@@ -49,8 +49,8 @@ interface PendingChunk {
   values: number[];
 }
 
-/** Samples between checkpoints of a channel, at the least (checkpoints are also due every two window lengths). */
-const CHECKPOINT_MIN_SAMPLES = 100_000;
+/** Stored sample times read back before a checkpoint, for duplicate recognition (as many as the registry keeps). */
+const RECENT_TIMES_TO_RESTORE = 256;
 /** Log one line per reason at most this often. */
 const REJECT_LOG_INTERVAL_MS = 10_000;
 /** Ingest lag that raises a warning event. */
@@ -92,6 +92,7 @@ export class Daemon {
     acknowledged: 0,
     commands: 0,
     restoredSamples: 0,
+    late: 0,
     restoreMs: 0,
   };
 
@@ -164,6 +165,7 @@ export class Daemon {
         continue;
       }
       this.counters.accepted++;
+      if (result.late) this.counters.late++;
       if (sample.stamped && sample.timeMs > latestStamp) latestStamp = sample.timeMs;
       const channel = result.channel;
       channel.lastArrivalMs = arrival;
@@ -310,7 +312,7 @@ export class Daemon {
       if (channel.id < 0) continue;
       const received = channel.pipeline.totalReceived;
       const last = this.lastCheckpoint.get(channel.id) ?? 0;
-      const due = Math.max(CHECKPOINT_MIN_SAMPLES, 2 * channel.pipeline.count);
+      const due = Math.max(this.config.store.checkpointSamples, 2 * channel.pipeline.count);
       if ((final && received > last) || received - last >= due) {
         checkpoints.push({ channelId: channel.id, seq: received, state: channel.pipeline.saveState() });
         this.lastCheckpoint.set(channel.id, received);
@@ -418,17 +420,23 @@ export class Daemon {
       const marks = this.store.marksFrom(stored.id, from);
       let markIndex = 0;
       let lastTime = Number.NEGATIVE_INFINITY;
-      for (const chunk of this.store.samplesFrom(stored.id, from)) {
+      // The times of the samples just before the checkpoint are needed too: a message redelivered
+      // after the restart must still be recognised as a repeat.
+      for (const chunk of this.store.samplesFrom(stored.id, Math.max(0, from - RECENT_TIMES_TO_RESTORE))) {
         for (let i = 0; i < chunk.values.length; i++) {
           const seq = chunk.firstSeq + i;
           const time = chunk.times[i] as number;
           lastTime = time;
-          if (seq < from) continue;
+          if (seq < from) {
+            this.registry.rememberTime(channel, time);
+            continue;
+          }
           while (markIndex < marks.length && (marks[markIndex] as { seq: number }).seq <= seq) {
             if ((marks[markIndex] as { seq: number; kind: string }).seq === seq) channel.pipeline.restartWindow();
             markIndex++;
           }
           channel.pipeline.push(chunk.values[i] as number, time / 1000);
+          this.registry.rememberTime(channel, time);
           this.derived.onSample(channel.name, chunk.values[i] as number, time, true);
           replayed++;
         }
@@ -438,7 +446,7 @@ export class Daemon {
         if ((marks[markIndex] as { seq: number }).seq === channel.pipeline.totalReceived) channel.pipeline.restartWindow();
         markIndex++;
       }
-      channel.lastTimeMs = lastTime;
+      if (lastTime > channel.lastTimeMs) channel.lastTimeMs = lastTime;
     }
     this.testPoints.load(this.store.testPoints() as TestPoint[]);
     const last = this.store.eventsAfter(0, 1).length > 0 ? this.lastStoredEventId() : 0;
@@ -470,7 +478,7 @@ export class Daemon {
   /** Counters for the API: samples accepted and rejected by reason, broker, lag, database. */
   counterReport(): Record<string, unknown> {
     return {
-      samples: { accepted: this.counters.accepted, rejected: { ...this.counters.rejected } },
+      samples: { accepted: this.counters.accepted, late: this.counters.late, rejected: { ...this.counters.rejected } },
       messages: this.counters.messages,
       commands: this.counters.commands,
       broker: { url: this.brokerUrl, connected: this.ingest?.connected ?? false, reconnects: this.ingest?.reconnects ?? 0, heldAcknowledgements: this.ingest?.heldCount ?? 0 },
