@@ -159,7 +159,14 @@ export class Daemon {
     for (const rejection of decoded.rejections) this.rejected(rejection.reason, rejection.detail);
     let latestStamp = 0;
     for (const sample of decoded.samples) {
-      const result = this.registry.accept(sample.channel, sample.value, sample.timeMs, sample.stamped, sample.unit ?? settingsFor(this.config, sample.channel).unit);
+      let result: ReturnType<ChannelRegistry['accept']>;
+      try {
+        result = this.registry.accept(sample.channel, sample.value, sample.timeMs, sample.stamped, sample.unit ?? settingsFor(this.config, sample.channel).unit);
+      } catch (error) {
+        // A defect in the engine must not take the daemon down: the sample is counted and logged.
+        this.rejected('engine-error', `channel ${sample.channel}: ${(error as Error).message}`);
+        continue;
+      }
       if (!result.accepted) {
         this.rejected(result.reason, `channel ${sample.channel}: sample at ${new Date(sample.timeMs).toISOString()} ${result.reason === 'duplicate' ? 'repeats the last accepted time' : 'is older than the last accepted one'}`);
         continue;

@@ -1,5 +1,7 @@
+import { MAX_MAGNITUDE } from './sample.js';
+
 /** Why a cell or payload value is not a measurement. */
-export type ValueProblem = 'empty' | 'not-a-number' | 'nan' | 'infinite';
+export type ValueProblem = 'empty' | 'not-a-number' | 'nan' | 'infinite' | 'out-of-range';
 
 /**
  * Parses one measurement from text. Accepts decimal and exponent notation with surrounding blanks;
@@ -17,7 +19,7 @@ export function parseMeasurement(text: string): number | ValueProblem {
       if (second === 120 || second === 98 || second === 111) return 'not-a-number'; // 0x 0b 0o
     }
     if (value === 0 || first <= 32) return classifySlow(text);
-    return value;
+    return Math.abs(value) <= MAX_MAGNITUDE ? value : 'out-of-range';
   }
   return classifySlow(text);
 }
@@ -32,7 +34,7 @@ function classifySlow(text: string): number | ValueProblem {
   }
   if (!Number.isFinite(value)) return 'infinite';
   if (!NUMBER_PATTERN.test(trimmed)) return 'not-a-number';
-  return value;
+  return Math.abs(value) <= MAX_MAGNITUDE ? value : 'out-of-range';
 }
 
 const NUMBER_PATTERN = /^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/;
@@ -42,6 +44,7 @@ export const PROBLEM_TEXT: Record<ValueProblem, string> = {
   'not-a-number': 'not a number',
   nan: 'NaN is not a measurement',
   infinite: 'Infinity is not a measurement',
+  'out-of-range': `beyond +/-${MAX_MAGNITUDE}, outside any measurement`,
 };
 
 const POWERS_OF_TEN = [1, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22];

@@ -1,4 +1,4 @@
-import type { DecodeResult, Rejection, RejectReason, Sample } from './sample.js';
+import { MAX_MAGNITUDE, MAX_TIME_MS, type DecodeResult, type Rejection, type RejectReason, type Sample } from './sample.js';
 
 /**
  * Payload decoding: (topic, bytes, subscription, arrival time) -> samples and rejections.
@@ -189,11 +189,14 @@ function decodeSenml(topic: string, document: unknown, spec: DecoderSpec, arriva
     }
     const relative = Math.abs(t) < SENML_RELATIVE_LIMIT;
     const timeMs = relative ? arrivalMs + t * 1000 : t * 1000;
+    if (!(timeMs >= 0 && timeMs < MAX_TIME_MS)) return void fail('bad-time', `${where}: time ${t} s is not a plausible time`);
+    const total = inRange(value + baseValue);
+    if (typeof total === 'string') return void fail(total, `${where}: v + bv is ${REASON_TEXT[total]}`);
     const unit = record.u !== undefined ? record.u : baseUnit;
     if (unit !== undefined && typeof unit !== 'string') return void fail('wrong-type', `${where}: u is not a string`);
     const channel = channelName(spec.channel, topic, { name: fullName });
     if (channel === null) return void fail('bad-channel', `${where}: name "${truncate(fullName)}" is not a valid channel name`);
-    const sample: Sample = { channel, timeMs, value: value + baseValue, stamped: !relative };
+    const sample: Sample = { channel, timeMs, value: total, stamped: !relative };
     const fixed = spec.unit ?? unit;
     if (fixed !== undefined && fixed !== null) sample.unit = fixed;
     out.samples.push(sample);
@@ -202,6 +205,7 @@ function decodeSenml(topic: string, document: unknown, spec: DecoderSpec, arriva
 
 const REASON_TEXT: Record<string, string> = {
   'not-a-number': 'not a number',
+  'out-of-range': `beyond +/-${MAX_MAGNITUDE}, outside any measurement`,
   nan: 'NaN, which is not a measurement',
   infinite: 'infinite, which is not a measurement',
   'wrong-type': 'of the wrong type',
@@ -214,12 +218,16 @@ function readNumberText(text: string): number | RejectReason {
   if (/^[+-]?nan$/i.test(trimmed)) return 'nan';
   if (/^[+-]?inf(inity)?$/i.test(trimmed)) return 'infinite';
   if (!/^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/.test(trimmed)) return 'not-a-number';
-  const value = Number(trimmed);
-  return Number.isFinite(value) ? value : 'infinite';
+  return inRange(Number(trimmed));
+}
+
+function inRange(value: number): number | RejectReason {
+  if (!Number.isFinite(value)) return 'infinite';
+  return Math.abs(value) <= MAX_MAGNITUDE ? value : 'out-of-range';
 }
 
 function readJsonNumber(raw: unknown): number | RejectReason {
-  if (typeof raw === 'number') return Number.isFinite(raw) ? raw : 'infinite';
+  if (typeof raw === 'number') return inRange(raw);
   if (typeof raw === 'string') {
     // Text such as "NaN" or "Infinity" is named as such; other strings are the wrong type.
     if (/^[+-]?nan$/i.test(raw.trim())) return 'nan';
@@ -236,7 +244,7 @@ function readTime(raw: unknown, unit: 's' | 'ms'): number | null {
   else if (typeof raw === 'string') ms = Date.parse(raw);
   else return null;
   // Accept 1970 .. 2200: anything else is a unit mistake or garbage.
-  return Number.isFinite(ms) && ms >= 0 && ms < 7_258_118_400_000 ? ms : null;
+  return Number.isFinite(ms) && ms >= 0 && ms < MAX_TIME_MS ? ms : null;
 }
 
 /** Fills a channel template from topic levels ({1}, {2}, ...), {topic}, {name} and {field}. */

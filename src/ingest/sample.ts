@@ -18,12 +18,14 @@ export const REJECT_REASONS = [
   'not-a-number',
   'nan',
   'infinite',
+  'out-of-range',
   'bad-time',
   'bad-channel',
   'unknown-topic',
   'too-many-samples',
   'duplicate',
   'out-of-order',
+  'engine-error',
 ] as const;
 export type RejectReason = (typeof REJECT_REASONS)[number];
 
@@ -32,6 +34,16 @@ export interface Rejection {
   /** Where and what, for the log: "topic rig/hx1/inlet: record 3 field v is a string". */
   detail: string;
 }
+
+/**
+ * Largest magnitude a measurement may have: squares and sums of squares of 10^8 such values stay
+ * finite in double precision, so no statistic can overflow to Infinity. No physical quantity in any
+ * unit a rig reports comes near it.
+ */
+export const MAX_MAGNITUDE = 1e100;
+
+/** Plausible sample times, epoch milliseconds: 1970 to 2200. */
+export const MAX_TIME_MS = 7_258_118_400_000;
 
 export interface DecodeResult {
   samples: Sample[];
