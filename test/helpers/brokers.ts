@@ -24,7 +24,7 @@ export async function mqttClient(url: string, clientId: string, options: mqtt.IC
   return client;
 }
 
-export function publishAsync(client: MqttClient, topic: string, payload: string, qos: 0 | 1 = 1): Promise<void> {
+export function publishAsync(client: MqttClient, topic: string, payload: string | Buffer, qos: 0 | 1 = 1): Promise<void> {
   return new Promise((resolve, reject) => client.publish(topic, payload, { qos }, (error) => (error ? reject(error) : resolve())));
 }
 
