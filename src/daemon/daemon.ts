@@ -138,8 +138,9 @@ export class Daemon {
     this.stopped = true;
     for (const timer of this.timers) clearInterval(timer);
     if (this.flushTimer) clearTimeout(this.flushTimer);
-    await this.ingest?.stop();
+    // Commit what is pending with a checkpoint of every channel, acknowledge it, then disconnect.
     this.flush(true);
+    await this.ingest?.stop();
     this.store.close();
   }
 

@@ -16,6 +16,8 @@ import type { BrokerConfig, SubscriptionConfig } from '../config/plateau-config.
  * With MQTT 3.1.1 the broker bounds the unacknowledged messages in flight (Mosquitto's default is
  * 20), so the daemon commits as soon as a burst of messages has been handled, not on a timer.
  */
+const STOP_GRACE_MS = 2000;
+
 export interface IngestHandlers {
   onMessage(topic: string, payload: Buffer, subscription: SubscriptionConfig, qos: number): void;
   onConnectionChange(connected: boolean, detail: string): void;
@@ -71,9 +73,9 @@ export class MqttIngest {
       this.handlers.onConnectionChange(true, connack.sessionPresent ? 'connected, session resumed' : 'connected, new session');
       // With a resumed session the broker keeps the subscriptions; subscribing again is harmless
       // and covers a broker that lost them.
-      for (const subscription of this.subscriptions) {
-        client.subscribe(subscription.topic, { qos: b.qos }, (error) => {
-          if (error) this.handlers.onError(new Error(`subscribe ${subscription.topic}: ${error.message}`));
+      for (const filter of brokerFilters(this.subscriptions.map((s) => s.topic))) {
+        client.subscribe(filter, { qos: b.qos }, (error) => {
+          if (error) this.handlers.onError(new Error(`subscribe ${filter}: ${error.message}`));
         });
       }
     });
@@ -125,15 +127,29 @@ export class MqttIngest {
 
   /** Subscribes to an extra topic (the command topic); messages arrive through onMessage with the given subscription. */
   addSubscription(subscription: SubscriptionConfig): void {
+    const before = brokerFilters(this.subscriptions.map((s) => s.topic));
     this.subscriptions.push(subscription);
-    if (this.client?.connected) this.client.subscribe(subscription.topic, { qos: this.broker.qos });
+    if (this.client?.connected && brokerFilters(this.subscriptions.map((s) => s.topic)).length > before.length) {
+      this.client.subscribe(subscription.topic, { qos: this.broker.qos });
+    }
   }
 
+  /**
+   * Disconnects. Call after the last commit and releaseAcknowledgements(): a graceful end waits for
+   * the broker to acknowledge what the daemon published; after STOP_GRACE_MS the connection is
+   * closed anyway (anything unacknowledged is redelivered to the next session).
+   */
   async stop(): Promise<void> {
     const client = this.client;
     if (!client) return;
     this.client = null;
-    await new Promise<void>((resolve) => client.end(false, {}, () => resolve()));
+    await new Promise<void>((resolve) => {
+      const timer = setTimeout(() => client.end(true, {}, () => resolve()), STOP_GRACE_MS);
+      client.end(false, {}, () => {
+        clearTimeout(timer);
+        resolve();
+      });
+    });
   }
 
   /** Forcibly drops the connection (tests: a broker restart as the client sees it). */
@@ -190,6 +206,32 @@ const UNKNOWN_TOPIC: SubscriptionConfig = {
 
 export function isUnknownTopic(subscription: SubscriptionConfig): boolean {
   return subscription === UNKNOWN_TOPIC;
+}
+
+/**
+ * The filters to subscribe to at the broker: every configured filter that no other one covers.
+ * Overlapping subscriptions make a broker deliver a message once per matching filter (MQTT 3.1.1
+ * leaves it open; aedes does, and drops the connection over the repeated acknowledgements), so the
+ * daemon subscribes to the covering set and picks the most specific configured filter itself.
+ */
+export function brokerFilters(filters: string[]): string[] {
+  const unique = [...new Set(filters)];
+  return unique.filter((f) => !unique.some((g) => g !== f && filterCovers(g, f)));
+}
+
+/** True when every topic that matches `inner` also matches `outer`. */
+export function filterCovers(outer: string, inner: string): boolean {
+  const o = outer.split('/');
+  const i = inner.split('/');
+  for (let k = 0; k < o.length; k++) {
+    const a = o[k];
+    if (a === '#') return true;
+    const b = i[k];
+    if (b === undefined || b === '#') return false;
+    if (a === '+') continue;
+    if (b === '+' || a !== b) return false;
+  }
+  return o.length === i.length;
 }
 
 /** MQTT topic filter matching (+ one level, # the rest). */
