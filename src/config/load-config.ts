@@ -137,10 +137,11 @@ export function parseConfig(document: unknown, source = 'config'): PlateauConfig
     names.add(d.name);
   });
 
-  const storeSection = r.section(root.store, 'store', ['path', 'retentionSeconds', 'checkpointSamples']);
+  const storeSection = r.section(root.store, 'store', ['path', 'retentionSeconds', 'flushIntervalMs', 'checkpointSamples']);
   const store = {
     path: r.string(storeSection, 'path', 'store', 'plateau.sqlite'),
     retentionSeconds: r.number(storeSection, 'retentionSeconds', 'store', { min: 60, integer: true }, 7 * 86_400),
+    flushIntervalMs: r.number(storeSection, 'flushIntervalMs', 'store', { min: 1, max: 5000, integer: true }, 20),
     checkpointSamples: r.number(storeSection, 'checkpointSamples', 'store', { min: 100, integer: true }, 100_000),
   };
   const httpSection = r.section(root.http, 'http', ['listen', 'token', 'maxBodyBytes']);

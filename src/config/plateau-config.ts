@@ -75,6 +75,11 @@ export interface StoreConfig {
   path: string;
   /** Samples older than this are deleted (never those a channel still needs to rebuild its state). */
   retentionSeconds: number;
+  /**
+   * Longest wait, in milliseconds, before accepted samples are committed when no MQTT acknowledgement
+   * is waiting on them (QoS 0); held acknowledgements make the commit immediate.
+   */
+  flushIntervalMs: number;
   /** A channel's state is checkpointed after this many samples (and every two window lengths). */
   checkpointSamples: number;
 }

@@ -107,6 +107,13 @@ export class Daemon {
     this.testPoints.useDerived(this.derived);
   }
 
+  /** The unit the configuration gives a channel (looked up once per channel). */
+  private configuredUnit(name: string): string | null {
+    const known = this.registry.get(name);
+    if (known) return known.unit;
+    return settingsFor(this.config, name).unit;
+  }
+
   channelOptions(name: string): ChannelOptions {
     const s = settingsFor(this.config, name);
     return { window: s.window, maxLag: s.maxLag, estimator: s.estimator, confidence: s.confidence, target: s.target, rate: s.rate, falseAlarmSamples: s.falseAlarmSamples, staleSeconds: s.staleSeconds };
@@ -162,7 +169,7 @@ export class Daemon {
     for (const sample of decoded.samples) {
       let result: ReturnType<ChannelRegistry['accept']>;
       try {
-        result = this.registry.accept(sample.channel, sample.value, sample.timeMs, sample.stamped, sample.unit ?? settingsFor(this.config, sample.channel).unit);
+        result = this.registry.accept(sample.channel, sample.value, sample.timeMs, sample.stamped, sample.unit ?? this.configuredUnit(sample.channel));
       } catch (error) {
         // A defect in the engine must not take the daemon down: the sample is counted and logged.
         this.rejected('engine-error', `channel ${sample.channel}: ${(error as Error).message}`);
@@ -298,16 +305,38 @@ export class Daemon {
     this.pendingEvents.push({ source, kind, at, body });
   }
 
+  /**
+   * A commit is due: at once (after the burst of messages in hand, which mqtt.js handles on the next
+   * ticks, before setImmediate) when acknowledgements or events wait on it, else within
+   * store.flushIntervalMs, so that QoS 0 streams are committed in batches.
+   */
   scheduleFlush(): void {
-    if (this.flushScheduled || this.stopped) return;
-    this.flushScheduled = true;
-    // After the burst of messages in hand (they are handled on the next ticks, before setImmediate).
-    setImmediate(() => this.flush(false));
+    if (this.stopped) return;
+    const urgent = (this.ingest?.heldCount ?? 0) > 0 || this.pendingEvents.length > 0 || this.pendingTestPoints.length > 0;
+    if (urgent) {
+      if (this.flushScheduled) return;
+      if (this.flushTimer) {
+        clearTimeout(this.flushTimer);
+        this.flushTimer = null;
+      }
+      this.flushScheduled = true;
+      setImmediate(() => this.flush(false));
+      return;
+    }
+    if (this.flushScheduled || this.flushTimer) return;
+    this.flushTimer = setTimeout(() => {
+      this.flushTimer = null;
+      this.flush(false);
+    }, this.config.store.flushIntervalMs);
   }
 
   /** Commits the pending batch, then acknowledges and publishes. `final` checkpoints every channel. */
   flush(final: boolean): void {
     this.flushScheduled = false;
+    if (this.flushTimer) {
+      clearTimeout(this.flushTimer);
+      this.flushTimer = null;
+    }
     const started = performance.now();
     const now = this.now();
     for (const change of this.testPoints.evaluate(now)) this.applyTestPointChange(change);

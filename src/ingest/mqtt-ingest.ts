@@ -110,7 +110,12 @@ export class MqttIngest {
     this.heldAcks = [];
     if (this.heldGeneration !== this.connectionGeneration || !this.connected) return 0;
     const write = (client as unknown as { _writePacket(packet: unknown, cb?: () => void): void })._writePacket.bind(client);
+    // One corked write burst instead of a socket write per acknowledgement.
+    const stream = (client as unknown as { stream?: { cork?(): void; uncork?(): void; setMaxListeners?(n: number): void } }).stream;
+    stream?.setMaxListeners?.(0);
+    stream?.cork?.();
     for (const packet of held) write(packet);
+    if (stream?.uncork) process.nextTick(() => stream.uncork?.());
     return held.length;
   }
 

@@ -112,6 +112,9 @@ function decodeJson(topic: string, document: unknown, spec: DecoderSpec, arrival
     out.rejections.push({ reason: 'too-many-samples', detail: `topic ${truncate(topic)}: ${records.length} samples in one message, more than the ${spec.maxSamples} allowed` });
     return;
   }
+  // The channel name depends only on the topic unless the template takes a field from each record.
+  const perRecordName = spec.channelField !== null && spec.channel.includes('{field}');
+  const messageChannel = perRecordName ? null : channelName(spec.channel, topic, {});
   records.forEach((record, index) => {
     const where = records.length > 1 ? `record ${index}` : 'payload';
     const fail = (reason: RejectReason, detail: string) => out.rejections.push({ reason, detail: `topic ${truncate(topic)}: ${where}: ${detail}` });
@@ -138,7 +141,7 @@ function decodeJson(topic: string, document: unknown, spec: DecoderSpec, arrival
       if (typeof rawName !== 'string') return void fail('bad-channel', `"${spec.channelField}" is not a string`);
       field = rawName;
     }
-    const channel = channelName(spec.channel, topic, field === undefined ? {} : { field });
+    const channel = perRecordName ? channelName(spec.channel, topic, field === undefined ? {} : { field }) : messageChannel;
     if (channel === null) return void fail('bad-channel', `channel template "${spec.channel}" gives no valid name`);
     out.samples.push(withUnit({ channel, timeMs, value, stamped }, spec.unit));
   });
@@ -268,9 +271,17 @@ function withUnit(sample: Sample, unit: string | null): Sample {
   return sample;
 }
 
+const splitPaths = new Map<string, string[]>();
+
 function getPath(object: Record<string, unknown>, path: string): unknown {
+  if (!path.includes('.')) return Object.prototype.hasOwnProperty.call(object, path) ? object[path] : undefined;
+  let keys = splitPaths.get(path);
+  if (!keys) {
+    keys = path.split('.');
+    if (splitPaths.size < 1000) splitPaths.set(path, keys);
+  }
   let current: unknown = object;
-  for (const key of path.split('.')) {
+  for (const key of keys) {
     if (!isObject(current) || !Object.prototype.hasOwnProperty.call(current, key)) return undefined;
     current = current[key];
   }
