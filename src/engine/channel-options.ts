@@ -28,6 +28,11 @@ export interface ChannelOptions {
   falseAlarmSamples: number;
   /** No sample for this long (by the daemon's clock) makes the channel stale. */
   staleSeconds: number;
+  /**
+   * Run the steady-state and stationarity detectors (default). Off, the window is never cut and no
+   * stationarity event is raised: the plain statistics of every sample (estimator studies).
+   */
+  detectors?: boolean;
 }
 
 /**

@@ -222,6 +222,14 @@ export class ChannelPipeline {
       this.stale = false;
       raise({ kind: 'fresh', at: index });
     }
+    if (this.options.detectors === false) {
+      if (this.phase !== 'steady' && this.series.length >= 2) {
+        this.phase = 'steady';
+        this.warmupEnd = this.series.firstIndex;
+      }
+      if (this.phase === 'steady' && index >= this.nextPrecisionCheck) this.checkPrecision(index, raise);
+      return events ?? NO_EVENTS;
+    }
     this.feedIndicator(value);
     if (this.phase === 'steady' && this.monitor) {
       const found = this.monitor.push(value, index);

@@ -4,8 +4,10 @@ import { heidelbergerWelch, type HeidelbergerWelchResult } from '../core/station
 /**
  * Where steady state begins in a window, or that it has not begun.
  *
- * MSER (K. P. White Jr (1997), "An effective truncation heuristic for bias reduction in simulation
- * output", Simulation 69(6), 323-334; from memory) proposes the truncation point, with its batches
+ * The Heidelberger-Welch test on the whole window comes first: a window that is stationary from its
+ * first sample is steady with nothing cut. Otherwise MSER (K. P. White Jr (1997), "An effective
+ * truncation heuristic for bias reduction in simulation output", Simulation 69(6), 323-334; from
+ * memory) proposes the truncation point, with its batches
  * sized from tau_int (core/stationarity/mser.ts explains why batches of 5 truncate too early on
  * strongly autocorrelated data); the Heidelberger-Welch stationarity test (P. Heidelberger &
  * P. D. Welch (1983), Operations Research 31(6), 1109-1144; as implemented by R coda) confirms that
@@ -36,6 +38,15 @@ export function detectWarmup(values: Float64Array, tauInt: number): WarmupVerdic
   const batchSize = batchSizeFromTau(Math.max(1, tauInt));
   if (values.length < 10 * batchSize) {
     return { steady: false, truncation: 0, mser: null, heidelbergerWelch: null, reason: `fewer than ten batches of ${batchSize} samples` };
+  }
+  if (values.length / Math.max(1, tauInt) < MIN_EFFECTIVE) {
+    return { steady: false, truncation: 0, mser: null, heidelbergerWelch: null, reason: `fewer than ${MIN_EFFECTIVE} effective samples` };
+  }
+  // A window that passes the stationarity test as it is keeps every sample: MSER always proposes a
+  // cut, even on a stationary record, and a cut there would only throw data away.
+  const whole = heidelbergerWelch(values);
+  if (whole.stationary && whole.startIndex === 0) {
+    return { steady: true, truncation: 0, mser: null, heidelbergerWelch: whole, reason: 'Heidelberger-Welch: stationary from the first sample' };
   }
   const proposal = mser(values, batchSize);
   if (proposal.tooShort) return { steady: false, truncation: 0, mser: proposal, heidelbergerWelch: null, reason: 'MSER: the run is too short to place the end of the warm-up' };

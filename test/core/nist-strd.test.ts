@@ -49,8 +49,10 @@ const fromShared: Dataset[] = haveShared
     }))
   : [];
 
+// The detectors are off: NumAcc2-4 alternate deterministically (r(1) = -0.999), which no
+// stationarity test treats as noise, and this test is about the accuracy of the streamed sums.
 function streamGrowing(values: number[]) {
-  const pipeline = new ChannelPipeline('nist', DEFAULT_CHANNEL_OPTIONS);
+  const pipeline = new ChannelPipeline('nist', { ...DEFAULT_CHANNEL_OPTIONS, detectors: false });
   values.forEach((v, i) => pipeline.push(v, i));
   return pipeline.snapshot();
 }
@@ -59,7 +61,7 @@ function streamGrowing(values: number[]) {
  * data set entered after removals and an exact rebuild had happened. */
 function streamSliding(values: number[]) {
   const n = values.length;
-  const pipeline = new ChannelPipeline('nist', { ...DEFAULT_CHANNEL_OPTIONS, window: { kind: 'sliding', samples: Math.max(n, 4), maxSamples: Math.max(n, 4) } });
+  const pipeline = new ChannelPipeline('nist', { ...DEFAULT_CHANNEL_OPTIONS, detectors: false, window: { kind: 'sliding', samples: Math.max(n, 4), maxSamples: Math.max(n, 4) } });
   for (let i = 0; i < 3 * n; i++) pipeline.push((values[i % n] as number) * 1.5 + 1000, i);
   values.forEach((v, i) => pipeline.push(v, 3 * n + i));
   return pipeline.snapshot();

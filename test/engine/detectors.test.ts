@@ -32,6 +32,16 @@ describe('stationarity detectors', () => {
     }
   });
 
+  it('a stationary stream is steady with nothing cut: the Heidelberger-Welch test on the whole window comes before MSER', () => {
+    for (const phi of [0, 0.5, 0.9]) {
+      const x = ar1Series(new SeededRandom(6100 + phi * 10), phi, 30_000);
+      const { events, pipeline } = runStream(x, { falseAlarmSamples: 1e8 });
+      const steady = events.find((e) => e.kind === 'steady') as Extract<ChannelEvent, { kind: 'steady' }>;
+      expect(steady.warmupEnd).toBe(0);
+      expect(pipeline.snapshot().n).toBe(30_000);
+    }
+  });
+
   it('a step is detected as a shift, with the change point near the truth (10 seeds, phi 0.9, step of 3)', () => {
     let right = 0;
     for (let seed = 0; seed < 10; seed++) {

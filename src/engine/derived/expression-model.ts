@@ -7,6 +7,20 @@ import type { VectorModel } from '../../core/propagation/monte-carlo-propagation
  * parsed by mathjs (number-only build, mathjs 15) and checked at load time, with sensitivity
  * coefficients df/dx_i from mathjs's symbolic `derivative`, compiled once.
  *
+ * Names with dots. The daemon's channel names carry dots (hx7.glycol_in_degC, cb2.ref), which mathjs
+ * reads as property access. Before parsing, every name token of the expression (ASCII letters,
+ * digits and _, in dot-separated parts, the first part starting with a letter or _) that is a known
+ * channel or derived-result name, or starts with one (the longest such prefix wins, so a.b.c is the
+ * channel a.b.c when it exists, else a.b followed by .c), has its dots replaced by '$', which keeps
+ * every character position (syntax errors point at the right place) and gives mathjs a plain
+ * identifier. '$' itself is rejected in expressions, so the mapping is reversible, and every name in
+ * a message is mapped back. A dotted token that is not a known name is reported as an unknown
+ * symbol (a typo in a channel name) when it starts with no known name, constant or function, or
+ * when other known names continue its known part with a dot (hx7.glycol_inn_degC beside
+ * hx7.glycol_in_degC); otherwise (cp.constructor, sqrt.constructor, hx7.q.constructor) it is
+ * left to mathjs, whose property access the whitelist rejects. Channels referred to in expressions must therefore be named with ASCII
+ * letters, digits, _ and dots; other names (spaces, -, /, :) cannot be referred to.
+ *
  * What an expression may contain (everything else is rejected at load with code ERR_CONFIG_DERIVED
  * and a message that names the key path):
  * - finite numeric literals, the constants pi and e, and channel names (a channel named pi or e hides
@@ -133,7 +147,8 @@ const FUNCTIONS = new Map<string, number[]>([
   ['pow', [2]],
 ]);
 const OPERATORS = new Set(['add', 'subtract', 'multiply', 'divide', 'pow', 'unaryMinus', 'unaryPlus']);
-const IDENTIFIER = /^[A-Za-z_][A-Za-z0-9_]*$/;
+/** A name an expression can refer to: dot-separated parts of ASCII letters, digits and _, the first starting with a letter or _. */
+const NAME = /^[A-Za-z_][A-Za-z0-9_]*(?:\.[A-Za-z0-9_]+)*$/;
 const NODE_WORDS: Record<string, string> = {
   AssignmentNode: 'assignments',
   FunctionAssignmentNode: 'function definitions',
@@ -155,7 +170,7 @@ const NODE_WORDS: Record<string, string> = {
 export function compileDerived(definition: DerivedDefinition, channels: ChannelDeclaration[], keyPath: string): CompiledDerived {
   const context = makeContext(channels, keyPath);
   checkName(definition, context, new Set());
-  const tree = parseExpression(definition, keyPath);
+  const tree = parseExpression(definition, keyPath, context, new Set());
   return compileTree(definition, tree, context);
 }
 
@@ -174,11 +189,12 @@ export function compileDerivedSet(definitions: DerivedDefinition[], channels: Ch
     checkName(d, context, new Set(byName.keys()));
     byName.set(d.name, i);
   });
-  const trees = definitions.map((d, i) => parseExpression(d, `${keyPath}[${i}]`));
+  const derivedNames = new Set(byName.keys());
+  const trees = definitions.map((d, i) => parseExpression(d, `${keyPath}[${i}]`, makeContext(channels, `${keyPath}[${i}]`), derivedNames));
   const dependencies = trees.map((tree) => {
     const used = new Set<string>();
     for (const node of tree.filter((n) => n.type === 'SymbolNode')) {
-      const name = (node as unknown as { name: string }).name;
+      const name = decodeName((node as unknown as { name: string }).name);
       if (byName.has(name)) used.add(name);
     }
     return [...used];
@@ -196,7 +212,7 @@ export function compileDerivedSet(definitions: DerivedDefinition[], channels: Ch
     state.set(name, 'visiting');
     for (const dependency of dependencies[index] as string[]) visit(dependency, [...path, name]);
     const tree = (trees[index] as MathNode).transform((node) => {
-      const symbol = node.type === 'SymbolNode' ? (node as unknown as { name: string }).name : null;
+      const symbol = node.type === 'SymbolNode' ? decodeName((node as unknown as { name: string }).name) : null;
       const replacement = symbol === null ? undefined : substituted.get(symbol);
       return replacement === undefined ? node : new math.ParenthesisNode(replacement.cloneDeep());
     });
@@ -213,7 +229,132 @@ export function compileDerivedSet(definitions: DerivedDefinition[], channels: Ch
 
 interface Context {
   keyPath: string;
+  /** Channels by their mathjs symbol (dots replaced by '$'). */
   channels: Map<string, ChannelDeclaration>;
+}
+
+/** The mathjs symbol of a name: dots become '$' (rejected in expression text, so this is reversible). */
+function encodeName(name: string): string {
+  return name.replaceAll('.', '$');
+}
+
+/** A name, or any text printed from a tree, as the user wrote it. */
+function decodeName(text: string): string {
+  return text.replaceAll('$', '.');
+}
+
+function knownChannelList(context: Context): string {
+  const known = [...context.channels.values()].map((c) => c.name);
+  return known.length <= 30 ? known.join(', ') : `${known.slice(0, 30).join(', ')}, ... (${known.length} in all)`;
+}
+
+function unknownSymbol(name: string, context: Context): string {
+  return `unknown symbol '${name}' (known channels: ${knownChannelList(context) || 'none'}; constants: pi, e; channel names in expressions may contain only ASCII letters, digits, _ and dots)`;
+}
+
+const NAME_TOKEN = /[A-Za-z_\u0080-\uffff][A-Za-z0-9_\u0080-\uffff]*(?:\.[A-Za-z0-9_\u0080-\uffff]+)*/y;
+const NUMBER_TOKEN = /[0-9]*\.?[0-9]*(?:[eE][+-]?[0-9]+)?/y;
+
+/**
+ * The names an expression refers to (channels or derived results), as written: every name token
+ * that is not a function call, a constant or a function name, in order of first appearance. For
+ * callers that must find out which channels to declare before compiling (the daemon, whose
+ * channels come from the data). No parsing: a syntax error is reported by the compile step.
+ */
+export function referencedNames(expression: string): string[] {
+  const out: string[] = [];
+  if (typeof expression !== 'string') return out;
+  let i = 0;
+  while (i < expression.length) {
+    const c = expression[i] as string;
+    if (c === '"' || c === "'") {
+      let j = i + 1;
+      while (j < expression.length && expression[j] !== c) j += expression[j] === '\\' ? 2 : 1;
+      i = j + 1;
+      continue;
+    }
+    if ((c >= '0' && c <= '9') || (c === '.' && /[0-9]/.test(expression[i + 1] ?? ''))) {
+      NUMBER_TOKEN.lastIndex = i;
+      NUMBER_TOKEN.exec(expression);
+      i = Math.max(i + 1, NUMBER_TOKEN.lastIndex);
+      continue;
+    }
+    NAME_TOKEN.lastIndex = i;
+    const match = NAME_TOKEN.exec(expression);
+    if (match === null) {
+      i++;
+      continue;
+    }
+    const token = match[0];
+    i += token.length;
+    const first = token.split('.')[0] as string;
+    const call = /^\s*\(/.test(expression.slice(i, i + 64));
+    if (call || CONSTANTS.has(token) || FUNCTIONS.has(first) || (token.includes('.') && CONSTANTS.has(first))) continue;
+    if (NAME.test(token) && !out.includes(token)) out.push(token);
+  }
+  return out;
+}
+
+/**
+ * Replaces the dots of known dotted names by '$' (see the module comment); every other character is
+ * kept, so positions do not move. `known` holds the channel and derived-result names.
+ */
+function encodeNames(text: string, known: Set<string>, context: Context, where: string): string {
+  let out = '';
+  let i = 0;
+  while (i < text.length) {
+    const c = text[i] as string;
+    if (c === '$') throw new DerivedExpressionError(where, `the character '$' is not allowed (at character ${i + 1}) in "${text}"`);
+    if (c === '"' || c === "'") {
+      let j = i + 1;
+      while (j < text.length && text[j] !== c) j += text[j] === '\\' ? 2 : 1;
+      out += text.slice(i, j + 1);
+      i = j + 1;
+      continue;
+    }
+    if ((c >= '0' && c <= '9') || (c === '.' && /[0-9]/.test(text[i + 1] ?? ''))) {
+      NUMBER_TOKEN.lastIndex = i;
+      NUMBER_TOKEN.exec(text);
+      const end = Math.max(i + 1, NUMBER_TOKEN.lastIndex);
+      out += text.slice(i, end);
+      i = end;
+      continue;
+    }
+    NAME_TOKEN.lastIndex = i;
+    const match = NAME_TOKEN.exec(text);
+    if (match === null) {
+      out += c;
+      i++;
+      continue;
+    }
+    const token = match[0];
+    i += token.length;
+    if (!token.includes('.')) {
+      out += token;
+      continue;
+    }
+    const parts = token.split('.');
+    let prefix = 0;
+    for (let k = parts.length; k >= 1 && prefix === 0; k--) if (known.has(parts.slice(0, k).join('.'))) prefix = k;
+    if (prefix === parts.length) {
+      out += encodeName(token);
+      continue;
+    }
+    if (prefix >= 1) {
+      const head = parts.slice(0, prefix).join('.');
+      // Other known names continue this one with a dot: the token reads as a misspelt one of them.
+      const family = [...known].some((name) => name.startsWith(`${head}.`));
+      if (!family) {
+        out += `${encodeName(head)}.${parts.slice(prefix).join('.')}`; // property access: the whitelist rejects it after parsing
+        continue;
+      }
+    } else if (CONSTANTS.has(parts[0] as string) || FUNCTIONS.has(parts[0] as string)) {
+      out += token; // property access on a constant or function: rejected after parsing
+      continue;
+    }
+    throw new DerivedExpressionError(where, `${unknownSymbol(token, context)} in "${text}"`);
+  }
+  return out;
 }
 
 function makeContext(channels: ChannelDeclaration[], keyPath: string): Context {
@@ -225,7 +366,7 @@ function makeContext(channels: ChannelDeclaration[], keyPath: string): Context {
         throw new DerivedExpressionError(keyPath, `channel '${channel.name}' has an invalid range [${low}, ${high}]: expected finite low <= high`);
       }
     }
-    map.set(channel.name, channel);
+    map.set(encodeName(channel.name), channel);
   }
   return { keyPath, channels: map };
 }
@@ -233,20 +374,23 @@ function makeContext(channels: ChannelDeclaration[], keyPath: string): Context {
 function checkName(definition: DerivedDefinition, context: Context, taken: Set<string>): void {
   const { name } = definition;
   const where = `${context.keyPath}.name`;
-  if (typeof name !== 'string' || !IDENTIFIER.test(name)) throw new DerivedExpressionError(where, `'${String(name)}' is not a valid name: use letters, digits and _ and start with a letter or _`);
-  if (context.channels.has(name)) throw new DerivedExpressionError(where, `'${name}' is already a channel name`);
+  if (typeof name !== 'string' || !NAME.test(name)) throw new DerivedExpressionError(where, `'${String(name)}' is not a valid name: use letters, digits, _ and dots, and start with a letter or _`);
+  if (context.channels.has(encodeName(name))) throw new DerivedExpressionError(where, `'${name}' is already a channel name`);
   if (CONSTANTS.has(name) || FUNCTIONS.has(name)) throw new DerivedExpressionError(where, `'${name}' is a reserved name (constant or function)`);
   if (taken.has(name)) throw new DerivedExpressionError(where, `'${name}' is defined twice`);
   if (definition.unit !== undefined && typeof definition.unit !== 'string') throw new DerivedExpressionError(`${context.keyPath}.unit`, 'unit must be a string');
 }
 
-function parseExpression(definition: DerivedDefinition, keyPath: string): MathNode {
+function parseExpression(definition: DerivedDefinition, keyPath: string, context: Context, derivedNames: Set<string>): MathNode {
   const where = `${keyPath}.expression`;
   const text = definition.expression;
   if (typeof text !== 'string' || text.trim() === '') throw new DerivedExpressionError(where, 'expression is empty');
   if (text.length > MAX_EXPRESSION_LENGTH) throw new DerivedExpressionError(where, `expression is longer than ${MAX_EXPRESSION_LENGTH} characters`);
+  const known = new Set<string>(derivedNames);
+  for (const channel of context.channels.values()) known.add(channel.name);
+  const encoded = encodeNames(text, known, context, where);
   try {
-    return parse(text);
+    return parse(encoded);
   } catch (err) {
     const e = err as { message?: string; char?: number };
     const message = (e.message ?? String(err)).replace(/\s*\(char \d+\)\s*$/, '');
@@ -255,7 +399,7 @@ function parseExpression(definition: DerivedDefinition, keyPath: string): MathNo
   }
 }
 
-/** Checks the tree against the whitelist; returns the channel names used, in order of first appearance. */
+/** Checks the tree against the whitelist; returns the channel symbols used (encoded), in order of first appearance. */
 function checkTree(tree: MathNode, context: Context, text: string): string[] {
   const where = `${context.keyPath}.expression`;
   const reject = (detail: string): never => {
@@ -277,9 +421,7 @@ function checkTree(tree: MathNode, context: Context, text: string): string[] {
           return;
         }
         if (CONSTANTS.has(name)) return;
-        const known = [...context.channels.keys()];
-        const list = known.length <= 30 ? known.join(', ') : `${known.slice(0, 30).join(', ')}, ... (${known.length} in all)`;
-        return reject(`unknown symbol '${name}' (known channels: ${list || 'none'}; constants: pi, e)`);
+        return reject(unknownSymbol(decodeName(name), context));
       }
       case 'OperatorNode': {
         const fn = n['fn'] as string;
@@ -293,7 +435,7 @@ function checkTree(tree: MathNode, context: Context, text: string): string[] {
         const fn = n['fn'] as MathNode;
         const args = n['args'] as MathNode[];
         if (fn.type !== 'SymbolNode') return reject('only calls of named functions are allowed');
-        const name = (fn as unknown as { name: string }).name;
+        const name = decodeName((fn as unknown as { name: string }).name);
         if (name === 'min' || name === 'max') reject(`function '${name}' is not allowed: it is not differentiable where its arguments are equal, so no sensitivity coefficient exists there`);
         const arities = FUNCTIONS.get(name);
         if (arities === undefined) reject(`function '${name}' is not allowed (allowed: ${[...FUNCTIONS.keys()].join(', ')})`);
@@ -473,13 +615,13 @@ function checkDenominators(tree: MathNode, context: Context, text: string): Guar
       if (exponent !== null && exponent[1] < 0) denominator = n.args[0];
     }
     if (denominator === undefined) continue;
-    const shown = denominator.toString();
+    const shown = decodeName(denominator.toString());
     const names = [...new Set(denominator.filter((x) => x.type === 'SymbolNode').map((x) => (x as unknown as { name: string }).name))].filter((name) => context.channels.has(name));
     const allRanged = names.every((name) => context.channels.get(name)?.range !== undefined);
     const range = intervalOf(denominator, context);
     if (range !== null && containsZero(range) && allRanged) {
       if (names.length === 0) throw new DerivedExpressionError(where, `division by zero: the denominator '${shown}' is zero in "${text}"`);
-      const ranges = names.map((name) => `${name} in [${(context.channels.get(name)?.range as [number, number]).join(', ')}]`).join(' and ');
+      const ranges = names.map((name) => `${decodeName(name)} in [${(context.channels.get(name)?.range as [number, number]).join(', ')}]`).join(' and ');
       throw new DerivedExpressionError(
         where,
         `the denominator '${shown}' can be zero: over the declared ranges ${ranges} it spans [${fmt(range[0])}, ${fmt(range[1])}]; narrow the channel range(s) or change "${text}"`,
@@ -503,7 +645,8 @@ function fmt(v: number): string {
 
 function compileTree(definition: DerivedDefinition, tree: MathNode, context: Context): CompiledDerived {
   const text = definition.expression;
-  const inputs = checkTree(tree, context, text);
+  const symbols = checkTree(tree, context, text);
+  const inputs = symbols.map((symbol) => (context.channels.get(symbol) as ChannelDeclaration).name);
   const guards = checkDenominators(tree, context, text);
   const main = tree.compile();
   const where = `${context.keyPath}.expression`;
@@ -511,20 +654,21 @@ function compileTree(definition: DerivedDefinition, tree: MathNode, context: Con
     try {
       return derivative(node, variable, { simplify: false });
     } catch (err) {
-      throw new DerivedExpressionError(where, `no derivative with respect to '${variable}': ${(err as Error).message}`);
+      throw new DerivedExpressionError(where, `no derivative with respect to '${decodeName(variable)}': ${decodeName((err as Error).message)}`);
     }
   };
-  const firstDerivatives = inputs.map((name) => differentiate(tree, name));
+  const firstDerivatives = symbols.map((symbol) => differentiate(tree, symbol));
   const sensitivityFunctions = firstDerivatives.map((node) => node.compile());
   let higher: { second: EvalFunction[]; third: EvalFunction[] } | null = null;
 
   const scope = new Map<string, number>();
   const p = inputs.length;
   const fill = (values: Record<string, number>): string | null => {
-    for (const name of inputs) {
+    for (let i = 0; i < p; i++) {
+      const name = inputs[i] as string;
       const v = Object.hasOwn(values, name) ? values[name] : undefined;
       if (typeof v !== 'number' || !Number.isFinite(v)) return `no finite value for channel '${name}'`;
-      scope.set(name, v);
+      scope.set(symbols[i] as string, v);
     }
     return null;
   };
@@ -568,7 +712,7 @@ function compileTree(definition: DerivedDefinition, tree: MathNode, context: Con
     model(arrays, out) {
       if (arrays.length !== p) throw new RangeError(`${definition.name}: the model takes ${p} input arrays, got ${arrays.length}`);
       for (let r = 0; r < out.length; r++) {
-        for (let i = 0; i < p; i++) scope.set(inputs[i] as string, (arrays[i] as Float64Array)[r] as number);
+        for (let i = 0; i < p; i++) scope.set(symbols[i] as string, (arrays[i] as Float64Array)[r] as number);
         const result = run();
         out[r] = result.ok ? result.value : Number.NaN;
       }
@@ -588,9 +732,9 @@ function compileTree(definition: DerivedDefinition, tree: MathNode, context: Con
         const third: EvalFunction[] = [];
         for (let i = 0; i < p; i++) {
           for (let j = 0; j < p; j++) {
-            const dij = differentiate(firstDerivatives[i] as MathNode, inputs[j] as string);
+            const dij = differentiate(firstDerivatives[i] as MathNode, symbols[j] as string);
             second.push(dij.compile());
-            third.push(differentiate(dij, inputs[j] as string).compile());
+            third.push(differentiate(dij, symbols[j] as string).compile());
           }
         }
         higher = { second, third };
