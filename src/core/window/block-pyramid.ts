@@ -58,6 +58,8 @@ class PyramidLevel {
   /** Sum of a first-of-pair block waiting for its partner, and its block index (-1 if none). */
   carrySum = 0;
   carryBlock = -1;
+  /** The newest block's sum (saves a ring lookup per push). */
+  private lastSum = 0;
 
   constructor(level: number, initialBlocks: number, maxBlocks: number) {
     this.level = level;
@@ -73,13 +75,15 @@ class PyramidLevel {
   }
 
   push(block: number, sum: number): void {
-    if (this.count === 0) this.frontBlock = block;
-    else this.neighbourProducts += this.at(this.count - 1) * sum;
-    if (this.count === this.sums.length) this.grow();
-    let slot = this.head + this.count;
-    if (slot >= this.sums.length) slot -= this.sums.length;
-    this.sums[slot] = sum;
-    this.count++;
+    const count = this.count;
+    if (count === 0) this.frontBlock = block;
+    else this.neighbourProducts += this.lastSum * sum;
+    const sums = count === this.sums.length ? this.grow() : this.sums;
+    let slot = this.head + count;
+    if (slot >= sums.length) slot -= sums.length;
+    sums[slot] = sum;
+    this.lastSum = sum;
+    this.count = count + 1;
     this.total += sum;
     this.totalSquares += sum * sum;
   }
@@ -110,7 +114,7 @@ class PyramidLevel {
     this.carrySum = 0;
   }
 
-  private grow(): void {
+  private grow(): Float64Array {
     const size = this.sums.length;
     const next = Math.min(this.maxBlocks, size * 2);
     if (next <= size) throw new RangeError(`pyramid level ${this.level} is full`);
@@ -118,6 +122,7 @@ class PyramidLevel {
     for (let i = 0; i < this.count; i++) grown[i] = this.at(i);
     this.sums = grown;
     this.head = 0;
+    return grown;
   }
 
   saveState(): PyramidLevelState {
@@ -133,6 +138,7 @@ class PyramidLevel {
     this.head = 0;
     this.count = count;
     [this.frontBlock, this.total, this.totalSquares, this.neighbourProducts, this.carrySum, this.carryBlock] = state.numbers as [number, number, number, number, number, number];
+    this.lastSum = count > 0 ? (state.sums[count - 1] as number) : 0;
   }
 
   get byteLength(): number {
@@ -170,7 +176,7 @@ export class BlockPyramid {
 
   /** Adds the sample with absolute index `index` (shifted value). */
   add(index: number, shifted: number): void {
-    if ((index & 1) === 0) {
+    if (index % 2 === 0) {
       this.rawCarry = shifted;
       this.rawCarryIndex = index;
     } else if (this.rawCarryIndex === index - 1 && index - 1 >= this.windowStart) {
@@ -264,20 +270,28 @@ export class BlockPyramid {
     return new PyramidLevel(j, this.preallocate ? maxBlocks : Math.max(16, atLeast), maxBlocks);
   }
 
-  private emit(j: number, block: number, sum: number): void {
-    let level = this.levels[j - 1];
-    if (!level) {
-      level = this.createLevel(j, 16);
-      this.levels[j - 1] = level;
-    }
-    level.push(block, sum);
-    if (j >= this.maxLevel) return;
-    if ((block & 1) === 0) {
-      level.carrySum = sum;
-      level.carryBlock = block;
-    } else if (level.carryBlock === block - 1) {
+  private emit(first: number, firstBlock: number, firstSum: number): void {
+    let j = first;
+    let block = firstBlock;
+    let sum = firstSum;
+    for (;;) {
+      let level = this.levels[j - 1];
+      if (!level) {
+        level = this.createLevel(j, 16);
+        this.levels[j - 1] = level;
+      }
+      level.push(block, sum);
+      if (j >= this.maxLevel) return;
+      if (block % 2 === 0) {
+        level.carrySum = sum;
+        level.carryBlock = block;
+        return;
+      }
+      if (level.carryBlock !== block - 1) return;
       level.carryBlock = -1;
-      this.emit(j + 1, (block - 1) / 2, level.carrySum + sum);
+      sum += level.carrySum;
+      block = (block - 1) / 2;
+      j++;
     }
   }
 }
