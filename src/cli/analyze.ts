@@ -8,6 +8,7 @@ import { UsageError } from './cli-error.js';
 import { formatDuration, formatSignificant, roundWithUncertainty, textTable } from './format.js';
 import { CAUTION } from './caution.js';
 import type { ChannelEvent } from '../engine/channel-events.js';
+import { prepareDerived, DERIVE_HELP, parseDeriveFlags, renderDerived, type DeriveOptions, type DerivedRecorder, type DerivedReportEntry } from './analyze-derived.js';
 
 const MAX_EVENTS = 10_000;
 
@@ -30,7 +31,7 @@ Options:
   --estimator NAME       ${ESTIMATOR_NAMES.join(', ')} (default ${DEFAULT_CHANNEL_OPTIONS.estimator})
   --time-column NAME     the column holding time (default: a column named time, t, timestamp, ...)
   --delimiter C          field separator (default: guessed from the header: , ; or tab)
-`;
+${DERIVE_HELP}`;
 
 export interface AnalyzeReport {
   file: string;
@@ -39,6 +40,8 @@ export interface AnalyzeReport {
   ignoredColumns: string[];
   notes: string[];
   channels: ChannelSnapshot[];
+  /** Derived results (--derive), empty without any. */
+  derived: DerivedReportEntry[];
 }
 
 interface Io {
@@ -62,6 +65,8 @@ export async function runAnalyze(argv: string[], io: Io): Promise<number> {
       estimator: { type: 'string' },
       'time-column': { type: 'string' },
       delimiter: { type: 'string' },
+      derive: { type: 'string', multiple: true },
+      'monte-carlo-trials': { type: 'string' },
       help: { type: 'boolean', short: 'h', default: false },
     },
   });
@@ -71,8 +76,10 @@ export async function runAnalyze(argv: string[], io: Io): Promise<number> {
   }
   if (positionals.length !== 1) throw new UsageError(positionals.length === 0 ? 'analyze needs a CSV file: plateau analyze FILE' : `analyze takes one file, got ${positionals.length}`);
   const file = positionals[0] as string;
-  const options = channelOptionsFromFlags(values);
-  const report = await analyzeFile(file, options, { timeColumn: values['time-column'], delimiter: values.delimiter });
+  const { derive: deriveFlags, ...flags } = values;
+  const options = channelOptionsFromFlags(flags);
+  const derive = parseDeriveFlags(deriveFlags ?? [], numberFlag(flags, 'monte-carlo-trials', (v) => Number.isInteger(v) && (v === 0 || (v >= 20_000 && v <= 5_000_000)), 'a whole number of trials, 0 (no Monte Carlo check) or 20000 to 5000000'));
+  const report = await analyzeFile(file, options, { timeColumn: values['time-column'], delimiter: values.delimiter }, derive);
   io.out(values.json ? `${JSON.stringify(report, finiteOrNull, 2)}\n` : renderReport(report));
   return 0;
 }
@@ -123,7 +130,7 @@ export function channelOptionsFromFlags(flags: Flags): ChannelOptions {
 }
 
 /** Replays a CSV file through one pipeline per channel: the streaming code path, row by row. */
-export async function analyzeFile(file: string, options: ChannelOptions, csv: { timeColumn?: string | undefined; delimiter?: string | undefined } = {}): Promise<AnalyzeReport> {
+export async function analyzeFile(file: string, options: ChannelOptions, csv: { timeColumn?: string | undefined; delimiter?: string | undefined } = {}, derive: DeriveOptions = { requests: [] }): Promise<AnalyzeReport> {
   const layout = await probeCsv(file, {
     ...(csv.timeColumn !== undefined ? { timeColumn: csv.timeColumn } : {}),
     ...(csv.delimiter !== undefined ? { delimiter: csv.delimiter } : {}),
@@ -132,6 +139,10 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
     throw new UsageError(`--window-seconds needs a time column, and ${file} has none (name one with --time-column)`);
   }
   const pipelines = layout.channels.map((column) => new ChannelPipeline(column.name, options));
+  // Derived results: compiled against the columns before the rows are read (a bad --derive stops
+  // here); the recorder keeps each input sample's time (the time column, else the row index).
+  const recorder: DerivedRecorder | null = derive.requests.length > 0 ? prepareDerived(derive, layout.channels.map((c) => c.name), options, layout.timeColumn !== null && layout.timeColumn !== undefined) : null;
+  let rowIndex = 0;
   // Every event in order (a snapshot keeps only the most recent); capped so a pathological file
   // cannot exhaust memory, with a note when the cap is reached.
   const events: ChannelEvent[][] = pipelines.map(() => []);
@@ -148,12 +159,14 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
       for (let c = 0; c < pipelines.length; c++) {
         const value = values[c] as number;
         if (value !== value) continue; // NaN marks a rejected cell
+        recorder?.record(c, time, rowIndex);
         const raised = (pipelines[c] as ChannelPipeline).push(value, time);
         if (raised.length > 0) {
           const list = events[c] as ChannelEvent[];
           for (const event of raised) if (list.length < MAX_EVENTS) list.push(event);
         }
       }
+      rowIndex++;
     },
     (line, text) => {
       timeIssues++;
@@ -177,6 +190,7 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
     ignoredColumns: layout.ignored,
     notes,
     channels,
+    derived: recorder === null ? [] : recorder.finish(pipelines, channels),
   };
 }
 
@@ -217,7 +231,8 @@ function renderReport(report: AnalyzeReport): string {
     '',
     `U = k * u at ${(confidence * 100).toPrecision(4).replace(/\.?0+$/, '')} % coverage; k from Student's t at nu_eff; u from the ${report.channels[0]?.estimator ?? ''} estimate of tau_int.`,
   ];
-  const notes = [...report.notes, ...report.channels.flatMap((c) => c.notes.map((note) => `${c.name}: ${note}`))];
+  if (report.derived.length > 0) lines.push('', ...renderDerived(report.derived));
+  const notes = [...report.notes, ...report.channels.flatMap((c) => c.notes.map((note) => `${c.name}: ${note}`)), ...report.derived.flatMap((d) => d.notes.map((note) => `${d.name}: ${note}`))];
   if (notes.length > 0) lines.push('', 'Notes:', ...notes.map((note) => `  - ${note}`));
   lines.push('', CAUTION);
   return `${lines.join('\n')}\n`;

@@ -1,10 +1,43 @@
-import type { PlateauConfig } from '../config/plateau-config.js';
+import { ConfigError } from '../config/config-reader.js';
+import { globMatch, settingsFor } from '../config/load-config.js';
+import type { DerivedConfig, PlateauConfig } from '../config/plateau-config.js';
 import type { ChannelRegistry } from '../engine/channel-registry.js';
+import { compileDefinitions, referencedChannels } from '../engine/derived/derived-definitions.js';
+import type { DerivedResultSpec, DerivedSnapshot } from '../engine/derived/derived-engine.js';
+import { derivedReportEntry, derivedVerdict, STEADY_STATES, type DerivedReportEntry, type DerivedVerdict } from '../engine/derived/derived-record.js';
+import { DerivedTracker, type ChannelWindowView, type DerivedWindowSource } from '../engine/derived/derived-tracker.js';
+import type { ChannelDeclaration, DerivedDefinition } from '../engine/derived/expression-model.js';
 import type { DerivedStatus } from '../engine/test-points.js';
 
 /**
  * Derived results of the daemon: quantities computed from several channels (configured under
- * `derived`), with propagated uncertainty. See derived-engine for the statistics.
+ * `derived`), with their propagated uncertainty, target and ETA, events and record entries.
+ *
+ * Load time (the constructor, called by the Daemon's): every expression is compiled by the
+ * hardened mathjs model (src/engine/derived/expression-model.ts). The daemon has no channel list
+ * (channels appear with their first sample), so the names an expression refers to that are not
+ * derived results are its channels: each must be a name some subscription's channel template can
+ * produce ({...} placeholders read as *), and takes its range from the channel settings for the
+ * division check. Every problem becomes one line of a ConfigError (code ERR_CONFIG) naming the key
+ * path, e.g. "derived[0].expression: unknown channel 'hx7.glycol_inn_degC' ...".
+ *
+ * Live: one DerivedTracker per derived result, on the windows of its input channels (see
+ * derived-tracker.ts: the windows are the truth, so a restart of the daemon rebuilds the results
+ * from the channel windows it restores; nothing of their own needs saving and the replayed samples
+ * that onSample sees with replay = true need no handling). onSample only marks the results that use
+ * the channel; they are brought up to date on the next query: drainEvents (every flush), atTarget,
+ * recordEntries, snapshots.
+ * At target: the result has a target, its expanded (or standard) uncertainty meets it, and every
+ * input channel is steady (state steady or precise): a result over a warming, unsteady or stale
+ * channel is not ready whatever its uncertainty. Edge-triggered with the channels' hysteresis: the
+ * event `precision-reached` is raised once, and re-armed when the achieved uncertainty climbs 10 %
+ * above the bound. The first evaluation after the daemon starts sets the flag without an event, so
+ * that a restart does not repeat one (the channels keep theirs in their checkpoints).
+ * Records: the result with its GUM statement (JCGM 100:2008, 7.2.4 wording of
+ * src/engine/test-point-record.ts), budget, the correlations with the other derived results of the
+ * record (over the common part of their windows), the Monte Carlo check (JCGM 101, adaptive, n_dig
+ * 2, at most RECORD_MONTE_CARLO_TRIALS trials so that a record costs at most about 0.1 s of the
+ * flush) and the bootstrap check of the linearised series.
  */
 export interface DerivedEvent {
   source: string;
@@ -13,37 +46,241 @@ export interface DerivedEvent {
   body: Record<string, unknown>;
 }
 
+/** What the API and the dashboard show for a derived result: the engine's snapshot and the verdict. */
+export type DerivedView = DerivedSnapshot & DerivedVerdict;
+
+/** Trials at most for the Monte Carlo check of a record (about 0.1 s with a 3-4 input model). */
+export const RECORD_MONTE_CARLO_TRIALS = 200_000;
+/** precision-reached re-arms when the achieved uncertainty climbs this far above the bound. */
+const PRECISION_REARM = 1.1;
+
+interface Entry {
+  config: DerivedConfig;
+  spec: DerivedResultSpec;
+  tracker: DerivedTracker;
+  dirty: boolean;
+  snapshot: DerivedSnapshot | null;
+  precise: boolean;
+  /** False until the first evaluation, which sets `precise` without an event (a restarted daemon does not repeat it). */
+  primed: boolean;
+  /** Rows and engine rebuilds at the last evaluation (throttling). */
+  rowsSeen: number;
+  rebuildsSeen: number;
+  /** The engine changed since the snapshot was taken. */
+  stale: boolean;
+}
+
 export class DerivedResults implements DerivedStatus {
   private readonly config: PlateauConfig;
   private readonly registry: ChannelRegistry;
   private events: DerivedEvent[] = [];
+  private readonly entries = new Map<string, Entry>();
+  private readonly byChannel = new Map<string, Entry[]>();
+  private readonly source: DerivedWindowSource;
+  /** The channels the expressions refer to, with their declared ranges. */
+  readonly channels: ChannelDeclaration[];
 
+  /** @throws ConfigError (code ERR_CONFIG) with one line per rejected definition. */
   constructor(config: PlateauConfig, registry: ChannelRegistry) {
     this.config = config;
     this.registry = registry;
+    this.source = registrySource(registry);
+    const definitions: DerivedDefinition[] = config.derived.map((d) => ({ name: d.name, expression: d.expression, ...(d.unit !== null ? { unit: d.unit } : {}) }));
+    const templates = config.subscriptions.map((s) => s.channel);
+    const globs = templates.map((t) => t.replace(/\{\w+\}/g, '*'));
+    const problems: string[] = [];
+    const channels: ChannelDeclaration[] = [];
+    for (const { name, definitions: users } of referencedChannels(definitions)) {
+      if (!globs.some((glob) => globMatch(glob, name))) {
+        for (const i of users) problems.push(`derived[${i}].expression: unknown channel '${name}' in "${definitions[i]?.expression}": no subscription gives a channel of that name (channel templates: ${templates.join(', ') || 'none'}; derived results: ${definitions.map((d) => d.name).join(', ')})`);
+        continue;
+      }
+      const range = settingsFor(config, name).range;
+      channels.push(range === null ? { name } : { name, range });
+    }
+    if (problems.length > 0) throw new ConfigError(problems);
+    const compiled = compileDefinitions(definitions, channels, 'derived');
+    if (!compiled.ok) throw new ConfigError(compiled.problems);
+    this.channels = channels;
+    compiled.result.compiled.forEach((c, i) => {
+      const derivedConfig = config.derived[i] as DerivedConfig;
+      const spec: DerivedResultSpec = { compiled: c, target: derivedConfig.target, confidence: derivedConfig.confidence };
+      const entry: Entry = { config: derivedConfig, spec, tracker: new DerivedTracker([spec]), dirty: true, snapshot: null, precise: false, primed: false, rowsSeen: 0, rebuildsSeen: -1, stale: true };
+      this.entries.set(c.name, entry);
+      for (const input of c.inputs) {
+        const list = this.byChannel.get(input) ?? [];
+        list.push(entry);
+        this.byChannel.set(input, list);
+      }
+    });
   }
 
   names(): string[] {
     return this.config.derived.map((d) => d.name);
   }
 
-  onSample(_channel: string, _value: number, _timeMs: number, _replay = false): void {
-    void this.registry;
+  /** The input channels of the named results (for a test point to restart their windows too). */
+  inputsOf(names: string[]): string[] {
+    const out: string[] = [];
+    for (const name of names) for (const input of this.entries.get(name)?.spec.compiled.inputs ?? []) if (!out.includes(input)) out.push(input);
+    return out;
   }
 
-  restart(_names: string[]): void {}
+  /** Marks the results that use the channel; the windows are read on the next query. */
+  onSample(channel: string, _value: number, _timeMs: number, _replay = false): void {
+    const users = this.byChannel.get(channel);
+    if (users === undefined) return;
+    for (const entry of users) entry.dirty = true;
+  }
+
+  /** A test point starts with these results: their windows begin at each input's next sample. */
+  restart(names: string[]): void {
+    for (const name of names) {
+      const entry = this.entries.get(name);
+      if (entry === undefined) continue;
+      entry.tracker.restart(this.source);
+      entry.snapshot = null;
+      entry.stale = true;
+      entry.precise = false;
+      entry.dirty = true;
+    }
+  }
 
   drainEvents(): DerivedEvent[] {
+    for (const entry of this.entries.values()) if (entry.dirty || entry.snapshot === null) this.refresh(entry);
     const out = this.events;
     this.events = [];
     return out;
   }
 
-  atTarget(_name: string): boolean | null {
-    return null;
+  atTarget(name: string): boolean | null {
+    const entry = this.entries.get(name);
+    if (entry === undefined) return null;
+    this.refresh(entry);
+    return this.view(entry).atTarget;
   }
 
-  recordEntries(_names: string[]): unknown[] {
-    return [];
+  /** Every derived result as the API and the dashboard show it (the budget chart reads `budget`); always up to date. */
+  snapshots(): DerivedView[] {
+    return [...this.entries.values()].map((entry) => {
+      this.refresh(entry, true);
+      return this.view(entry);
+    });
   }
+
+  recordEntries(names: string[]): unknown[] {
+    const entries = names.map((name) => this.entries.get(name)).filter((e): e is Entry => e !== undefined);
+    for (const entry of entries) this.refresh(entry, true);
+    const correlations = this.jointCorrelations(entries);
+    return entries.map((entry): DerivedReportEntry => {
+      const view = this.view(entry);
+      const snapshot = { ...(entry.snapshot as DerivedSnapshot), correlation: correlations.get(entry.spec.compiled.name) ?? {} };
+      const { atTarget, inputStates, waitingFor } = view;
+      return derivedReportEntry(entry.tracker.current, snapshot, { atTarget, inputStates, waitingFor }, { monteCarloTrials: RECORD_MONTE_CARLO_TRIALS });
+    });
+  }
+
+  // ---- internals ----------------------------------------------------------------------------
+
+  /**
+   * Brings the result up to date with the windows. A new snapshot (about 0.3 ms: the t quantiles of
+   * the coverage factor and of the target's ETA dominate) is taken when the engine was rebuilt or
+   * its rows grew by 1/64 since the last one (or on `fresh`: API, records), so that a fast channel
+   * costs O(1) amortised per row; the verdict can lag the rows by that much (1.6 %).
+   */
+  private refresh(entry: Entry, fresh = false): void {
+    if (entry.dirty) {
+      entry.dirty = false;
+      entry.stale = entry.tracker.sync(this.source) || entry.stale;
+    }
+    const engine = entry.tracker.current;
+    const rows = engine?.rows ?? 0;
+    const rebuilt = entry.tracker.rebuildCount !== entry.rebuildsSeen;
+    const due = entry.snapshot === null || rebuilt || rows < entry.rowsSeen || rows - entry.rowsSeen >= Math.max(1, Math.floor(entry.rowsSeen / 64));
+    if (entry.snapshot === null || (entry.stale && (due || fresh))) {
+      entry.snapshot = entry.tracker.evaluate(this.source)[0] as DerivedSnapshot;
+      entry.stale = false;
+      entry.rowsSeen = rows;
+      entry.rebuildsSeen = entry.tracker.rebuildCount;
+    }
+    this.checkPrecision(entry);
+  }
+
+  private inputStates(entry: Entry): Record<string, string> {
+    const states: Record<string, string> = {};
+    for (const input of entry.spec.compiled.inputs) states[input] = this.registry.get(input)?.pipeline.state ?? 'no data';
+    return states;
+  }
+
+  /** Edge-triggered precision-reached with re-arm hysteresis. */
+  private checkPrecision(entry: Entry): void {
+    const snapshot = entry.snapshot;
+    const target = snapshot?.target ?? null;
+    if (snapshot === null || target === null || target.bound === null || entry.spec.target === null) return;
+    const steady = Object.values(this.inputStates(entry)).every((s) => STEADY_STATES.has(s));
+    if (!entry.primed) {
+      // First evaluation since the daemon started: the state the windows were restored to, not a
+      // change (the event, if any, was raised before the restart).
+      entry.primed = true;
+      entry.precise = target.reached && steady;
+      return;
+    }
+    if (!entry.precise && target.reached && steady) {
+      entry.precise = true;
+      this.events.push({
+        source: snapshot.name,
+        kind: 'precision-reached',
+        at: null,
+        body: { derived: snapshot.name, value: snapshot.value, standardUncertainty: snapshot.standardUncertainty, expandedUncertainty: snapshot.expandedUncertainty, bound: target.bound, rows: snapshot.rows, unit: snapshot.unit },
+      });
+    } else if (entry.precise) {
+      const achieved = entry.spec.target.on === 'u' ? snapshot.standardUncertainty : snapshot.expandedUncertainty;
+      if (achieved === null || achieved > PRECISION_REARM * target.bound) entry.precise = false;
+    }
+  }
+
+  private view(entry: Entry): DerivedView {
+    const snapshot = entry.snapshot as DerivedSnapshot;
+    return { ...snapshot, ...derivedVerdict(snapshot, entry.spec.target !== null, this.inputStates(entry), entry.precise) };
+  }
+
+  /** Correlations between the results of one record, over the common part of their windows. */
+  private jointCorrelations(entries: Entry[]): Map<string, Record<string, number>> {
+    const out = new Map<string, Record<string, number>>();
+    if (entries.length < 2) return out;
+    const joint = new DerivedTracker(entries.map((e) => e.spec));
+    const barriers = joint.channels.map((channel) => {
+      let barrier = 0;
+      for (const entry of entries) {
+        const i = entry.tracker.channels.indexOf(channel);
+        if (i >= 0) barrier = Math.max(barrier, entry.tracker.barriers()[i] as number);
+      }
+      return barrier;
+    });
+    joint.setBarriers(barriers);
+    joint.sync(this.source);
+    for (const snapshot of joint.evaluate(this.source)) out.set(snapshot.name, snapshot.correlation);
+    return out;
+  }
+}
+
+/** The channel windows of the registry, as the derived trackers read them. */
+function registrySource(registry: ChannelRegistry): DerivedWindowSource {
+  return {
+    window(name: string): ChannelWindowView | null {
+      const channel = registry.get(name);
+      if (channel === undefined) return null;
+      const pipeline = channel.pipeline;
+      const series = pipeline.series;
+      const first = series.firstIndex;
+      const ring = series.ring;
+      return {
+        firstIndex: first,
+        nextIndex: first + series.length,
+        valueAt: (index) => ring.at(index - first),
+        timeAt: (index) => ring.timeAt(index - first),
+        sliding: pipeline.options.window.kind === 'sliding' || series.length >= series.maxSamples,
+      };
+    },
+  };
 }
