@@ -246,7 +246,17 @@ export class Daemon {
   startTestPoint(request: { id?: string; name?: string; channels: string[]; derived?: string[] }): TestPoint {
     const change = this.testPoints.start(request, this.now(), this.derived.names());
     if (change.kind === 'test-point-started') {
-      for (const mark of change.marks) {
+      const marks = [...change.marks];
+      // The inputs of the test point's derived results restart with it, even when they are not
+      // listed as channels (they do not join its readiness: a channel without a target is never precise).
+      for (const name of this.derived.inputsOf(change.point.derived)) {
+        if (change.point.channels.includes(name)) continue;
+        const channel = this.registry.ensure(name, this.configuredUnit(name));
+        if (channel.pipeline.options.window.kind !== 'growing') continue;
+        marks.push({ channel: name, seq: channel.pipeline.totalReceived });
+        channel.pipeline.restartWindow();
+      }
+      for (const mark of marks) {
         const channel = this.registry.get(mark.channel) as RegisteredChannel;
         if (channel.id < 0) channel.id = this.store.addChannel(channel.name, channel.unit, this.now());
         this.pendingMarks.push({ channelId: channel.id, seq: mark.seq, kind: 'restart-window' });

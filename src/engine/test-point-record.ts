@@ -1,4 +1,5 @@
 import type { ChannelSnapshot } from './channel-pipeline.js';
+import type { BootstrapCheck } from './derived/bootstrap-cross-check.js';
 
 /**
  * The record of a test point: per channel the result as a test report or calibration certificate
@@ -32,6 +33,8 @@ export interface RecordEntry {
     kpssPassed: boolean | null;
   };
   statement: string;
+  /** Stationary-bootstrap cross-check of u (and of the median and a trimmed mean), when run. */
+  bootstrap?: BootstrapCheck | null;
 }
 
 export interface TestPointRecord {

@@ -1,5 +1,6 @@
 import type { ChannelRegistry } from './channel-registry.js';
 import { recordEntry, RECORD_CAUTION, type TestPointRecord } from './test-point-record.js';
+import { channelBootstrapCheck } from './derived/bootstrap-cross-check.js';
 
 /**
  * Test points: a set of channels held at one set point. Starting one restarts the growing window of
@@ -165,7 +166,9 @@ export class TestPoints {
       entries: point.channels.map((name) => {
         const channel = this.registry.get(name);
         if (!channel) throw new TestPointError('ERR_TEST_POINT_CHANNEL', 500, `channel ${name} vanished`);
-        return recordEntry(channel.pipeline.snapshot(), channel.unit);
+        const snapshot = channel.pipeline.snapshot();
+        // The stationary bootstrap's standard error beside the analytic one (a cross-check).
+        return { ...recordEntry(snapshot, channel.unit), bootstrap: channelBootstrapCheck(channel.pipeline.series.values(), snapshot) };
       }),
       derived: this.derived ? this.derived.recordEntries(point.derived) : [],
       caution: RECORD_CAUTION,
