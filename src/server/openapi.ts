@@ -1,35 +1,115 @@
+import { WS_LIMITS } from './ws-hub.js';
+
 /**
- * The OpenAPI 3.0 description of the HTTP API, served at /api/openapi.json. Written by hand next to
- * the routes in http-app.ts; test/server checks that every route of the app appears here.
+ * The OpenAPI 3.0 description of the HTTP API, served at /api/openapi.json. Generated from the
+ * routes the app registered (collected by an onRoute hook) and their JSON Schemas, so every route
+ * appears with the schemas it really validates against; the WebSocket, which is not a fastify
+ * route, is added by hand. HEAD routes (fastify adds one per GET) are left implicit.
+ *
+ * Conversions: fastify's `:name` becomes `{name}`, the wildcard `*` becomes `{path}`; route
+ * schema keys `summary`, `description` and `security` are copied to the operation; `params` and
+ * `querystring` properties become parameters; `body` becomes the JSON request body; `response`
+ * entries become responses (JSON content; CSV and HTML routes say so).
  */
-export function openApiDocument(): Record<string, unknown> {
-  const json = (description: string) => ({ description, content: { 'application/json': { schema: { type: 'object' } } } });
-  const error = json('error: { error: code, message }');
-  const idParam = [{ name: 'id', in: 'path', required: true, schema: { type: 'string', maxLength: 64 } }];
-  const write = { security: [{ token: [] }] };
-  return {
-    openapi: '3.0.3',
-    info: { title: 'plateau', version: '0.1.0', description: 'Steady state and autocorrelation-aware uncertainty of live measurement channels. Not a safety system.' },
-    components: { securitySchemes: { token: { type: 'http', scheme: 'bearer', description: 'http.token from the configuration; required for writes when one is set' } } },
-    paths: {
-      '/healthz': { get: { summary: 'liveness and broker connection', responses: { 200: json('status') } } },
-      '/api/counters': { get: { summary: 'samples accepted and rejected by reason, broker, ingest lag, database size', responses: { 200: json('counters') } } },
-      '/api/openapi.json': { get: { summary: 'this document', responses: { 200: json('OpenAPI document') } } },
-      '/api/channels': { get: { summary: 'every channel: the snapshot of `plateau analyze --json` (view=full) or the live summary (view=summary)', parameters: [{ name: 'view', in: 'query', schema: { type: 'string', enum: ['full', 'summary'] } }], responses: { 200: json('{ channels: [...] }'), 400: error } } },
-      '/api/channels/{name}': { get: { summary: 'one channel: snapshot, recent trace, CUSUM trace, stored events', parameters: [{ name: 'name', in: 'path', required: true, schema: { type: 'string' } }, { name: 'trace', in: 'query', schema: { type: 'integer', minimum: 0, maximum: 20000 } }], responses: { 200: json('channel detail'), 404: error } } },
-      '/api/events': { get: { summary: 'stored events after an id', parameters: [{ name: 'after', in: 'query', schema: { type: 'integer' } }, { name: 'limit', in: 'query', schema: { type: 'integer', maximum: 1000 } }], responses: { 200: json('{ events: [...] }'), 400: error } } },
-      '/api/test-points': {
-        get: { summary: 'test points with their verdicts', responses: { 200: json('{ testPoints: [...] }') } },
-        post: { ...write, summary: 'create and start a test point', requestBody: { content: { 'application/json': { schema: { type: 'object', required: ['channels'], properties: { id: { type: 'string' }, name: { type: 'string' }, channels: { type: 'array', items: { type: 'string' } }, derived: { type: 'array', items: { type: 'string' } } } } } } }, responses: { 201: json('{ testPoint }'), 400: error, 401: error, 409: error } },
-      },
-      '/api/test-points/{id}': { get: { summary: 'one test point and its records', parameters: idParam, responses: { 200: json('{ testPoint, records }'), 404: error } } },
-      '/api/test-points/{id}/stop': { post: { ...write, summary: 'stop a test point (writes its record)', parameters: idParam, responses: { 200: json('{ testPoint }'), 401: error, 404: error, 409: error } } },
-      '/api/test-points/{id}/annotations': { post: { ...write, summary: 'add a note to a test point', parameters: idParam, requestBody: { content: { 'application/json': { schema: { type: 'object', required: ['text'], properties: { text: { type: 'string', maxLength: 2000 } } } } } }, responses: { 201: json('{ testPoint }'), 400: error, 401: error, 404: error } } },
-      '/api/test-points/{id}/records': { get: { summary: 'every record of a test point', parameters: idParam, responses: { 200: json('{ records }'), 404: error } } },
-      '/api/test-points/{id}/record.json': { get: { summary: 'the latest record', parameters: idParam, responses: { 200: json('record'), 404: error } } },
-      '/api/test-points/{id}/record.csv': { get: { summary: 'the latest record as CSV', parameters: idParam, responses: { 200: { description: 'CSV', content: { 'text/csv': {} } }, 404: error } } },
-      '/api/test-points/{id}/report': { get: { summary: 'printable report (HTML)', parameters: idParam, responses: { 200: { description: 'HTML', content: { 'text/html': {} } }, 404: error } } },
-      '/ws': { get: { summary: 'WebSocket: hello, events at once, channel updates at most four times a second', responses: { 101: { description: 'switching protocols' } } } },
+export interface DocumentedRoute {
+  method: string;
+  url: string;
+  schema: Record<string, unknown>;
+}
+
+type JsonSchema = { type?: unknown; properties?: Record<string, unknown>; required?: string[]; [key: string]: unknown };
+
+const RAW_CONTENT: Record<string, { type: string; description: string }> = {
+  '/api/test-points/:id/record.csv': { type: 'text/csv', description: 'the record, one row per channel' },
+  '/api/test-points/:id/report': { type: 'text/html', description: 'the printable report' },
+  '/': { type: 'text/html', description: 'the dashboard page' },
+  '/dashboard/*': { type: 'text/javascript', description: 'a dashboard file (JavaScript, CSS)' },
+  '/vendor/:file': { type: 'text/javascript', description: 'uPlot (JavaScript or CSS)' },
+};
+
+export function openApiPath(url: string): string {
+  return url.replace(/:([A-Za-z0-9_]+)/g, '{$1}').replace(/\*$/, '{path}');
+}
+
+export function openApiDocument(routes: DocumentedRoute[], version: string): Record<string, unknown> {
+  const paths: Record<string, Record<string, unknown>> = {};
+  for (const route of routes) {
+    const method = route.method.toLowerCase();
+    if (method === 'head') continue;
+    const path = openApiPath(route.url);
+    const schema = route.schema;
+    const operation: Record<string, unknown> = {};
+    for (const key of ['summary', 'description', 'security'] as const) if (schema[key] !== undefined) operation[key] = schema[key];
+    const parameters = [...parametersOf(schema.params as JsonSchema | undefined, 'path'), ...parametersOf(schema.querystring as JsonSchema | undefined, 'query')];
+    if (route.url.endsWith('*')) parameters.push({ name: 'path', in: 'path', required: true, schema: { type: 'string' } });
+    if (parameters.length > 0) operation.parameters = parameters;
+    if (schema.body) operation.requestBody = { required: !isNullable(schema.body as JsonSchema), content: { 'application/json': { schema: toOpenApiSchema(schema.body) } } };
+    operation.responses = responsesOf(route, schema.response as Record<string, unknown> | undefined);
+    (paths[path] ??= {})[method] = operation;
+  }
+  paths['/ws'] = {
+    get: {
+      summary: 'WebSocket (upgrade): hello with every channel, the test points and the latest events; then events at once and channel updates at most every ' +
+        `${WS_LIMITS.updateIntervalMs} ms; a beat every ${WS_LIMITS.beatMs} ms when nothing else was sent`,
+      description: 'Messages are JSON text frames: {type:"hello"}, {type:"event"}, {type:"channels"}, {type:"testPoints"}, {type:"beat"}. Clients send nothing (frames above ' +
+        `${WS_LIMITS.maxPayloadBytes} bytes close the connection). A connection whose Origin names another site is refused (403).`,
+      responses: { 101: { description: 'switching protocols' }, 403: { description: 'cross-site origin' }, 503: { description: 'too many clients' } },
     },
   };
+  return {
+    openapi: '3.0.3',
+    info: {
+      title: 'plateau',
+      version,
+      description: 'Steady state and autocorrelation-aware uncertainty of live measurement channels. Errors are { error: CODE, message }. Not a safety system.',
+    },
+    components: { securitySchemes: { token: { type: 'http', scheme: 'bearer', description: 'http.token from the configuration; every write needs it when one is set (required beyond loopback)' } } },
+    paths,
+  };
+}
+
+function parametersOf(schema: JsonSchema | undefined, where: 'path' | 'query'): Record<string, unknown>[] {
+  if (!schema?.properties) return [];
+  return Object.entries(schema.properties).map(([name, property]) => ({
+    name,
+    in: where,
+    required: where === 'path' || (schema.required ?? []).includes(name),
+    schema: toOpenApiSchema(property),
+  }));
+}
+
+function responsesOf(route: DocumentedRoute, response: Record<string, unknown> | undefined): Record<string, unknown> {
+  const out: Record<string, unknown> = {};
+  const raw = RAW_CONTENT[route.url];
+  if (raw) out[200] = { description: raw.description, content: { [raw.type]: {} } };
+  for (const [status, schema] of Object.entries(response ?? {})) {
+    const description = typeof (schema as JsonSchema).description === 'string' ? ((schema as JsonSchema).description as string) : Number(status) >= 400 ? 'error: { error: CODE, message }' : 'success';
+    out[status] = { description, content: { 'application/json': { schema: toOpenApiSchema(schema) } } };
+  }
+  if (Object.keys(out).length === 0) out[200] = { description: 'success' };
+  return out;
+}
+
+function isNullable(schema: JsonSchema): boolean {
+  return Array.isArray(schema.type) && schema.type.includes('null');
+}
+
+/** JSON Schema (draft 7, as fastify validates) to the OpenAPI 3.0 dialect: type arrays with null become nullable. */
+export function toOpenApiSchema(schema: unknown): unknown {
+  if (Array.isArray(schema)) return schema.map(toOpenApiSchema);
+  if (!schema || typeof schema !== 'object') return schema;
+  const out: Record<string, unknown> = {};
+  for (const [key, value] of Object.entries(schema as Record<string, unknown>)) {
+    if (key === 'type' && Array.isArray(value)) {
+      const types = value.filter((t) => t !== 'null');
+      if (types.length === 1) out.type = types[0];
+      else out.anyOf = types.map((t) => ({ type: t }));
+      if (types.length !== value.length) out.nullable = true;
+    } else if (key === 'properties' && value && typeof value === 'object') {
+      out.properties = Object.fromEntries(Object.entries(value as Record<string, unknown>).map(([k, v]) => [k, toOpenApiSchema(v)]));
+    } else if (key === 'items' || key === 'additionalProperties' || key === 'anyOf' || key === 'oneOf' || key === 'allOf') {
+      out[key] = toOpenApiSchema(value);
+    } else out[key] = value;
+  }
+  return out;
 }

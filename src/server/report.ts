@@ -1,105 +1,318 @@
 import type { TestPoint } from '../engine/test-points.js';
-import type { TestPointRecord } from '../engine/test-point-record.js';
-import { RECORD_CAUTION } from '../engine/test-point-record.js';
+import type { RecordEntry, TestPointRecord } from '../engine/test-point-record.js';
+import { RECORD_CAUTION, gumStatement } from '../engine/test-point-record.js';
 import type { ChannelSnapshot } from '../engine/channel-pipeline.js';
+import type { ChannelTrace } from './channel-trace.js';
 import { escapeHtml } from './html-text.js';
+import { svgChart } from './svg-chart.js';
 
 /**
- * The printable test-point report (HTML, for print to PDF): per channel the result in GUM wording,
- * the estimator, the steady-state evidence and charts drawn as inline SVG (no script, no external
- * asset), and the cautions. Every text from the network is escaped.
+ * The printable test-point report (HTML, for print to PDF): per channel the result in the wording
+ * of JCGM 100:2008 7.2.4 (y = mean, U = k*u, k from the t-distribution for nu_eff at the stated
+ * coverage probability), how the standard uncertainty was estimated (the tau_int estimator and the
+ * others beside it), the steady-state evidence (warm-up cut, Heidelberger-Welch, Geweke, KPSS on
+ * block means, MSER, Cao-Rhinehart, CUSUM, the last break) and four charts drawn as inline SVG (no
+ * script, no external asset): the trace with the mean and its expanded-uncertainty band and the
+ * warm-up shaded, the autocorrelation function with the summation window, the Allan deviation on
+ * log-log axes with the averaging limit, the CUSUM sums against the decision interval. Then the
+ * cautions. Every text from the network (names, units, notes) is escaped.
+ *
+ * When a record exists its values are the result (they are what was recorded when the test point
+ * became ready or stopped); the evidence and charts show the channel's window when the report was
+ * generated, which may have grown since, and the report says so.
  */
+export interface ReportChannel {
+  name: string;
+  unit: string | null;
+  snapshot: ChannelSnapshot;
+  trace: ChannelTrace;
+  cusum: { blockSize: number; decisionInterval: number; upper: number[]; lower: number[] } | null;
+}
+
 export interface ReportInput {
   point: TestPoint;
   record: TestPointRecord | null;
-  channels: { name: string; unit: string | null; snapshot: ChannelSnapshot; trace: { times: (number | null)[]; values: number[] } }[];
+  channels: ReportChannel[];
+  generatedMs: number;
+  version: string;
 }
+
+const ESTIMATOR_TEXT: Record<string, string> = {
+  geyer: "Geyer's initial monotone sequence estimator of the integrated autocorrelation time (C. J. Geyer 1992, Statistical Science 7, 473-483); nu_eff = n / (2M + 1) for the summation window M",
+  sokal: "Sokal's automatic window (smallest M with M >= 5 tau_int(M)); nu_eff = n / (2M + 1)",
+  'batch-means': 'non-overlapping batch means with batches near sqrt(n) samples long; nu_eff = batches - 1',
+  blocking: "the blocking method of Flyvbjerg and Petersen with Jonsson's automatic level choice",
+  iid: 'independent observations (GUM 4.2.3): s / sqrt(n) with n - 1 degrees of freedom',
+};
 
 export function renderReport(input: ReportInput): string {
   const { point, record } = input;
-  const sections = input.channels.map((channel) => channelSection(channel, record));
+  const generated = new Date(input.generatedMs).toISOString();
+  const sections = input.channels.map((channel) => channelSection(channel, record?.entries.find((e) => e.channel === channel.name) ?? null, record));
+  const missing = point.channels.filter((name) => !input.channels.some((c) => c.name === name));
+  const verdictRows = point.channels.map((name) => {
+    const channel = input.channels.find((c) => c.name === name);
+    const state = channel?.snapshot.state ?? 'no data';
+    return `<tr><td>${escapeHtml(name)}</td><td>${escapeHtml(STATE_TEXT[state] ?? state)}</td><td>${escapeHtml(record?.entries.find((e) => e.channel === name)?.state ?? '-')}</td></tr>`;
+  });
   return `<!doctype html>
-<html lang="en"><head><meta charset="utf-8"><title>Test point ${escapeHtml(point.name)}</title>
+<html lang="en"><head><meta charset="utf-8"><meta name="viewport" content="width=device-width, initial-scale=1">
+<title>Test point report: ${escapeHtml(point.name)}</title>
 <style>
-body{font:13px/1.45 system-ui,sans-serif;color:#1d2430;max-width:60rem;margin:2rem auto;padding:0 1rem}
-h1{font-size:1.4rem;margin:0 0 .2rem}h2{font-size:1.1rem;margin:1.6rem 0 .4rem;border-bottom:1px solid #c9d1dc}
-table{border-collapse:collapse;margin:.4rem 0}td,th{padding:.15rem .6rem;text-align:left;border-bottom:1px solid #e4e8ee;font-variant-numeric:tabular-nums}
-.statement{background:#f3f6f9;padding:.6rem .8rem;border-left:3px solid #3a6d8c}
-.caution{margin-top:2rem;padding:.6rem .8rem;border:1px solid #b5651d;background:#fff7ef}
-svg{display:block;margin:.3rem 0}
-@media print{body{margin:0}h2{break-after:avoid}section{break-inside:avoid}}
+body{font:12.5px/1.45 "Segoe UI",Roboto,"DejaVu Sans",sans-serif;color:#1d2430;max-width:62rem;margin:1.5rem auto;padding:0 1.2rem}
+header{border-bottom:2px solid #1d2430;padding-bottom:.5rem;margin-bottom:1rem}
+h1{font-size:1.45rem;margin:0 0 .2rem}h2{font-size:1.12rem;margin:1.8rem 0 .5rem;padding-bottom:.15rem;border-bottom:1px solid #b8c2ce}
+h3{font-size:.95rem;margin:1rem 0 .3rem}
+table{border-collapse:collapse;margin:.3rem 0 .6rem}td,th{padding:.12rem .55rem;text-align:left;border-bottom:1px solid #e3e8ee;vertical-align:top;font-variant-numeric:tabular-nums}
+th{font-weight:600;color:#394452}
+.meta td:first-child{color:#4a5563}
+.statement{background:#f1f5f8;padding:.6rem .8rem;border-left:4px solid #2f6b8a;font-size:13px;margin:.4rem 0}
+.statement.none{border-left-color:#b5651d}
+.grid{display:flex;flex-wrap:wrap;gap:.4rem 1rem}
+.note{color:#4a5563}
+.caution{margin-top:2rem;padding:.7rem .9rem;border:1.5px solid #b5651d;background:#fff8f0}
+.caution li{margin:.2rem 0}
+svg{display:block;margin:.2rem 0}
+footer{margin-top:1.5rem;color:#4a5563;font-size:11px}
+@media print{body{margin:0;max-width:none}h2{break-after:avoid}section{break-inside:avoid-page}.grid{break-inside:avoid}a{color:inherit;text-decoration:none}}
 </style></head><body>
-<h1>Test point ${escapeHtml(point.name)}</h1>
-<p>Identifier ${escapeHtml(point.id)} · state ${escapeHtml(point.state)} · started ${escapeHtml(new Date(point.createdMs).toISOString())}${point.readyMs ? ` · ready ${escapeHtml(new Date(point.readyMs).toISOString())}` : ''}${point.stoppedMs ? ` · stopped ${escapeHtml(new Date(point.stoppedMs).toISOString())}` : ''}</p>
-<p>${record ? `Record written ${escapeHtml(record.createdAt)} (${escapeHtml(record.kind)}).` : 'No record yet: values below are the current ones.'}</p>
-${point.annotations.length ? `<h2>Notes</h2><ul>${point.annotations.map((a) => `<li>${escapeHtml(new Date(a.timeMs).toISOString())}: ${escapeHtml(a.text)}</li>`).join('')}</ul>` : ''}
+<header>
+<h1>Test point report: ${escapeHtml(point.name)}</h1>
+<table class="meta">
+<tr><td>Test point</td><td>${escapeHtml(point.id)}</td></tr>
+<tr><td>State</td><td>${escapeHtml(POINT_STATE_TEXT[point.state] ?? point.state)}</td></tr>
+<tr><td>Started</td><td>${escapeHtml(iso(point.createdMs))}</td></tr>
+${point.readyMs ? `<tr><td>Ready</td><td>${escapeHtml(iso(point.readyMs))}</td></tr>` : ''}
+${point.stoppedMs ? `<tr><td>Stopped</td><td>${escapeHtml(iso(point.stoppedMs))}</td></tr>` : ''}
+<tr><td>Record</td><td>${record ? `written ${escapeHtml(record.createdAt)} when the test point ${record.kind === 'ready' ? 'became ready' : 'was stopped'}` : 'none yet: the values below are the current ones, not a record'}</td></tr>
+<tr><td>Report generated</td><td>${escapeHtml(generated)} by plateau ${escapeHtml(input.version)}</td></tr>
+</table>
+</header>
+<h2>Verdict</h2>
+<p>${escapeHtml(verdictText(point))}</p>
+<table><tr><th>channel</th><th>state now</th><th>state in the record</th></tr>${verdictRows.join('')}</table>
+${missing.length ? `<p class="note">No data received for: ${escapeHtml(missing.join(', '))}.</p>` : ''}
+${point.annotations.length ? `<h2>Notes</h2><ul>${point.annotations.map((a) => `<li>${escapeHtml(iso(a.timeMs))}: ${escapeHtml(a.text)}</li>`).join('')}</ul>` : ''}
 ${sections.join('\n')}
-<p class="caution"><strong>Caution.</strong> ${escapeHtml(RECORD_CAUTION)}</p>
+${derivedSection(record)}
+<section class="caution"><strong>Cautions</strong><ul>
+<li>${escapeHtml(RECORD_CAUTION)}</li>
+<li>The uncertainties stated here are the Type A (statistical) standard uncertainty of each mean, allowing for autocorrelation. They do not include Type B contributions (sensor calibration, resolution, installation, reference values): combine those according to the applicable procedure before stating a calibration or test result.</li>
+<li>The coverage probability holds only while the channel is stationary over the averaging window; the evidence above is statistical and can miss a slow drift that an engineer would recognise.</li>
+<li>This report was generated by software. It must be reviewed and approved by a competent person before it is issued.</li>
+</ul></section>
+<footer>plateau ${escapeHtml(input.version)} · ${escapeHtml(generated)}</footer>
 </body></html>`;
 }
 
-function channelSection(channel: ReportInput['channels'][number], record: TestPointRecord | null): string {
-  const entry = record?.entries.find((e) => e.channel === channel.name);
+const STATE_TEXT: Record<string, string> = {
+  warming: 'warming up',
+  steady: 'steady, target not reached',
+  precise: 'steady and at target precision',
+  unsteady: 'not steady (a break was detected)',
+  stale: 'no recent data',
+};
+
+const POINT_STATE_TEXT: Record<string, string> = { running: 'running (not yet ready)', ready: 'ready', stopped: 'stopped' };
+
+function verdictText(point: TestPoint): string {
+  if (point.state === 'ready') return 'Ready: every channel reached steady state and its target precision.';
+  if (point.state === 'running') return 'Not ready yet: not every channel is steady at its target precision.';
+  return point.readyMs ? 'Stopped after it was ready.' : 'Stopped before every channel was steady at its target precision.';
+}
+
+function channelSection(channel: ReportChannel, entry: RecordEntry | null, record: TestPointRecord | null): string {
   const s = channel.snapshot;
-  const statement = entry?.statement ?? '';
-  const tests = s.stationarity?.tests;
-  const rows: [string, string][] = [
-    ['estimator of tau_int', s.estimator],
-    ['samples n (excluded as warm-up)', `${s.n} (${s.excluded})`],
-    ['tau_int, n_eff', `${fmt(s.tauInt)} samples, ${fmt(s.nEff)}`],
-    ['steady from sample', s.stationarity?.warmupEnd === null || s.stationarity === null ? 'not steady' : String(s.stationarity.warmupEnd)],
-    ['Heidelberger-Welch', tests?.heidelbergerWelch ? `${tests.heidelbergerWelch.passed ? 'passed' : 'failed'} (p = ${fmt(tests.heidelbergerWelch.pValue)})` : '-'],
-    ['Geweke z', tests?.geweke ? fmt(tests.geweke.statistic) : '-'],
-    ['KPSS (block means)', tests?.kpss ? `${fmt(tests.kpss.statistic)} (${tests.kpss.passed ? 'stationary' : 'rejected'} at 5 %)` : '-'],
-    ['averaging limit', s.averagingLimit ? `m = ${s.averagingLimit.m}` : 'none found'],
+  const unit = channel.unit ? ` ${channel.unit}` : '';
+  const statement = entry?.statement ?? gumStatement(s.name, s.mean, s.standardUncertainty, s.expandedUncertainty, s.coverageFactor, s.dof, s.confidence, channel.unit);
+  const source = entry ? `Recorded ${record?.createdAt ?? ''}.` : 'Current value (no record for this channel yet).';
+  const values = entry ?? {
+    mean: s.mean,
+    standardUncertainty: s.standardUncertainty,
+    dof: s.dof,
+    coverageFactor: s.coverageFactor,
+    expandedUncertainty: s.expandedUncertainty,
+    confidence: s.confidence,
+    n: s.n,
+    nEff: s.nEff,
+    tauInt: s.tauInt,
+    estimator: s.estimator,
+    excluded: s.excluded,
+    windowStartTime: isoSeconds(s.window.startTime),
+    windowEndTime: isoSeconds(s.window.endTime),
+  };
+  const result: [string, string][] = [
+    ['estimate y (mean of the window)', `${num(values.mean, 10)}${unit}`],
+    ['standard uncertainty u', `${num(values.standardUncertainty, 3)}${unit}`],
+    ['effective degrees of freedom nu_eff', num(values.dof, 3)],
+    ['coverage factor k', num(values.coverageFactor, 4)],
+    ['expanded uncertainty U = k u', `${num(values.expandedUncertainty, 3)}${unit}`],
+    ['coverage probability', `${num(values.confidence * 100, 4)} %`],
+    ['samples n; effective n_eff', `${values.n}; ${num(values.nEff, 4)}`],
+    ['integrated autocorrelation time tau_int', `${num(values.tauInt, 4)} samples`],
+    ['averaging window', `${values.windowStartTime ?? '-'} to ${values.windowEndTime ?? '-'}`],
+    ['samples excluded as warm-up (or before a break)', String(values.excluded)],
   ];
-  return `<section><h2>${escapeHtml(channel.name)}${channel.unit ? ` / ${escapeHtml(channel.unit)}` : ''}</h2>
-<p class="statement">${escapeHtml(statement || 'no record for this channel yet')}</p>
-<table>${rows.map(([k, v]) => `<tr><th>${escapeHtml(k)}</th><td>${escapeHtml(v)}</td></tr>`).join('')}</table>
-${traceSvg(channel.trace.values, s.mean, s.expandedUncertainty)}
-${allanSvg(s.allan)}
+  const estimator = values.estimator;
+  const estimatorRows = Object.entries(s.estimators).map(
+    ([name, e]) => `<tr><td>${escapeHtml(name)}${name === s.estimator ? ' (used)' : ''}</td><td>${num(e.tauInt, 4)}</td><td>${num(e.nEff, 4)}</td><td>${num(e.standardUncertainty, 3)}</td><td>${num(e.dof, 3)}</td><td>${escapeHtml(String(e.window))}</td><td>${e.reliable ? 'yes' : `no${e.note ? `: ${escapeHtml(e.note)}` : ''}`}</td></tr>`,
+  );
+  const tests = s.stationarity?.tests;
+  const evidence: [string, string][] = [
+    ['state when the report was generated', STATE_TEXT[s.state] ?? s.state],
+    ['steady from sample', s.stationarity?.warmupEnd === null || !s.stationarity ? 'not steady' : String(s.stationarity.warmupEnd)],
+    ['MSER truncation (batch means)', tests?.mser ? `${tests.mser.truncation} samples, batches of ${tests.mser.batchSize}${tests.mser.tooShort ? ' (window too short)' : ''}` : '-'],
+    ['Heidelberger-Welch stationarity test', tests?.heidelbergerWelch ? `${tests.heidelbergerWelch.passed ? 'passed' : 'failed'} (p = ${num(tests.heidelbergerWelch.pValue, 3)})` : '-'],
+    ['Geweke z (first 10 % against last 50 %)', tests?.geweke ? `${num(tests.geweke.statistic, 3)}${tests.geweke.passed === null ? '' : tests.geweke.passed ? ' (|z| < 1.96)' : ' (|z| >= 1.96)'}` : '-'],
+    ['KPSS level test on block means', tests?.kpss ? `${num(tests.kpss.statistic, 3)}: ${tests.kpss.passed ? 'stationarity not rejected' : 'stationarity rejected'} at 5 %` : '-'],
+    ['Cao-Rhinehart ratio', tests?.caoRhinehart ? `${num(tests.caoRhinehart.statistic, 3)} against ${num(tests.caoRhinehart.critical, 3)}` : '-'],
+    ['CUSUM on block means', tests?.cusum ? `upper ${num(tests.cusum.upper, 3)}, lower ${num(tests.cusum.lower, 3)} against h = ${num(tests.cusum.decisionInterval, 3)} (${tests.cusum.blocks} blocks of ${tests.cusum.blockSize})` : 'not monitoring (not steady)'],
+    ['last break', s.stationarity?.lastBreak ? `${s.stationarity.lastBreak.cause} at sample ${s.stationarity.lastBreak.changePoint}${s.stationarity.lastBreak.detail ? `: ${s.stationarity.lastBreak.detail}` : ''}` : 'none'],
+    ['averaging limit (Allan deviation)', s.averagingLimit ? `reached at m = ${s.averagingLimit.m}${s.averagingLimit.tauSeconds !== null ? ` (${num(s.averagingLimit.tauSeconds, 3)} s)` : ''}: longer averaging does not reduce the scatter further` : 'none found in this window'],
+  ];
+  return `<section><h2>${escapeHtml(channel.name)}${channel.unit ? ` (${escapeHtml(channel.unit)})` : ''}</h2>
+<p class="statement${entry ? '' : ' none'}">${escapeHtml(statement)}</p>
+<p class="note">${escapeHtml(source)}</p>
+<h3>Result</h3>
+<table>${rows(result)}</table>
+<h3>Standard uncertainty of the mean</h3>
+<p>Estimated with ${escapeHtml(ESTIMATOR_TEXT[estimator] ?? estimator)}. The other estimators on the same window, for comparison${s.n !== values.n ? ` (window now n = ${s.n})` : ''}:</p>
+<table><tr><th>estimator</th><th>tau_int</th><th>n_eff</th><th>u</th><th>nu</th><th>window / batch</th><th>reliable</th></tr>${estimatorRows.join('')}</table>
+${s.disagreement.length ? `<p class="note">Disagreement: ${escapeHtml(s.disagreement.join('; '))}</p>` : ''}
+<h3>Steady-state evidence</h3>
+<table>${rows(evidence)}</table>
+${s.notes.length ? `<p class="note">Notes: ${escapeHtml(s.notes.join('; '))}</p>` : ''}
+<div class="grid">${traceChart(channel)}${acfChart(s)}${allanChart(s)}${cusumChart(channel.cusum)}</div>
+<p class="note">Charts show the window when this report was generated (n = ${s.n}).</p>
 </section>`;
 }
 
-function fmt(value: number | null | undefined): string {
+function derivedSection(record: TestPointRecord | null): string {
+  if (!record || record.derived.length === 0) return '';
+  return `<h2>Derived results</h2>${record.derived
+    .map((entry) => {
+      const e = entry as Record<string, unknown>;
+      const statement = typeof e.statement === 'string' ? e.statement : JSON.stringify(entry);
+      return `<p class="statement">${escapeHtml(statement)}</p>`;
+    })
+    .join('')}`;
+}
+
+function rows(pairs: [string, string][]): string {
+  return pairs.map(([k, v]) => `<tr><th>${escapeHtml(k)}</th><td>${escapeHtml(v)}</td></tr>`).join('');
+}
+
+function num(value: number | null | undefined, digits: number): string {
   if (value === null || value === undefined || !Number.isFinite(value)) return '-';
-  return Number(value.toPrecision(4)).toString();
+  if (value !== 0 && (Math.abs(value) >= 1e7 || Math.abs(value) < 1e-4)) return value.toExponential(digits - 1);
+  return Number(value.toPrecision(digits)).toString();
 }
 
-/** The trace with the mean and its expanded-uncertainty band. */
-function traceSvg(values: number[], mean: number | null, expanded: number | null): string {
-  if (values.length < 2) return '';
-  const width = 640;
-  const height = 160;
-  let low = Math.min(...values);
-  let high = Math.max(...values);
-  if (high === low) high = low + 1;
-  const pad = (high - low) * 0.05;
-  low -= pad;
-  high += pad;
-  const x = (i: number) => ((i / (values.length - 1)) * (width - 2) + 1).toFixed(1);
-  const y = (v: number) => (height - 1 - ((v - low) / (high - low)) * (height - 2)).toFixed(1);
-  const path = values.map((v, i) => `${i === 0 ? 'M' : 'L'}${x(i)},${y(v)}`).join('');
-  const band = mean !== null && expanded !== null ? `<rect x="0" y="${y(mean + expanded)}" width="${width}" height="${Math.max(1, Number(y(mean - expanded)) - Number(y(mean + expanded))).toFixed(1)}" fill="#3a6d8c" opacity="0.18"/><line x1="0" x2="${width}" y1="${y(mean)}" y2="${y(mean)}" stroke="#3a6d8c" stroke-width="1.2"/>` : '';
-  return `<svg width="${width}" height="${height}" viewBox="0 0 ${width} ${height}" role="img" aria-label="recent samples with the mean and its expanded uncertainty"><rect width="${width}" height="${height}" fill="#fbfcfd" stroke="#c9d1dc"/>${band}<path d="${path}" fill="none" stroke="#4b5563" stroke-width="0.8"/></svg>`;
+function iso(ms: number): string {
+  return new Date(ms).toISOString();
 }
 
-/** The Allan deviation on log-log axes. */
-function allanSvg(points: ChannelSnapshot['allan']): string {
-  const usable = points.filter((p) => p.adev > 0);
-  if (usable.length < 2) return '';
-  const width = 320;
-  const height = 160;
-  const lx = usable.map((p) => Math.log10(p.m));
-  const ly = usable.map((p) => Math.log10(p.adev));
-  const [x0, x1] = [Math.min(...lx), Math.max(...lx)];
-  let [y0, y1] = [Math.min(...ly), Math.max(...ly)];
-  if (y1 === y0) y1 = y0 + 1;
-  y0 -= 0.1;
-  y1 += 0.1;
-  const px = (v: number) => (((v - x0) / (x1 - x0 || 1)) * (width - 20) + 10).toFixed(1);
-  const py = (v: number) => (height - 10 - ((v - y0) / (y1 - y0)) * (height - 20)).toFixed(1);
-  const path = lx.map((v, i) => `${i === 0 ? 'M' : 'L'}${px(v)},${py(ly[i] as number)}`).join('');
-  const dots = lx.map((v, i) => `<circle cx="${px(v)}" cy="${py(ly[i] as number)}" r="2.2" fill="#3a6d8c"/>`).join('');
-  return `<svg width="${width}" height="${height}" viewBox="0 0 ${width} ${height}" role="img" aria-label="Allan deviation against averaging factor, log-log"><rect width="${width}" height="${height}" fill="#fbfcfd" stroke="#c9d1dc"/><path d="${path}" fill="none" stroke="#3a6d8c"/>${dots}</svg>`;
+function isoSeconds(seconds: number | null): string | null {
+  return seconds === null || !Number.isFinite(seconds) ? null : new Date(seconds * 1000).toISOString();
+}
+
+/** The trace with the mean and U band, the excluded samples shaded, against seconds (or sample index). */
+function traceChart(channel: ReportChannel): string {
+  const { trace, snapshot: s } = channel;
+  if (trace.values.length < 2) return '';
+  // Seconds on the x axis when every sample has a time and they never go back (late samples can).
+  const timed = trace.times.every((t, i) => t !== null && (i === 0 || t >= (trace.times[i - 1] as number)));
+  const zeroIndex = trace.originIndex >= trace.firstIndex ? trace.originIndex : trace.firstIndex;
+  const t0 = timed ? (trace.times[zeroIndex - trace.firstIndex] as number) : 0;
+  const xAt = (index: number) => (timed ? (trace.times[Math.min(trace.values.length - 1, Math.max(0, index - trace.firstIndex))] as number) - t0 : index);
+  const x = trace.values.map((_, i) => xAt(trace.firstIndex + i));
+  const firstWindow = trace.windowStartIndex;
+  const windowX = x.slice(Math.max(0, firstWindow - trace.firstIndex));
+  const spans = firstWindow > trace.firstIndex ? [{ from: x[0] as number, to: xAt(firstWindow), fill: '#f3d9a6', label: 'excluded' }] : [];
+  const bands = s.mean !== null && s.expandedUncertainty !== null && windowX.length > 1
+    ? [{ x: [windowX[0] as number, windowX.at(-1) as number], low: [s.mean - s.expandedUncertainty, s.mean - s.expandedUncertainty], high: [s.mean + s.expandedUncertainty, s.mean + s.expandedUncertainty], fill: '#2f6b8a', opacity: 0.22 }]
+    : [];
+  const series = [{ x, y: trace.values, stroke: '#5b6573', width: 0.8 }];
+  if (s.mean !== null && windowX.length > 1) series.push({ x: [windowX[0] as number, windowX.at(-1) as number], y: [s.mean, s.mean], stroke: '#2f6b8a', width: 1.4 });
+  const vlines = firstWindow > trace.firstIndex ? [{ x: xAt(firstWindow), label: 'warm-up cut', stroke: '#9a5b00' }] : [];
+  return svgChart({
+    width: 620,
+    height: 210,
+    title: `Samples, mean and expanded uncertainty U${s.mean !== null ? '' : ' (no mean yet)'}`,
+    xLabel: timed ? (trace.originIndex >= trace.firstIndex ? 'seconds since the test point started' : 'seconds since the first sample shown') : 'sample index',
+    yLabel: channel.unit ?? 'value',
+    series,
+    bands,
+    spans,
+    vlines,
+  });
+}
+
+function acfChart(s: ChannelSnapshot): string {
+  if (s.acf.length < 2) return '';
+  const lags = s.acf.map((_, i) => i + 1);
+  const used = s.estimators[s.estimator];
+  const noise = 2 / Math.sqrt(Math.max(1, s.n));
+  return svgChart({
+    width: 300,
+    height: 210,
+    title: `Autocorrelation (tau_int = ${num(s.tauInt, 3)})`,
+    xLabel: 'lag (samples)',
+    yLabel: 'autocorrelation',
+    series: [{ x: lags, y: s.acf, stroke: '#2f6b8a', width: 1.3 }],
+    hlines: [
+      { y: 0, stroke: '#5b6573' },
+      { y: noise, stroke: '#8a95a3', dash: '3 3', label: '±2/√n' },
+      { y: -noise, stroke: '#8a95a3', dash: '3 3' },
+    ],
+    vlines: used && used.window > 0 && used.window <= s.acf.length ? [{ x: used.window, label: `window M = ${used.window}`, stroke: '#9a5b00' }] : [],
+    yInclude: [1, -0.2],
+  });
+}
+
+function allanChart(s: ChannelSnapshot): string {
+  const points = s.allan.filter((p) => p.adev > 0);
+  if (points.length < 2) return '';
+  const timed = points.every((p) => p.tauSeconds !== null && p.tauSeconds > 0);
+  const x = points.map((p) => (timed ? (p.tauSeconds as number) : p.m));
+  const first = points[0] as (typeof points)[number];
+  const reference = x.map((v) => first.adev * Math.sqrt((x[0] as number) / v));
+  const limit = s.averagingLimit ? (timed && s.averagingLimit.tauSeconds !== null ? s.averagingLimit.tauSeconds : s.averagingLimit.m) : null;
+  return svgChart({
+    width: 300,
+    height: 210,
+    title: 'Allan deviation',
+    xLabel: timed ? 'averaging time (s)' : 'averaging factor m',
+    yLabel: 'Allan deviation',
+    xLog: true,
+    yLog: true,
+    series: [
+      { x, y: reference, stroke: '#8a95a3', width: 1, dash: '3 3', label: 'white noise slope' },
+      { x, y: points.map((p) => p.adev), stroke: '#2f6b8a', width: 1.4 },
+      { x, y: points.map((p) => p.adev), stroke: '#2f6b8a', dots: true },
+    ],
+    errorBars: points.flatMap((p, i) => (p.low > 0 && p.high > 0 ? [{ x: x[i] as number, low: p.low, high: p.high, stroke: '#2f6b8a' }] : [])),
+    vlines: limit !== null ? [{ x: limit, label: 'averaging limit', stroke: '#b3261e' }] : [],
+  });
+}
+
+function cusumChart(cusum: ReportChannel['cusum']): string {
+  if (!cusum || cusum.upper.length < 2) return '';
+  const x = cusum.upper.map((_, i) => i + 1);
+  return svgChart({
+    width: 300,
+    height: 210,
+    title: 'CUSUM on block means',
+    xLabel: `block (${cusum.blockSize} samples each)`,
+    yLabel: 'sum (standard deviations)',
+    series: [
+      { x, y: cusum.upper, stroke: '#2f6b8a', width: 1.2, label: 'upward' },
+      { x, y: cusum.lower.map((v) => -v), stroke: '#9a5b00', width: 1.2, label: 'downward' },
+    ],
+    hlines: [
+      { y: cusum.decisionInterval, stroke: '#b3261e', dash: '4 3', label: 'h' },
+      { y: -cusum.decisionInterval, stroke: '#b3261e', dash: '4 3' },
+      { y: 0, stroke: '#5b6573' },
+    ],
+  });
 }

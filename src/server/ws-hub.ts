@@ -3,141 +3,249 @@ import type { IncomingMessage } from 'node:http';
 import type { Duplex } from 'node:stream';
 import type { Daemon, PublishedEvent } from '../daemon/daemon.js';
 import type { ChannelSummary } from '../engine/channel-pipeline.js';
+import { eventLogFor, type ServerEventLog } from './event-log.js';
+import { sameOrigin } from './origin.js';
 
 /**
- * The WebSocket hub (ws): events go to every client at once; channel updates go at most every
- * UPDATE_INTERVAL_MS per client, whatever the sample rate, carrying only the channels that changed.
- * A client that does not keep up is skipped (its socket buffer is over SKIP_BYTES) and dropped when
- * it falls far behind (over DROP_BYTES); nothing is buffered without bound. Dead peers are found by
- * ping/pong every HEARTBEAT_MS.
+ * The WebSocket hub (ws) on /ws: events go to every client at once; channel updates go at most
+ * every updateIntervalMs per client, whatever the sample rate, carrying only the channels that
+ * changed since that client's last update; test points go when one of them may have changed.
  *
- * Messages (JSON text frames), documented in the README:
- *   { "type": "hello", "channels": [summary...], "testPoints": [...], "lastEventId": n }
- *   { "type": "event", "event": { "id", "timeMs", "source", "kind", "at", "body" } }
- *   { "type": "channels", "channels": [summary...] }
+ * Bounded: a client whose socket buffer holds more than skipBytes is skipped (it gets no channel
+ * update until it drains, then one update with every channel); beyond dropBytes it is dropped,
+ * events included, and reconnects to a fresh hello. Clients send nothing: a frame above
+ * maxPayloadBytes closes the connection. At most maxClients at once (503 beyond). A connection
+ * whose Origin header names another site is refused (403): a page elsewhere must not read the rig.
+ * Dead peers are found by ping/pong every heartbeatMs; a beat message every beatMs of silence lets
+ * a browser (which cannot see pings) notice a half-open connection.
+ *
+ * Messages (JSON text frames):
+ *   { type: "hello", protocol: 1, serverTimeMs, channels: [summary...], testPoints: [...],
+ *     lastEventId, events: [the latest, oldest first], acknowledgements: [...] }
+ *   { type: "event", event: { id, timeMs, source, kind, at, body } }
+ *   { type: "channels", serverTimeMs, channels: [summary...] }
+ *   { type: "testPoints", testPoints: [...] }
+ *   { type: "beat", serverTimeMs }
+ * Cost per tick: one summary per channel with new samples or events (tens of microseconds each),
+ * shared by every client; then one JSON text per client.
  */
-const UPDATE_INTERVAL_MS = 250;
-const SKIP_BYTES = 1 << 20;
-const DROP_BYTES = 16 << 20;
-const HEARTBEAT_MS = 15_000;
+export interface WsHubOptions {
+  updateIntervalMs?: number;
+  skipBytes?: number;
+  dropBytes?: number;
+  heartbeatMs?: number;
+  beatMs?: number;
+  maxClients?: number;
+  /** Latest events in the hello. */
+  helloEvents?: number;
+}
+
+export const WS_LIMITS = {
+  updateIntervalMs: 250,
+  skipBytes: 256 * 1024,
+  dropBytes: 8 * 1024 * 1024,
+  heartbeatMs: 15_000,
+  beatMs: 5_000,
+  maxClients: 100,
+  maxPayloadBytes: 4096,
+  helloEvents: 100,
+} as const;
+
+/** The part of a ws WebSocket the hub uses (tests stand in for it). */
+export interface HubSocket {
+  readonly readyState: number;
+  readonly OPEN: number;
+  readonly bufferedAmount: number;
+  send(text: string): void;
+  ping(): void;
+  terminate(): void;
+  on(event: 'pong' | 'close' | 'error' | 'message', listener: (...args: unknown[]) => void): unknown;
+}
 
 interface Client {
-  socket: WebSocket;
+  socket: HubSocket;
   alive: boolean;
   sent: Map<string, number>;
+  lastSendMs: number;
+}
+
+export interface HubCounters {
+  clients: number;
+  connected: number;
+  refused: number;
   skipped: number;
+  dropped: number;
+  messages: number;
 }
 
 export class WsHub {
   private readonly server: WebSocketServer;
   private readonly clients = new Set<Client>();
   private readonly daemon: Daemon;
+  private readonly events: ServerEventLog;
+  private readonly settings: Required<WsHubOptions>;
   private readonly timers: NodeJS.Timeout[] = [];
-  private summaries = new Map<string, { received: number; events: number; summary: ChannelSummary }>();
+  private readonly summaries = new Map<string, { version: number; summary: ChannelSummary & { unit: string | null } }>();
   private readonly unsubscribe: () => void;
-  dropped = 0;
+  private testPointsChanged = false;
+  private closed = false;
+  readonly counters = { connected: 0, refused: 0, skipped: 0, dropped: 0, messages: 0 };
 
-  constructor(daemon: Daemon) {
+  constructor(daemon: Daemon, options: WsHubOptions = {}) {
     this.daemon = daemon;
-    this.server = new WebSocketServer({ noServer: true, maxPayload: 4096 });
+    this.settings = {
+      updateIntervalMs: options.updateIntervalMs ?? WS_LIMITS.updateIntervalMs,
+      skipBytes: options.skipBytes ?? WS_LIMITS.skipBytes,
+      dropBytes: options.dropBytes ?? WS_LIMITS.dropBytes,
+      heartbeatMs: options.heartbeatMs ?? WS_LIMITS.heartbeatMs,
+      beatMs: options.beatMs ?? WS_LIMITS.beatMs,
+      maxClients: options.maxClients ?? WS_LIMITS.maxClients,
+      helloEvents: options.helloEvents ?? WS_LIMITS.helloEvents,
+    };
+    // The event log first: its listener must see each event before the hub's.
+    this.events = eventLogFor(daemon);
+    this.server = new WebSocketServer({ noServer: true, maxPayload: WS_LIMITS.maxPayloadBytes, perMessageDeflate: false });
     this.unsubscribe = daemon.onEvent((event) => this.broadcastEvent(event));
-    this.timers.push(setInterval(() => this.sendUpdates(), UPDATE_INTERVAL_MS));
-    this.timers.push(setInterval(() => this.heartbeat(), HEARTBEAT_MS));
+    this.timers.push(setInterval(() => this.tick(), this.settings.updateIntervalMs));
+    this.timers.push(setInterval(() => this.heartbeat(), this.settings.heartbeatMs));
     for (const timer of this.timers) timer.unref();
   }
 
+  /** Hands an HTTP upgrade request for /ws to the hub. */
   handleUpgrade(request: IncomingMessage, socket: Duplex, head: Buffer): void {
-    this.server.handleUpgrade(request, socket, head, (ws) => this.add(ws));
+    const refuse = (status: number, reason: string) => {
+      this.counters.refused++;
+      socket.end(`HTTP/1.1 ${status} ${reason}\r\nConnection: close\r\nContent-Type: text/plain\r\nContent-Length: ${reason.length}\r\n\r\n${reason}`);
+    };
+    if (this.closed) return refuse(503, 'Service Unavailable');
+    const origin = request.headers.origin;
+    if (origin !== undefined && !sameOrigin(origin, request.headers.host)) return refuse(403, 'Forbidden');
+    if (this.clients.size >= this.settings.maxClients) return refuse(503, 'Service Unavailable');
+    this.server.handleUpgrade(request, socket, head, (ws: WebSocket) => this.attach(ws));
   }
 
   get clientCount(): number {
     return this.clients.size;
   }
 
+  stats(): HubCounters {
+    return { clients: this.clients.size, ...this.counters };
+  }
+
+  /** Ends every connection (clients reconnect by themselves). */
+  disconnectAll(): void {
+    for (const client of this.clients) client.socket.terminate();
+    this.clients.clear();
+  }
+
   close(): void {
+    this.closed = true;
     for (const timer of this.timers) clearInterval(timer);
     this.unsubscribe();
-    for (const client of this.clients) client.socket.terminate();
+    this.disconnectAll();
     this.server.close();
   }
 
-  private add(socket: WebSocket): void {
-    const client: Client = { socket, alive: true, sent: new Map(), skipped: 0 };
+  /** Takes over an open socket: sends the hello, then keeps it updated. */
+  attach(socket: HubSocket): void {
+    const client: Client = { socket, alive: true, sent: new Map(), lastSendMs: 0 };
     this.clients.add(client);
+    this.counters.connected++;
     socket.on('pong', () => {
       client.alive = true;
     });
     socket.on('close', () => this.clients.delete(client));
     socket.on('error', () => this.clients.delete(client));
-    // Clients have nothing to say: any message is ignored.
+    // Clients have nothing to say: any message is ignored (ws closes on frames above maxPayload).
     socket.on('message', () => undefined);
-    const channels = this.currentSummaries();
-    for (const [name, entry] of this.summaries) client.sent.set(name, entry.received + entry.events * 1e12);
+    this.refreshSummaries();
+    const channels: ChannelSummary[] = [];
+    for (const [name, entry] of this.summaries) {
+      channels.push(entry.summary);
+      client.sent.set(name, entry.version);
+    }
+    const lastEventId = this.events.lastId;
+    const recent = this.events.latest(this.settings.helloEvents);
     this.send(client, {
       type: 'hello',
+      protocol: 1,
+      serverTimeMs: Date.now(),
       channels,
-      testPoints: this.daemon.testPoints.list().map((point) => ({ ...point, verdict: this.daemon.testPoints.verdict(point) })),
-      lastEventId: this.daemon.events(0, 0).length,
-    });
+      testPoints: this.testPoints(),
+      lastEventId,
+      events: recent,
+      acknowledgements: this.events.acknowledgementsAfter((recent[0]?.id ?? lastEventId + 1) - 1),
+      updateIntervalMs: this.settings.updateIntervalMs,
+    }, true);
+  }
+
+  private testPoints(): unknown[] {
+    return this.daemon.testPoints.list().map((point) => ({ ...point, verdict: this.daemon.testPoints.verdict(point) }));
   }
 
   private broadcastEvent(event: PublishedEvent): void {
+    // Channel events change channel states, hence test-point verdicts.
+    this.testPointsChanged = true;
     const text = JSON.stringify({ type: 'event', event }, finite);
     for (const client of this.clients) this.sendText(client, text, true);
   }
 
-  /** Summaries of every channel, recomputed only for channels with new samples or events. */
-  private currentSummaries(): ChannelSummary[] {
-    const out: ChannelSummary[] = [];
+  /** Recomputes the summary of every channel with new samples or events. */
+  private refreshSummaries(): void {
     for (const channel of this.daemon.registry.all()) {
-      const received = channel.pipeline.totalReceived;
-      const events = channel.pipeline.snapshotKeyEvents;
-      let entry = this.summaries.get(channel.name);
-      if (!entry || entry.received !== received || entry.events !== events) {
-        entry = { received, events, summary: { ...channel.pipeline.summary(), ...({ unit: channel.unit } as object) } };
-        this.summaries.set(channel.name, entry);
-      }
-      out.push(entry.summary);
+      const version = channel.pipeline.totalReceived + channel.pipeline.snapshotKeyEvents * 2 ** 40;
+      const entry = this.summaries.get(channel.name);
+      if (entry && entry.version === version && entry.summary.unit === channel.unit) continue;
+      this.summaries.set(channel.name, { version, summary: { ...channel.pipeline.summary(), unit: channel.unit } });
     }
-    return out;
   }
 
-  private sendUpdates(): void {
+  private tick(): void {
     if (this.clients.size === 0) return;
-    this.currentSummaries();
+    const now = Date.now();
+    this.refreshSummaries();
+    const testPointsText = this.testPointsChanged ? JSON.stringify({ type: 'testPoints', testPoints: this.testPoints() }, finite) : null;
+    this.testPointsChanged = false;
     for (const client of this.clients) {
+      if (testPointsText) this.sendText(client, testPointsText, false);
       const changed: ChannelSummary[] = [];
+      const versions: [string, number][] = [];
       for (const [name, entry] of this.summaries) {
-        const version = entry.received + entry.events * 1e12;
-        if (client.sent.get(name) !== version) {
+        if (client.sent.get(name) !== entry.version) {
           changed.push(entry.summary);
-          client.sent.set(name, version);
+          versions.push([name, entry.version]);
         }
       }
-      if (changed.length > 0) this.send(client, { type: 'channels', channels: changed });
+      if (changed.length > 0) {
+        if (this.send(client, { type: 'channels', serverTimeMs: now, channels: changed }, false)) for (const [name, version] of versions) client.sent.set(name, version);
+      } else if (now - client.lastSendMs >= this.settings.beatMs) this.send(client, { type: 'beat', serverTimeMs: now }, false);
     }
   }
 
-  private send(client: Client, message: unknown): void {
-    this.sendText(client, JSON.stringify(message, finite), false);
+  private send(client: Client, message: unknown, important: boolean): boolean {
+    return this.sendText(client, JSON.stringify(message, finite), important);
   }
 
-  private sendText(client: Client, text: string, important: boolean): void {
+  /** Sends unless the client is too far behind; returns whether the text went out. */
+  private sendText(client: Client, text: string, important: boolean): boolean {
     const socket = client.socket;
-    if (socket.readyState !== socket.OPEN) return;
-    if (socket.bufferedAmount > DROP_BYTES) {
-      this.dropped++;
+    if (socket.readyState !== socket.OPEN) return false;
+    if (socket.bufferedAmount > this.settings.dropBytes) {
+      this.counters.dropped++;
       socket.terminate();
       this.clients.delete(client);
-      return;
+      return false;
     }
-    if (!important && socket.bufferedAmount > SKIP_BYTES) {
-      client.skipped++;
-      // Forget what was sent, so the next update carries every channel again.
+    if (!important && socket.bufferedAmount > this.settings.skipBytes) {
+      this.counters.skipped++;
+      // Forget what was sent: the first update after it drains carries every channel.
       client.sent.clear();
-      return;
+      return false;
     }
     socket.send(text);
+    client.lastSendMs = Date.now();
+    this.counters.messages++;
+    return true;
   }
 
   private heartbeat(): void {
@@ -148,7 +256,11 @@ export class WsHub {
         continue;
       }
       client.alive = false;
-      client.socket.ping();
+      try {
+        client.socket.ping();
+      } catch {
+        this.clients.delete(client);
+      }
     }
   }
 }

@@ -1,0 +1,246 @@
+// plateau dashboard: wiring. State comes from the live link (hello, then channel updates, events
+// and test points); views read it and update in place. Routes: #/ (channels), #/channel/<name>,
+// #/test-points. Nothing from the network is ever parsed as HTML (see lib/dom.js).
+
+import { h, byId, setText } from './lib/dom.js';
+import { api, writeKey, setWriteKey } from './lib/api.js';
+import { LiveLink } from './lib/live.js';
+import { clockTime } from './lib/format.js';
+import { OverviewView } from './views/overview.js';
+import { ChannelView } from './views/channel.js';
+import { TestPointsView } from './views/test-points.js';
+import { FeedView } from './views/feed.js';
+
+const MAX_EVENTS = 500;
+
+class App {
+  constructor() {
+    this.state = { channels: new Map(), testPoints: [], events: [], acknowledgements: new Map(), server: null, lastEventId: 0, connection: 'connecting' };
+    const main = byId('main');
+    this.overview = new OverviewView(main, this);
+    this.channel = new ChannelView(main, this);
+    this.testPoints = new TestPointsView(main, this);
+    this.feed = new FeedView(byId('side'), this);
+    this.firstData = false;
+    this.lastUpdateMs = 0;
+    this.setupConnectionIndicator();
+    this.setupWriteKey();
+    window.addEventListener('hashchange', () => this.route());
+    this.link = new LiveLink({ onMessage: (m) => this.onMessage(m), onStatus: (s) => this.onStatus(s) });
+    this.loadServer();
+    this.route();
+    this.link.start();
+    this.tickClock();
+    setInterval(() => this.tickClock(), 1000);
+  }
+
+  async loadServer() {
+    try {
+      this.state.server = await api.server();
+      setText(byId('server-version'), `v${this.state.server.version}`);
+      setText(byId('caution'), this.state.server.caution);
+      this.updateWriteKeyButton();
+      this.testPoints.updateChannels();
+      this.feed.render();
+    } catch {
+      setTimeout(() => this.loadServer(), 2000);
+    }
+  }
+
+  route() {
+    const hash = location.hash || '#/';
+    const channelMatch = /^#\/channel\/(.+)$/.exec(hash);
+    for (const link of document.querySelectorAll('.nav a')) link.classList.toggle('active', link.getAttribute('href') === (channelMatch ? '#/' : hash));
+    if (channelMatch) {
+      let name;
+      try {
+        name = decodeURIComponent(channelMatch[1]);
+      } catch {
+        name = channelMatch[1];
+      }
+      this.overview.show(false);
+      this.testPoints.show(false);
+      this.channel.open(name);
+      document.title = `${name} · plateau`;
+    } else if (hash === '#/test-points') {
+      this.channel.close();
+      this.overview.show(false);
+      this.testPoints.show(true);
+      document.title = 'Test points · plateau';
+    } else {
+      this.channel.close();
+      this.testPoints.show(false);
+      this.overview.show(true);
+      document.title = 'plateau · channels';
+    }
+  }
+
+  onMessage(message) {
+    switch (message.type) {
+      case 'hello': {
+        const seenBefore = this.state.lastEventId;
+        this.state.channels = new Map(message.channels.map((c) => [c.name, c]));
+        this.state.testPoints = message.testPoints;
+        this.mergeEvents(message.events ?? []);
+        this.catchUp(seenBefore, message.events?.[0]?.id ?? Infinity);
+        for (const ack of message.acknowledgements ?? []) this.state.acknowledgements.set(ack.eventId, ack);
+        this.state.lastEventId = Math.max(this.state.lastEventId, message.lastEventId ?? 0);
+        this.lastUpdateMs = Date.now();
+        this.overview.update();
+        this.refreshOpenChannel();
+        this.testPoints.updateChannels();
+        this.testPoints.update();
+        this.feed.render();
+        if (!this.firstData) {
+          this.firstData = true;
+          performance.mark('plateau:first-data');
+        }
+        break;
+      }
+      case 'channels': {
+        const names = [];
+        let added = false;
+        for (const summary of message.channels) {
+          if (!this.state.channels.has(summary.name)) added = true;
+          this.state.channels.set(summary.name, summary);
+          names.push(summary.name);
+        }
+        this.lastUpdateMs = Date.now();
+        this.overview.update(names);
+        this.refreshOpenChannel();
+        if (added && !this.testPoints.element.hidden) this.testPoints.updateChannels();
+        break;
+      }
+      case 'event':
+        this.mergeEvents([message.event]);
+        if (message.event.kind === 'alert-acknowledged') {
+          const body = message.event.body ?? {};
+          this.noteAcknowledgement({ eventId: body.eventId, recordId: message.event.id, timeMs: message.event.timeMs, note: body.note ?? null });
+        } else this.feed.render();
+        break;
+      case 'testPoints':
+        this.state.testPoints = message.testPoints;
+        if (!this.testPoints.element.hidden) this.testPoints.update();
+        break;
+      default:
+        break;
+    }
+  }
+
+  refreshOpenChannel() {
+    const name = this.channel.name;
+    if (name && this.state.channels.has(name)) this.channel.updateSummary(this.state.channels.get(name));
+  }
+
+  /** Adds events (kept newest first, no duplicates, bounded). */
+  mergeEvents(events) {
+    const known = new Map(this.state.events.map((e) => [e.id, e]));
+    for (const e of events) known.set(e.id, e);
+    this.state.events = [...known.values()].sort((a, b) => b.id - a.id).slice(0, MAX_EVENTS);
+    for (const e of events) if (e.id > this.state.lastEventId) this.state.lastEventId = e.id;
+  }
+
+  /** After a reconnection: the events missed while away, when the hello does not reach back far enough. */
+  async catchUp(seenBefore, oldestInHello) {
+    if (seenBefore === 0 || oldestInHello <= seenBefore + 1) return;
+    try {
+      const { events, acknowledgements } = await api.eventsAfter(seenBefore);
+      this.mergeEvents(events);
+      for (const ack of acknowledgements ?? []) this.state.acknowledgements.set(ack.eventId, ack);
+      this.feed.render();
+    } catch {
+      // the feed shows what the hello brought
+    }
+  }
+
+  noteAcknowledgement(ack) {
+    if (ack && Number.isInteger(ack.eventId)) this.state.acknowledgements.set(ack.eventId, ack);
+    this.feed.render();
+  }
+
+  upsertTestPoint(point) {
+    const list = this.state.testPoints.filter((p) => p.id !== point.id);
+    list.push(point);
+    this.state.testPoints = list;
+    this.testPoints.update();
+  }
+
+  // ---- connection indicator -----------------------------------------------------------------
+
+  setupConnectionIndicator() {
+    this.pill = byId('connection');
+    this.banner = byId('connection-banner');
+    this.bannerText = byId('connection-banner-text');
+    byId('retry-now').addEventListener('click', () => this.link.retryNow());
+  }
+
+  onStatus(status) {
+    this.status = status;
+    this.state.connection = status.state;
+    this.renderStatus();
+  }
+
+  renderStatus() {
+    const status = this.status;
+    if (!status) return;
+    const lost = status.state === 'lost' || (status.state === 'connecting' && status.since !== null);
+    document.body.classList.toggle('disconnected', lost);
+    this.banner.hidden = !lost;
+    if (status.state === 'live') {
+      this.pill.className = 'pill live';
+      setText(this.pill, '● LIVE');
+    } else if (!lost) {
+      this.pill.className = 'pill connecting';
+      setText(this.pill, '◌ CONNECTING…');
+    } else {
+      this.pill.className = 'pill lost';
+      setText(this.pill, '✖ CONNECTION LOST');
+      const wait = status.state === 'lost' && status.retryAtMs ? Math.max(0, Math.ceil((status.retryAtMs - Date.now()) / 1000)) : 0;
+      const frozen = this.lastUpdateMs ? ` Values shown are frozen as of ${clockTime(this.lastUpdateMs)}.` : '';
+      setText(this.bannerText, `Connection to the daemon lost — reconnecting${wait > 0 ? ` in ${wait} s` : ' now'} (attempt ${status.attempt}).${frozen}`);
+    }
+  }
+
+  tickClock() {
+    setText(byId('clock'), clockTime(Date.now()));
+    if (this.status && this.status.state !== 'live') this.renderStatus();
+  }
+
+  // ---- write key ----------------------------------------------------------------------------
+
+  setupWriteKey() {
+    this.keyButton = byId('write-key');
+    this.keyDialog = byId('key-dialog');
+    this.keyInput = byId('key-input');
+    this.keyButton.addEventListener('click', () => this.askWriteKey());
+    byId('key-form').addEventListener('submit', (event) => {
+      event.preventDefault();
+      setWriteKey(this.keyInput.value.trim());
+      this.keyInput.value = '';
+      this.keyDialog.close();
+      this.updateWriteKeyButton();
+    });
+    byId('key-forget').addEventListener('click', () => {
+      setWriteKey('');
+      this.keyInput.value = '';
+      this.keyDialog.close();
+      this.updateWriteKeyButton();
+    });
+    byId('key-cancel').addEventListener('click', () => this.keyDialog.close());
+  }
+
+  askWriteKey() {
+    if (!this.keyDialog.open) this.keyDialog.showModal();
+    this.keyInput.focus();
+  }
+
+  updateWriteKeyButton() {
+    const needs = this.state.server?.writesNeedToken;
+    const has = Boolean(writeKey());
+    setText(this.keyButton, has ? 'write key set' : needs ? 'write key needed' : 'writes open (no key)');
+    this.keyButton.className = `key-button${needs && !has ? ' needed' : ''}`;
+    this.testPoints.updateLock();
+  }
+}
+
+window.plateau = new App();

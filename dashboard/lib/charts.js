@@ -1,0 +1,285 @@
+// Charts of the channel view, drawn with uPlot (served by the daemon from its own installation).
+// Each builder returns { update(detail), destroy() } and redraws in place; markers (warm-up cut,
+// summation window, averaging limit) are drawn by a small plugin on the canvas.
+
+const COLORS = {
+  axis: '#9aa7b4',
+  grid: 'rgba(154,167,180,0.14)',
+  trace: '#c9d3dc',
+  mean: '#5fb3ff',
+  band: 'rgba(95,179,255,0.20)',
+  excluded: 'rgba(240,168,48,0.13)',
+  cut: '#f0a830',
+  acf: '#5fb3ff',
+  noise: 'rgba(201,211,220,0.55)',
+  allan: '#5fb3ff',
+  limit: '#ff6b5f',
+  reference: 'rgba(201,211,220,0.5)',
+  upper: '#5fb3ff',
+  lower: '#f0a830',
+  decision: '#ff6b5f',
+};
+
+const FONT = '12px system-ui, sans-serif';
+
+function axis(label, extra = {}) {
+  return { label, stroke: COLORS.axis, grid: { stroke: COLORS.grid, width: 1 }, ticks: { stroke: COLORS.grid, width: 1 }, font: FONT, labelFont: FONT, ...extra };
+}
+
+/** Vertical markers and shaded spans, drawn after (lines) or before (spans) the series. */
+function markerPlugin(getMarkers) {
+  const drawSpans = (u) => {
+    const { spans } = getMarkers();
+    const ctx = u.ctx;
+    const { top, height, left, width } = u.bbox;
+    ctx.save();
+    for (const span of spans ?? []) {
+      const a = Math.max(left, u.valToPos(span.from, 'x', true));
+      const b = Math.min(left + width, u.valToPos(span.to, 'x', true));
+      if (!(b > a)) continue;
+      ctx.fillStyle = span.fill;
+      ctx.fillRect(a, top, b - a, height);
+    }
+    ctx.restore();
+  };
+  const drawLines = (u) => {
+    const { lines } = getMarkers();
+    const ctx = u.ctx;
+    const { top, height, left, width } = u.bbox;
+    const ratio = window.devicePixelRatio || 1;
+    ctx.save();
+    ctx.font = `${Math.round(11 * ratio)}px system-ui, sans-serif`;
+    for (const line of lines ?? []) {
+      const x = u.valToPos(line.x, 'x', true);
+      if (!(x >= left - 1 && x <= left + width + 1)) continue;
+      ctx.strokeStyle = line.color;
+      ctx.lineWidth = 1.5 * ratio;
+      ctx.setLineDash([5 * ratio, 4 * ratio]);
+      ctx.beginPath();
+      ctx.moveTo(x, top);
+      ctx.lineTo(x, top + height);
+      ctx.stroke();
+      ctx.setLineDash([]);
+      ctx.fillStyle = line.color;
+      const right = x > left + width * 0.7;
+      ctx.textAlign = right ? 'right' : 'left';
+      ctx.fillText(line.label, right ? x - 4 * ratio : x + 4 * ratio, top + 13 * ratio);
+    }
+    ctx.restore();
+  };
+  return { hooks: { drawAxes: [drawSpans], draw: [drawLines] } };
+}
+
+/** Tick labels for log axes: plain numbers in the middle decades, powers of ten beyond. */
+function logTicks(_u, splits) {
+  return splits.map((v) => {
+    if (v === null || v === undefined || !(v > 0)) return '';
+    const exponent = Math.round(Math.log10(v));
+    if (Math.abs(v - 10 ** exponent) > 1e-9 * v) return '';
+    return exponent >= -3 && exponent <= 4 ? String(Number(v.toPrecision(1))) : `1e${exponent}`;
+  });
+}
+
+function sized(container, height) {
+  return { width: Math.max(240, container.clientWidth - 4), height };
+}
+
+function makeChart(container, options, data, height) {
+  const plot = new uPlot({ ...sized(container, height), ...options }, data, container);
+  const observer = new ResizeObserver(() => plot.setSize(sized(container, height)));
+  observer.observe(container);
+  return {
+    plot,
+    destroy() {
+      observer.disconnect();
+      plot.destroy();
+    },
+  };
+}
+
+/**
+ * The trace: samples, the mean over the averaging window with its +/-U band, the samples outside
+ * the window shaded (the warm-up, or before the test point) and the cut marked.
+ */
+export function traceChart(container) {
+  let unit = null;
+  let markers = { spans: [], lines: [] };
+  let chart = null;
+  let timed = true;
+  const build = (data) => {
+    chart?.destroy();
+    chart = makeChart(
+      container,
+      {
+        legend: { show: true, live: false },
+        cursor: { drag: { x: true, y: false } },
+        scales: { x: { time: timed } },
+        axes: [axis(timed ? '' : 'sample'), axis(unit || 'value', { size: 70 })],
+        series: [
+          {},
+          { label: 'samples', stroke: COLORS.trace, width: 1, points: { show: false } },
+          { label: 'mean', stroke: COLORS.mean, width: 2, points: { show: false } },
+          { label: '+U', stroke: 'rgba(95,179,255,0.5)', width: 1, dash: [4, 4], points: { show: false } },
+          { label: '−U', stroke: 'rgba(95,179,255,0.5)', width: 1, dash: [4, 4], points: { show: false } },
+        ],
+        bands: [{ series: [3, 4], fill: COLORS.band }],
+        plugins: [markerPlugin(() => markers)],
+      },
+      data,
+      300,
+    );
+  };
+  return {
+    update(detail) {
+      const trace = detail.trace;
+      const n = trace.values.length;
+      const unitChanged = (detail.unit ?? null) !== unit;
+      unit = detail.unit ?? null;
+      // Time on the x axis when every sample has one and they never go back (late samples can).
+      const isTimed = n > 0 && trace.times.every((t, i) => t !== null && (i === 0 || t >= trace.times[i - 1]));
+      const x = isTimed ? trace.times.slice() : trace.values.map((_, i) => trace.firstIndex + i);
+      const windowStart = Math.max(0, trace.windowStartIndex - trace.firstIndex);
+      const inWindow = (i) => i >= windowStart;
+      const mean = detail.mean;
+      const U = detail.expandedUncertainty;
+      const meanSeries = trace.values.map((_, i) => (mean !== null && inWindow(i) ? mean : null));
+      const upper = trace.values.map((_, i) => (mean !== null && U !== null && inWindow(i) ? mean + U : null));
+      const lower = trace.values.map((_, i) => (mean !== null && U !== null && inWindow(i) ? mean - U : null));
+      const spans = [];
+      const lines = [];
+      if (windowStart > 0 && windowStart < n) {
+        spans.push({ from: x[0], to: x[windowStart], fill: COLORS.excluded });
+        const originOffset = trace.originIndex - trace.firstIndex;
+        if (originOffset > 0 && originOffset < windowStart) lines.push({ x: x[originOffset], label: 'test point start', color: COLORS.axis });
+        lines.push({ x: x[windowStart], label: detail.excluded > 0 ? 'warm-up cut' : 'window start', color: COLORS.cut });
+      }
+      markers = { spans, lines };
+      const data = [x, trace.values, meanSeries, upper, lower];
+      if (!chart || isTimed !== timed || unitChanged) {
+        timed = isTimed;
+        build(data);
+      } else chart.plot.setData(data);
+    },
+    destroy() {
+      chart?.destroy();
+    },
+  };
+}
+
+/** The autocorrelation function with the +/-2/sqrt(n) band and the estimator's summation window. */
+export function acfChart(container) {
+  let markers = { lines: [] };
+  let chart = null;
+  return {
+    update(detail) {
+      const acf = detail.acf ?? [];
+      const lags = acf.map((_, i) => i + 1);
+      const noise = 2 / Math.sqrt(Math.max(1, detail.n));
+      const used = detail.estimators?.[detail.estimator];
+      markers = { lines: used && used.window > 0 && used.window <= acf.length ? [{ x: used.window, label: `window M = ${used.window}`, color: COLORS.cut }] : [] };
+      const data = [lags, acf, lags.map(() => noise), lags.map(() => -noise)];
+      if (!chart) {
+        chart = makeChart(
+          container,
+          {
+            legend: { show: true, live: false },
+            scales: { x: { time: false }, y: { range: (_u, min, max) => [Math.min(-0.25, min), Math.max(1, max)] } },
+            axes: [axis('lag (samples)'), axis('autocorrelation', { size: 56 })],
+            series: [
+              {},
+              { label: 'ρ(lag)', stroke: COLORS.acf, fill: 'rgba(95,179,255,0.35)', width: 1, paths: uPlot.paths.bars({ size: [0.7, 24] }), points: { show: false } },
+              { label: '+2/√n', stroke: COLORS.noise, width: 1, dash: [3, 3], points: { show: false } },
+              { label: '−2/√n', stroke: COLORS.noise, width: 1, dash: [3, 3], points: { show: false } },
+            ],
+            plugins: [markerPlugin(() => markers)],
+          },
+          data,
+          240,
+        );
+      } else chart.plot.setData(data);
+    },
+    destroy() {
+      chart?.destroy();
+    },
+  };
+}
+
+/** Overlapping Allan deviation on log-log axes with its error band, a white-noise slope and the averaging limit. */
+export function allanChart(container) {
+  let markers = { lines: [] };
+  let chart = null;
+  let timed = null;
+  return {
+    update(detail) {
+      const points = (detail.allan ?? []).filter((p) => p.adev > 0);
+      const isTimed = points.length > 0 && points.every((p) => p.tauSeconds !== null && p.tauSeconds > 0);
+      const x = points.map((p) => (isTimed ? p.tauSeconds : p.m));
+      const reference = points.length > 0 ? x.map((v) => points[0].adev * Math.sqrt(x[0] / v)) : [];
+      const limit = detail.averagingLimit;
+      markers = { lines: limit ? [{ x: isTimed && limit.tauSeconds ? limit.tauSeconds : limit.m, label: 'averaging limit', color: COLORS.limit }] : [] };
+      const data = [x, points.map((p) => p.adev), points.map((p) => (p.high > 0 ? p.high : null)), points.map((p) => (p.low > 0 ? p.low : null)), reference];
+      if (!chart || timed !== isTimed) {
+        timed = isTimed;
+        chart?.destroy();
+        chart = makeChart(
+          container,
+          {
+            legend: { show: true, live: false },
+            scales: { x: { time: false, distr: 3, log: 10 }, y: { distr: 3, log: 10 } },
+            axes: [axis(isTimed ? 'averaging time (s)' : 'averaging factor m', { values: logTicks }), axis('Allan deviation', { size: 70, values: logTicks })],
+            series: [
+              {},
+              { label: 'Allan deviation', stroke: COLORS.allan, width: 2, points: { show: true, size: 6 } },
+              { label: '1σ high', stroke: 'rgba(95,179,255,0.35)', width: 1, points: { show: false } },
+              { label: '1σ low', stroke: 'rgba(95,179,255,0.35)', width: 1, points: { show: false } },
+              { label: 'white-noise slope', stroke: COLORS.reference, width: 1, dash: [4, 4], points: { show: false } },
+            ],
+            bands: [{ series: [2, 3], fill: 'rgba(95,179,255,0.16)' }],
+            plugins: [markerPlugin(() => markers)],
+          },
+          data,
+          240,
+        );
+      } else chart.plot.setData(data);
+    },
+    destroy() {
+      chart?.destroy();
+    },
+  };
+}
+
+/** The monitor's CUSUM sums on block means (upward positive, downward negative) against +/-h. */
+export function cusumChart(container) {
+  let chart = null;
+  return {
+    update(detail) {
+      const cusum = detail.cusumTrace;
+      const upper = cusum?.upper ?? [];
+      const x = upper.map((_, i) => i + 1);
+      const h = cusum?.decisionInterval ?? null;
+      const data = [x, upper, (cusum?.lower ?? []).map((v) => -v), x.map(() => h), x.map(() => (h === null ? null : -h))];
+      if (!chart) {
+        chart = makeChart(
+          container,
+          {
+            legend: { show: true, live: false },
+            scales: { x: { time: false } },
+            axes: [axis('block'), axis('sum (sd)', { size: 56 })],
+            series: [
+              {},
+              { label: 'upward', stroke: COLORS.upper, width: 1.5, points: { show: false } },
+              { label: 'downward', stroke: COLORS.lower, width: 1.5, points: { show: false } },
+              { label: '+h', stroke: COLORS.decision, width: 1, dash: [5, 4], points: { show: false } },
+              { label: '−h', stroke: COLORS.decision, width: 1, dash: [5, 4], points: { show: false } },
+            ],
+          },
+          data,
+          240,
+        );
+      } else chart.plot.setData(data);
+    },
+    destroy() {
+      chart?.destroy();
+    },
+  };
+}

@@ -1,0 +1,165 @@
+// Numbers, times and words for the screen. A measured value is shown with the decimals its
+// expanded uncertainty supports (two significant digits of U, common practice for stating results).
+
+const THIN_SPACE = '\u2009';
+
+/** Decimals that give U two significant digits (null when U is unknown). */
+export function decimalsFor(uncertainty) {
+  if (!(uncertainty > 0) || !Number.isFinite(uncertainty)) return null;
+  return Math.max(0, Math.min(12, 1 - Math.floor(Math.log10(uncertainty))));
+}
+
+/** A value with the given decimals, or 7 significant digits without them. */
+export function formatValue(value, decimals) {
+  if (value === null || value === undefined || !Number.isFinite(value)) return '–';
+  if (decimals === null || decimals === undefined) return trimNumber(value, 7);
+  if (Math.abs(value) >= 1e12) return value.toExponential(6);
+  return value.toFixed(decimals);
+}
+
+/** The expanded uncertainty rounded to two significant digits. */
+export function formatUncertainty(uncertainty) {
+  if (!(uncertainty >= 0) || !Number.isFinite(uncertainty)) return '–';
+  if (uncertainty === 0) return '0';
+  const decimals = decimalsFor(uncertainty);
+  if (decimals > 0) return uncertainty.toFixed(decimals);
+  return String(Number(uncertainty.toPrecision(2)));
+}
+
+/** Up to `digits` significant digits, no trailing zeros, exponent only for extreme magnitudes. */
+export function trimNumber(value, digits = 4) {
+  if (value === null || value === undefined || !Number.isFinite(value)) return '–';
+  if (value !== 0 && (Math.abs(value) >= 1e9 || Math.abs(value) < 1e-5)) return value.toExponential(Math.max(0, digits - 2));
+  return String(Number(value.toPrecision(digits)));
+}
+
+/** Integers with thin-space thousands groups. */
+export function formatCount(value) {
+  if (value === null || value === undefined || !Number.isFinite(value)) return '–';
+  const text = String(Math.round(value));
+  return text.replace(/\B(?=(\d{3})+(?!\d))/g, THIN_SPACE);
+}
+
+export function formatEffective(value) {
+  if (value === null || value === undefined || !Number.isFinite(value)) return '–';
+  return value >= 100 ? formatCount(value) : trimNumber(value, 3);
+}
+
+/** A duration in words: "45 s", "3 min 20 s", "2 h 05 min", "3.2 days". */
+export function formatDuration(seconds) {
+  if (seconds === null || seconds === undefined || !Number.isFinite(seconds)) return '–';
+  if (seconds < 1) return '< 1 s';
+  if (seconds < 60) return `${Math.round(seconds)} s`;
+  if (seconds < 3600) {
+    const minutes = Math.floor(seconds / 60);
+    const rest = Math.round(seconds - minutes * 60);
+    return rest > 0 && minutes < 10 ? `${minutes} min ${rest} s` : `${Math.round(seconds / 60)} min`;
+  }
+  if (seconds < 86400) {
+    const hours = Math.floor(seconds / 3600);
+    const minutes = Math.round((seconds - hours * 3600) / 60);
+    return `${hours} h ${String(minutes).padStart(2, '0')} min`;
+  }
+  return `${(seconds / 86400).toPrecision(2)} days`;
+}
+
+export function clockTime(ms) {
+  const date = new Date(ms);
+  return `${pad(date.getHours())}:${pad(date.getMinutes())}:${pad(date.getSeconds())}`;
+}
+
+export function dateTime(ms) {
+  const date = new Date(ms);
+  return `${date.getFullYear()}-${pad(date.getMonth() + 1)}-${pad(date.getDate())} ${clockTime(ms)}`;
+}
+
+function pad(n) {
+  return String(n).padStart(2, '0');
+}
+
+export function percent(confidence) {
+  return `${trimNumber(confidence * 100, 4)} %`;
+}
+
+/** How each channel state is shown: a word, a symbol and a colour class (never the colour alone). */
+export const STATES = {
+  warming: { label: 'WARMING UP', symbol: '◔', hint: 'not steady yet: the mean is not used', className: 'st-warming' },
+  steady: { label: 'STEADY', symbol: '●', hint: 'steady, averaging towards the target precision', className: 'st-steady' },
+  precise: { label: 'AT TARGET', symbol: '✔', hint: 'steady and at the target precision', className: 'st-precise' },
+  unsteady: { label: 'NOT STEADY', symbol: '▲', hint: 'a shift, trend or variance change was detected: averaging restarted', className: 'st-unsteady' },
+  stale: { label: 'NO DATA', symbol: '○', hint: 'no sample for a while', className: 'st-stale' },
+};
+
+export function stateOf(name) {
+  return STATES[name] ?? { label: String(name).toUpperCase(), symbol: '?', hint: '', className: 'st-unknown' };
+}
+
+export const POINT_STATES = {
+  running: { label: 'RUNNING', symbol: '▶', className: 'st-steady' },
+  ready: { label: 'READY', symbol: '✔', className: 'st-precise' },
+  stopped: { label: 'STOPPED', symbol: '■', className: 'st-stale' },
+};
+
+/** Event kinds in words, with a severity: alert, notice, good or info. */
+const EVENT_TEXT = {
+  steady: ['good', 'Steady state reached'],
+  'precision-reached': ['good', 'Target precision met'],
+  'stationarity-lost': ['alert', 'Steady state lost'],
+  'stationarity-regained': ['good', 'Steady again'],
+  'averaging-limit': ['notice', 'Averaging limit: longer runs no longer help'],
+  stale: ['alert', 'Data stopped'],
+  fresh: ['info', 'Data flowing again'],
+  'test-point-started': ['info', 'Test point started'],
+  'test-point-ready': ['good', 'Test point ready'],
+  'test-point-stopped': ['info', 'Test point stopped'],
+  'test-point-annotated': ['info', 'Note added'],
+  'broker-connected': ['info', 'Broker connected'],
+  'broker-disconnected': ['alert', 'Broker connection lost'],
+  'ingest-lag': ['alert', 'Daemon falling behind'],
+  'command-refused': ['alert', 'Command refused'],
+  'alert-acknowledged': ['info', 'Alert acknowledged'],
+};
+
+export function describeEvent(event) {
+  const [severity, title] = EVENT_TEXT[event.kind] ?? ['info', event.kind];
+  return { severity, title, detail: eventDetail(event) };
+}
+
+export const SEVERITY = {
+  alert: { label: 'ALERT', symbol: '▲' },
+  notice: { label: 'NOTICE', symbol: '◆' },
+  good: { label: 'OK', symbol: '✔' },
+  info: { label: 'INFO', symbol: '·' },
+};
+
+function eventDetail(event) {
+  const body = event.body ?? {};
+  switch (event.kind) {
+    case 'stationarity-lost':
+      return `${body.cause ?? 'change'} from sample ${body.changePoint ?? '?'}${body.detail ? `: ${body.detail}` : ''}`;
+    case 'steady':
+    case 'stationarity-regained':
+      return `from sample ${body.warmupEnd ?? '?'}; ${formatCount(body.excluded ?? 0)} samples excluded`;
+    case 'precision-reached':
+      return `U = ${trimNumber(body.expandedUncertainty, 3)} within ${trimNumber(body.bound, 3)}`;
+    case 'averaging-limit':
+      return `beyond m = ${body.m}${body.tauSeconds ? ` (${formatDuration(body.tauSeconds)})` : ''} the Allan deviation stops falling`;
+    case 'stale':
+      return `silent for ${formatDuration(body.silentSeconds)}`;
+    case 'test-point-started':
+    case 'test-point-ready':
+    case 'test-point-stopped':
+      return `${body.name ?? body.testPoint ?? ''}`;
+    case 'test-point-annotated':
+      return `${body.text ?? ''}`;
+    case 'broker-connected':
+    case 'broker-disconnected':
+      return `${body.detail ?? ''}`;
+    case 'ingest-lag':
+      return `${body.detail ?? ''}`;
+    case 'command-refused':
+      return `${body.command ?? ''}: ${body.reason ?? ''}`;
+    default:
+      return '';
+  }
+}

@@ -1,0 +1,223 @@
+// One channel in depth: the numbers, the progress towards the target, the live trace with the mean
+// and its uncertainty band and the warm-up cut, the autocorrelation function with tau_int and the
+// summation window, the Allan deviation with the averaging limit, the CUSUM sums, the estimators
+// side by side, the steady-state evidence and the channel's events. The numbers follow the live
+// link; the charts reload every two seconds while the view is open.
+
+import { h, setText, replaceChildren } from '../lib/dom.js';
+import { api } from '../lib/api.js';
+import { decimalsFor, formatValue, formatUncertainty, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber, describeEvent, SEVERITY, clockTime } from '../lib/format.js';
+import { traceChart, acfChart, allanChart, cusumChart } from '../lib/charts.js';
+
+const REFRESH_MS = 2000;
+
+export class ChannelView {
+  constructor(root, app) {
+    this.app = app;
+    this.name = null;
+    this.timer = null;
+    this.charts = [];
+    this.loading = false;
+    this.element = h('section', { className: 'view view-channel', 'aria-label': 'Channel' });
+    this.element.hidden = true;
+    root.appendChild(this.element);
+  }
+
+  open(name) {
+    if (this.name === name && !this.element.hidden) return;
+    this.close();
+    this.name = name;
+    this.element.hidden = false;
+    this.build(name);
+    this.refresh();
+    this.timer = setInterval(() => {
+      if (document.visibilityState === 'visible') this.refresh();
+    }, REFRESH_MS);
+  }
+
+  close() {
+    clearInterval(this.timer);
+    this.timer = null;
+    for (const chart of this.charts) chart.destroy();
+    this.charts = [];
+    this.name = null;
+    this.element.hidden = true;
+  }
+
+  build(name) {
+    const summary = this.app.state.channels.get(name);
+    const unit = summary?.unit ?? null;
+    const f = (key, className = 'num') => h('span', { className, dataset: { field: key } });
+    this.parts = {
+      badge: h('span', { className: 'badge', dataset: { field: 'state' } }),
+      unit: h('span', { className: 'unit', dataset: { field: 'unit' }, text: unit ? ` ${unit}` : '' }),
+      result: f('result', 'result'),
+      coverage: f('coverage', 'coverage'),
+      last: f('last'),
+      u: f('u'),
+      k: f('k'),
+      dof: f('dof'),
+      n: f('n'),
+      nEff: f('nEff'),
+      tau: f('tau'),
+      excluded: f('excluded'),
+      estimator: f('estimator'),
+      rate: f('rate'),
+      bar: h('span', { className: 'bar-fill' }),
+      progressText: f('progress', 'progress-text'),
+      tauNote: h('p', { className: 'chart-note' }),
+      allanNote: h('p', { className: 'chart-note' }),
+      traceNote: h('p', { className: 'chart-note' }),
+      cusumNote: h('p', { className: 'chart-note' }),
+      estimators: h('tbody'),
+      evidence: h('tbody'),
+      notes: h('ul', { className: 'notes' }),
+      events: h('ol', { className: 'channel-events' }),
+      error: h('p', { className: 'error', role: 'alert' }),
+    };
+    const p = this.parts;
+    this.progress = h('div', { className: 'bar', role: 'progressbar', 'aria-valuemin': '0', 'aria-valuemax': '100', 'aria-label': 'progress towards the target precision' }, p.bar);
+    const stat = (label, node, title) => h('div', { className: 'stat-card', title }, h('span', { className: 'label', text: label }), node);
+    const traceBox = h('div', { className: 'chart', id: 'chart-trace' });
+    const acfBox = h('div', { className: 'chart', id: 'chart-acf' });
+    const allanBox = h('div', { className: 'chart', id: 'chart-allan' });
+    const cusumBox = h('div', { className: 'chart', id: 'chart-cusum' });
+    replaceChildren(
+      this.element,
+      h('div', { className: 'view-head' }, h('a', { className: 'back', href: '#/', text: '← all channels' }), h('h1', { className: 'channel-title' }, h('span', { text: name }), p.unit), p.badge),
+      p.error,
+      h('div', { className: 'result-row' }, h('div', { className: 'result-box' }, h('span', { className: 'label', text: 'mean ± U' }), p.result, p.coverage), h('div', { className: 'tile-progress wide' }, this.progress, p.progressText)),
+      h(
+        'div',
+        { className: 'stat-grid' },
+        stat('last value', p.last),
+        stat('u (standard)', p.u, 'standard uncertainty of the mean'),
+        stat('k', p.k, 'coverage factor from the t-distribution'),
+        stat('ν_eff', p.dof, 'effective degrees of freedom'),
+        stat('n', p.n, 'samples in the averaging window'),
+        stat('n_eff', p.nEff, 'effective number of independent samples'),
+        stat('τ_int', p.tau, 'integrated autocorrelation time, in samples'),
+        stat('excluded', p.excluded, 'samples cut as warm-up or before a break'),
+        stat('estimator', p.estimator),
+        stat('rate', p.rate, 'samples per second'),
+      ),
+      h('div', { className: 'panel' }, h('h2', { text: 'Samples, mean and ±U band' }), traceBox, p.traceNote),
+      h(
+        'div',
+        { className: 'chart-row' },
+        h('div', { className: 'panel' }, h('h2', { text: 'Autocorrelation' }), acfBox, p.tauNote),
+        h('div', { className: 'panel' }, h('h2', { text: 'Allan deviation' }), allanBox, p.allanNote),
+      ),
+      h(
+        'div',
+        { className: 'chart-row' },
+        h('div', { className: 'panel' }, h('h2', { text: 'CUSUM on block means' }), cusumBox, p.cusumNote),
+        h('div', { className: 'panel' }, h('h2', { text: 'Events of this channel' }), p.events),
+      ),
+      h(
+        'div',
+        { className: 'chart-row' },
+        h('div', { className: 'panel' }, h('h2', { text: 'Estimators of the uncertainty' }), h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['estimator', 'τ_int', 'n_eff', 'u', 'ν', 'window', 'reliable'].map((t) => h('th', { text: t })))), p.estimators)),
+        h('div', { className: 'panel' }, h('h2', { text: 'Steady-state evidence' }), h('table', { className: 'table' }, p.evidence), p.notes),
+      ),
+    );
+    this.charts = [traceChart(traceBox), acfChart(acfBox), allanChart(allanBox), cusumChart(cusumBox)];
+    if (summary) this.updateSummary(summary);
+  }
+
+  /** Live numbers from the WebSocket summary. */
+  updateSummary(s) {
+    if (!this.name || s.name !== this.name) return;
+    const p = this.parts;
+    const state = stateOf(s.state);
+    setText(p.unit, s.unit ? ` ${s.unit}` : '');
+    p.badge.className = `badge ${state.className}`;
+    setText(p.badge, `${state.symbol} ${state.label}`);
+    p.badge.title = state.hint;
+    const decimals = decimalsFor(s.expandedUncertainty);
+    const unit = s.unit ? ` ${s.unit}` : '';
+    setText(p.result, s.mean === null ? '–' : s.expandedUncertainty === null ? `${formatValue(s.mean, null)}${unit}` : `${formatValue(s.mean, decimals)} ± ${formatUncertainty(s.expandedUncertainty)}${unit}`);
+    setText(p.coverage, s.coverageFactor === null ? 'no uncertainty yet' : `k = ${trimNumber(s.coverageFactor, 3)}, ${percent(s.confidence)} coverage`);
+    setText(p.last, s.last ? `${formatValue(s.last.value, decimals)}${unit}` : '–');
+    setText(p.u, s.standardUncertainty === null ? '–' : `${trimNumber(s.standardUncertainty, 2)}${unit}`);
+    setText(p.k, trimNumber(s.coverageFactor, 3));
+    setText(p.dof, trimNumber(s.dof, 3));
+    setText(p.n, formatCount(s.n));
+    setText(p.nEff, formatEffective(s.nEff));
+    setText(p.tau, trimNumber(s.tauInt, 3));
+    setText(p.excluded, formatCount(s.excluded));
+    const target = s.target;
+    let fraction = 0;
+    let text = 'no target set';
+    if (target?.reached) {
+      fraction = 1;
+      text = `target met (${target.on} ≤ ${trimNumber(target.bound, 2)}${unit})`;
+    } else if (target) {
+      fraction = Math.max(0, Math.min(1, target.progress ?? 0));
+      const goal = `${target.on} ≤ ${target.bound === null ? '–' : trimNumber(target.bound, 2)}${unit}`;
+      text = target.secondsToTarget !== null && target.secondsToTarget !== undefined ? `${Math.round(fraction * 100)} % towards ${goal} · ≈ ${formatDuration(target.secondsToTarget)} to go at the current rate` : `${Math.round(fraction * 100)} % towards ${goal}${target.note ? ` · ${target.note}` : ''}`;
+    }
+    p.bar.style.width = `${(fraction * 100).toFixed(1)}%`;
+    this.progress.className = `bar${target?.reached ? ' done' : ''}`;
+    this.progress.setAttribute('aria-valuenow', String(Math.round(fraction * 100)));
+    setText(p.progressText, text);
+  }
+
+  async refresh() {
+    if (!this.name || this.loading) return;
+    const name = this.name;
+    this.loading = true;
+    try {
+      const detail = await api.channel(name);
+      if (this.name !== name) return;
+      setText(this.parts.error, '');
+      this.render(detail);
+    } catch (error) {
+      if (this.name === name) setText(this.parts.error, `Could not load ${name}: ${error.message}`);
+    } finally {
+      this.loading = false;
+    }
+  }
+
+  render(d) {
+    const p = this.parts;
+    for (const chart of this.charts) chart.update(d);
+    setText(p.estimator, d.estimator);
+    setText(p.rate, d.rate === null ? '–' : `${trimNumber(d.rate, 3)} /s`);
+    const used = d.estimators?.[d.estimator];
+    setText(p.tauNote, d.tauInt === null ? 'No autocorrelation yet (too few samples).' : `τ_int = ${trimNumber(d.tauInt, 3)} samples by ${d.estimator}${used ? `, summed over lags 1…${used.window}` : ''}; n_eff = n / τ_int = ${formatEffective(d.nEff)}.`);
+    setText(p.allanNote, d.averagingLimit ? `Averaging limit at m = ${d.averagingLimit.m}${d.averagingLimit.tauSeconds ? ` (${formatDuration(d.averagingLimit.tauSeconds)})` : ''}: beyond it drift dominates and longer averaging does not help.` : 'No averaging limit in this window: the Allan deviation still falls with averaging time.');
+    const trace = d.trace;
+    const before = trace.windowStartIndex - trace.firstIndex;
+    setText(p.traceNote, `${formatCount(trace.values.length)} most recent samples${before > 0 ? `; the first ${formatCount(before)} (shaded) are outside the averaging window` : ''}. Band: mean ± U over the window.`);
+    setText(p.cusumNote, d.cusumTrace ? `Blocks of ${d.cusumTrace.blockSize} samples; a sum crossing h = ${trimNumber(d.cusumTrace.decisionInterval, 3)} signals a shift.` : 'The CUSUM runs once the channel is steady.');
+    replaceChildren(
+      p.estimators,
+      Object.entries(d.estimators ?? {}).map(([name, e]) =>
+        h('tr', { className: name === d.estimator ? 'used' : '' }, h('td', { text: name === d.estimator ? `${name} (used)` : name }), h('td', { text: trimNumber(e.tauInt, 3) }), h('td', { text: formatEffective(e.nEff) }), h('td', { text: trimNumber(e.standardUncertainty, 2) }), h('td', { text: trimNumber(e.dof, 3) }), h('td', { text: String(e.window) }), h('td', { text: e.reliable ? 'yes' : 'no', title: e.note ?? '' })),
+      ),
+    );
+    const t = d.stationarity?.tests;
+    const rows = [
+      ['steady from sample', d.stationarity?.warmupEnd ?? 'not steady'],
+      ['Heidelberger-Welch', t?.heidelbergerWelch ? `${t.heidelbergerWelch.passed ? 'passed' : 'failed'} (p = ${trimNumber(t.heidelbergerWelch.pValue, 3)})` : '–'],
+      ['Geweke z', t?.geweke ? trimNumber(t.geweke.statistic, 3) : '–'],
+      ['KPSS (block means)', t?.kpss ? `${trimNumber(t.kpss.statistic, 3)} (${t.kpss.passed ? 'not rejected' : 'rejected'} at 5 %)` : '–'],
+      ['MSER truncation', t?.mser ? `${t.mser.truncation} samples` : '–'],
+      ['Cao-Rhinehart ratio', t?.caoRhinehart?.statistic !== null && t?.caoRhinehart ? `${trimNumber(t.caoRhinehart.statistic, 3)} (critical ${trimNumber(t.caoRhinehart.critical, 3)})` : '–'],
+      ['last break', d.stationarity?.lastBreak ? `${d.stationarity.lastBreak.cause} at sample ${d.stationarity.lastBreak.changePoint}` : 'none'],
+    ];
+    replaceChildren(p.evidence, rows.map(([k, v]) => h('tr', {}, h('th', { text: k }), h('td', { text: String(v) }))));
+    replaceChildren(p.notes, (d.notes ?? []).map((note) => h('li', { text: note })));
+    const events = (d.storedEvents ?? []).slice().reverse();
+    replaceChildren(
+      p.events,
+      events.length === 0
+        ? h('li', { className: 'muted', text: 'No events yet.' })
+        : events.map((event) => {
+            const info = describeEvent(event);
+            return h('li', { className: `sev-${info.severity}` }, h('span', { className: 'time', text: clockTime(event.timeMs) }), h('span', { className: 'sev', text: `${SEVERITY[info.severity].symbol} ${info.title}` }), info.detail ? h('span', { className: 'detail', text: info.detail }) : null);
+          }),
+    );
+  }
+}

@@ -1,0 +1,140 @@
+// The overview: one tile per channel, large enough to read across the rig floor. A tile shows the
+// latest value, the mean with its expanded uncertainty (with k and the coverage probability),
+// n, n_eff and tau_int, the state in words with a symbol and a colour, and a bar towards the
+// target precision with the time it still needs at the current rate. Tiles are built once and
+// updated in place.
+
+import { h, setText, breakable } from '../lib/dom.js';
+import { decimalsFor, formatValue, formatUncertainty, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber } from '../lib/format.js';
+
+export class OverviewView {
+  constructor(root, app) {
+    this.app = app;
+    this.tiles = new Map();
+    this.grid = h('div', { className: 'tiles', id: 'tiles', role: 'list' });
+    this.empty = h('p', { className: 'empty', text: 'Waiting for the first samples… (channels appear as soon as the daemon receives data)' });
+    this.summary = h('p', { className: 'overview-summary', 'aria-live': 'polite' });
+    this.element = h('section', { className: 'view view-overview', 'aria-label': 'All channels' }, h('div', { className: 'view-head' }, h('h1', { text: 'Channels' }), this.summary), this.empty, this.grid);
+    root.appendChild(this.element);
+  }
+
+  show(visible) {
+    this.element.hidden = !visible;
+  }
+
+  /** Updates the given channels (all when names is omitted). */
+  update(names) {
+    const channels = this.app.state.channels;
+    const list = names ?? [...channels.keys()];
+    let added = false;
+    for (const name of list) {
+      const summary = channels.get(name);
+      if (!summary) continue;
+      let tile = this.tiles.get(name);
+      if (!tile) {
+        tile = this.createTile(name);
+        this.tiles.set(name, tile);
+        added = true;
+      }
+      this.fill(tile, summary);
+    }
+    if (added) {
+      const sorted = [...this.tiles.keys()].sort((a, b) => a.localeCompare(b));
+      for (const name of sorted) this.grid.appendChild(this.tiles.get(name).element);
+    }
+    this.empty.hidden = this.tiles.size > 0;
+    this.updateSummary();
+  }
+
+  updateSummary() {
+    const counts = {};
+    for (const summary of this.app.state.channels.values()) counts[summary.state] = (counts[summary.state] ?? 0) + 1;
+    const parts = ['precise', 'steady', 'warming', 'unsteady', 'stale'].filter((s) => counts[s]).map((s) => `${counts[s]} ${stateOf(s).label.toLowerCase()}`);
+    setText(this.summary, parts.length ? parts.join(' · ') : '');
+  }
+
+  createTile(name) {
+    const field = (key, className) => h('span', { className, dataset: { field: key } });
+    const parts = {
+      badge: h('span', { className: 'badge', dataset: { field: 'state' } }),
+      last: field('last', 'big-value'),
+      unit: field('unit', 'unit'),
+      mean: field('mean', 'mean'),
+      coverage: field('coverage', 'coverage'),
+      n: field('n', 'num'),
+      nEff: field('nEff', 'num'),
+      tau: field('tau', 'num'),
+      bar: h('span', { className: 'bar-fill' }),
+      progressText: field('progress', 'progress-text'),
+      meanLabel: h('span', { className: 'label', text: 'mean' }),
+    };
+    const progress = h('div', { className: 'bar', role: 'progressbar', 'aria-valuemin': '0', 'aria-valuemax': '100', 'aria-label': 'progress towards the target precision' }, parts.bar);
+    parts.progress = progress;
+    const element = h(
+      'a',
+      { className: 'tile', href: `#/channel/${encodeURIComponent(name)}`, role: 'listitem', dataset: { channel: name } },
+      h('div', { className: 'tile-head' }, h('span', { className: 'channel-name' }, breakable(name)), parts.badge),
+      h('div', { className: 'tile-value' }, parts.last, parts.unit),
+      h('div', { className: 'tile-mean' }, parts.meanLabel, parts.mean, parts.coverage),
+      h(
+        'div',
+        { className: 'tile-stats' },
+        h('span', { className: 'stat' }, h('span', { className: 'label', text: 'n' }), parts.n),
+        h('span', { className: 'stat' }, h('span', { className: 'label', text: 'n_eff' }), parts.nEff),
+        h('span', { className: 'stat' }, h('span', { className: 'label', text: 'τ_int' }), parts.tau),
+      ),
+      h('div', { className: 'tile-progress' }, progress, parts.progressText),
+    );
+    return { element, parts, state: null };
+  }
+
+  fill(tile, s) {
+    const p = tile.parts;
+    const state = stateOf(s.state);
+    if (tile.state !== s.state) {
+      tile.element.className = `tile ${state.className}`;
+      p.badge.className = `badge ${state.className}`;
+      setText(p.badge, `${state.symbol} ${state.label}`);
+      p.badge.title = state.hint;
+      tile.state = s.state;
+    }
+    // Before steady state (or after a break) the mean is provisional: it is not a result yet.
+    const provisional = s.state === 'warming' || s.state === 'unsteady';
+    p.mean.parentElement.classList.toggle('provisional', provisional);
+    setText(p.meanLabel, provisional ? 'mean so far' : 'mean');
+    const decimals = decimalsFor(s.expandedUncertainty);
+    setText(p.last, s.last ? formatValue(s.last.value, decimals) : '–');
+    setText(p.unit, s.unit ?? '');
+    if (s.mean === null || s.mean === undefined) {
+      setText(p.mean, '–');
+      setText(p.coverage, '');
+    } else if (s.expandedUncertainty === null) {
+      setText(p.mean, `${formatValue(s.mean, null)}${s.unit ? ` ${s.unit}` : ''}`);
+      setText(p.coverage, 'no uncertainty yet');
+    } else {
+      setText(p.mean, `${formatValue(s.mean, decimals)} ± ${formatUncertainty(s.expandedUncertainty)}${s.unit ? ` ${s.unit}` : ''}`);
+      setText(p.coverage, `k = ${trimNumber(s.coverageFactor, 3)} · ${percent(s.confidence)}`);
+    }
+    setText(p.n, formatCount(s.n));
+    setText(p.nEff, formatEffective(s.nEff));
+    setText(p.tau, trimNumber(s.tauInt, 3));
+    const target = s.target;
+    let fraction = 0;
+    let text;
+    if (!target) text = 'no target set';
+    else if (target.reached) {
+      fraction = 1;
+      text = 'target met';
+    } else {
+      fraction = Math.max(0, Math.min(1, target.progress ?? 0));
+      if (target.secondsToTarget !== null && target.secondsToTarget !== undefined) text = `≈ ${formatDuration(target.secondsToTarget)} to target`;
+      else if (target.note) text = s.state === 'warming' ? 'waiting for steady state' : 'out of reach in this window';
+      else text = 'estimating…';
+    }
+    if (target?.note) p.progressText.title = target.note;
+    p.bar.style.width = `${(fraction * 100).toFixed(1)}%`;
+    p.progress.setAttribute('aria-valuenow', String(Math.round(fraction * 100)));
+    p.progress.className = `bar${target?.reached ? ' done' : ''}`;
+    setText(p.progressText, target && !target.reached ? `${Math.round(fraction * 100)} % · ${text}` : text);
+  }
+}

@@ -1,0 +1,229 @@
+// Test points: start one over chosen channels, follow its verdict, stop it, add notes, and take
+// its record (CSV, JSON) and the printable report. Writes go through the API with the write key
+// when the daemon asks for one; a refusal is shown in words.
+
+import { h, setText, replaceChildren } from '../lib/dom.js';
+import { api, recordUrl, reportUrl, writeKey } from '../lib/api.js';
+import { POINT_STATES, stateOf, dateTime, formatValue, formatUncertainty, decimalsFor, trimNumber, formatCount, percent } from '../lib/format.js';
+
+export class TestPointsView {
+  constructor(root, app) {
+    this.app = app;
+    this.details = new Map();
+    this.cards = new Map();
+    this.nameInput = h('input', { type: 'text', id: 'tp-name', maxlength: '200', placeholder: 'e.g. set point 3, 40 °C inlet', autocomplete: 'off' });
+    this.channelList = h('div', { className: 'checklist', id: 'tp-channels' });
+    this.derivedList = h('div', { className: 'checklist', id: 'tp-derived' });
+    this.message = h('p', { className: 'form-message', role: 'status', id: 'tp-message' });
+    this.lock = h('p', { className: 'lock-note', hidden: true });
+    this.startButton = h('button', { type: 'submit', className: 'primary', id: 'tp-start', text: 'Start test point' });
+    const form = h(
+      'form',
+      { className: 'panel start-form', id: 'tp-form', on: { submit: (e) => this.start(e) } },
+      h('h2', { text: 'Start a test point' }),
+      h('p', { className: 'muted', text: 'Starting restarts the averaging window of each chosen channel; the test point is ready when all of them are steady at their target precision.' }),
+      h('label', { for: 'tp-name', text: 'Name' }),
+      this.nameInput,
+      h('div', { className: 'form-row' }, h('span', { className: 'label', text: 'Channels' }), h('button', { type: 'button', className: 'link', text: 'all', on: { click: () => this.selectAll(true) } }), h('button', { type: 'button', className: 'link', text: 'none', on: { click: () => this.selectAll(false) } })),
+      this.channelList,
+      h('div', { className: 'derived-block' }, h('span', { className: 'label', text: 'Derived results' }), this.derivedList),
+      this.lock,
+      h('div', { className: 'form-row' }, this.startButton),
+      this.message,
+    );
+    this.list = h('div', { className: 'tp-list', id: 'tp-list' });
+    this.element = h('section', { className: 'view view-test-points', 'aria-label': 'Test points' }, h('div', { className: 'view-head' }, h('h1', { text: 'Test points' })), h('div', { className: 'tp-layout' }, form, h('div', { className: 'tp-column' }, this.list)));
+    this.element.hidden = true;
+    root.appendChild(this.element);
+  }
+
+  show(visible) {
+    this.element.hidden = !visible;
+    if (visible) {
+      this.updateChannels();
+      this.update();
+    }
+  }
+
+  updateLock() {
+    const needs = this.app.state.server?.writesNeedToken;
+    this.lock.hidden = !(needs && !writeKey());
+    setText(this.lock, 'This daemon needs the write key for changes: set it with “Write key” at the top.');
+  }
+
+  updateChannels() {
+    const names = [...this.app.state.channels.keys()].sort((a, b) => a.localeCompare(b));
+    const existing = new Set([...this.channelList.querySelectorAll('input')].map((i) => i.value));
+    if (names.length !== existing.size || names.some((n) => !existing.has(n))) {
+      const checked = new Set([...this.channelList.querySelectorAll('input:checked')].map((i) => i.value));
+      replaceChildren(
+        this.channelList,
+        names.map((name) => h('label', { className: 'check' }, h('input', { type: 'checkbox', value: name, checked: checked.has(name) }), h('span', { text: name }))),
+      );
+    }
+    const derived = this.app.state.server?.derived ?? [];
+    if (this.derivedList.childElementCount !== derived.length) {
+      replaceChildren(this.derivedList, derived.map((name) => h('label', { className: 'check' }, h('input', { type: 'checkbox', value: name }), h('span', { text: name }))));
+    }
+    this.derivedList.parentElement.hidden = derived.length === 0;
+    this.updateLock();
+  }
+
+  selectAll(on) {
+    for (const input of this.channelList.querySelectorAll('input')) input.checked = on;
+  }
+
+  async start(event) {
+    event.preventDefault();
+    const channels = [...this.channelList.querySelectorAll('input:checked')].map((i) => i.value);
+    const derived = [...this.derivedList.querySelectorAll('input:checked')].map((i) => i.value);
+    const name = this.nameInput.value.trim();
+    if (channels.length === 0 && derived.length === 0) {
+      this.say('Choose at least one channel.', true);
+      return;
+    }
+    this.startButton.disabled = true;
+    try {
+      const { testPoint } = await api.startTestPoint({ channels, ...(derived.length ? { derived } : {}), ...(name ? { name } : {}) });
+      this.say(`Started ${testPoint.name}.`, false);
+      this.app.upsertTestPoint(testPoint);
+      this.nameInput.value = '';
+    } catch (error) {
+      this.refused(error);
+    } finally {
+      this.startButton.disabled = false;
+    }
+  }
+
+  say(text, bad) {
+    this.message.className = `form-message${bad ? ' bad' : ' good'}`;
+    setText(this.message, text);
+  }
+
+  refused(error, where = this.message) {
+    const text = error.status === 401 ? `Refused: ${error.message}. Set the write key (top right) and try again.` : `Refused: ${error.message}`;
+    where.className = `form-message bad`;
+    setText(where, text);
+    if (error.status === 401) this.app.askWriteKey();
+  }
+
+  /** Redraws the list from app.state.testPoints (newest first). */
+  update() {
+    this.updateLock();
+    const points = [...this.app.state.testPoints].sort((a, b) => b.createdMs - a.createdMs);
+    for (const point of points) {
+      let card = this.cards.get(point.id);
+      if (!card) {
+        card = this.createCard(point);
+        this.cards.set(point.id, card);
+      }
+      this.fill(card, point);
+    }
+    replaceChildren(this.list, points.length ? points.map((p) => this.cards.get(p.id).element) : h('p', { className: 'empty', text: 'No test point yet.' }));
+  }
+
+  createCard(point) {
+    const parts = {
+      title: h('h3', { className: 'tp-title' }),
+      badge: h('span', { className: 'badge' }),
+      meta: h('p', { className: 'muted tp-meta' }),
+      verdict: h('ul', { className: 'verdict' }),
+      actions: h('div', { className: 'tp-actions' }),
+      records: h('div', { className: 'records' }),
+      notes: h('ul', { className: 'tp-notes' }),
+      message: h('p', { className: 'form-message', role: 'status' }),
+      noteInput: h('input', { type: 'text', maxlength: '2000', placeholder: 'note for the record', 'aria-label': 'note' }),
+    };
+    const stop = h('button', { type: 'button', className: 'danger', dataset: { action: 'stop' }, text: 'Stop', on: { click: () => this.stop(point.id, parts) } });
+    const noteButton = h('button', { type: 'button', dataset: { action: 'note' }, text: 'Add note', on: { click: () => this.note(point.id, parts) } });
+    const report = h('a', { href: reportUrl(point.id), target: '_blank', rel: 'noopener', className: 'button', dataset: { export: 'report' }, text: 'Report' });
+    const csv = h('a', { href: recordUrl(point.id, 'csv'), download: `${point.id}.csv`, className: 'button', dataset: { export: 'csv' }, text: 'CSV' });
+    const json = h('a', { href: recordUrl(point.id, 'json'), download: `${point.id}.json`, className: 'button', dataset: { export: 'json' }, text: 'JSON' });
+    parts.stop = stop;
+    parts.exports = [csv, json];
+    replaceChildren(parts.actions, stop, report, csv, json, h('span', { className: 'note-form' }, parts.noteInput, noteButton));
+    const element = h('article', { className: 'panel tp-card', dataset: { testPoint: point.id } }, h('div', { className: 'tp-head' }, parts.title, parts.badge), parts.meta, parts.verdict, parts.actions, parts.message, parts.records, parts.notes);
+    return { element, parts, state: null, recordsFor: null };
+  }
+
+  fill(card, point) {
+    const p = card.parts;
+    const state = POINT_STATES[point.state] ?? POINT_STATES.running;
+    setText(p.title, point.name);
+    p.badge.className = `badge ${state.className}`;
+    setText(p.badge, `${state.symbol} ${state.label}`);
+    card.element.dataset.state = point.state;
+    setText(p.meta, `${point.id} · started ${dateTime(point.createdMs)}${point.readyMs ? ` · ready ${dateTime(point.readyMs)}` : ''}${point.stoppedMs ? ` · stopped ${dateTime(point.stoppedMs)}` : ''}`);
+    replaceChildren(
+      p.verdict,
+      (point.verdict ?? []).map((v) => {
+        const s = stateOf(v.state);
+        return h('li', { className: `chip ${s.className}` }, h('span', { text: `${s.symbol} ` }), h('span', { className: 'chip-name', text: v.channel }), h('span', { text: ` ${s.label.toLowerCase()}` }));
+      }),
+    );
+    p.stop.hidden = point.state === 'stopped';
+    const hasRecord = point.state !== 'running' || point.readyMs !== null;
+    for (const link of p.exports) link.hidden = !hasRecord;
+    replaceChildren(p.notes, (point.annotations ?? []).map((a) => h('li', {}, h('span', { className: 'time', text: dateTime(a.timeMs) }), h('span', { className: 'note-text', text: a.text }))));
+    const key = `${point.state}:${point.readyMs}:${point.stoppedMs}`;
+    if (hasRecord && card.recordsFor !== key) {
+      card.recordsFor = key;
+      this.loadRecords(point.id, p.records);
+    }
+  }
+
+  async loadRecords(id, container) {
+    try {
+      const { records } = await api.testPoint(id);
+      const latest = records.at(-1)?.body;
+      if (!latest) return;
+      replaceChildren(
+        container,
+        h('h4', { text: `Record (${latest.kind === 'ready' ? 'when ready' : 'at stop'}, ${latest.createdAt})` }),
+        h(
+          'table',
+          { className: 'table record-table' },
+          h('thead', {}, h('tr', {}, ...['channel', 'mean ± U', 'k', 'ν_eff', 'n', 'state'].map((t) => h('th', { text: t })))),
+          h(
+            'tbody',
+            {},
+            latest.entries.map((e) => {
+              const d = decimalsFor(e.expandedUncertainty);
+              const value = e.mean === null ? '–' : e.expandedUncertainty === null ? formatValue(e.mean, null) : `${formatValue(e.mean, d)} ± ${formatUncertainty(e.expandedUncertainty)}`;
+              return h('tr', { title: e.statement }, h('td', { text: e.channel }), h('td', { text: `${value}${e.unit ? ` ${e.unit}` : ''}` }), h('td', { text: trimNumber(e.coverageFactor, 3) }), h('td', { text: trimNumber(e.dof, 3) }), h('td', { text: formatCount(e.n) }), h('td', { text: stateOf(e.state).label.toLowerCase() }));
+            }),
+          ),
+        ),
+        h('p', { className: 'muted small', text: `Coverage probability ${latest.entries[0] ? percent(latest.entries[0].confidence) : '–'}; hover a row for the full statement.` }),
+      );
+    } catch (error) {
+      setText(container, `Could not load the record: ${error.message}`);
+    }
+  }
+
+  async stop(id, parts) {
+    parts.stop.disabled = true;
+    try {
+      const { testPoint } = await api.stopTestPoint(id);
+      this.app.upsertTestPoint(testPoint);
+      setText(parts.message, '');
+    } catch (error) {
+      this.refused(error, parts.message);
+    } finally {
+      parts.stop.disabled = false;
+    }
+  }
+
+  async note(id, parts) {
+    const text = parts.noteInput.value.trim();
+    if (!text) return;
+    try {
+      const { testPoint } = await api.annotate(id, text);
+      parts.noteInput.value = '';
+      this.app.upsertTestPoint(testPoint);
+      setText(parts.message, '');
+    } catch (error) {
+      this.refused(error, parts.message);
+    }
+  }
+}

@@ -1,0 +1,78 @@
+import type { Daemon } from '../daemon/daemon.js';
+import type { RegisteredChannel } from '../engine/channel-registry.js';
+
+/**
+ * The recent samples of a channel for its chart, with the indices that mark where the averaging
+ * window starts and where the warm-up was cut.
+ *
+ * The window holds only the samples being averaged: the warm-up (or the samples before a break)
+ * is dropped from it. To show the cut, a trace that asks for more samples than the window holds
+ * is completed from the store with the samples just before the window (the store keeps every
+ * accepted sample until retention removes it). So a chart shows the warm-up and the cut while a
+ * test point is young, and only the window once it is long.
+ *
+ * Indices are the channel's 0-based sample indices (the `at` of its events).
+ *   originIndex   first sample of the current window run (the test point's start): for a growing
+ *                 window the excluded samples lie between it and windowStartIndex
+ *   windowStartIndex  first sample averaged now (the warm-up cut, or the change point of a break)
+ * Cost: O(count) from the window; reading the store scans the channel's chunk keys (SQLite), so it
+ * happens only when the window holds fewer than `count` samples.
+ */
+export interface ChannelTrace {
+  firstIndex: number;
+  /** Seconds since the epoch (null when the sample carried no time and none was known). */
+  times: (number | null)[];
+  values: number[];
+  windowStartIndex: number;
+  originIndex: number;
+  /** How many of the leading samples came from the store (before the window). */
+  beforeWindow: number;
+}
+
+export function channelTrace(daemon: Daemon, channel: RegisteredChannel, count: number): ChannelTrace {
+  const pipeline = channel.pipeline;
+  const window = pipeline.recentTrace(count);
+  const windowStartIndex = window.values.length > 0 ? window.firstIndex : pipeline.totalReceived;
+  const excluded = pipeline.options.window.kind === 'growing' ? pipeline.snapshot().excluded : 0;
+  const originIndex = Math.max(0, windowStartIndex - excluded);
+  const missing = count - window.values.length;
+  const times: (number | null)[] = [];
+  const values: number[] = [];
+  let firstIndex = window.firstIndex;
+  if (missing > 0 && windowStartIndex > 0 && channel.id >= 0 && daemon.store) {
+    const from = Math.max(0, windowStartIndex - missing);
+    firstIndex = from;
+    let expected = from;
+    for (const chunk of daemon.store.samplesFrom(channel.id, from)) {
+      if (chunk.firstSeq >= windowStartIndex) break;
+      for (let i = 0; i < chunk.values.length; i++) {
+        const seq = chunk.firstSeq + i;
+        if (seq < from) continue;
+        if (seq >= windowStartIndex) break;
+        // Retention may have removed samples: keep the indices honest by starting after the gap.
+        if (seq !== expected) {
+          times.length = 0;
+          values.length = 0;
+          firstIndex = seq;
+        }
+        const ms = chunk.times[i] as number;
+        times.push(Number.isFinite(ms) ? ms / 1000 : null);
+        values.push(chunk.values[i] as number);
+        expected = seq + 1;
+      }
+    }
+    // Samples not yet committed, or pruned: the trace then starts at the window.
+    if (expected !== windowStartIndex) {
+      times.length = 0;
+      values.length = 0;
+      firstIndex = window.firstIndex;
+    }
+  }
+  const beforeWindow = values.length;
+  for (let i = 0; i < window.values.length; i++) {
+    times.push(window.times[i] ?? null);
+    values.push(window.values[i] as number);
+  }
+  if (beforeWindow === 0) firstIndex = window.values.length > 0 ? window.firstIndex : windowStartIndex;
+  return { firstIndex, times, values, windowStartIndex, originIndex, beforeWindow };
+}

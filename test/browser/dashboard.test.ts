@@ -1,0 +1,409 @@
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import mqtt, { type MqttClient } from 'mqtt';
+import { chromium, type BrowserContext, type Locator, type Page } from 'playwright-core';
+import { startDemo, type DemoHandle } from '../../src/cli/demo.js';
+import { startServer, type RunningServer } from '../../src/server/server.js';
+import { ROOT } from '../helpers/reference.js';
+
+// The dashboard in a real browser (Debian's Chromium through playwright-core, never a downloaded
+// browser) against the demo: the embedded broker, the simulated bench HX-7 at 40 times real time,
+// the daemon and the page. Screenshots and figures go to test-output/ (not committed).
+
+const CHROMIUM = '/usr/bin/chromium';
+const available = existsSync(CHROMIUM);
+if (!available) console.warn(`browser tests skipped: no Chromium at ${CHROMIUM} (.ci/run installs Debian's chromium package)`);
+
+const OUTPUT = join(ROOT, 'test-output');
+const SPEED = 40;
+const TOKEN = 'browser-test-token-4f7c2a9e';
+const FLOW = ['hx7.glycol_flow_kg_s', 'hx7.water_flow_kg_s'];
+const DEMO_CHANNELS = ['hx7.ambient_degC', 'hx7.glycol_flow_kg_s', 'hx7.glycol_in_degC', 'hx7.glycol_out_degC', 'hx7.shell_dp_kPa', 'hx7.water_flow_kg_s'];
+
+let demo: DemoHandle;
+let context: BrowserContext;
+let page: Page;
+let base = '';
+let userDir = '';
+let probe: MqttClient;
+const figures: Record<string, unknown> = {};
+/** Anything a payload could make the page do: dialogs, page errors. */
+const alarms: string[] = [];
+const extraServers: RunningServer[] = [];
+
+function quantile(sorted: number[], q: number): number {
+  if (sorted.length === 0) return Number.NaN;
+  const position = (sorted.length - 1) * q;
+  const low = Math.floor(position);
+  const high = Math.ceil(position);
+  return (sorted[low] as number) + ((sorted[high] as number) - (sorted[low] as number)) * (position - low);
+}
+
+async function api<T>(path: string, init?: RequestInit): Promise<{ status: number; body: T; text: string }> {
+  const response = await fetch(new URL(path, base), init);
+  const text = await response.text();
+  let body: unknown = null;
+  try {
+    body = JSON.parse(text);
+  } catch {
+    body = null;
+  }
+  return { status: response.status, body: body as T, text };
+}
+
+function publish(topic: string, payload: string): Promise<void> {
+  return new Promise((resolve, reject) => probe.publish(topic, payload, { qos: 1 }, (error) => (error ? reject(error) : resolve())));
+}
+
+/** A locator's text now (null when it is not there): for polling, never waits long. */
+async function text(locator: Locator): Promise<string | null> {
+  return locator.first().textContent({ timeout: 250 }).catch(() => null);
+}
+
+/** Waits until a locator's text equals (string) or matches (RegExp) what is expected. */
+async function untilText(locator: Locator, expected: string | RegExp, timeout = 10_000): Promise<void> {
+  if (typeof expected === 'string') await expect.poll(() => text(locator), { timeout, interval: 50 }).toBe(expected);
+  else await expect.poll(() => text(locator), { timeout, interval: 50 }).toMatch(expected);
+}
+
+async function untilVisible(locator: Locator, visible = true, timeout = 10_000): Promise<void> {
+  await expect.poll(() => locator.first().isVisible(), { timeout, interval: 50 }).toBe(visible);
+}
+
+interface LoadFigures {
+  bytesTransferred: number;
+  bytesDecoded: number;
+  requests: number;
+  domContentLoadedMs: number;
+  loadMs: number;
+  firstChannelDataMs: number | null;
+  allTilesVisibleMs: number;
+}
+
+/** Loads the page and waits for every demo tile; sizes and times from the browser's own timing entries. */
+async function measureLoad(target: Page): Promise<LoadFigures> {
+  const started = Date.now();
+  await target.goto(base);
+  await target.locator('.tile').nth(DEMO_CHANNELS.length - 1).waitFor();
+  const wallMs = Date.now() - started;
+  // Browser-side code as text: this project's type check has no DOM library.
+  const timing = await target.evaluate<{ documentBytes: number; resourceBytes: number; decodedBytes: number; requests: number; domContentLoadedMs: number; loadMs: number; firstDataMs: number | null }>(`(() => {
+    const navigation = performance.getEntriesByType('navigation')[0];
+    const resources = performance.getEntriesByType('resource');
+    const firstData = performance.getEntriesByName('plateau:first-data')[0];
+    return {
+      documentBytes: navigation.transferSize,
+      resourceBytes: resources.reduce((sum, r) => sum + r.transferSize, 0),
+      decodedBytes: navigation.decodedBodySize + resources.reduce((sum, r) => sum + r.decodedBodySize, 0),
+      requests: resources.length + 1,
+      domContentLoadedMs: navigation.domContentLoadedEventEnd,
+      loadMs: navigation.loadEventEnd,
+      firstDataMs: firstData ? firstData.startTime : null,
+    };
+  })()`);
+  return {
+    bytesTransferred: timing.documentBytes + timing.resourceBytes,
+    bytesDecoded: timing.decodedBytes,
+    requests: timing.requests,
+    domContentLoadedMs: Math.round(timing.domContentLoadedMs),
+    loadMs: Math.round(timing.loadMs),
+    firstChannelDataMs: timing.firstDataMs === null ? null : Math.round(timing.firstDataMs),
+    allTilesVisibleMs: wallMs,
+  };
+}
+
+function watchPage(target: Page): void {
+  target.on('dialog', (dialog) => {
+    alarms.push(`dialog: ${dialog.message()}`);
+    void dialog.dismiss();
+  });
+  target.on('pageerror', (error) => alarms.push(`page error: ${error.message}`));
+}
+
+describe.skipIf(!available)('dashboard in Chromium', () => {
+  beforeAll(async () => {
+    mkdirSync(OUTPUT, { recursive: true });
+    demo = await startDemo({ speed: SPEED, brokerPort: 0, httpPort: 0, logLevel: 'silent' });
+    base = demo.server.url;
+    probe = mqtt.connect(demo.broker.url, { clientId: `browser-test-probe-${process.pid}` });
+    await new Promise<void>((resolve, reject) => {
+      probe.once('connect', () => resolve());
+      probe.once('error', reject);
+    });
+    userDir = mkdtempSync(join(tmpdir(), 'plateau-chromium-'));
+    context = await chromium.launchPersistentContext(userDir, {
+      executablePath: CHROMIUM,
+      headless: true,
+      args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-background-networking'],
+      viewport: { width: 1440, height: 960 },
+      acceptDownloads: true,
+    });
+    page = context.pages()[0] ?? (await context.newPage());
+    watchPage(page);
+  });
+
+  afterAll(async () => {
+    writeFileSync(join(OUTPUT, 'dashboard-figures.json'), `${JSON.stringify(figures, null, 2)}\n`);
+    console.log(`dashboard figures: ${JSON.stringify(figures)}`);
+    await context?.close();
+    await new Promise<void>((resolve) => (probe ? probe.end(false, {}, () => resolve()) : resolve()));
+    for (const server of extraServers) await server.close().catch(() => undefined);
+    await demo?.stop().catch(() => undefined);
+    if (userDir) rmSync(userDir, { recursive: true, force: true });
+  });
+
+  it('first load over loopback: every asset from the daemon, size and time measured', async () => {
+    const requested: string[] = [];
+    page.on('request', (request) => requested.push(request.url()));
+    const cold = await measureLoad(page);
+    const origin = new URL(base).origin;
+    const foreign = requested.filter((url) => !url.startsWith(origin) && !url.startsWith('data:'));
+    expect(foreign).toEqual([]);
+    expect(requested.some((url) => url.includes('/vendor/uPlot.iife.min.js'))).toBe(true);
+    // Again in a new tab of the running browser with the cache disabled: the page's own cost
+    // without the browser's first start.
+    const again = await context.newPage();
+    const cdp = await context.newCDPSession(again);
+    await cdp.send('Network.enable');
+    await cdp.send('Network.setCacheDisabled', { cacheDisabled: true });
+    const repeat = await measureLoad(again);
+    await again.close();
+    figures.firstLoad = { coldProfile: cold, repeatCacheDisabled: repeat, during: `demo at ${SPEED}x real time (about 2300 MQTT messages/s into the same process)` };
+    expect(cold.bytesTransferred).toBeGreaterThan(10_000);
+    expect(repeat.bytesTransferred).toBeGreaterThan(10_000);
+  });
+
+  it("the demo's channels appear and their numbers change live", async () => {
+    await expect.poll(async () => (await page.locator('.tile .channel-name').allTextContents()).sort(), { timeout: 10_000 }).toEqual(DEMO_CHANNELS);
+    const n = page.locator('.tile[data-channel="hx7.water_flow_kg_s"] [data-field="n"]');
+    const last = page.locator('.tile[data-channel="hx7.glycol_in_degC"] [data-field="last"]');
+    const firstN = await n.textContent();
+    const firstLast = await last.textContent();
+    await expect.poll(() => text(n), { timeout: 5000 }).not.toBe(firstN);
+    await expect.poll(() => text(last), { timeout: 5000 }).not.toBe(firstLast);
+    // Every tile states its state in words.
+    for (const badge of await page.locator('.tile [data-field="state"]').allTextContents()) expect(badge).toMatch(/WARMING UP|STEADY|AT TARGET|NOT STEADY|NO DATA/);
+    await untilText(page.locator('#connection'), '● LIVE');
+    // Let the flow channels reach their target so the screenshot shows every state of a run.
+    await expect.poll(async () => page.locator('.tile.st-precise').count(), { timeout: 15_000 }).toBeGreaterThanOrEqual(1);
+    await page.screenshot({ path: join(OUTPUT, 'dashboard-overview.png') });
+  });
+
+  it('a test point started from the page reaches ready faster than real time; its CSV export matches the API', async () => {
+    await page.goto(`${base}#/test-points`);
+    await page.locator('#tp-channels input').first().waitFor();
+    for (const name of FLOW) await page.check(`#tp-channels input[value="${name}"]`);
+    await page.fill('#tp-name', 'HX-7 flow check');
+    const started = Date.now();
+    await page.click('#tp-start');
+    await untilText(page.locator('#tp-message'), /Started HX-7 flow check/);
+    const card = page.locator('.tp-card', { has: page.locator('.tp-title', { hasText: 'HX-7 flow check' }) });
+    await expect.poll(() => card.getAttribute('data-state', { timeout: 250 }).catch(() => null), { timeout: 30_000, interval: 50 }).toBe('ready');
+    const readyAfterMs = Date.now() - started;
+    const id = (await card.getAttribute('data-test-point')) as string;
+    await expect.poll(() => card.locator('.record-table tbody tr').count(), { timeout: 5000 }).toBe(FLOW.length);
+    const point = await api<{ testPoint: { state: string; createdMs: number; readyMs: number }; records: unknown[] }>(`api/test-points/${id}`);
+    expect(point.body.testPoint.state).toBe('ready');
+    figures.testPointReady = { speed: SPEED, wallSeconds: readyAfterMs / 1000, channels: FLOW };
+
+    const csvLink = card.locator('a[data-export="csv"]');
+    const [download] = await Promise.all([page.waitForEvent('download'), csvLink.click()]);
+    const csvFromPage = readFileSync((await download.path()) as string, 'utf8');
+    const csvFromApi = await api<null>(`api/test-points/${id}/record.csv`);
+    expect(csvFromApi.status).toBe(200);
+    expect(csvFromPage).toBe(csvFromApi.text);
+    expect(download.suggestedFilename()).toBe(`${id}.csv`);
+    // The numbers in the CSV are the record's.
+    const record = await api<{ entries: { channel: string; mean: number; expandedUncertainty: number }[] }>(`api/test-points/${id}/record.json`);
+    const rows = csvFromPage.trim().split('\r\n').slice(1).map((line) => line.split(','));
+    for (const entry of record.body.entries) {
+      const row = rows.find((r) => r[0] === entry.channel) as string[];
+      expect(Number(row[2])).toBe(entry.mean);
+      expect(Number(row[6])).toBe(entry.expandedUncertainty);
+    }
+    const [jsonDownload] = await Promise.all([page.waitForEvent('download'), card.locator('a[data-export="json"]').click()]);
+    expect(JSON.parse(readFileSync((await jsonDownload.path()) as string, 'utf8'))).toEqual(record.body);
+    await page.screenshot({ path: join(OUTPUT, 'dashboard-test-points.png'), fullPage: true });
+  });
+
+  it('the channel view: trace with the mean, band and cut, ACF with tau_int and window, Allan deviation, CUSUM, events', async () => {
+    await page.goto(`${base}#/channel/${encodeURIComponent('hx7.glycol_flow_kg_s')}`);
+    for (const id of ['chart-trace', 'chart-acf', 'chart-allan', 'chart-cusum']) await page.locator(`#${id} canvas`).first().waitFor({ timeout: 10_000 });
+    await untilText(page.locator('.view-channel .chart-note'), /samples/);
+    await untilText(page.locator('.view-channel'), /τ_int = [\d.]+ samples by geyer, summed over lags 1…\d+/);
+    await untilText(page.locator('.view-channel [data-field="result"]'), /^[\d.]+ ± [\d.]+ kg\/s$/);
+    await untilVisible(page.locator('.view-channel .channel-events li'));
+    // The test point restarted this channel's window: the trace shows the samples before it, shaded.
+    await untilText(page.locator('.view-channel'), /are outside the averaging window/);
+    await page.waitForTimeout(500);
+    await page.screenshot({ path: join(OUTPUT, 'dashboard-channel.png'), fullPage: true });
+  });
+
+  it('text from the network is shown as text and runs nothing', async () => {
+    const payload = '<img src=x onerror="window.__pwned=1;alert(1)">';
+    await page.goto(base);
+    await page.locator('.tile').first().waitFor();
+    // A channel named with markup: the decoder refuses the name (letters, digits, _ . : - / only).
+    const before = (await api<{ samples: { rejected: Record<string, number> } }>('api/counters')).body.samples.rejected['bad-channel'] ?? 0;
+    await publish(`rig/hx7/${payload}`, JSON.stringify({ v: 1, t: Date.now() / 1000 }));
+    await publish('rig/hx7/<svg onload=window.__pwned=4>', JSON.stringify({ v: 1, t: Date.now() / 1000 }));
+    await expect.poll(async () => (await api<{ samples: { rejected: Record<string, number> } }>('api/counters')).body.samples.rejected['bad-channel'], { timeout: 5000 }).toBe(before + 2);
+    // A unit carrying markup (SenML base unit, accepted as text) on a valid channel name.
+    await publish('rig/hx7/senml', JSON.stringify([{ bn: 'hx7.', bt: Date.now() / 1000, bu: payload, n: 'probe_markup', v: 3.25 }, { n: 'probe_markup', t: 0.1, v: 3.5 }]));
+    const tile = page.locator('.tile[data-channel="hx7.probe_markup"]');
+    await untilText(tile.locator('[data-field="unit"]'), payload);
+    // A test point name and a note carrying markup.
+    const name = '<script>window.__pwned=2</script>Set point <b>2</b>';
+    const note = '<img src=x onerror="window.__pwned=3"> & "quoted"';
+    const created = await api<{ testPoint: { id: string } }>('api/test-points', { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ name, channels: ['hx7.probe_markup'] }) });
+    expect(created.status).toBe(201);
+    const id = created.body.testPoint.id;
+    expect((await api(`api/test-points/${id}/annotations`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ text: note }) })).status).toBe(201);
+    await page.goto(`${base}#/test-points`);
+    const card = page.locator(`.tp-card[data-test-point="${id}"]`);
+    await untilText(card.locator('.tp-title'), name);
+    await untilText(card.locator('.note-text'), note);
+    await untilText(page.locator('.feed-item[data-kind="test-point-annotated"] .feed-detail'), note);
+    await page.goto(`${base}#/channel/${encodeURIComponent('hx7.probe_markup')}`);
+    await untilText(page.locator('.view-channel [data-field="unit"]'), ` ${payload}`);
+    // Nothing was interpreted: no element from a payload, no script ran, no dialog, no page error.
+    const state = await page.evaluate(`({ images: document.querySelectorAll('img').length, bold: document.querySelectorAll('b').length, scripts: [...document.querySelectorAll('script')].map((s) => s.getAttribute('src')), pwned: window.__pwned ?? null })`);
+    expect(state).toEqual({ images: 0, bold: 0, scripts: ['/vendor/uPlot.iife.min.js', '/dashboard/app.js'], pwned: null });
+    // The printable report too.
+    const report = await context.newPage();
+    watchPage(report);
+    await report.goto(`${base}api/test-points/${id}/report`);
+    await untilText(report.locator('h1'), `Test point report: ${name}`);
+    expect(await report.evaluate(`({ images: document.querySelectorAll('img').length, scripts: document.querySelectorAll('script').length, pwned: window.__pwned ?? null })`)).toEqual({ images: 0, scripts: 0, pwned: null });
+    await report.screenshot({ path: join(OUTPUT, 'report.png'), fullPage: false });
+    await report.close();
+    expect(alarms).toEqual([]);
+  });
+
+  it('a write without the token is refused when the daemon listens beyond 127.0.0.1 (with a token)', async () => {
+    const guarded = await startServer(demo.daemon, { host: '127.0.0.2', port: 0, token: TOKEN, maxBodyBytes: 65_536 });
+    extraServers.push(guarded);
+    const countBefore = demo.daemon.testPoints.list().length;
+    // Without the token, from outside the page.
+    const direct = await fetch(`${guarded.url}api/test-points`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ channels: FLOW }) });
+    expect(direct.status).toBe(401);
+    expect(((await direct.json()) as { error: string }).error).toBe('ERR_TOKEN');
+    const other = await context.newPage();
+    watchPage(other);
+    await other.goto(`${guarded.url}#/test-points`);
+    await untilText(other.locator('#write-key'), 'write key needed');
+    await other.locator(`#tp-channels input[value="${FLOW[0]}"]`).check();
+    await other.fill('#tp-name', 'without the key');
+    await other.click('#tp-start');
+    await untilText(other.locator('#tp-message'), /^Refused: this write needs the token/);
+    await untilVisible(other.locator('#key-dialog'));
+    expect(demo.daemon.testPoints.list().length).toBe(countBefore);
+    // With the key entered in the page, the same write goes through.
+    await other.fill('#key-input', TOKEN);
+    await other.click('#key-form button[type="submit"]');
+    await untilText(other.locator('#write-key'), 'write key set');
+    await other.fill('#tp-name', 'with the key');
+    await other.click('#tp-start');
+    await untilText(other.locator('#tp-message'), 'Started with the key.');
+    expect(demo.daemon.testPoints.list().length).toBe(countBefore + 1);
+    await other.close();
+    expect(alarms).toEqual([]);
+  });
+
+  it('latency from a sample\'s publish to its number changing on the page, under load', async () => {
+    await page.goto(base);
+    // The probe channel: its value is a sequence number, published with the time it was sent.
+    let seq = 0;
+    const sentAt = new Map<number, number>();
+    const send = async () => {
+      seq++;
+      sentAt.set(seq, Date.now());
+      await publish('rig/hx7/probe_latency', JSON.stringify({ v: seq, t: Date.now() / 1000 }));
+    };
+    await send();
+    const last = page.locator('.tile[data-channel="hx7.probe_latency"] [data-field="last"]');
+    await last.waitFor({ timeout: 10_000 });
+    // Records each change of the number on the page with the browser's clock (the same system
+    // clock as this process's Date.now on one machine).
+    await page.evaluate(`(() => {
+      const target = document.querySelector('.tile[data-channel="hx7.probe_latency"] [data-field="last"]');
+      const seen = [];
+      window.__seen = seen;
+      new MutationObserver(() => seen.push({ text: target.textContent, atMs: Date.now() })).observe(target, { childList: true, characterData: true, subtree: true });
+    })()`);
+    const publishedBefore = demo.publisher.published;
+    const acceptedBefore = demo.daemon.counters.accepted;
+    const started = Date.now();
+    const durationMs = 8000;
+    // One probe sample every 20 ms, not waiting for the broker's acknowledgement.
+    const sending: Promise<void>[] = [];
+    const timer = setInterval(() => sending.push(send()), 20);
+    await new Promise((resolve) => setTimeout(resolve, durationMs));
+    clearInterval(timer);
+    await Promise.all(sending);
+    const elapsedSeconds = (Date.now() - started) / 1000;
+    await page.waitForTimeout(1000);
+    const seen = await page.evaluate<{ text: string; atMs: number }[]>('window.__seen');
+    // (1) Each number shown: from the publish of that sample to its appearance.
+    const shown: number[] = [];
+    const changes: { seq: number; atMs: number }[] = [];
+    for (const change of seen) {
+      const value = Number(change.text);
+      const sent = sentAt.get(value);
+      if (sent === undefined) continue;
+      shown.push(change.atMs - sent);
+      changes.push({ seq: value, atMs: change.atMs });
+    }
+    // (2) Each sample published: until the page shows it or a later one (what a reader waits for,
+    // including the throttle; samples overtaken within one update interval are never shown).
+    const reflected: number[] = [];
+    const firstSeen = changes[0]?.seq ?? Number.POSITIVE_INFINITY;
+    for (const [value, sent] of sentAt) {
+      if (value <= firstSeen) continue;
+      const change = changes.find((c) => c.seq >= value);
+      if (change) reflected.push(change.atMs - sent);
+    }
+    shown.sort((a, b) => a - b);
+    reflected.sort((a, b) => a - b);
+    const latencies = shown;
+    expect(shown.length).toBeGreaterThan(10);
+    expect(reflected.length).toBeGreaterThan(100);
+    figures.publishToPageLatency = {
+      shownSample: { p50Ms: Math.round(quantile(shown, 0.5)), p99Ms: Math.round(quantile(shown, 0.99)), maxMs: shown.at(-1), count: shown.length },
+      anySampleUntilReflected: { p50Ms: Math.round(quantile(reflected, 0.5)), p99Ms: Math.round(quantile(reflected, 0.99)), maxMs: reflected.at(-1), count: reflected.length },
+      probeSamplesSent: seq,
+      probeIntervalMs: 20,
+      load: {
+        rigMessagesPerSecond: Math.round((demo.publisher.published - publishedBefore) / elapsedSeconds),
+        samplesAcceptedPerSecond: Math.round((demo.daemon.counters.accepted - acceptedBefore) / elapsedSeconds),
+        speed: SPEED,
+      },
+    };
+    // The page updates a few times a second whatever the rate: one change per 250 ms tick at most.
+    expect(latencies.length).toBeLessThanOrEqual(Math.ceil((elapsedSeconds * 1000) / 250) + 2);
+    expect(quantile(reflected, 0.5)).toBeLessThan(1000);
+  });
+
+  it('the page shows the lost connection and recovers by itself when the daemon comes back', async () => {
+    await page.goto(base);
+    await untilText(page.locator('#connection'), '● LIVE');
+    const port = demo.server.port;
+    await demo.server.close();
+    await untilText(page.locator('#connection'), '✖ CONNECTION LOST', 5000);
+    await untilVisible(page.locator('#connection-banner'));
+    await untilText(page.locator('#connection-banner-text'), /reconnecting/);
+    await page.screenshot({ path: join(OUTPUT, 'dashboard-connection-lost.png') });
+    await page.waitForTimeout(1500);
+    const revived = await startServer(demo.daemon, { host: '127.0.0.1', port, token: null, maxBodyBytes: 65_536 });
+    extraServers.push(revived);
+    expect(revived.port).toBe(port);
+    await untilText(page.locator('#connection'), '● LIVE', 15_000);
+    await untilVisible(page.locator('#connection-banner'), false);
+    const n = page.locator('.tile[data-channel="hx7.glycol_in_degC"] [data-field="n"]');
+    const before = await n.textContent();
+    await expect.poll(() => text(n), { timeout: 5000 }).not.toBe(before);
+    expect(alarms).toEqual([]);
+  });
+});
