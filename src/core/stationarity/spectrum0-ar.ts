@@ -1,3 +1,4 @@
+import { laggedProductSums } from '../acf/direct-autocovariance.js';
 import { correctedMean, linearResiduals } from './linear-residuals.js';
 
 /**
@@ -89,12 +90,8 @@ export function spectrum0Ar(values: ArrayLike<number>, options: Spectrum0ArOptio
   for (let i = 0; i < n; i++) centred[i] = (values[i] as number) - mean;
   const mean2 = correctedMean(centred);
   for (let i = 0; i < n; i++) centred[i] = (centred[i] as number) - mean2;
-  const gamma = new Float64Array(orderMax + 1);
-  for (let k = 0; k <= orderMax; k++) {
-    let s = 0;
-    for (let i = 0; i + k < n; i++) s += (centred[i + k] as number) * (centred[i] as number);
-    gamma[k] = s / n;
-  }
+  const gamma = laggedProductSums(centred, orderMax);
+  for (let k = 0; k <= orderMax; k++) gamma[k] = (gamma[k] as number) / n;
   const gamma0 = gamma[0] as number;
 
   // Levinson-Durbin: phi holds phi_(k,1..k) after step k; the best-AIC coefficients are copied out.

@@ -61,12 +61,16 @@ export class EstimatorSet {
     const windowEstimator = method === 'sokal' ? sokalWindow : geyerMonotone;
     const first = windowEstimator(series.autocovariance(), n, variance, false);
     if (!('needsLags' in first)) return first;
-    const full = windowEstimator(this.fullAutocovariance(series), n, variance, true) as TauEstimate;
-    // Keep enough lags from now on that the next estimate needs no FFT (bounded: beyond MAX_GROWN_LAGS
-    // the per-sample cost would outgrow an occasional transform).
-    const wanted = Math.min(MAX_GROWN_LAGS, Math.ceil(1.5 * (full.window + 2)));
-    if (wanted > series.maxLag) series.growLags(wanted);
-    return full;
+    const estimate = windowEstimator(this.fullAutocovariance(series), n, variance, true) as TauEstimate;
+    // The window ran past the maintained lags: keep twice as many from now on, so later estimates
+    // need no FFT (whose cost grows with the window), once the window is known well
+    // (GROW_AFTER_WINDOWS samples per lag: an early, noisy window would fix a needlessly long lag
+    // range for good) and within MAX_GROWN_LAGS (beyond, the per-sample cost would outgrow an
+    // occasional transform).
+    if (series.maxLag < MAX_GROWN_LAGS && n >= GROW_AFTER_WINDOWS * estimate.window) {
+      series.growLags(Math.min(MAX_GROWN_LAGS, 2 * estimate.window + 8));
+    }
+    return estimate;
   }
 
   run(series: WindowedSeries, minimumLags: number): EstimatorSetResult {
@@ -122,6 +126,8 @@ export function pyramidLevels(series: WindowedSeries, gamma: Float64Array): Pyra
 
 /** Most lags the pipeline will maintain by itself; longer windows use the FFT of the window. */
 export const MAX_GROWN_LAGS = 384;
+/** Samples per lag of the window estimate before the maintained lags grow to it. */
+const GROW_AFTER_WINDOWS = 50;
 
 const COMPARED: EstimatorName[] = ['blocking', 'sokal', 'geyer'];
 
