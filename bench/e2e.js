@@ -171,7 +171,7 @@ for (const [brokerLabel, url] of brokers) {
   await new Promise((resolve) => socket.once('open', resolve));
   const probe = mqtt.connect(embedded.url, { clientId: `bench-probe-${Date.now()}` });
   await new Promise((resolve) => probe.once('connect', resolve));
-  const loadRate = 20_000;
+  const loadRate = 5_000;
   const load = runPublisher(embedded.url, 1, quick ? 100_000 : 300_000, 1, prefix, 8, loadRate);
   const probes = quick ? 15 : 40;
   for (let i = 0; i < probes; i++) {
