@@ -5,7 +5,7 @@ import { ChannelRegistry, type RegisteredChannel } from '../engine/channel-regis
 import type { ChannelOptions } from '../engine/channel-options.js';
 import type { ChannelEvent } from '../engine/channel-events.js';
 import { TestPoints, type TestPoint, type TestPointChange } from '../engine/test-points.js';
-import { decodePayload } from '../ingest/payload-decoder.js';
+import { decodePayload, DECODER_DEFAULTS } from '../ingest/payload-decoder.js';
 import { REJECT_REASONS, type RejectReason } from '../ingest/sample.js';
 import { MqttIngest, isUnknownTopic } from '../ingest/mqtt-ingest.js';
 import { SqliteStore, type FlushBatch, type StoredEvent } from '../store/sqlite-store.js';
@@ -543,17 +543,5 @@ export class Daemon {
   }
 }
 
-const COMMAND_SUBSCRIPTION: SubscriptionConfig = {
-  topic: 'plateau/command/#',
-  format: 'json',
-  channel: '{topic}',
-  valueField: 'v',
-  timeField: null,
-  timeUnit: 's',
-  samplesField: null,
-  channelField: null,
-  unit: null,
-  maxBytes: 65_536,
-  maxDepth: 4,
-  maxSamples: 1,
-};
+/** The command topic's subscription (its payloads are read by onCommand, not by the decoder). */
+const COMMAND_SUBSCRIPTION: SubscriptionConfig = { ...DECODER_DEFAULTS, topic: 'plateau/command/#', format: 'json', channel: '{topic}', maxBytes: 65_536, maxDepth: 4, maxSamples: 1 };

@@ -1,5 +1,6 @@
 import type { ChannelSnapshot } from './channel-pipeline.js';
 import type { BootstrapCheck } from './derived/bootstrap-cross-check.js';
+import { csvText } from './csv-text.js';
 
 /**
  * The record of a test point: per channel the result as a test report or calibration certificate
@@ -119,13 +120,6 @@ export function recordCsv(record: TestPointRecord): string {
     entry.tests.kpssStatistic,
     entry.statement,
   ]);
-  return `${[header, ...rows].map((row) => row.map(csvCell).join(',')).join('\r\n')}\r\n`;
+  return csvText(header, rows);
 }
 
-function csvCell(value: unknown): string {
-  if (value === null || value === undefined) return '';
-  const text = typeof value === 'number' ? (Number.isFinite(value) ? String(value) : '') : String(value);
-  // Formula injection guard for spreadsheet users: text starting with = + - @ is prefixed with '.
-  const safe = typeof value === 'string' && /^[=+\-@\t\r]/.test(text) ? `'${text}` : text;
-  return /[",\r\n]/.test(safe) ? `"${safe.replace(/"/g, '""')}"` : safe;
-}

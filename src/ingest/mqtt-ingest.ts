@@ -1,6 +1,7 @@
 import mqtt, { type IClientOptions, type MqttClient, type IPublishPacket } from 'mqtt';
 import { readFileSync } from 'node:fs';
 import type { BrokerConfig, SubscriptionConfig } from '../config/plateau-config.js';
+import { DECODER_DEFAULTS } from './payload-decoder.js';
 
 /**
  * The MQTT side of the daemon (mqtt.js): a persistent session (clean = false on MQTT 3.1.1, clean
@@ -194,20 +195,8 @@ export class MqttIngest {
   }
 }
 
-const UNKNOWN_TOPIC: SubscriptionConfig = {
-  topic: '',
-  format: 'number',
-  channel: '',
-  valueField: 'v',
-  timeField: null,
-  timeUnit: 's',
-  samplesField: null,
-  channelField: null,
-  unit: null,
-  maxBytes: 0,
-  maxDepth: 0,
-  maxSamples: 0,
-};
+/** Stands for "no configured subscription matches this topic". */
+const UNKNOWN_TOPIC: SubscriptionConfig = { ...DECODER_DEFAULTS, topic: '', format: 'number', channel: '', maxBytes: 0 };
 
 export function isUnknownTopic(subscription: SubscriptionConfig): boolean {
   return subscription === UNKNOWN_TOPIC;

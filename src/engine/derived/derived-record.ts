@@ -3,6 +3,7 @@ import { gumStatement } from '../test-point-record.js';
 import { derivedBootstrapCheck, seedFrom, type BootstrapCheck } from './bootstrap-cross-check.js';
 import type { DerivedEngine, DerivedSnapshot } from './derived-engine.js';
 import { derivedMonteCarlo, type DerivedMonteCarloResult } from './derived-monte-carlo.js';
+import { csvText } from '../csv-text.js';
 
 /**
  * A derived result as it is reported: the engine's snapshot, the verdict (at target only when the
@@ -89,12 +90,6 @@ export function derivedRecordCsv(entries: DerivedReportEntry[]): string {
       entry.statement,
     ];
   });
-  return `${[header, ...rows].map((row) => row.map(csvCell).join(',')).join('\r\n')}\r\n`;
+  return csvText(header, rows);
 }
 
-function csvCell(value: unknown): string {
-  if (value === null || value === undefined) return '';
-  const text = typeof value === 'number' ? (Number.isFinite(value) ? String(value) : '') : String(value);
-  const safe = typeof value === 'string' && /^[=+\-@\t\r]/.test(text) ? `'${text}` : text;
-  return /[",\r\n]/.test(safe) ? `"${safe.replace(/"/g, '""')}"` : safe;
-}
