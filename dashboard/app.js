@@ -1,6 +1,7 @@
-// plateau dashboard: wiring. State comes from the live link (hello, then channel updates, events
-// and test points); views read it and update in place. Routes: #/ (channels), #/channel/<name>,
-// #/test-points. Nothing from the network is ever parsed as HTML (see lib/dom.js).
+// plateau dashboard: wiring. State comes from the live link (hello, then channel and derived-result
+// updates, events and test points); views read it and update in place. Routes: #/ (derived results
+// and channels), #/channel/<name>, #/derived/<name>, #/test-points. Nothing from the network is
+// ever parsed as HTML (see lib/dom.js).
 
 import { h, byId, setText } from './lib/dom.js';
 import { api, writeKey, setWriteKey } from './lib/api.js';
@@ -8,6 +9,7 @@ import { LiveLink } from './lib/live.js';
 import { clockTime } from './lib/format.js';
 import { OverviewView } from './views/overview.js';
 import { ChannelView } from './views/channel.js';
+import { DerivedView } from './views/derived.js';
 import { TestPointsView } from './views/test-points.js';
 import { FeedView } from './views/feed.js';
 
@@ -15,10 +17,11 @@ const MAX_EVENTS = 500;
 
 class App {
   constructor() {
-    this.state = { channels: new Map(), testPoints: [], events: [], acknowledgements: new Map(), server: null, lastEventId: 0, connection: 'connecting' };
+    this.state = { channels: new Map(), derived: new Map(), testPoints: [], events: [], acknowledgements: new Map(), server: null, lastEventId: 0, connection: 'connecting' };
     const main = byId('main');
     this.overview = new OverviewView(main, this);
     this.channel = new ChannelView(main, this);
+    this.derived = new DerivedView(main, this);
     this.testPoints = new TestPointsView(main, this);
     this.feed = new FeedView(byId('side'), this);
     this.firstData = false;
@@ -50,25 +53,38 @@ class App {
   route() {
     const hash = location.hash || '#/';
     const channelMatch = /^#\/channel\/(.+)$/.exec(hash);
-    for (const link of document.querySelectorAll('.nav a')) link.classList.toggle('active', link.getAttribute('href') === (channelMatch ? '#/' : hash));
-    if (channelMatch) {
-      let name;
+    const derivedMatch = /^#\/derived\/(.+)$/.exec(hash);
+    for (const link of document.querySelectorAll('.nav a')) link.classList.toggle('active', link.getAttribute('href') === (channelMatch || derivedMatch ? '#/' : hash));
+    const decoded = (text) => {
       try {
-        name = decodeURIComponent(channelMatch[1]);
+        return decodeURIComponent(text);
       } catch {
-        name = channelMatch[1];
+        return text;
       }
+    };
+    if (channelMatch) {
+      const name = decoded(channelMatch[1]);
       this.overview.show(false);
       this.testPoints.show(false);
+      this.derived.close();
       this.channel.open(name);
+      document.title = `${name} · plateau`;
+    } else if (derivedMatch) {
+      const name = decoded(derivedMatch[1]);
+      this.overview.show(false);
+      this.testPoints.show(false);
+      this.channel.close();
+      this.derived.open(name);
       document.title = `${name} · plateau`;
     } else if (hash === '#/test-points') {
       this.channel.close();
+      this.derived.close();
       this.overview.show(false);
       this.testPoints.show(true);
       document.title = 'Test points · plateau';
     } else {
       this.channel.close();
+      this.derived.close();
       this.testPoints.show(false);
       this.overview.show(true);
       document.title = 'plateau · channels';
@@ -80,6 +96,7 @@ class App {
       case 'hello': {
         const seenBefore = this.state.lastEventId;
         this.state.channels = new Map(message.channels.map((c) => [c.name, c]));
+        this.state.derived = new Map((message.derived ?? []).map((d) => [d.name, d]));
         this.state.testPoints = message.testPoints;
         this.mergeEvents(message.events ?? []);
         this.catchUp(seenBefore, message.events?.[0]?.id ?? Infinity);
@@ -87,7 +104,9 @@ class App {
         this.state.lastEventId = Math.max(this.state.lastEventId, message.lastEventId ?? 0);
         this.lastUpdateMs = Date.now();
         this.overview.update();
+        this.overview.updateDerived();
         this.refreshOpenChannel();
+        this.refreshOpenDerived();
         this.testPoints.updateChannels();
         this.testPoints.update();
         this.feed.render();
@@ -111,6 +130,18 @@ class App {
         if (added && !this.testPoints.element.hidden) this.testPoints.updateChannels();
         break;
       }
+      case 'derived': {
+        const names = [];
+        for (const d of message.derived ?? []) {
+          this.state.derived.set(d.name, d);
+          names.push(d.name);
+        }
+        this.lastUpdateMs = Date.now();
+        this.overview.updateDerived(names);
+        this.refreshOpenDerived();
+        if (!this.testPoints.element.hidden) this.testPoints.updateDerivedChips();
+        break;
+      }
       case 'event':
         this.mergeEvents([message.event]);
         if (message.event.kind === 'alert-acknowledged') {
@@ -125,6 +156,11 @@ class App {
       default:
         break;
     }
+  }
+
+  refreshOpenDerived() {
+    const name = this.derived.name;
+    if (name && this.state.derived.has(name)) this.derived.update(this.state.derived.get(name));
   }
 
   refreshOpenChannel() {

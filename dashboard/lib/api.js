@@ -56,6 +56,7 @@ async function request(method, path, body) {
 export const api = {
   server: () => request('GET', '/api/server'),
   channel: (name, trace = 2000) => request('GET', `/api/channels/${encodeURIComponent(name)}?trace=${trace}&events=100`),
+  derived: (name, events = 100) => request('GET', `/api/derived/${encodeURIComponent(name)}?events=${events}`),
   testPoints: () => request('GET', '/api/test-points'),
   testPoint: (id) => request('GET', `/api/test-points/${encodeURIComponent(id)}`),
   startTestPoint: (body) => request('POST', '/api/test-points', body),
@@ -67,6 +68,11 @@ export const api = {
 
 export function recordUrl(id, format) {
   return `/api/test-points/${encodeURIComponent(id)}/record.${format}`;
+}
+
+/** The record's derived results as CSV (a file of its own beside record.csv). */
+export function derivedRecordUrl(id) {
+  return `/api/test-points/${encodeURIComponent(id)}/record-derived.csv`;
 }
 
 export function reportUrl(id) {

@@ -94,6 +94,43 @@ export function stateOf(name) {
   return STATES[name] ?? { label: String(name).toUpperCase(), symbol: '?', hint: '', className: 'st-unknown' };
 }
 
+/**
+ * The state of a derived result, in words: no value yet, waiting for its inputs (an input channel
+ * is not steady, so the value is provisional), not yet at target, at target, or steady inputs and
+ * no target. Read from the daemon's verdict (atTarget, inputStates).
+ */
+export const DERIVED_STATES = {
+  'no-value': { label: 'NO VALUE YET', symbol: '○', hint: 'too few common rows of its inputs', className: 'st-stale' },
+  waiting: { label: 'WAITING FOR INPUTS', symbol: '◔', hint: 'an input channel is not steady: the value is provisional', className: 'st-warming' },
+  short: { label: 'NOT YET AT TARGET', symbol: '●', hint: 'inputs steady; the uncertainty is still above the target', className: 'st-steady' },
+  'no-target': { label: 'INPUTS STEADY', symbol: '●', hint: 'inputs steady; no target is set', className: 'st-steady' },
+  'at-target': { label: 'AT TARGET', symbol: '✔', hint: 'inputs steady and the uncertainty within the target', className: 'st-precise' },
+};
+
+const STEADY_INPUT = new Set(['steady', 'precise']);
+
+/** The key of DERIVED_STATES for a derived result; an input with a break or no data turns the colour to alert. */
+export function derivedStateOf(d) {
+  const inputs = Object.values(d.inputStates ?? {});
+  const base = (key) => ({ key, ...DERIVED_STATES[key] });
+  if (!d.ready || d.value === null || d.value === undefined) return base('no-value');
+  if (d.atTarget === true) return base('at-target');
+  if (!inputs.every((s) => STEADY_INPUT.has(s))) {
+    const state = base('waiting');
+    if (inputs.some((s) => s === 'unsteady' || s === 'stale' || s === 'no data')) state.className = 'st-unsteady';
+    return state;
+  }
+  return base(d.target ? 'short' : 'no-target');
+}
+
+/** A share (fraction) as a signed percentage: "+12.3 %", "−250 %". */
+export function signedPercent(share) {
+  if (share === null || share === undefined || !Number.isFinite(share)) return '–';
+  const value = share * 100;
+  const text = trimNumber(Math.abs(value), 3);
+  return `${value < 0 ? '−' : value > 0 ? '+' : ''}${text} %`;
+}
+
 export const POINT_STATES = {
   running: { label: 'RUNNING', symbol: '▶', className: 'st-steady' },
   ready: { label: 'READY', symbol: '✔', className: 'st-precise' },
@@ -141,7 +178,7 @@ function eventDetail(event) {
     case 'stationarity-regained':
       return `from sample ${body.warmupEnd ?? '?'}; ${formatCount(body.excluded ?? 0)} samples excluded`;
     case 'precision-reached':
-      return `U = ${trimNumber(body.expandedUncertainty, 3)} within ${trimNumber(body.bound, 3)}`;
+      return `${body.derived ? `${trimNumber(body.value, 6)} ${body.unit ?? ''}, ` : ''}U = ${trimNumber(body.expandedUncertainty, 3)} within ${trimNumber(body.bound, 3)}${body.derived && body.unit ? ` ${body.unit}` : ''}`;
     case 'averaging-limit':
       return `beyond m = ${body.m}${body.tauSeconds ? ` (${formatDuration(body.tauSeconds)})` : ''} the Allan deviation stops falling`;
     case 'stale':

@@ -3,9 +3,13 @@
 // n, n_eff and tau_int, the state in words with a symbol and a colour, and a bar towards the
 // target precision with the time it still needs at the current rate. Tiles are built once and
 // updated in place.
+// Derived results (quantities computed from several channels) come first, in tiles of their own:
+// value ± U with k and the coverage probability, U as if the inputs were uncorrelated beside it,
+// the state in words (waiting for inputs / not yet at target / at target), rows and ν, and the
+// progress to the target with the time it still needs.
 
 import { h, setText, breakable } from '../lib/dom.js';
-import { decimalsFor, formatValue, formatUncertainty, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber } from '../lib/format.js';
+import { decimalsFor, formatValue, formatUncertainty, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber, derivedStateOf } from '../lib/format.js';
 
 export class OverviewView {
   constructor(root, app) {
@@ -14,7 +18,10 @@ export class OverviewView {
     this.grid = h('div', { className: 'tiles', id: 'tiles', role: 'list' });
     this.empty = h('p', { className: 'empty', text: 'Waiting for the first samples… (channels appear as soon as the daemon receives data)' });
     this.summary = h('p', { className: 'overview-summary', 'aria-live': 'polite' });
-    this.element = h('section', { className: 'view view-overview', 'aria-label': 'All channels' }, h('div', { className: 'view-head' }, h('h1', { text: 'Channels' }), this.summary), this.empty, this.grid);
+    this.derivedTiles = new Map();
+    this.derivedGrid = h('div', { className: 'tiles derived-tiles', id: 'derived-tiles', role: 'list' });
+    this.derivedBlock = h('div', { className: 'derived-block-overview', hidden: true }, h('div', { className: 'view-head' }, h('h1', { text: 'Derived results' }), h('p', { className: 'overview-summary', text: 'computed from several channels, with the covariance of their means' })), this.derivedGrid);
+    this.element = h('section', { className: 'view view-overview', 'aria-label': 'All channels' }, this.derivedBlock, h('div', { className: 'view-head' }, h('h1', { text: 'Channels' }), this.summary), this.empty, this.grid);
     root.appendChild(this.element);
   }
 
@@ -51,6 +58,120 @@ export class OverviewView {
     for (const summary of this.app.state.channels.values()) counts[summary.state] = (counts[summary.state] ?? 0) + 1;
     const parts = ['precise', 'steady', 'warming', 'unsteady', 'stale'].filter((s) => counts[s]).map((s) => `${counts[s]} ${stateOf(s).label.toLowerCase()}`);
     setText(this.summary, parts.length ? parts.join(' · ') : '');
+  }
+
+  /** Updates the given derived results (all when names is omitted). */
+  updateDerived(names) {
+    const derived = this.app.state.derived;
+    let added = false;
+    for (const name of names ?? [...derived.keys()]) {
+      const d = derived.get(name);
+      if (!d) continue;
+      let tile = this.derivedTiles.get(name);
+      if (!tile) {
+        tile = this.createDerivedTile(name);
+        this.derivedTiles.set(name, tile);
+        added = true;
+      }
+      this.fillDerived(tile, d);
+    }
+    for (const [name, tile] of this.derivedTiles) {
+      if (derived.has(name)) continue;
+      tile.element.remove();
+      this.derivedTiles.delete(name);
+    }
+    if (added) for (const name of [...this.derivedTiles.keys()].sort((a, b) => a.localeCompare(b))) this.derivedGrid.appendChild(this.derivedTiles.get(name).element);
+    this.derivedBlock.hidden = this.derivedTiles.size === 0;
+  }
+
+  createDerivedTile(name) {
+    const field = (key, className) => h('span', { className, dataset: { field: key } });
+    const parts = {
+      badge: h('span', { className: 'badge', dataset: { field: 'state' } }),
+      value: field('value', 'big-value'),
+      unit: field('unit', 'unit'),
+      valueLabel: h('span', { className: 'label', text: 'value' }),
+      uncertainty: field('uncertainty', 'mean'),
+      coverage: field('coverage', 'coverage'),
+      independent: field('independent', 'independent'),
+      rows: field('rows', 'num'),
+      dof: field('dof', 'num'),
+      inputs: field('inputs', 'num'),
+      bar: h('span', { className: 'bar-fill' }),
+      progressText: field('progress', 'progress-text'),
+    };
+    parts.progress = h('div', { className: 'bar', role: 'progressbar', 'aria-valuemin': '0', 'aria-valuemax': '100', 'aria-label': 'progress towards the target uncertainty' }, parts.bar);
+    const element = h(
+      'a',
+      { className: 'tile derived-tile', href: `#/derived/${encodeURIComponent(name)}`, role: 'listitem', dataset: { derived: name } },
+      h('div', { className: 'tile-head' }, h('span', { className: 'channel-name' }, h('span', { className: 'derived-mark', text: 'ƒ ', 'aria-hidden': 'true' }), breakable(name)), parts.badge),
+      h('div', { className: 'tile-value' }, parts.value, parts.unit),
+      h('div', { className: 'tile-mean' }, parts.valueLabel, parts.uncertainty, parts.coverage),
+      h('div', { className: 'tile-independent', title: 'the expanded uncertainty computed as if the input channels were uncorrelated (Welch-Satterthwaite): the difference is what their correlation does' }, h('span', { className: 'label', text: 'as if uncorrelated' }), parts.independent),
+      h(
+        'div',
+        { className: 'tile-stats' },
+        h('span', { className: 'stat', title: 'rows: common time buckets of the input channels' }, h('span', { className: 'label', text: 'rows' }), parts.rows),
+        h('span', { className: 'stat', title: 'degrees of freedom of u_c' }, h('span', { className: 'label', text: 'ν' }), parts.dof),
+        h('span', { className: 'stat', title: 'input channels steady (steady or at target) of all inputs' }, h('span', { className: 'label', text: 'inputs steady' }), parts.inputs),
+      ),
+      h('div', { className: 'tile-progress' }, parts.progress, parts.progressText),
+    );
+    return { element, parts, state: null };
+  }
+
+  fillDerived(tile, d) {
+    const p = tile.parts;
+    const state = derivedStateOf(d);
+    const stateKey = `${state.key}:${state.className}`;
+    if (tile.state !== stateKey) {
+      tile.element.className = `tile derived-tile ${state.className}`;
+      p.badge.className = `badge ${state.className}`;
+      setText(p.badge, `${state.symbol} ${state.label}`);
+      tile.state = stateKey;
+    }
+    p.badge.title = d.waitingFor?.length ? `${state.hint}: ${d.waitingFor.join('; ')}` : state.hint;
+    // While an input is not steady the value is provisional, as a channel's mean is.
+    const provisional = state.key === 'waiting' || state.key === 'no-value';
+    p.value.parentElement.classList.toggle('provisional', provisional);
+    setText(p.valueLabel, provisional ? 'so far' : 'value');
+    const unit = d.unit ? ` ${d.unit}` : '';
+    const decimals = decimalsFor(d.expandedUncertainty);
+    setText(p.value, d.value === null ? '–' : formatValue(d.value, decimals));
+    setText(p.unit, d.unit ?? '');
+    if (d.value === null) {
+      setText(p.uncertainty, '–');
+      setText(p.coverage, '');
+    } else if (d.expandedUncertainty === null) {
+      setText(p.uncertainty, 'no uncertainty yet');
+      setText(p.coverage, '');
+    } else {
+      setText(p.uncertainty, `± ${formatUncertainty(d.expandedUncertainty)}${unit}`);
+      setText(p.coverage, `k = ${trimNumber(d.coverageFactor, 3)} · ${percent(d.confidence)}`);
+    }
+    const independent = d.independent?.expandedUncertainty;
+    setText(p.independent, independent === null || independent === undefined ? '–' : `± ${formatUncertainty(independent)}${unit}`);
+    setText(p.rows, formatCount(d.rows));
+    setText(p.dof, trimNumber(d.dof, 3));
+    const inputs = Object.values(d.inputStates ?? {});
+    setText(p.inputs, `${inputs.filter((s) => s === 'steady' || s === 'precise').length} of ${inputs.length}`);
+    const target = d.target;
+    let fraction = 0;
+    let text;
+    if (!target) text = 'no target set';
+    else if (target.reached) {
+      fraction = 1;
+      text = d.atTarget ? 'target met' : 'uncertainty within the target; waiting for the inputs';
+    } else {
+      fraction = Math.max(0, Math.min(1, target.progress ?? 0));
+      if (target.secondsToTarget !== null && target.secondsToTarget !== undefined) text = `≈ ${formatDuration(target.secondsToTarget)} to target`;
+      else text = target.note ?? 'estimating…';
+    }
+    p.progressText.title = target ? `${target.on} ≤ ${trimNumber(target.bound, 3)}${unit}${target.note ? ` · ${target.note}` : ''}` : '';
+    p.bar.style.width = `${(fraction * 100).toFixed(1)}%`;
+    p.progress.setAttribute('aria-valuenow', String(Math.round(fraction * 100)));
+    p.progress.className = `bar${target?.reached ? ' done' : ''}`;
+    setText(p.progressText, target && !target.reached ? `${Math.round(fraction * 100)} % · ${text}` : text);
   }
 
   createTile(name) {

@@ -1,10 +1,10 @@
 // Test points: start one over chosen channels, follow its verdict, stop it, add notes, and take
-// its record (CSV, JSON) and the printable report. Writes go through the API with the write key
+// its record (CSV, JSON; the derived results in a CSV of their own) and the printable report. Writes go through the API with the write key
 // when the daemon asks for one; a refusal is shown in words.
 
 import { h, setText, replaceChildren } from '../lib/dom.js';
-import { api, recordUrl, reportUrl, writeKey } from '../lib/api.js';
-import { POINT_STATES, stateOf, dateTime, formatValue, formatUncertainty, decimalsFor, trimNumber, formatCount, percent } from '../lib/format.js';
+import { api, recordUrl, derivedRecordUrl, reportUrl, writeKey } from '../lib/api.js';
+import { POINT_STATES, stateOf, dateTime, formatValue, formatUncertainty, decimalsFor, trimNumber, formatCount, percent, derivedStateOf } from '../lib/format.js';
 
 export class TestPointsView {
   constructor(root, app) {
@@ -139,9 +139,11 @@ export class TestPointsView {
     const report = h('a', { href: reportUrl(point.id), target: '_blank', rel: 'noopener', className: 'button', dataset: { export: 'report' }, text: 'Report' });
     const csv = h('a', { href: recordUrl(point.id, 'csv'), download: `${point.id}.csv`, className: 'button', dataset: { export: 'csv' }, text: 'CSV' });
     const json = h('a', { href: recordUrl(point.id, 'json'), download: `${point.id}.json`, className: 'button', dataset: { export: 'json' }, text: 'JSON' });
+    const derivedCsv = h('a', { href: derivedRecordUrl(point.id), download: `${point.id}-derived.csv`, className: 'button', dataset: { export: 'derived-csv' }, text: 'CSV (derived)', title: 'the derived results of the record, one row each' });
     parts.stop = stop;
     parts.exports = [csv, json];
-    replaceChildren(parts.actions, stop, report, csv, json, h('span', { className: 'note-form' }, parts.noteInput, noteButton));
+    parts.derivedCsv = derivedCsv;
+    replaceChildren(parts.actions, stop, report, csv, json, derivedCsv, h('span', { className: 'note-form' }, parts.noteInput, noteButton));
     const element = h('article', { className: 'panel tp-card', dataset: { testPoint: point.id } }, h('div', { className: 'tp-head' }, parts.title, parts.badge), parts.meta, parts.verdict, parts.actions, parts.message, parts.records, parts.notes);
     return { element, parts, state: null, recordsFor: null };
   }
@@ -160,15 +162,40 @@ export class TestPointsView {
         const s = stateOf(v.state);
         return h('li', { className: `chip ${s.className}` }, h('span', { text: `${s.symbol} ` }), h('span', { className: 'chip-name', text: v.channel }), h('span', { text: ` ${s.label.toLowerCase()}` }));
       }),
+      this.derivedChips(point),
     );
     p.stop.hidden = point.state === 'stopped';
     const hasRecord = point.state !== 'running' || point.readyMs !== null;
     for (const link of p.exports) link.hidden = !hasRecord;
+    p.derivedCsv.hidden = !hasRecord || (point.derived ?? []).length === 0;
     replaceChildren(p.notes, (point.annotations ?? []).map((a) => h('li', {}, h('span', { className: 'time', text: dateTime(a.timeMs) }), h('span', { className: 'note-text', text: a.text }))));
     const key = `${point.state}:${point.readyMs}:${point.stoppedMs}`;
     if (hasRecord && card.recordsFor !== key) {
       card.recordsFor = key;
       this.loadRecords(point.id, p.records);
+    }
+  }
+
+  /** A chip per derived result of the test point, in the words of its state. */
+  derivedChips(point) {
+    return (point.derived ?? []).map((name) => {
+      const d = this.app.state.derived.get(name);
+      const s = d ? derivedStateOf(d) : { symbol: '○', label: 'NO DATA', className: 'st-stale' };
+      return h('li', { className: `chip derived-chip ${s.className}`, dataset: { derived: name } }, h('span', { text: `${s.symbol} ` }), h('span', { className: 'chip-name', text: `ƒ ${name}` }), h('span', { text: ` ${s.label.toLowerCase()}` }));
+    });
+  }
+
+  /** Refreshes the derived chips of the cards from the live derived results. */
+  updateDerivedChips() {
+    for (const point of this.app.state.testPoints) {
+      if (!(point.derived ?? []).length) continue;
+      const card = this.cards.get(point.id);
+      if (!card) continue;
+      const key = point.derived.map((name) => (this.app.state.derived.has(name) ? derivedStateOf(this.app.state.derived.get(name)).key : 'none')).join('|');
+      if (card.derivedKey === key) continue;
+      card.derivedKey = key;
+      for (const chip of card.parts.verdict.querySelectorAll('.derived-chip')) chip.remove();
+      for (const chip of this.derivedChips(point)) card.parts.verdict.appendChild(chip);
     }
   }
 
@@ -194,7 +221,25 @@ export class TestPointsView {
             }),
           ),
         ),
-        h('p', { className: 'muted small', text: `Coverage probability ${latest.entries[0] ? percent(latest.entries[0].confidence) : '–'}; hover a row for the full statement.` }),
+        (latest.derived ?? []).length === 0
+          ? null
+          : h(
+              'table',
+              { className: 'table record-table derived-record-table' },
+              h('thead', {}, h('tr', {}, ...['derived result', 'value ± U', 'k', 'ν', 'rows', 'Monte Carlo', 'bootstrap'].map((t) => h('th', { text: t })))),
+              h(
+                'tbody',
+                {},
+                latest.derived.map((e) => {
+                  const d = decimalsFor(e.expandedUncertainty);
+                  const value = e.value === null ? '–' : e.expandedUncertainty === null ? formatValue(e.value, null) : `${formatValue(e.value, d)} ± ${formatUncertainty(e.expandedUncertainty)}`;
+                  const mc = !e.monteCarlo ? '–' : e.monteCarlo.error ? 'failed' : e.monteCarlo.validated === null ? '–' : e.monteCarlo.validated ? 'validates' : 'differs';
+                  const boot = !e.bootstrap || e.bootstrap.agrees === null ? '–' : e.bootstrap.agrees ? 'agrees' : 'differs';
+                  return h('tr', { title: e.statement }, h('td', { text: e.name }), h('td', { text: `${value}${e.unit ? ` ${e.unit}` : ''}` }), h('td', { text: trimNumber(e.coverageFactor, 3) }), h('td', { text: trimNumber(e.dof, 3) }), h('td', { text: formatCount(e.rows) }), h('td', { text: mc, title: e.monteCarlo?.note ?? e.monteCarlo?.error ?? '' }), h('td', { text: boot, title: e.bootstrap?.note ?? '' }));
+                }),
+              ),
+            ),
+        h('p', { className: 'muted small', text: `Coverage probability ${latest.entries[0] ? percent(latest.entries[0].confidence) : latest.derived?.[0] ? percent(latest.derived[0].confidence) : '–'}; hover a row for the full statement.` }),
       );
     } catch (error) {
       setText(container, `Could not load the record: ${error.message}`);

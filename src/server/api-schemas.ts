@@ -159,3 +159,71 @@ export const channelTraceSchema = {
   },
   additionalProperties: false,
 } as const;
+
+const derivedInterval = {
+  type: ['object', 'null'],
+  properties: { standardUncertainty: { type: 'number' }, dof: nullableNumber, coverageFactor: nullableNumber, expandedUncertainty: nullableNumber },
+  additionalProperties: true,
+} as const;
+
+/**
+ * A derived result (src/server/derived-live.ts): the field names of the `derived` entries of
+ * `plateau analyze --json`, without the record-only checks monteCarlo and bootstrap.
+ */
+export const derivedResult = {
+  type: 'object',
+  required: ['name', 'unit', 'expression', 'inputs', 'ready', 'value', 'standardUncertainty', 'confidence', 'estimator', 'budget', 'covarianceTerms', 'rows', 'atTarget', 'inputStates', 'waitingFor', 'statement'],
+  properties: {
+    name: { type: 'string' },
+    unit: nullableString,
+    expression: { type: 'string' },
+    inputs: { type: 'array', items: { type: 'string' } },
+    ready: { type: 'boolean' },
+    value: nullableNumber,
+    standardUncertainty: nullableNumber,
+    dof: nullableNumber,
+    dofMethod: { type: ['string', 'null'], enum: ['batches', 'observations', null] },
+    coverageFactor: nullableNumber,
+    expandedUncertainty: nullableNumber,
+    confidence: { type: 'number' },
+    estimator: { type: 'string' },
+    target: targetStatus,
+    budget: {
+      type: 'array',
+      description: "each input: its mean, u(x_i), sensitivity c_i, contribution c_i u(x_i), varianceShare c_i^2 u^2(x_i) / u_c^2 and share c_i (U_x c)_i / u_c^2 (the shares add to 1; one can be negative)",
+      items: {
+        type: 'object',
+        required: ['channel', 'mean', 'standardUncertainty', 'sensitivity', 'contribution', 'varianceShare', 'share'],
+        properties: { channel: { type: 'string' }, mean: { type: 'number' }, standardUncertainty: { type: 'number' }, sensitivity: { type: 'number' }, contribution: { type: 'number' }, varianceShare: nullableNumber, share: nullableNumber },
+        additionalProperties: true,
+      },
+    },
+    covarianceTerms: {
+      type: 'array',
+      description: 'each pair of inputs: the correlation of their means and the term 2 c_i c_j u(x_i, x_j) of u_c^2 (negative terms reduce u_c)',
+      items: {
+        type: 'object',
+        required: ['channels', 'correlation', 'term'],
+        properties: { channels: { type: 'array', items: { type: 'string' } }, correlation: nullableNumber, term: { type: 'number' } },
+        additionalProperties: true,
+      },
+    },
+    covarianceShare: nullableNumber,
+    independent: derivedInterval,
+    correlation: { type: 'object', additionalProperties: { type: 'number' } },
+    rows: { type: 'integer' },
+    bucketSeconds: nullableNumber,
+    batches: nullableNumber,
+    batchSize: nullableNumber,
+    multivariateEss: nullableNumber,
+    rowRate: nullableNumber,
+    window: { type: ['object', 'null'], properties: { startSeconds: { type: 'number' }, endSeconds: { type: 'number' } }, additionalProperties: true },
+    counts: { type: 'object', additionalProperties: true },
+    notes: { type: 'array', items: { type: 'string' } },
+    atTarget: { type: ['boolean', 'null'] },
+    inputStates: { type: 'object', additionalProperties: { type: 'string' } },
+    waitingFor: { type: 'array', items: { type: 'string' } },
+    statement: { type: 'string' },
+  },
+  additionalProperties: true,
+} as const;

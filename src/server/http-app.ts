@@ -9,12 +9,15 @@ import { renderReport } from './report.js';
 import { openApiDocument, type DocumentedRoute } from './openapi.js';
 import { eventLogFor, ALERT_KINDS, ACKNOWLEDGED_KIND } from './event-log.js';
 import { channelTrace } from './channel-trace.js';
+import { liveDerived, liveDerivedByName, recordDerivedEntries } from './derived-live.js';
+import { derivedRecordCsv } from '../engine/derived/derived-record.js';
 import { sameOrigin } from './origin.js';
 import {
   acknowledgement,
   channelSnapshot,
   channelSummary,
   channelTraceSchema,
+  derivedResult,
   errorReply,
   recordRow,
   storedEvent,
@@ -261,6 +264,38 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
   );
 
   app.get(
+    '/api/derived',
+    {
+      schema: {
+        summary: 'every derived result: value, u, dof, k, U, budget, covariance terms, target and the state of its inputs (the `derived` entries of `plateau analyze --json` without the record-only checks)',
+        querystring: { type: 'object', properties: {}, additionalProperties: false },
+        response: { 200: { type: 'object', required: ['derived'], properties: { derived: { type: 'array', items: derivedResult } }, additionalProperties: false }, ...errors(400) },
+      },
+    },
+    async () => ({ derived: liveDerived(daemon) }),
+  );
+
+  app.get(
+    '/api/derived/:name',
+    {
+      schema: {
+        summary: 'one derived result with its uncertainty budget and its stored events',
+        description: '`events` is how many of its latest stored events to return (default 200), oldest first.',
+        params: { type: 'object', properties: { name: { type: 'string', pattern: NAME_PATTERN } }, required: ['name'] },
+        querystring: { type: 'object', properties: { events: { type: 'integer', minimum: 0, maximum: 1000 } }, additionalProperties: false },
+        response: { 200: { ...derivedResult, properties: { ...derivedResult.properties, storedEvents: { type: 'array', items: storedEvent } } }, ...errors(400, 404) },
+      },
+    },
+    async (request, reply) => {
+      const { name } = request.params as { name: string };
+      const view = liveDerivedByName(daemon, name);
+      if (!view) return notFound(reply, 'ERR_DERIVED_UNKNOWN', `no derived result named "${name.slice(0, 80)}" (known: ${daemon.derived.names().join(', ') || 'none'})`);
+      const events = (request.query as { events?: number }).events ?? 200;
+      return { ...view, storedEvents: daemon.store.eventsFor(name, events) };
+    },
+  );
+
+  app.get(
     '/api/events',
     {
       schema: {
@@ -419,6 +454,27 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
   );
 
   app.get(
+    '/api/test-points/:id/record-derived.csv',
+    {
+      schema: {
+        summary: "the latest record's derived results as CSV (RFC 4180), one row per derived result",
+        description: 'A file of its own beside record.csv (one row per channel), so that each file is one table with one header: value, u, dof, k, U, the Monte Carlo interval and validation, whether the bootstrap agrees, the budget as channel:share pairs, the statement. 404 when the record holds no derived result.',
+        params: testPointParams,
+        response: { ...errors(400, 404) },
+      },
+    },
+    async (request, reply) => {
+      const { id } = request.params as { id: string };
+      if (!daemon.testPoints.get(id)) return unknownTestPoint(reply, id);
+      const record = latestRecord(id);
+      if (!record) return noRecord(reply, id);
+      const entries = recordDerivedEntries(record.derived);
+      if (entries.length === 0) return notFound(reply, 'ERR_RECORD_NO_DERIVED', `the record of test point ${id} holds no derived result (start the test point with "derived" to record them)`);
+      return reply.header('content-type', 'text/csv; charset=utf-8').header('content-disposition', `attachment; filename="${id}-derived.csv"`).send(derivedRecordCsv(entries));
+    },
+  );
+
+  app.get(
     '/api/test-points/:id/record.json',
     { schema: { summary: 'the latest record', params: testPointParams, response: { 200: testPointRecord, ...errors(400, 404) } } },
     async (request, reply) => {
@@ -445,6 +501,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
         generatedMs: Date.now(),
         version: VERSION,
         channels: channels.map((c) => ({ name: c.name, unit: c.unit, snapshot: c.pipeline.snapshot(), trace: channelTrace(daemon, c, 4000), cusum: c.pipeline.cusumTrace() })),
+        derived: point.derived.length > 0 ? liveDerived(daemon).filter((d) => point.derived.includes(d.name)) : [],
       });
       return reply.header('content-type', 'text/html; charset=utf-8').header('content-security-policy', REPORT_POLICY).send(html);
     },

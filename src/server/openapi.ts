@@ -21,6 +21,7 @@ type JsonSchema = { type?: unknown; properties?: Record<string, unknown>; requir
 
 const RAW_CONTENT: Record<string, { type: string; description: string }> = {
   '/api/test-points/:id/record.csv': { type: 'text/csv', description: 'the record, one row per channel' },
+  '/api/test-points/:id/record-derived.csv': { type: 'text/csv', description: "the record's derived results, one row per derived result" },
   '/api/test-points/:id/report': { type: 'text/html', description: 'the printable report' },
   '/': { type: 'text/html', description: 'the dashboard page' },
   '/dashboard/*': { type: 'text/javascript', description: 'a dashboard file (JavaScript, CSS)' },
@@ -49,9 +50,9 @@ export function openApiDocument(routes: DocumentedRoute[], version: string): Rec
   }
   paths['/ws'] = {
     get: {
-      summary: 'WebSocket (upgrade): hello with every channel, the test points and the latest events; then events at once and channel updates at most every ' +
+      summary: 'WebSocket (upgrade): hello with every channel, every derived result, the test points and the latest events; then events at once and channel and derived-result updates at most every ' +
         `${WS_LIMITS.updateIntervalMs} ms; a beat every ${WS_LIMITS.beatMs} ms when nothing else was sent`,
-      description: 'Messages are JSON text frames: {type:"hello"}, {type:"event"}, {type:"channels"}, {type:"testPoints"}, {type:"beat"}. Clients send nothing (frames above ' +
+      description: 'Messages are JSON text frames: {type:"hello"}, {type:"event"}, {type:"channels"}, {type:"derived"}, {type:"testPoints"}, {type:"beat"}. Clients send nothing (frames above ' +
         `${WS_LIMITS.maxPayloadBytes} bytes close the connection). A connection whose Origin names another site is refused (403).`,
       responses: { 101: { description: 'switching protocols' }, 403: { description: 'cross-site origin' }, 503: { description: 'too many clients' } },
     },

@@ -3,8 +3,10 @@ import type { RecordEntry, TestPointRecord } from '../engine/test-point-record.j
 import { RECORD_CAUTION, gumStatement } from '../engine/test-point-record.js';
 import type { ChannelSnapshot } from '../engine/channel-pipeline.js';
 import type { ChannelTrace } from './channel-trace.js';
+import type { DerivedReportEntry } from '../engine/derived/derived-record.js';
 import { escapeHtml } from './html-text.js';
-import { svgChart } from './svg-chart.js';
+import { svgBarChart, svgChart, type SvgBar } from './svg-chart.js';
+import { recordDerivedEntries, type LiveDerived } from './derived-live.js';
 
 /**
  * The printable test-point report (HTML, for print to PDF): per channel the result in the wording
@@ -14,7 +16,12 @@ import { svgChart } from './svg-chart.js';
  * block means, MSER, Cao-Rhinehart, CUSUM, the last break) and four charts drawn as inline SVG (no
  * script, no external asset): the trace with the mean and its expanded-uncertainty band and the
  * warm-up shaded, the autocorrelation function with the summation window, the Allan deviation on
- * log-log axes with the averaging limit, the CUSUM sums against the decision interval. Then the
+ * log-log axes with the averaging limit, the CUSUM sums against the decision interval. Then per
+ * derived result of the test point: the result in the same wording (value, u, nu, k, U), the
+ * interval as if its inputs were uncorrelated, the uncertainty budget as a bar chart (each input's
+ * variance term and each covariance term in % of u_c^2: negative covariance terms are drawn to the
+ * left of zero, as they reduce u_c) with its table, the correlations with the other derived results,
+ * and, from the record, the Monte Carlo check (JCGM 101:2008) and the bootstrap check. Then the
  * cautions. Every text from the network (names, units, notes) is escaped.
  *
  * When a record exists its values are the result (they are what was recorded when the test point
@@ -33,6 +40,8 @@ export interface ReportInput {
   point: TestPoint;
   record: TestPointRecord | null;
   channels: ReportChannel[];
+  /** The current view of the test point's derived results (shown where the record has none). */
+  derived?: LiveDerived[];
   generatedMs: number;
   version: string;
 }
@@ -55,6 +64,12 @@ export function renderReport(input: ReportInput): string {
     const state = channel?.snapshot.state ?? 'no data';
     return `<tr><td>${escapeHtml(name)}</td><td>${escapeHtml(STATE_TEXT[state] ?? state)}</td><td>${escapeHtml(record?.entries.find((e) => e.channel === name)?.state ?? '-')}</td></tr>`;
   });
+  const recordedDerived = recordDerivedEntries(record?.derived);
+  for (const name of point.derived ?? []) {
+    const live = input.derived?.find((d) => d.name === name);
+    const recorded = recordedDerived.find((d) => d.name === name);
+    verdictRows.push(`<tr><td>${escapeHtml(name)} (derived)</td><td>${escapeHtml(live ? derivedStateText(live) : 'no data')}</td><td>${escapeHtml(recorded ? derivedStateText(recorded) : '-')}</td></tr>`);
+  }
   return `<!doctype html>
 <html lang="en"><head><meta charset="utf-8"><meta name="viewport" content="width=device-width, initial-scale=1">
 <title>Test point report: ${escapeHtml(point.name)}</title>
@@ -94,7 +109,7 @@ ${point.stoppedMs ? `<tr><td>Stopped</td><td>${escapeHtml(iso(point.stoppedMs))}
 ${missing.length ? `<p class="note">No data received for: ${escapeHtml(missing.join(', '))}.</p>` : ''}
 ${point.annotations.length ? `<h2>Notes</h2><ul>${point.annotations.map((a) => `<li>${escapeHtml(iso(a.timeMs))}: ${escapeHtml(a.text)}</li>`).join('')}</ul>` : ''}
 ${sections.join('\n')}
-${derivedSection(record)}
+${derivedSections(point, record, input.derived ?? [])}
 <section class="caution"><strong>Cautions</strong><ul>
 <li>${escapeHtml(RECORD_CAUTION)}</li>
 <li>The uncertainties stated here are the Type A (statistical) standard uncertainty of each mean, allowing for autocorrelation. They do not include Type B contributions (sensor calibration, resolution, installation, reference values): combine those according to the applicable procedure before stating a calibration or test result.</li>
@@ -187,15 +202,159 @@ ${s.notes.length ? `<p class="note">Notes: ${escapeHtml(s.notes.join('; '))}</p>
 </section>`;
 }
 
-function derivedSection(record: TestPointRecord | null): string {
-  if (!record || record.derived.length === 0) return '';
-  return `<h2>Derived results</h2>${record.derived
-    .map((entry) => {
-      const e = entry as Record<string, unknown>;
-      const statement = typeof e.statement === 'string' ? e.statement : JSON.stringify(entry);
-      return `<p class="statement">${escapeHtml(statement)}</p>`;
+/** A derived result's state in words: the verdict of derived-results.ts. */
+function derivedStateText(d: Pick<DerivedReportEntry, 'ready' | 'atTarget' | 'inputStates' | 'target'>): string {
+  if (!d.ready) return 'no value yet (too few common rows of its inputs)';
+  const unsteady = Object.entries(d.inputStates ?? {}).filter(([, state]) => state !== 'steady' && state !== 'precise');
+  if (unsteady.length > 0) return `waiting for its inputs (${unsteady.map(([name, state]) => `${name} ${state}`).join(', ')})`;
+  if (d.atTarget === null || d.target === null) return 'inputs steady, no target set';
+  return d.atTarget ? 'at target' : 'inputs steady, not yet at target';
+}
+
+function derivedSections(point: TestPoint, record: TestPointRecord | null, live: LiveDerived[]): string {
+  const recorded = recordDerivedEntries(record?.derived);
+  const names = [...(point.derived ?? [])];
+  for (const entry of recorded) if (!names.includes(entry.name)) names.push(entry.name);
+  if (names.length === 0) return '';
+  return names
+    .map((name) => {
+      const entry = recorded.find((d) => d.name === name) ?? null;
+      const current = live.find((d) => d.name === name) ?? null;
+      return derivedSection(name, entry, current, record);
     })
-    .join('')}`;
+    .join('\n');
+}
+
+function derivedSection(name: string, entry: DerivedReportEntry | null, current: LiveDerived | null, record: TestPointRecord | null): string {
+  const d: (DerivedReportEntry | LiveDerived) | null = entry ?? current;
+  if (d === null) return `<section><h2>${escapeHtml(name)} (derived)</h2><p class="statement none">${escapeHtml(`${name}: no value (the derived result is not known to this daemon and not in the record)`)}</p></section>`;
+  const unit = d.unit ? ` ${d.unit}` : '';
+  const source = entry ? `Recorded ${record?.createdAt ?? ''}.` : 'Current value (no record of this derived result yet).';
+  const independent = d.independent;
+  const result: [string, string][] = [
+    ['model', d.expression],
+    ['inputs (channel means)', d.inputs.join(', ')],
+    ['estimate y', `${num(d.value, 10)}${unit}`],
+    ['combined standard uncertainty u_c', `${num(d.standardUncertainty, 3)}${unit}`],
+    ['degrees of freedom nu', `${num(d.dof, 3)}${d.dofMethod === 'batches' ? ` (batches - 1, ${d.batches ?? '-'} batches of ${d.batchSize ?? '-'} rows)` : d.dofMethod === 'observations' ? ' (rows - 1, rows taken as independent)' : ''}`],
+    ['coverage factor k', num(d.coverageFactor, 4)],
+    ['expanded uncertainty U = k u_c', `${num(d.expandedUncertainty, 3)}${unit}`],
+    ['coverage probability', `${num(d.confidence * 100, 4)} %`],
+    ['as if the inputs were uncorrelated (Welch-Satterthwaite)', independent ? `u = ${num(independent.standardUncertainty, 3)}${unit}, nu = ${num(independent.dof, 3)}, k = ${num(independent.coverageFactor, 4)}, U = ${num(independent.expandedUncertainty, 3)}${unit}` : '-'],
+    ['rows (common time buckets)', `${d.rows}${d.bucketSeconds !== null ? ` of ${num(d.bucketSeconds, 3)} s` : ''}; multivariate effective sample size ${num(d.multivariateEss, 4)}`],
+    ['covariance of the means', DERIVED_ESTIMATOR_TEXT[d.estimator] ?? d.estimator],
+    ['window', d.window ? `${isoSeconds(d.window.startSeconds) ?? '-'} to ${isoSeconds(d.window.endSeconds) ?? '-'}` : '-'],
+    ['target', d.target ? `${d.target.on} <= ${num(d.target.bound, 3)}${unit}${d.target.relative ? ` (${num(d.target.value * 100, 3)} % of |y|)` : ''}: ${d.target.reached ? 'met' : 'not met'}` : 'none'],
+    ['state', derivedStateText(d)],
+  ];
+  if (d.waitingFor.length > 0) result.push(['waiting for', d.waitingFor.join('; ')]);
+  const u2 = d.standardUncertainty !== null && d.standardUncertainty > 0 ? d.standardUncertainty ** 2 : null;
+  const budgetRows = d.budget.map(
+    (b) => `<tr><td>${escapeHtml(b.channel)}</td><td>${escapeHtml(d.inputStates[b.channel] ?? '-')}</td><td>${escapeHtml(num(b.mean, 8))}</td><td>${escapeHtml(num(b.standardUncertainty, 3))}</td><td>${escapeHtml(num(b.sensitivity, 4))}</td><td>${escapeHtml(num(b.contribution, 3))}</td><td>${escapeHtml(percentText(b.varianceShare))}</td><td>${escapeHtml(percentText(b.share))}</td></tr>`,
+  );
+  const covarianceRows = d.covarianceTerms.map(
+    (c) => `<tr><td>${escapeHtml(`${c.channels[0]} × ${c.channels[1]}`)}</td><td>${escapeHtml(num(c.correlation, 3))}</td><td>${escapeHtml(num(c.term, 3))}</td><td>${escapeHtml(percentText(u2 === null ? null : c.term / u2))}</td></tr>`,
+  );
+  const correlations = Object.entries(d.correlation ?? {});
+  return `<section><h2>${escapeHtml(name)}${d.unit ? ` (${escapeHtml(d.unit)})` : ''}: derived result</h2>
+<p class="statement${entry ? '' : ' none'}">${escapeHtml(entry?.statement ?? current?.statement ?? '')}</p>
+<p class="note">${escapeHtml(source)}</p>
+<h3>Result</h3>
+<table>${rows(result)}</table>
+<h3>Uncertainty budget</h3>
+<p>Law of propagation of uncertainty with correlated inputs (JCGM 100:2008, 5.2, eq. (13)) at the means of the input channels over their common window. Each input's variance term c<sub>i</sub>² u²(x<sub>i</sub>) and each covariance term 2 c<sub>i</sub> c<sub>j</sub> u(x<sub>i</sub>, x<sub>j</sub>), as a share of u<sub>c</sub>²: they add to 100 %; a negative covariance term reduces u<sub>c</sub>.</p>
+${budgetChart(d)}
+<table><tr><th>input</th><th>state</th><th>mean</th><th>u(x_i)</th><th>sensitivity c_i</th><th>c_i u(x_i)</th><th>c_i² u²(x_i) / u_c²</th><th>share with covariance</th></tr>${budgetRows.join('')}</table>
+${covarianceRows.length ? `<table><tr><th>covariance term</th><th>r of the means</th><th>2 c_i c_j u(x_i, x_j)</th><th>share of u_c²</th></tr>${covarianceRows.join('')}</table>` : ''}
+<p class="note">${escapeHtml(covarianceText(d))}</p>
+${correlations.length ? `<h3>Correlation with the other derived results</h3><table><tr><th>derived result</th><th>r</th></tr>${correlations.map(([other, r]) => `<tr><td>${escapeHtml(other)}</td><td>${escapeHtml(num(r, 3))}</td></tr>`).join('')}</table>` : ''}
+${entry ? monteCarloBlock(entry, unit) + bootstrapBlock(entry, unit) : '<p class="note">The Monte Carlo (JCGM 101) and bootstrap checks are computed when the record is written.</p>'}
+${otherNotes(d).length ? `<p class="note">Notes: ${escapeHtml(otherNotes(d).join('; '))}</p>` : ''}
+</section>`;
+}
+
+/** The notes not already shown with the Monte Carlo and bootstrap checks (a record repeats theirs in notes). */
+function otherNotes(d: DerivedReportEntry | LiveDerived): string[] {
+  const shown = new Set<string>();
+  if ('monteCarlo' in d && d.monteCarlo) shown.add('error' in d.monteCarlo ? d.monteCarlo.error : d.monteCarlo.note);
+  if ('bootstrap' in d && d.bootstrap) shown.add(d.bootstrap.note);
+  return d.notes.filter((note) => !shown.has(note));
+}
+
+const DERIVED_ESTIMATOR_TEXT: Record<string, string> = {
+  'batch-means': 'multivariate batch means over common time buckets (D. Vats, J. M. Flegal and G. L. Jones 2019, Biometrika 106(2), 321-337)',
+  iid: 'rows taken as independent: the sample covariance of the rows over their number (JCGM 100:2008, 5.2.3)',
+};
+
+function percentText(share: number | null | undefined): string {
+  if (share === null || share === undefined || !Number.isFinite(share)) return '-';
+  return `${num(share * 100, 3)} %`;
+}
+
+/** In words: what the covariance terms do to u_c, against the uncorrelated interval. */
+function covarianceText(d: DerivedReportEntry | LiveDerived): string {
+  if (d.covarianceShare === null || d.standardUncertainty === null) return 'No budget: the combined standard uncertainty is zero or not known yet.';
+  const share = d.covarianceShare;
+  const unit = d.unit ? ` ${d.unit}` : '';
+  const against = d.independent ? ` As if the inputs were uncorrelated, u_c would be ${num(d.independent.standardUncertainty, 3)}${unit} instead of ${num(d.standardUncertainty, 3)}${unit}.` : '';
+  if (Math.abs(share) < 0.01) return `The covariance terms are negligible (${percentText(share)} of u_c²).${against}`;
+  return share < 0
+    ? `The covariance terms sum to ${percentText(share)} of u_c²: correlated inputs partly cancel, and u_c is smaller than the variance terms alone would give.${against}`
+    : `The covariance terms add ${percentText(share)} of u_c²: correlated inputs reinforce each other.${against}`;
+}
+
+/** The budget as bars in % of u_c^2: variances, covariance terms (negative ones left of zero) and the total. */
+function budgetChart(d: DerivedReportEntry | LiveDerived): string {
+  const u = d.standardUncertainty;
+  if (u === null || !(u > 0)) return '';
+  const u2 = u * u;
+  const bars: SvgBar[] = [];
+  for (const b of d.budget) {
+    if (b.varianceShare === null) continue;
+    bars.push({ label: b.channel, value: 100 * b.varianceShare, fill: '#2f6b8a', valueLabel: `${num(100 * b.varianceShare, 3)} %`, detail: `${b.channel}: c = ${num(b.sensitivity, 4)}, u(x) = ${num(b.standardUncertainty, 3)}, c u(x) = ${num(b.contribution, 3)}` });
+  }
+  for (const c of d.covarianceTerms) {
+    const value = (100 * c.term) / u2;
+    bars.push({ label: `${c.channels[0]} × ${c.channels[1]}`, value, fill: value < 0 ? '#f3c9c4' : '#f1dcb4', stroke: value < 0 ? '#b3261e' : '#9a5b00', dash: '3 2', valueLabel: `${value > 0 ? '+' : ''}${num(value, 3)} %`, detail: `covariance term 2 c_i c_j u(x_i, x_j) = ${num(c.term, 3)}; r = ${num(c.correlation, 3)}` });
+  }
+  bars.push({ label: 'u_c² (the sum)', value: 100, fill: '#5b6573', valueLabel: '100 %' });
+  return svgBarChart({
+    width: 760,
+    title: `Uncertainty budget of ${d.name}`,
+    xLabel: 'share of u_c² (%)',
+    bars,
+    legend: [
+      { label: 'input variance c_i² u²(x_i)', fill: '#2f6b8a' },
+      { label: 'covariance term, positive', fill: '#f1dcb4', stroke: '#9a5b00', dash: '3 2' },
+      { label: 'covariance term, negative (reduces u_c)', fill: '#f3c9c4', stroke: '#b3261e', dash: '3 2' },
+    ],
+  });
+}
+
+function monteCarloBlock(entry: DerivedReportEntry, unit: string): string {
+  const mc = entry.monteCarlo;
+  if (mc === null || mc === undefined) return '<h3>Monte Carlo check (JCGM 101:2008)</h3><p class="note">Not run (no uncertainty to check).</p>';
+  if ('error' in mc) return `<h3>Monte Carlo check (JCGM 101:2008)</h3><p class="note">${escapeHtml(mc.error)}</p>`;
+  const pairs: [string, string][] = [
+    ['trials', `${mc.trials}${mc.converged === false ? ' (stopped at the cap before the adaptive rule was satisfied)' : mc.converged ? ' (adaptive rule satisfied)' : ''}`],
+    ['estimate and standard uncertainty', `${num(mc.value, 10)}${unit}, u = ${num(mc.standardUncertainty, 3)}${unit}`],
+    [`probabilistically symmetric ${num(mc.confidence * 100, 4)} % interval`, `[${num(mc.low, 8)}, ${num(mc.high, 8)}]${unit}`],
+    ['shortest interval', `[${num(mc.shortestLow, 8)}, ${num(mc.shortestHigh, 8)}]${unit}`],
+    [`validation of the first-order result (clause 8, ${mc.significantDigits} significant digits)`, mc.validated === null ? 'not applicable' : `${mc.validated ? 'validated' : 'not validated'}: the ends differ by ${num(mc.lowDifference, 3)} and ${num(mc.highDifference, 3)} against the tolerance ${num(mc.tolerance, 3)}`],
+  ];
+  return `<h3>Monte Carlo check (JCGM 101:2008)</h3><table>${rows(pairs)}</table><p class="note">${escapeHtml(mc.note)}</p>`;
+}
+
+function bootstrapBlock(entry: DerivedReportEntry, unit: string): string {
+  const b = entry.bootstrap;
+  if (b === null || b === undefined) return '<h3>Bootstrap check</h3><p class="note">Not run (no uncertainty to check).</p>';
+  const pairs: [string, string][] = [
+    ['series', `the linearised series sum c_i x_i over ${b.values} values${b.aggregation > 1 ? ` (means of ${b.aggregation} rows)` : ''}`],
+    ['stationary bootstrap', `${b.replicates} replicates, mean block length ${num(b.blockLength, 3)}`],
+    ['standard error of the mean', b.mean ? `${num(b.mean.standardError, 3)}${unit} against u_c = ${num(b.analyticStandardUncertainty, 3)}${unit}${b.comparison && b.comparison.ratio !== null ? ` (ratio ${num(b.comparison.ratio, 3)})` : ''}` : '-'],
+    ['agreement', b.agrees === null ? 'nothing to compare' : b.agrees ? 'agrees' : 'does not agree'],
+  ];
+  return `<h3>Bootstrap check</h3><table>${rows(pairs)}</table><p class="note">${escapeHtml(b.note)}</p>`;
 }
 
 function rows(pairs: [string, string][]): string {

@@ -254,3 +254,109 @@ export function shortNumber(value: number, step?: number): string {
   if (abs >= 1e5 || abs < 1e-3) return value.toExponential(1);
   return Number(value.toPrecision(3)).toString();
 }
+
+/** One bar of a horizontal bar chart: signed; negative bars go left of zero. */
+export interface SvgBar {
+  label: string;
+  value: number;
+  fill: string;
+  /** Outline (e.g. to set covariance terms apart from variances). */
+  stroke?: string;
+  dash?: string;
+  /** Text in the value column (default: the value, 3 significant digits). */
+  valueLabel?: string;
+  /** Shown on hover (an SVG title). */
+  detail?: string;
+}
+
+export interface SvgBarChart {
+  width: number;
+  title: string;
+  xLabel: string;
+  bars: SvgBar[];
+  /** Vertical reference lines (e.g. the total at 100 %). */
+  vlines?: { x: number; label: string; stroke: string }[];
+  legend?: { label: string; fill: string; stroke?: string; dash?: string }[];
+}
+
+const BAR_ROW = 20;
+const VALUE_COLUMN = 64;
+/** Approximate advance of a character at font-size 10 (labels are cut to fit their column). */
+const CHARACTER_WIDTH = 5.6;
+
+/**
+ * A horizontal bar chart of signed values (e.g. an uncertainty budget in % of u_c^2, where
+ * covariance terms can be negative): a label column, the bars from a zero line, a value column,
+ * ticks below. Labels longer than their column are shortened in the middle, the full text kept in a
+ * hover title. Cost O(bars).
+ */
+export function svgBarChart(chart: SvgBarChart): string {
+  const bars = chart.bars.filter((b) => Number.isFinite(b.value));
+  if (bars.length === 0) return '';
+  const { width } = chart;
+  const longest = Math.max(...bars.map((b) => b.label.length));
+  const labelWidth = Math.round(Math.min(width * 0.42, Math.max(70, longest * CHARACTER_WIDTH + 14)));
+  // The legend runs left to right below the title, on as many lines as it needs.
+  const legendItems: { x: number; line: number; item: NonNullable<SvgBarChart['legend']>[number] }[] = [];
+  let legendX = 4;
+  let legendLine = 0;
+  for (const item of chart.legend ?? []) {
+    const itemWidth = 28 + item.label.length * 5.2;
+    if (legendX > 4 && legendX + itemWidth > width) {
+      legendLine++;
+      legendX = 4;
+    }
+    legendItems.push({ x: legendX, line: legendLine, item });
+    legendX += itemWidth;
+  }
+  const legendRows = legendItems.length > 0 ? legendLine + 1 : 0;
+  const top = 22 + legendRows * 16 + (chart.vlines?.length ? 12 : 0);
+  const left = labelWidth;
+  const plotWidth = width - left - VALUE_COLUMN - 8;
+  const plotHeight = bars.length * BAR_ROW;
+  const height = top + plotHeight + 34;
+  let low = Math.min(0, ...bars.map((b) => b.value), ...(chart.vlines ?? []).map((v) => v.x));
+  let high = Math.max(0, ...bars.map((b) => b.value), ...(chart.vlines ?? []).map((v) => v.x));
+  if (high === low) high = low + 1;
+  const pad = (high - low) * 0.04;
+  low -= low < 0 ? pad : 0;
+  high += pad;
+  const px = (v: number) => left + ((v - low) / (high - low)) * plotWidth;
+  const parts: string[] = [];
+  parts.push(`<rect x="${left}" y="${top}" width="${f(plotWidth)}" height="${plotHeight}" fill="#fbfcfd" stroke="#b8c2ce"/>`);
+  for (const tick of ticks(low, high, false)) {
+    const x = px(tick.position);
+    parts.push(`<line x1="${f(x)}" x2="${f(x)}" y1="${top}" y2="${top + plotHeight}" stroke="#e3e8ee"/>`);
+    parts.push(`<text x="${f(x)}" y="${top + plotHeight + 13}" text-anchor="middle" font-size="9.5" fill="#4a5563">${escapeHtml(tick.label)}</text>`);
+  }
+  const maxCharacters = Math.max(4, Math.floor((labelWidth - 8) / CHARACTER_WIDTH));
+  bars.forEach((bar, i) => {
+    const y = top + i * BAR_ROW;
+    const a = px(Math.min(0, bar.value));
+    const b = px(Math.max(0, bar.value));
+    const title = `<title>${escapeHtml(bar.detail ?? `${bar.label}: ${bar.valueLabel ?? shortNumber(bar.value)}`)}</title>`;
+    parts.push(`<g>${title}<text x="${left - 6}" y="${y + 13.5}" text-anchor="end" font-size="10" fill="#1d2430">${escapeHtml(shorten(bar.label, maxCharacters))}</text>`);
+    parts.push(`<rect x="${f(a)}" y="${y + 4}" width="${f(Math.max(0.8, b - a))}" height="${BAR_ROW - 8}" fill="${bar.fill}"${bar.stroke ? ` stroke="${bar.stroke}" stroke-width="1.2"` : ''}${bar.dash ? ` stroke-dasharray="${bar.dash}"` : ''}/>`);
+    parts.push(`<text x="${width - 4}" y="${y + 13.5}" text-anchor="end" font-size="10" fill="#1d2430">${escapeHtml(bar.valueLabel ?? shortNumber(bar.value))}</text></g>`);
+  });
+  parts.push(`<line x1="${f(px(0))}" x2="${f(px(0))}" y1="${top}" y2="${top + plotHeight}" stroke="#1d2430" stroke-width="1"/>`);
+  for (const line of chart.vlines ?? []) {
+    const x = px(line.x);
+    parts.push(`<line x1="${f(x)}" x2="${f(x)}" y1="${top}" y2="${top + plotHeight}" stroke="${line.stroke}" stroke-width="1.2" stroke-dasharray="4 3"/>`);
+    parts.push(`<text x="${f(x)}" y="${top - 3}" text-anchor="middle" font-size="9.5" fill="${line.stroke}">${escapeHtml(line.label)}</text>`);
+  }
+  parts.push(`<text x="4" y="14" font-size="11" font-weight="600" fill="#1d2430">${escapeHtml(chart.title)}</text>`);
+  for (const { x, line, item } of legendItems) {
+    const y = 22 + line * 16;
+    parts.push(`<rect x="${f(x)}" y="${y}" width="12" height="9" fill="${item.fill}"${item.stroke ? ` stroke="${item.stroke}"` : ''}${item.dash ? ` stroke-dasharray="${item.dash}"` : ''}/><text x="${f(x + 16)}" y="${y + 8}" font-size="9.5" fill="#1d2430">${escapeHtml(item.label)}</text>`);
+  }
+  parts.push(`<text x="${f(left + plotWidth / 2)}" y="${height - 2}" text-anchor="middle" font-size="10" fill="#1d2430">${escapeHtml(chart.xLabel)}</text>`);
+  return `<svg xmlns="http://www.w3.org/2000/svg" width="${width}" height="${height}" viewBox="0 0 ${width} ${height}" role="img" aria-label="${escapeHtml(chart.title)}">${parts.join('')}</svg>`;
+}
+
+/** A label cut in the middle to at most `max` characters. */
+function shorten(label: string, max: number): string {
+  if (label.length <= max) return label;
+  const head = Math.ceil((max - 1) / 2);
+  return `${label.slice(0, head)}…${label.slice(label.length - (max - 1 - head))}`;
+}

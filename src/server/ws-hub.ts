@@ -5,11 +5,14 @@ import type { Daemon, PublishedEvent } from '../daemon/daemon.js';
 import type { ChannelSummary } from '../engine/channel-pipeline.js';
 import { eventLogFor, type ServerEventLog } from './event-log.js';
 import { sameOrigin } from './origin.js';
+import { liveDerived } from './derived-live.js';
 
 /**
  * The WebSocket hub (ws) on /ws: events go to every client at once; channel updates go at most
  * every updateIntervalMs per client, whatever the sample rate, carrying only the channels that
- * changed since that client's last update; test points go when one of them may have changed.
+ * changed since that client's last update; derived results likewise, in their own message, each
+ * whole (the view of GET /api/derived, about 2.5 kB for a result of three inputs) when its text
+ * changed; test points go when one of them may have changed.
  *
  * Bounded: a client whose socket buffer holds more than skipBytes is skipped (it gets no channel
  * update until it drains, then one update with every channel); beyond dropBytes it is dropped,
@@ -20,14 +23,16 @@ import { sameOrigin } from './origin.js';
  * a browser (which cannot see pings) notice a half-open connection.
  *
  * Messages (JSON text frames):
- *   { type: "hello", protocol: 1, serverTimeMs, channels: [summary...], testPoints: [...],
- *     lastEventId, events: [the latest, oldest first], acknowledgements: [...] }
+ *   { type: "hello", protocol: 1, serverTimeMs, channels: [summary...], derived: [result...],
+ *     testPoints: [...], lastEventId, events: [the latest, oldest first], acknowledgements: [...] }
  *   { type: "event", event: { id, timeMs, source, kind, at, body } }
  *   { type: "channels", serverTimeMs, channels: [summary...] }
+ *   { type: "derived", serverTimeMs, derived: [result...] }
  *   { type: "testPoints", testPoints: [...] }
  *   { type: "beat", serverTimeMs }
  * Cost per tick: one summary per channel with new samples or events (tens of microseconds each),
- * shared by every client; then one JSON text per client.
+ * and one snapshot per derived result with new rows (about 0.3 ms each), shared by every client;
+ * then one JSON text per client.
  */
 export interface WsHubOptions {
   updateIntervalMs?: number;
@@ -66,6 +71,8 @@ interface Client {
   socket: HubSocket;
   alive: boolean;
   sent: Map<string, number>;
+  /** The text of each derived result last sent to this client. */
+  derivedSent: Map<string, string>;
   lastSendMs: number;
 }
 
@@ -148,7 +155,7 @@ export class WsHub {
 
   /** Takes over an open socket: sends the hello, then keeps it updated. */
   attach(socket: HubSocket): void {
-    const client: Client = { socket, alive: true, sent: new Map(), lastSendMs: 0 };
+    const client: Client = { socket, alive: true, sent: new Map(), derivedSent: new Map(), lastSendMs: 0 };
     this.clients.add(client);
     this.counters.connected++;
     socket.on('pong', () => {
@@ -164,6 +171,8 @@ export class WsHub {
       channels.push(entry.summary);
       client.sent.set(name, entry.version);
     }
+    const derived = this.derivedTexts();
+    for (const [name, text] of derived) client.derivedSent.set(name, text);
     const lastEventId = this.events.lastId;
     const recent = this.events.latest(this.settings.helloEvents);
     this.send(client, {
@@ -171,12 +180,21 @@ export class WsHub {
       protocol: 1,
       serverTimeMs: Date.now(),
       channels,
-      testPoints: this.testPoints(),
+      derived: [...derived.values()].map((text) => JSON.parse(text) as unknown),
       lastEventId,
       events: recent,
+      testPoints: this.testPoints(),
       acknowledgements: this.events.acknowledgementsAfter((recent[0]?.id ?? lastEventId + 1) - 1),
       updateIntervalMs: this.settings.updateIntervalMs,
     }, true);
+  }
+
+  /** Each derived result as JSON text (the text tells whether it changed since a client's last one). */
+  private derivedTexts(): Map<string, string> {
+    const out = new Map<string, string>();
+    if (this.daemon.derived.names().length === 0) return out;
+    for (const view of liveDerived(this.daemon)) out.set(view.name, JSON.stringify(view, finite));
+    return out;
   }
 
   private testPoints(): unknown[] {
@@ -204,10 +222,12 @@ export class WsHub {
     if (this.clients.size === 0) return;
     const now = Date.now();
     this.refreshSummaries();
+    const derived = this.derivedTexts();
     const testPointsText = this.testPointsChanged ? JSON.stringify({ type: 'testPoints', testPoints: this.testPoints() }, finite) : null;
     this.testPointsChanged = false;
     for (const client of this.clients) {
       if (testPointsText) this.sendText(client, testPointsText, false);
+      let sent = false;
       const changed: ChannelSummary[] = [];
       const versions: [string, number][] = [];
       for (const [name, entry] of this.summaries) {
@@ -217,8 +237,17 @@ export class WsHub {
         }
       }
       if (changed.length > 0) {
+        sent = true;
         if (this.send(client, { type: 'channels', serverTimeMs: now, channels: changed }, false)) for (const [name, version] of versions) client.sent.set(name, version);
-      } else if (now - client.lastSendMs >= this.settings.beatMs) this.send(client, { type: 'beat', serverTimeMs: now }, false);
+      }
+      const changedDerived = [...derived].filter(([name, text]) => client.derivedSent.get(name) !== text);
+      if (changedDerived.length > 0) {
+        sent = true;
+        // The texts are the results' JSON already: joined, not serialised again.
+        const text = `{"type":"derived","serverTimeMs":${now},"derived":[${changedDerived.map(([, t]) => t).join(',')}]}`;
+        if (this.sendText(client, text, false)) for (const [name, t] of changedDerived) client.derivedSent.set(name, t);
+      }
+      if (!sent && now - client.lastSendMs >= this.settings.beatMs) this.send(client, { type: 'beat', serverTimeMs: now }, false);
     }
   }
 
@@ -238,8 +267,9 @@ export class WsHub {
     }
     if (!important && socket.bufferedAmount > this.settings.skipBytes) {
       this.counters.skipped++;
-      // Forget what was sent: the first update after it drains carries every channel.
+      // Forget what was sent: the first update after it drains carries every channel and derived result.
       client.sent.clear();
+      client.derivedSent.clear();
       return false;
     }
     socket.send(text);

@@ -86,7 +86,7 @@ interface LoadFigures {
 async function measureLoad(target: Page): Promise<LoadFigures> {
   const started = Date.now();
   await target.goto(base);
-  await target.locator('.tile').nth(DEMO_CHANNELS.length - 1).waitFor();
+  await target.locator('.tile[data-channel]').nth(DEMO_CHANNELS.length - 1).waitFor();
   const wallMs = Date.now() - started;
   // Browser-side code as text: this project's type check has no DOM library.
   const timing = await target.evaluate<{ documentBytes: number; resourceBytes: number; decodedBytes: number; requests: number; domContentLoadedMs: number; loadMs: number; firstDataMs: number | null }>(`(() => {
@@ -176,7 +176,7 @@ describe.skipIf(!available)('dashboard in Chromium', () => {
   });
 
   it("the demo's channels appear and their numbers change live", async () => {
-    await expect.poll(async () => (await page.locator('.tile .channel-name').allTextContents()).sort(), { timeout: 10_000 }).toEqual(DEMO_CHANNELS);
+    await expect.poll(async () => (await page.locator('.tile[data-channel] .channel-name').allTextContents()).sort(), { timeout: 10_000 }).toEqual(DEMO_CHANNELS);
     const n = page.locator('.tile[data-channel="hx7.water_flow_kg_s"] [data-field="n"]');
     const last = page.locator('.tile[data-channel="hx7.glycol_in_degC"] [data-field="last"]');
     const firstN = await n.textContent();
@@ -184,11 +184,49 @@ describe.skipIf(!available)('dashboard in Chromium', () => {
     await expect.poll(() => text(n), { timeout: 5000 }).not.toBe(firstN);
     await expect.poll(() => text(last), { timeout: 5000 }).not.toBe(firstLast);
     // Every tile states its state in words.
-    for (const badge of await page.locator('.tile [data-field="state"]').allTextContents()) expect(badge).toMatch(/WARMING UP|STEADY|AT TARGET|NOT STEADY|NO DATA/);
+    for (const badge of await page.locator('.tile[data-channel] [data-field="state"]').allTextContents()) expect(badge).toMatch(/WARMING UP|STEADY|AT TARGET|NOT STEADY|NO DATA/);
     await untilText(page.locator('#connection'), '● LIVE');
     // Let the flow channels reach their target so the screenshot shows every state of a run.
-    await expect.poll(async () => page.locator('.tile.st-precise').count(), { timeout: 15_000 }).toBeGreaterThanOrEqual(1);
+    await expect.poll(async () => page.locator('.tile[data-channel].st-precise').count(), { timeout: 15_000 }).toBeGreaterThanOrEqual(1);
     await page.screenshot({ path: join(OUTPUT, 'dashboard-overview.png') });
+  });
+
+  it('the derived result: its tile shows value ± U, k, the uncorrelated U and its state; its view draws the uncertainty budget', async () => {
+    const name = 'hx7.heat_duty_kW';
+    await page.goto(base);
+    const tile = page.locator(`.derived-tile[data-derived="${name}"]`);
+    await untilText(tile.locator('[data-field="value"]'), /^-?\d+(\.\d+)?$/);
+    await untilText(tile.locator('[data-field="uncertainty"]'), /^± [\d.]+ kW$/);
+    await untilText(tile.locator('[data-field="coverage"]'), /^k = [\d.]+ · 95 %$/);
+    await untilText(tile.locator('[data-field="independent"]'), /^± [\d.]+ kW$/);
+    await untilText(tile.locator('[data-field="inputs"]'), /^[0-3] of 3$/);
+    expect(await tile.locator('[data-field="state"]').textContent()).toMatch(/^(◔ WAITING FOR INPUTS|● NOT YET AT TARGET|✔ AT TARGET)$/);
+    await tile.click();
+    await expect.poll(() => page.url()).toMatch(/#\/derived\/hx7\.heat_duty_kW$/);
+    const detail = await api<{ inputs: string[]; covarianceTerms: unknown[] }>(`api/derived/${name}`);
+    // A bar per input, one per pair of inputs, and their sum.
+    const bars = page.locator('#derived-budget .budget-bar');
+    await expect.poll(() => bars.count(), { timeout: 10_000 }).toBe(detail.body.inputs.length + detail.body.covarianceTerms.length + 1);
+    expect(await page.locator('#derived-budget .budget-row[data-kind="variance"]').evaluateAll((rows) => rows.map((r) => r.getAttribute('data-label')))).toEqual(detail.body.inputs);
+    // The bars are drawn to scale from one zero line: length proportional to the share, a negative
+    // share to the left (a covariance term that reduces u_c). Positions are in SVG user units;
+    // 0.5 allows for the 1-unit minimum width of a bar near zero.
+    const geometry = await bars.evaluateAll((rects) => rects.map((r) => ({ x: Number(r.getAttribute('x')), width: Number(r.getAttribute('width')), percent: Number(r.getAttribute('data-percent')) })));
+    const total = geometry.at(-1) as { x: number; width: number; percent: number };
+    expect(total.percent).toBe(100);
+    const zero = total.x;
+    const scale = total.width / 100;
+    for (const bar of geometry) {
+      if (Math.abs(bar.percent) * scale < 1) continue;
+      expect(Math.abs(bar.width - Math.abs(bar.percent) * scale)).toBeLessThan(0.5);
+      expect(Math.abs((bar.percent < 0 ? bar.x + bar.width : bar.x) - zero)).toBeLessThan(0.5);
+    }
+    await expect.poll(() => page.locator('#derived-inputs tr').count()).toBe(detail.body.inputs.length);
+    await expect.poll(() => page.locator('#derived-covariance tr').count()).toBe(detail.body.covarianceTerms.length);
+    await untilText(page.locator('.view-derived [data-field="statement"]'), /^hx7\.heat_duty_kW = \(.+\) kW, where the number following ± is the expanded uncertainty/);
+    await untilVisible(page.locator('#derived-events li'));
+    await page.screenshot({ path: join(OUTPUT, 'dashboard-derived.png'), fullPage: true });
+    expect(alarms).toEqual([]);
   });
 
   it('a test point started from the page reaches ready faster than real time; its CSV export matches the API', async () => {

@@ -442,9 +442,9 @@ describe('never a 500', () => {
   });
 
   it('random requests against every route (fast-check, 300 runs): 2xx, or 4xx with { error, message }', async () => {
-    const paths = ['/healthz', '/api/server', '/api/counters', '/api/channels', '/api/channels/{s}', '/api/events', '/api/events/{s}/acknowledge', '/api/test-points', '/api/test-points/{s}', '/api/test-points/{s}/stop', '/api/test-points/{s}/annotations', '/api/test-points/{s}/records', '/api/test-points/{s}/record.csv', '/api/test-points/{s}/record.json', '/api/test-points/{s}/report', '/vendor/{s}', '/dashboard/{s}', '/'];
-    const segment = fc.oneof(fc.string({ maxLength: 40 }), fc.constantFrom('hx7.shell_dp_kPa', 'tp-dup', '1', '-1', '..', '%00', '%', 'tp-guarded'));
-    const query = fc.oneof(fc.constant(''), fc.string({ maxLength: 30 }).map((s) => `?${s}`), fc.constantFrom('?view=summary', '?trace=5', '?latest=3', '?after=0&limit=2', '?limit=-3'));
+    const paths = ['/healthz', '/api/server', '/api/counters', '/api/channels', '/api/channels/{s}', '/api/derived', '/api/derived/{s}', '/api/events', '/api/events/{s}/acknowledge', '/api/test-points', '/api/test-points/{s}', '/api/test-points/{s}/stop', '/api/test-points/{s}/annotations', '/api/test-points/{s}/records', '/api/test-points/{s}/record.csv', '/api/test-points/{s}/record-derived.csv', '/api/test-points/{s}/record.json', '/api/test-points/{s}/report', '/vendor/{s}', '/dashboard/{s}', '/'];
+    const segment = fc.oneof(fc.string({ maxLength: 40 }), fc.constantFrom('hx7.shell_dp_kPa', 'hx7.heat_duty_kW', 'tp-dup', '1', '-1', '..', '%00', '%', 'tp-guarded'));
+    const query = fc.oneof(fc.constant(''), fc.string({ maxLength: 30 }).map((s) => `?${s}`), fc.constantFrom('?view=summary', '?trace=5', '?events=3', '?latest=3', '?after=0&limit=2', '?limit=-3'));
     const body = fc.oneof(fc.constant(undefined), fc.json({ maxDepth: 3 }), fc.string({ maxLength: 60 }), fc.constantFrom('{"channels":["hx7.shell_dp_kPa"]}', '{"text":"note"}', '{"note":null}', 'null', '[]'));
     await fc.assert(
       fc.asyncProperty(fc.constantFrom('GET', 'POST', 'PUT', 'DELETE', 'PATCH', 'HEAD', 'OPTIONS'), fc.constantFrom(...paths), segment, query, body, fc.boolean(), async (method, path, seg, q, payload, asJson) => {

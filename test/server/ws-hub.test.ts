@@ -2,6 +2,7 @@ import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { createServer, type Server } from 'node:http';
 import { WebSocket } from 'ws';
 import { WsHub, type HubSocket, type WsHubOptions } from '../../src/server/ws-hub.js';
+import { liveDerived } from '../../src/server/derived-live.js';
 import { makeTestDaemon, RIG_START_SECONDS, type TestDaemon } from './harness.js';
 
 // The WebSocket hub with real ws clients on loopback, and with stand-in sockets whose send buffer
@@ -161,6 +162,41 @@ describe('WsHub with ws clients', () => {
     socket.send('x'.repeat(5000));
     expect(await closed).toBe(1009);
     await until(() => hub.clientCount === 0);
+  });
+
+  it('hello carries every derived result, as GET /api/derived gives it (budget and statement included)', async () => {
+    const { url } = await startHub();
+    const { received } = await connect(url);
+    await until(() => received.length > 0);
+    const hello = received[0]?.message as unknown as { type: string; derived: { name: string; inputs: string[]; budget: { channel: string }[]; statement: string; rows: number }[] };
+    expect(hello.type).toBe('hello');
+    expect(hello.derived.map((d) => d.name)).toEqual(t.daemon.derived.names());
+    const duty = hello.derived[0] as (typeof hello.derived)[number];
+    expect(duty.budget.map((b) => b.channel)).toEqual(duty.inputs);
+    expect(duty.statement).toMatch(/^hx7\.heat_duty_kW = \(/);
+    // Nothing was fed since the hello: the same result as the HTTP API's.
+    expect(hello.derived).toEqual(JSON.parse(JSON.stringify(liveDerived(t.daemon))));
+  });
+
+  it('derived results are updated in their own message, throttled like the channels, only when they changed', async () => {
+    const { url } = await startHub({ updateIntervalMs: 250 });
+    const { received } = await connect(url);
+    await until(() => received.length > 0);
+    // Rig samples into the derived result's inputs every 20 ms for 1.5 s.
+    const feeder = setInterval(() => t.feedRig(0.2), 20);
+    await new Promise((resolve) => setTimeout(resolve, 1500));
+    clearInterval(feeder);
+    const updates = received.filter((r) => r.message.type === 'derived');
+    // 1500 ms / 250 ms = 6 ticks (+1 for timer phase); at least 4 even on a loaded machine.
+    expect(updates.length).toBeLessThanOrEqual(7);
+    expect(updates.length).toBeGreaterThanOrEqual(4);
+    const rows = updates.map((u) => ((u.message.derived as { name: string; rows: number }[])[0] as { rows: number }).rows);
+    for (let i = 1; i < rows.length; i++) expect(rows[i]).toBeGreaterThan(rows[i - 1] as number);
+    for (let i = 1; i < updates.length; i++) expect((updates[i] as Received).atMs - (updates[i - 1] as Received).atMs).toBeGreaterThanOrEqual(150);
+    // Without new samples the result does not change: no further derived message.
+    const count = received.filter((r) => r.message.type === 'derived').length;
+    await new Promise((resolve) => setTimeout(resolve, 600));
+    expect(received.filter((r) => r.message.type === 'derived').length).toBeLessThanOrEqual(count + 1);
   });
 
   it('disconnectAll ends every connection (clients reconnect by themselves)', async () => {

@@ -1,0 +1,161 @@
+// The uncertainty budget of a derived result as a chart: SVG built through the DOM, every label a
+// text node. One bar per term of u_c², as a share of it: each input's variance term c_i² u²(x_i)
+// (solid), each pair's covariance term 2 c_i c_j u(x_i, x_j) (hatched; a negative one is drawn left
+// of zero, since it takes away from u_c²), and their sum, 100 %. When the inputs are correlated the
+// variance terms alone can exceed 100 % many times over, cancelled by negative covariance terms: the
+// chart shows that as it is rather than rescaling it away.
+
+const SVG = 'http://www.w3.org/2000/svg';
+const ROW = 26;
+const VALUE_COLUMN = 78;
+const CHARACTER_WIDTH = 7;
+const COLORS = { variance: '#5fb3ff', positive: '#f0a830', negative: '#ff6b5f', total: '#9aa7b4', axis: '#9aa7b4', grid: 'rgba(154,167,180,0.16)', text: '#e9eef3' };
+
+let charts = 0;
+
+function el(tag, attributes, ...children) {
+  const node = document.createElementNS(SVG, tag);
+  for (const [key, value] of Object.entries(attributes ?? {})) if (value !== undefined && value !== null) node.setAttribute(key, String(value));
+  for (const child of children) if (child !== null && child !== undefined) node.appendChild(typeof child === 'string' ? document.createTextNode(child) : child);
+  return node;
+}
+
+function trim(value, digits) {
+  if (value === null || value === undefined || !Number.isFinite(value)) return '–';
+  if (value !== 0 && (Math.abs(value) >= 1e9 || Math.abs(value) < 1e-5)) return value.toExponential(Math.max(0, digits - 2));
+  return String(Number(value.toPrecision(digits)));
+}
+
+function percentText(value) {
+  const sign = value < 0 ? '−' : value > 0 && value !== 100 ? '+' : '';
+  return `${sign}${trim(Math.abs(value), 3)} %`;
+}
+
+/**
+ * The terms of u_c² of a derived result (as GET /api/derived gives it), each as a share of u_c²
+ * in percent; empty when u_c is zero or unknown. kind: variance, covariance-positive,
+ * covariance-negative, total.
+ */
+export function budgetTerms(d) {
+  const u = d?.standardUncertainty;
+  if (!(u > 0) || !Number.isFinite(u)) return [];
+  const u2 = u * u;
+  const terms = [];
+  for (const b of d.budget ?? []) {
+    if (b.varianceShare === null || !Number.isFinite(b.varianceShare)) continue;
+    terms.push({ kind: 'variance', label: b.channel, percent: 100 * b.varianceShare, detail: `${b.channel}: c_i²·u²(x_i) with c_i = ${trim(b.sensitivity, 4)}, u(x_i) = ${trim(b.standardUncertainty, 3)}, c_i·u(x_i) = ${trim(b.contribution, 3)}` });
+  }
+  for (const c of d.covarianceTerms ?? []) {
+    const percent = (100 * c.term) / u2;
+    if (!Number.isFinite(percent)) continue;
+    terms.push({ kind: percent < 0 ? 'covariance-negative' : 'covariance-positive', label: `${c.channels[0]} × ${c.channels[1]}`, percent, detail: `covariance term 2·c_i·c_j·u(x_i, x_j) = ${trim(c.term, 3)}; correlation of the means r = ${trim(c.correlation, 3)}` });
+  }
+  terms.push({ kind: 'total', label: 'u_c² (the sum)', percent: 100, detail: `u_c = ${trim(u, 3)}${d.unit ? ` ${d.unit}` : ''}: the terms above add to 100 %` });
+  return terms;
+}
+
+/** Tick values on [low, high] with a 1-2-5 step, about six of them. */
+function ticks(low, high) {
+  const span = high - low;
+  const magnitude = 10 ** Math.floor(Math.log10(span / 5));
+  const step = [1, 2, 5, 10].map((m) => m * magnitude).find((s) => span / s <= 7) ?? 10 * magnitude;
+  const out = [];
+  for (let v = Math.ceil(low / step) * step; v <= high + step * 1e-9; v += step) out.push(Math.abs(v) < step * 1e-9 ? 0 : v);
+  return out;
+}
+
+function shorten(label, max) {
+  if (label.length <= max) return label;
+  const head = Math.ceil((max - 1) / 2);
+  return `${label.slice(0, head)}…${label.slice(label.length - (max - 1 - head))}`;
+}
+
+/** A chart in `container`; update(d) redraws it for a derived result, and it follows the container's width. */
+export function budgetChart(container) {
+  const id = ++charts;
+  let current = null;
+  let width = 0;
+  const draw = () => {
+    width = Math.max(320, container.clientWidth - 4);
+    const terms = budgetTerms(current);
+    while (container.firstChild) container.removeChild(container.firstChild);
+    if (terms.length === 0) {
+      const empty = document.createElement('p');
+      empty.className = 'chart-note';
+      empty.textContent = 'No budget yet: the combined standard uncertainty is zero or not known.';
+      container.appendChild(empty);
+      return;
+    }
+    const longest = Math.max(...terms.map((t) => t.label.length));
+    const labelWidth = Math.round(Math.min(width * 0.4, Math.max(90, longest * CHARACTER_WIDTH + 14)));
+    const top = 46;
+    const plotWidth = width - labelWidth - VALUE_COLUMN - 8;
+    const plotHeight = terms.length * ROW;
+    const height = top + plotHeight + 40;
+    let low = Math.min(0, ...terms.map((t) => t.percent));
+    let high = Math.max(100, ...terms.map((t) => t.percent));
+    const pad = (high - low) * 0.03;
+    if (low < 0) low -= pad;
+    high += pad;
+    const px = (v) => labelWidth + ((v - low) / (high - low)) * plotWidth;
+    const hatch = (name, color) =>
+      el('pattern', { id: `budget-${name}-${id}`, patternUnits: 'userSpaceOnUse', width: 7, height: 7, patternTransform: 'rotate(45)' }, el('rect', { width: 7, height: 7, fill: color, 'fill-opacity': 0.35 }), el('line', { x1: 0, y1: 0, x2: 0, y2: 7, stroke: color, 'stroke-width': 3 }));
+    const fills = { variance: COLORS.variance, 'covariance-positive': `url(#budget-positive-${id})`, 'covariance-negative': `url(#budget-negative-${id})`, total: COLORS.total };
+    const strokes = { 'covariance-positive': COLORS.positive, 'covariance-negative': COLORS.negative };
+    const svg = el('svg', { class: 'budget-svg', width, height, viewBox: `0 0 ${width} ${height}`, role: 'img', 'aria-label': `Uncertainty budget of ${current.name}: each term as a share of u_c²` });
+    svg.appendChild(el('defs', {}, hatch('positive', COLORS.positive), hatch('negative', COLORS.negative)));
+    // Legend.
+    const legend = [
+      ['variance of an input', COLORS.variance, null],
+      ['covariance, adds to u_c²', `url(#budget-positive-${id})`, COLORS.positive],
+      ['covariance, takes away from u_c²', `url(#budget-negative-${id})`, COLORS.negative],
+    ];
+    let x = labelWidth;
+    for (const [text, fill, stroke] of legend) {
+      svg.appendChild(el('rect', { x, y: 6, width: 14, height: 11, fill, stroke: stroke ?? undefined }));
+      svg.appendChild(el('text', { x: x + 19, y: 16, 'font-size': 12, fill: COLORS.text }, text));
+      x += 34 + text.length * 6.4;
+    }
+    // Grid and ticks.
+    svg.appendChild(el('rect', { x: labelWidth, y: top, width: plotWidth, height: plotHeight, fill: 'rgba(255,255,255,0.02)', stroke: 'rgba(154,167,180,0.3)' }));
+    for (const tick of ticks(low, high)) {
+      const tx = px(tick);
+      svg.appendChild(el('line', { x1: tx, x2: tx, y1: top, y2: top + plotHeight, stroke: COLORS.grid }));
+      svg.appendChild(el('text', { x: tx, y: top + plotHeight + 15, 'text-anchor': 'middle', 'font-size': 11, fill: COLORS.axis }, `${trim(tick, 4)} %`));
+    }
+    const maxCharacters = Math.max(6, Math.floor((labelWidth - 14) / CHARACTER_WIDTH));
+    terms.forEach((term, i) => {
+      const y = top + i * ROW;
+      const a = px(Math.min(0, term.percent));
+      const b = px(Math.max(0, term.percent));
+      svg.appendChild(
+        el(
+          'g',
+          { class: `budget-row ${term.kind}`, 'data-kind': term.kind, 'data-label': term.label },
+          el('title', {}, `${term.label}: ${percentText(term.percent)} of u_c². ${term.detail}`),
+          el('text', { x: labelWidth - 8, y: y + 17, 'text-anchor': 'end', 'font-size': 12, fill: COLORS.text }, shorten(term.label, maxCharacters)),
+          el('rect', { class: 'budget-bar', x: a, y: y + 5, width: Math.max(1, b - a), height: ROW - 10, fill: fills[term.kind], stroke: strokes[term.kind], 'stroke-width': strokes[term.kind] ? 1.2 : undefined, 'data-percent': term.percent }),
+          el('text', { x: width - 4, y: y + 17, 'text-anchor': 'end', 'font-size': 12, 'font-weight': term.kind === 'total' ? 700 : 400, fill: term.kind === 'covariance-negative' ? COLORS.negative : COLORS.text }, percentText(term.percent)),
+        ),
+      );
+    });
+    svg.appendChild(el('line', { x1: px(0), x2: px(0), y1: top, y2: top + plotHeight, stroke: COLORS.text, 'stroke-width': 1.2 }));
+    svg.appendChild(el('line', { x1: px(100), x2: px(100), y1: top - 4, y2: top + plotHeight, stroke: COLORS.total, 'stroke-dasharray': '4 3' }));
+    svg.appendChild(el('text', { x: px(100), y: top - 8, 'text-anchor': 'middle', 'font-size': 11, fill: COLORS.axis }, 'u_c² = 100 %'));
+    svg.appendChild(el('text', { x: labelWidth + plotWidth / 2, y: height - 6, 'text-anchor': 'middle', 'font-size': 12, fill: COLORS.axis }, 'share of u_c² (%)'));
+    container.appendChild(svg);
+  };
+  const observer = new ResizeObserver(() => {
+    if (current && Math.max(320, container.clientWidth - 4) !== width) draw();
+  });
+  observer.observe(container);
+  return {
+    update(d) {
+      current = d;
+      draw();
+    },
+    destroy() {
+      observer.disconnect();
+    },
+  };
+}
