@@ -162,11 +162,32 @@ export class DerivedResults implements DerivedStatus {
 
   /** Every derived result as the API and the dashboard show it (the budget chart reads `budget`); always up to date. */
   snapshots(): DerivedView[] {
-    return [...this.entries.values()].map((entry) => {
-      this.refresh(entry, true);
-      return this.view(entry);
+    const entries = [...this.entries.values()];
+    for (const entry of entries) this.refresh(entry, true);
+    const correlations = this.liveCorrelations(entries);
+    return entries.map((entry) => {
+      const view = this.view(entry);
+      const correlation = correlations.get(entry.spec.compiled.name);
+      return correlation ? { ...view, correlation } : view;
     });
   }
+
+  /**
+   * Correlations between the live results, recomputed (over the common part of their windows, which
+   * costs a pass over it) only when their rows have grown by 1/64 since the last time, like the
+   * results themselves.
+   */
+  private liveCorrelations(entries: Entry[]): Map<string, Record<string, number>> {
+    if (entries.length < 2) return new Map();
+    const rows = entries.reduce((sum, entry) => sum + (entry.tracker.current?.rows ?? 0), 0);
+    const cache = this.correlationCache;
+    if (cache && rows >= cache.rows && rows - cache.rows < Math.max(1, Math.floor(cache.rows / 64))) return cache.value;
+    const value = this.jointCorrelations(entries);
+    this.correlationCache = { rows, value };
+    return value;
+  }
+
+  private correlationCache: { rows: number; value: Map<string, Record<string, number>> } | null = null;
 
   recordEntries(names: string[]): unknown[] {
     const entries = names.map((name) => this.entries.get(name)).filter((e): e is Entry => e !== undefined);
