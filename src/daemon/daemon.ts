@@ -29,6 +29,8 @@ export interface DaemonOptions {
   /** Broker URL to use when the config says "embedded" (the demo starts the broker itself). */
   brokerUrl?: string;
   now?: () => number;
+  /** Ingest lag that raises the `ingest-lag` warning event (default 5000 ms). */
+  lagWarningMs?: number;
 }
 
 export interface PublishedEvent {
@@ -53,8 +55,10 @@ interface PendingChunk {
 const RECENT_TIMES_TO_RESTORE = 256;
 /** Log one line per reason at most this often. */
 const REJECT_LOG_INTERVAL_MS = 10_000;
-/** Ingest lag that raises a warning event. */
+/** Ingest lag that raises a warning event, unless the options say otherwise. */
 const LAG_WARNING_MS = 5_000;
+/** Seconds over which the usual difference between arrival and time stamp is taken. */
+const LAG_BASELINE_SECONDS = 60;
 
 export class Daemon {
   readonly config: PlateauConfig;
@@ -66,6 +70,7 @@ export class Daemon {
   ingest: MqttIngest | null = null;
   private readonly now: () => number;
   private readonly brokerUrl: string;
+  private readonly lagWarningMs: number;
   private pendingChunks = new Map<number, PendingChunk>();
   private pendingEvents: { source: string; kind: string; at: number | null; body: Record<string, unknown> }[] = [];
   private pendingMarks: FlushBatch['marks'] = [];
@@ -100,6 +105,7 @@ export class Daemon {
     this.config = config;
     this.log = options.logger ?? pino({ level: config.log.level, base: { service: 'plateau' } });
     this.now = options.now ?? Date.now;
+    this.lagWarningMs = options.lagWarningMs ?? LAG_WARNING_MS;
     this.brokerUrl = config.broker.url === 'embedded' ? options.brokerUrl ?? 'mqtt://127.0.0.1:1883' : config.broker.url;
     this.registry = new ChannelRegistry((name) => this.channelOptions(name));
     this.testPoints = new TestPoints(this.registry);
@@ -195,7 +201,7 @@ export class Daemon {
       for (const event of result.events) this.queueChannelEvent(channel, event);
       this.derived.onSample(channel.name, sample.value, result.timeMs);
     }
-    if (latestStamp > 0) this.noteLag(arrival - latestStamp);
+    if (latestStamp > 0) this.noteLag(arrival, arrival - latestStamp);
     this.scheduleFlush();
   }
 
@@ -233,13 +239,33 @@ export class Daemon {
     }
   }
 
-  private noteLag(lagMs: number): void {
+  /**
+   * Ingest lag: how much later than usual samples are handled, measured against their own time
+   * stamps. The difference arrival - stamp also holds the rig clock's offset (or a replay's age), so
+   * the lag is the excess over the smallest difference seen in the last LAG_BASELINE_SECONDS: a
+   * daemon that falls behind sees it grow, while a constant clock offset cancels out.
+   */
+  private noteLag(arrivalMs: number, differenceMs: number): void {
+    const second = Math.floor(arrivalMs / 1000);
+    const slot = second % LAG_BASELINE_SECONDS;
+    if (this.lagSeconds[slot] !== second) {
+      this.lagSeconds[slot] = second;
+      this.lagMinima[slot] = differenceMs;
+    } else if (differenceMs < (this.lagMinima[slot] as number)) this.lagMinima[slot] = differenceMs;
+    let baseline = Number.POSITIVE_INFINITY;
+    for (let i = 0; i < LAG_BASELINE_SECONDS; i++) {
+      if (second - (this.lagSeconds[i] as number) < LAG_BASELINE_SECONDS && (this.lagMinima[i] as number) < baseline) baseline = this.lagMinima[i] as number;
+    }
+    const lagMs = Math.max(0, differenceMs - baseline);
     this.counters.ingestLagMs = lagMs;
-    if (!this.lagWarned && lagMs > LAG_WARNING_MS) {
+    if (!this.lagWarned && lagMs > this.lagWarningMs) {
       this.lagWarned = true;
-      this.queueEvent('daemon', 'ingest-lag', null, { lagMs, detail: `samples are being handled ${(lagMs / 1000).toFixed(1)} s after their time stamps: the daemon is falling behind (or the rig clock is off)` });
-    } else if (this.lagWarned && lagMs < LAG_WARNING_MS / 2) this.lagWarned = false;
+      this.queueEvent('daemon', 'ingest-lag', null, { lagMs, detail: `samples are being handled ${(lagMs / 1000).toFixed(1)} s later than their time stamps allow: the daemon is falling behind and the broker is queueing` });
+    } else if (this.lagWarned && lagMs < this.lagWarningMs / 2) this.lagWarned = false;
   }
+
+  private readonly lagSeconds = new Float64Array(LAG_BASELINE_SECONDS).fill(-Infinity);
+  private readonly lagMinima = new Float64Array(LAG_BASELINE_SECONDS);
 
   // ---- test points --------------------------------------------------------------------------
 

@@ -490,7 +490,9 @@ export class ChannelPipeline {
 
   private checkPrecision(index: number, raise: (event: ChannelEvent) => void): void {
     const n = this.series.length;
-    this.nextPrecisionCheck = index + Math.max(this.monitor?.settings.blockSize ?? 16, Math.floor(n / 32));
+    // Every 1/16 of the window (or a monitor block): an estimate costs O(maxLag) plus the pending
+    // chunk of lagged products, so checking more often would dominate the per-sample cost.
+    this.nextPrecisionCheck = index + Math.max(this.monitor?.settings.blockSize ?? 16, Math.floor(n / 16));
     if (n < 2 || !(this.series.variance > 0)) return;
     const estimate = this.estimatorSet.estimate(this.series, this.options.estimator);
     this.monitor?.refresh(estimate.varianceOfMean * n, estimate.dof);

@@ -64,10 +64,10 @@ export class EstimatorSet {
     const estimate = windowEstimator(this.fullAutocovariance(series), n, variance, true) as TauEstimate;
     // The window ran past the maintained lags: keep twice as many from now on, so later estimates
     // need no FFT (whose cost grows with the window), once the window is known well
-    // (GROW_AFTER_WINDOWS samples per lag: an early, noisy window would fix a needlessly long lag
-    // range for good) and within MAX_GROWN_LAGS (beyond, the per-sample cost would outgrow an
+    // (GROW_AFTER_WINDOWS samples per lag, or a full window that will not get longer: an early,
+    // noisy window would fix a needlessly long lag range for good) and within MAX_GROWN_LAGS (beyond, the per-sample cost would outgrow an
     // occasional transform).
-    if (series.maxLag < MAX_GROWN_LAGS && n >= GROW_AFTER_WINDOWS * estimate.window) {
+    if (series.maxLag < MAX_GROWN_LAGS && (n >= GROW_AFTER_WINDOWS * estimate.window || n >= series.maxSamples)) {
       series.growLags(Math.min(MAX_GROWN_LAGS, 2 * estimate.window + 8));
     }
     return estimate;
