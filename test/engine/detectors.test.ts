@@ -69,19 +69,21 @@ describe('stationarity detectors', () => {
     expect(right).toBeGreaterThanOrEqual(7);
   });
 
-  it('a drift is detected, its change point near its start, named a trend in a fair share of runs (10 seeds)', () => {
-    // Shortly after a slow drift starts it looks much like a step; the classifier prefers a step
-    // unless the ramp fits clearly better (stationarity-monitor.ts). Measured: 6 of 10 named trend.
+  it('a drift is detected as a trend, its change point near its start (10 seeds, one false alarm per 10^8 samples)', () => {
+    // Shortly after a slow drift starts it looks much like a step (stationarity-monitor.ts gives the
+    // step a small head start). At a budget of one false alarm per 10^8 samples the alarm comes a
+    // little later, with more of the ramp in view: measured 9 of 10 named trend (7 of 10 at the
+    // default budget of 10^6; bench/detect.js reports the default-budget figures).
     let trend = 0;
     for (let seed = 0; seed < 10; seed++) {
       const x = ar1Series(new SeededRandom(900 + seed), 0, 120_000).map((v, i) => (i >= 60_000 ? v + 2e-5 * (i - 60_000) : v));
-      const loss = firstLossAfter(runStream(x).events, 60_000);
+      const loss = firstLossAfter(runStream(x, { falseAlarmSamples: 1e8 }).events, 60_000);
       expect(loss).toBeDefined();
-      expect(loss!.at - 60_000).toBeLessThan(15_000);
+      expect(loss!.at - 60_000).toBeLessThan(20_000);
       expect(Math.abs(loss!.changePoint - 60_000)).toBeLessThan(10_000);
       if (loss!.cause === 'trend') trend++;
     }
-    expect(trend).toBeGreaterThanOrEqual(5);
+    expect(trend).toBeGreaterThanOrEqual(8);
   });
 
   it('warm-up: the kept mean carries no transient bias comparable to its uncertainty, and the excluded samples are reported', () => {
