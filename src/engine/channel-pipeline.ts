@@ -6,8 +6,6 @@ import { meanUncertainty } from '../core/uncertainty/mean-uncertainty.js';
 import { targetStatus, type TargetStatus } from '../core/uncertainty/target-precision.js';
 import { type ChannelOptions, FEW_SAMPLES, MIN_REPORTED_LAGS } from './channel-options.js';
 import { CaoRhinehartFilter, type CaoRhinehartState } from '../core/stationarity/cao-rhinehart.js';
-import { batchSizeFromTau } from '../core/stationarity/mser.js';
-import { overlappingAllanDeviation, octaveFactors, averagingLimit } from '../core/allan/allan-deviation.js';
 import { StationarityMonitor, type MonitorState, type StationarityBreak } from './stationarity-monitor.js';
 import { detectWarmup } from './warmup-detector.js';
 import type { ChannelEvent, ChannelState } from './channel-events.js';
