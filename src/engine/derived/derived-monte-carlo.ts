@@ -1,5 +1,5 @@
 import normalQuantile from '@stdlib/stats-base-dists-normal-quantile';
-import { monteCarloPropagation, validateFirstOrder } from '../../core/propagation/monte-carlo-propagation.js';
+import { monteCarloPropagation, validateFirstOrder, type MonteCarloResult } from '../../core/propagation/monte-carlo-propagation.js';
 import type { SeededRandom } from '../../core/random/seeded-random.js';
 import type { DerivedInputDistribution, DerivedSnapshot } from './derived-engine.js';
 
@@ -36,17 +36,9 @@ export interface DerivedMonteCarloOptions {
   maxTrials?: number;
 }
 
-export interface DerivedMonteCarloResult {
-  value: number;
-  standardUncertainty: number;
-  /** Probabilistically symmetric interval. */
-  low: number;
-  high: number;
-  shortestLow: number;
-  shortestHigh: number;
-  confidence: number;
-  trials: number;
-  converged: boolean | null;
+/** The core result's interval and counts, plus the clause 8 validation against the first-order result. */
+export interface DerivedMonteCarloResult
+  extends Pick<MonteCarloResult, 'value' | 'standardUncertainty' | 'low' | 'high' | 'shortestLow' | 'shortestHigh' | 'confidence' | 'trials' | 'converged'> {
   significantDigits: number;
   /** JCGM 101 clause 8 against y +- z_p u; null when the first-order result has no uncertainty. */
   validated: boolean | null;
