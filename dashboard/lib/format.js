@@ -26,6 +26,13 @@ export function formatUncertainty(uncertainty) {
   return String(Number(uncertainty.toPrecision(2)));
 }
 
+/** "value ± U" with the value to the decimals of U, the value alone while there is no U, '–' without a value; `unit` (" K") follows. */
+export function formatResult(value, expandedUncertainty, unit = '') {
+  if (value === null || value === undefined) return '–';
+  if (expandedUncertainty === null || expandedUncertainty === undefined) return `${formatValue(value, null)}${unit}`;
+  return `${formatValue(value, decimalsFor(expandedUncertainty))} ± ${formatUncertainty(expandedUncertainty)}${unit}`;
+}
+
 /** Up to `digits` significant digits, no trailing zeros, exponent only for extreme magnitudes. */
 export function trimNumber(value, digits = 4) {
   if (value === null || value === undefined || !Number.isFinite(value)) return '–';

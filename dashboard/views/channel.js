@@ -6,42 +6,15 @@
 
 import { h, setText, replaceChildren } from '../lib/dom.js';
 import { api } from '../lib/api.js';
-import { decimalsFor, formatValue, formatUncertainty, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber, describeEvent, SEVERITY, clockTime } from '../lib/format.js';
+import { decimalsFor, formatValue, formatResult, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber } from '../lib/format.js';
 import { traceChart, acfChart, allanChart, cusumChart } from '../lib/charts.js';
+import { DetailView } from '../lib/detail-view.js';
+import { ProgressBar } from '../lib/progress-bar.js';
+import { showEvents } from '../lib/event-list.js';
 
-const REFRESH_MS = 2000;
-
-export class ChannelView {
+export class ChannelView extends DetailView {
   constructor(root, app) {
-    this.app = app;
-    this.name = null;
-    this.timer = null;
-    this.charts = [];
-    this.loading = false;
-    this.element = h('section', { className: 'view view-channel', 'aria-label': 'Channel' });
-    this.element.hidden = true;
-    root.appendChild(this.element);
-  }
-
-  open(name) {
-    if (this.name === name && !this.element.hidden) return;
-    this.close();
-    this.name = name;
-    this.element.hidden = false;
-    this.build(name);
-    this.refresh();
-    this.timer = setInterval(() => {
-      if (document.visibilityState === 'visible') this.refresh();
-    }, REFRESH_MS);
-  }
-
-  close() {
-    clearInterval(this.timer);
-    this.timer = null;
-    for (const chart of this.charts) chart.destroy();
-    this.charts = [];
-    this.name = null;
-    this.element.hidden = true;
+    super(root, app, 'view-channel', 'Channel');
   }
 
   build(name) {
@@ -63,7 +36,6 @@ export class ChannelView {
       excluded: f('excluded'),
       estimator: f('estimator'),
       rate: f('rate'),
-      bar: h('span', { className: 'bar-fill' }),
       progressText: f('progress', 'progress-text'),
       tauNote: h('p', { className: 'chart-note' }),
       allanNote: h('p', { className: 'chart-note' }),
@@ -76,7 +48,7 @@ export class ChannelView {
       error: h('p', { className: 'error', role: 'alert' }),
     };
     const p = this.parts;
-    this.progress = h('div', { className: 'bar', role: 'progressbar', 'aria-valuemin': '0', 'aria-valuemax': '100', 'aria-label': 'progress towards the target precision' }, p.bar);
+    this.progress = new ProgressBar('progress towards the target precision');
     const stat = (label, node, title) => h('div', { className: 'stat-card', title }, h('span', { className: 'label', text: label }), node);
     const traceBox = h('div', { className: 'chart', id: 'chart-trace' });
     const acfBox = h('div', { className: 'chart', id: 'chart-acf' });
@@ -86,7 +58,7 @@ export class ChannelView {
       this.element,
       h('div', { className: 'view-head' }, h('a', { className: 'back', href: '#/', text: '← all channels' }), h('h1', { className: 'channel-title' }, h('span', { text: name }), p.unit), p.badge),
       p.error,
-      h('div', { className: 'result-row' }, h('div', { className: 'result-box' }, h('span', { className: 'label', text: 'mean ± U' }), p.result, p.coverage), h('div', { className: 'tile-progress wide' }, this.progress, p.progressText)),
+      h('div', { className: 'result-row' }, h('div', { className: 'result-box' }, h('span', { className: 'label', text: 'mean ± U' }), p.result, p.coverage), h('div', { className: 'tile-progress wide' }, this.progress.element, p.progressText)),
       h(
         'div',
         { className: 'stat-grid' },
@@ -136,7 +108,7 @@ export class ChannelView {
     p.badge.title = state.hint;
     const decimals = decimalsFor(s.expandedUncertainty);
     const unit = s.unit ? ` ${s.unit}` : '';
-    setText(p.result, s.mean === null ? '–' : s.expandedUncertainty === null ? `${formatValue(s.mean, null)}${unit}` : `${formatValue(s.mean, decimals)} ± ${formatUncertainty(s.expandedUncertainty)}${unit}`);
+    setText(p.result, formatResult(s.mean, s.expandedUncertainty, unit));
     setText(p.coverage, s.coverageFactor === null ? 'no uncertainty yet' : `k = ${trimNumber(s.coverageFactor, 3)}, ${percent(s.confidence)} coverage`);
     setText(p.last, s.last ? `${formatValue(s.last.value, decimals)}${unit}` : '–');
     setText(p.u, s.standardUncertainty === null ? '–' : `${trimNumber(s.standardUncertainty, 2)}${unit}`);
@@ -157,26 +129,12 @@ export class ChannelView {
       const goal = `${target.on} ≤ ${target.bound === null ? '–' : trimNumber(target.bound, 2)}${unit}`;
       text = target.secondsToTarget !== null && target.secondsToTarget !== undefined ? `${Math.round(fraction * 100)} % towards ${goal} · ≈ ${formatDuration(target.secondsToTarget)} to go at the current rate` : `${Math.round(fraction * 100)} % towards ${goal}${target.note ? ` · ${target.note}` : ''}`;
     }
-    p.bar.style.width = `${(fraction * 100).toFixed(1)}%`;
-    this.progress.className = `bar${target?.reached ? ' done' : ''}`;
-    this.progress.setAttribute('aria-valuenow', String(Math.round(fraction * 100)));
+    this.progress.show(fraction, target?.reached);
     setText(p.progressText, text);
   }
 
-  async refresh() {
-    if (!this.name || this.loading) return;
-    const name = this.name;
-    this.loading = true;
-    try {
-      const detail = await api.channel(name);
-      if (this.name !== name) return;
-      setText(this.parts.error, '');
-      this.render(detail);
-    } catch (error) {
-      if (this.name === name) setText(this.parts.error, `Could not load ${name}: ${error.message}`);
-    } finally {
-      this.loading = false;
-    }
+  load(name) {
+    return api.channel(name);
   }
 
   render(d) {
@@ -209,15 +167,6 @@ export class ChannelView {
     ];
     replaceChildren(p.evidence, rows.map(([k, v]) => h('tr', {}, h('th', { text: k }), h('td', { text: String(v) }))));
     replaceChildren(p.notes, (d.notes ?? []).map((note) => h('li', { text: note })));
-    const events = (d.storedEvents ?? []).slice().reverse();
-    replaceChildren(
-      p.events,
-      events.length === 0
-        ? h('li', { className: 'muted', text: 'No events yet.' })
-        : events.map((event) => {
-            const info = describeEvent(event);
-            return h('li', { className: `sev-${info.severity}` }, h('span', { className: 'time', text: clockTime(event.timeMs) }), h('span', { className: 'sev', text: `${SEVERITY[info.severity].symbol} ${info.title}` }), info.detail ? h('span', { className: 'detail', text: info.detail }) : null);
-          }),
-    );
+    showEvents(p.events, d.storedEvents ?? [], 'No events yet.');
   }
 }

@@ -7,42 +7,15 @@
 
 import { h, setText, replaceChildren, breakable } from '../lib/dom.js';
 import { api } from '../lib/api.js';
-import { decimalsFor, formatValue, formatUncertainty, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber, describeEvent, SEVERITY, clockTime, derivedStateOf, signedPercent } from '../lib/format.js';
+import { formatResult, formatUncertainty, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber, derivedStateOf, signedPercent } from '../lib/format.js';
 import { budgetChart } from '../lib/budget-chart.js';
+import { DetailView } from '../lib/detail-view.js';
+import { ProgressBar } from '../lib/progress-bar.js';
+import { showEvents } from '../lib/event-list.js';
 
-const REFRESH_MS = 2000;
-
-export class DerivedView {
+export class DerivedView extends DetailView {
   constructor(root, app) {
-    this.app = app;
-    this.name = null;
-    this.timer = null;
-    this.chart = null;
-    this.loading = false;
-    this.element = h('section', { className: 'view view-derived', 'aria-label': 'Derived result' });
-    this.element.hidden = true;
-    root.appendChild(this.element);
-  }
-
-  open(name) {
-    if (this.name === name && !this.element.hidden) return;
-    this.close();
-    this.name = name;
-    this.element.hidden = false;
-    this.build(name);
-    this.refresh();
-    this.timer = setInterval(() => {
-      if (document.visibilityState === 'visible') this.refresh();
-    }, REFRESH_MS);
-  }
-
-  close() {
-    clearInterval(this.timer);
-    this.timer = null;
-    this.chart?.destroy();
-    this.chart = null;
-    this.name = null;
-    this.element.hidden = true;
+    super(root, app, 'view-derived', 'Derived result');
   }
 
   build(name) {
@@ -64,7 +37,6 @@ export class DerivedView {
       ess: f('ess'),
       estimator: f('estimator'),
       window: f('window'),
-      bar: h('span', { className: 'bar-fill' }),
       progressText: f('progress', 'progress-text'),
       budgetNote: h('p', { className: 'chart-note', dataset: { field: 'budget-note' } }),
       inputs: h('tbody', { id: 'derived-inputs' }),
@@ -77,7 +49,7 @@ export class DerivedView {
       error: h('p', { className: 'error', role: 'alert' }),
     };
     const p = this.parts;
-    this.progress = h('div', { className: 'bar', role: 'progressbar', 'aria-valuemin': '0', 'aria-valuemax': '100', 'aria-label': 'progress towards the target uncertainty' }, p.bar);
+    this.progress = new ProgressBar('progress towards the target uncertainty');
     const stat = (label, node, title) => h('div', { className: 'stat-card', title }, h('span', { className: 'label', text: label }), node);
     const budgetBox = h('div', { className: 'chart budget-chart', id: 'derived-budget' });
     const table = (headings, body) => h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...headings.map((t) => h('th', { text: t })))), body);
@@ -90,7 +62,7 @@ export class DerivedView {
         { className: 'result-row' },
         h('div', { className: 'result-box' }, h('span', { className: 'label', text: 'value ± U' }), p.result, p.coverage),
         h('div', { className: 'result-box', title: 'the same result computed as if the input channels were uncorrelated (diagonal covariance, Welch-Satterthwaite degrees of freedom)' }, h('span', { className: 'label', text: 'U as if the inputs were uncorrelated' }), p.independent, p.independentNote),
-        h('div', { className: 'tile-progress wide' }, this.progress, p.progressText),
+        h('div', { className: 'tile-progress wide' }, this.progress.element, p.progressText),
       ),
       p.statement,
       h(
@@ -116,7 +88,7 @@ export class DerivedView {
         h('div', { className: 'panel' }, h('h2', { text: 'Events of this result' }), p.events),
       ),
     );
-    this.chart = budgetChart(budgetBox);
+    this.charts = [budgetChart(budgetBox)];
     const live = this.app.state.derived.get(name);
     if (live) this.update(live);
   }
@@ -131,8 +103,7 @@ export class DerivedView {
     p.badge.title = state.hint;
     const unit = d.unit ? ` ${d.unit}` : '';
     setText(p.unit, unit);
-    const decimals = decimalsFor(d.expandedUncertainty);
-    setText(p.result, d.value === null ? '–' : d.expandedUncertainty === null ? `${formatValue(d.value, null)}${unit}` : `${formatValue(d.value, decimals)} ± ${formatUncertainty(d.expandedUncertainty)}${unit}`);
+    setText(p.result, formatResult(d.value, d.expandedUncertainty, unit));
     setText(p.coverage, d.coverageFactor === null ? 'no uncertainty yet' : `k = ${trimNumber(d.coverageFactor, 3)}, ${percent(d.confidence)} coverage`);
     const ind = d.independent;
     setText(p.independent, ind?.expandedUncertainty === null || ind?.expandedUncertainty === undefined ? '–' : `± ${formatUncertainty(ind.expandedUncertainty)}${unit}`);
@@ -149,7 +120,7 @@ export class DerivedView {
     setText(p.window, d.window ? formatDuration(d.window.endSeconds - d.window.startSeconds) : '–');
     setText(p.expression, d.expression);
     this.updateProgress(d, unit);
-    this.chart.update(d);
+    for (const chart of this.charts) chart.update(d);
     setText(p.budgetNote, budgetNote(d));
     this.fillInputs(d);
     this.fillCorrelation(d);
@@ -170,9 +141,7 @@ export class DerivedView {
       const goal = `${target.on} ≤ ${target.bound === null ? '–' : trimNumber(target.bound, 2)}${unit}${target.relative ? ` (${trimNumber(target.value * 100, 3)} % of the value)` : ''}`;
       text = target.secondsToTarget !== null && target.secondsToTarget !== undefined ? `${Math.round(fraction * 100)} % towards ${goal} · ≈ ${formatDuration(target.secondsToTarget)} to go at the current rate` : `${Math.round(fraction * 100)} % towards ${goal}${target.note ? ` · ${target.note}` : ''}`;
     }
-    p.bar.style.width = `${(fraction * 100).toFixed(1)}%`;
-    this.progress.className = `bar${target?.reached ? ' done' : ''}`;
-    this.progress.setAttribute('aria-valuenow', String(Math.round(fraction * 100)));
+    this.progress.show(fraction, target?.reached);
     setText(p.progressText, text);
   }
 
@@ -223,34 +192,14 @@ export class DerivedView {
     }
   }
 
-  async refresh() {
-    if (!this.name || this.loading) return;
-    const name = this.name;
-    this.loading = true;
-    try {
-      const detail = await api.derived(name);
-      if (this.name !== name) return;
-      setText(this.parts.error, '');
-      if (!this.app.state.derived.has(name)) this.update(detail);
-      this.renderEvents(detail.storedEvents ?? []);
-    } catch (error) {
-      if (this.name === name) setText(this.parts.error, `Could not load ${name}: ${error.message}`);
-    } finally {
-      this.loading = false;
-    }
+  load(name) {
+    return api.derived(name);
   }
 
-  renderEvents(stored) {
-    const events = stored.slice().reverse();
-    replaceChildren(
-      this.parts.events,
-      events.length === 0
-        ? h('li', { className: 'muted', text: 'No events yet (an event is raised when the result reaches its target with steady inputs).' })
-        : events.map((event) => {
-            const info = describeEvent(event);
-            return h('li', { className: `sev-${info.severity}` }, h('span', { className: 'time', text: clockTime(event.timeMs) }), h('span', { className: 'sev', text: `${SEVERITY[info.severity].symbol} ${info.title}` }), info.detail ? h('span', { className: 'detail', text: info.detail }) : null);
-          }),
-    );
+  /** The HTTP detail: the numbers when the live link has none for this result, and the events. */
+  render(detail) {
+    if (!this.app.state.derived.has(this.name)) this.update(detail);
+    showEvents(this.parts.events, detail.storedEvents ?? [], 'No events yet (an event is raised when the result reaches its target with steady inputs).');
   }
 }
 

@@ -9,7 +9,8 @@
 // progress to the target with the time it still needs.
 
 import { h, setText, breakable } from '../lib/dom.js';
-import { decimalsFor, formatValue, formatUncertainty, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber, derivedStateOf } from '../lib/format.js';
+import { ProgressBar } from '../lib/progress-bar.js';
+import { decimalsFor, formatValue, formatUncertainty, formatResult, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber, derivedStateOf } from '../lib/format.js';
 
 export class OverviewView {
   constructor(root, app) {
@@ -97,10 +98,9 @@ export class OverviewView {
       rows: field('rows', 'num'),
       dof: field('dof', 'num'),
       inputs: field('inputs', 'num'),
-      bar: h('span', { className: 'bar-fill' }),
       progressText: field('progress', 'progress-text'),
+      progress: new ProgressBar('progress towards the target uncertainty'),
     };
-    parts.progress = h('div', { className: 'bar', role: 'progressbar', 'aria-valuemin': '0', 'aria-valuemax': '100', 'aria-label': 'progress towards the target uncertainty' }, parts.bar);
     const element = h(
       'a',
       { className: 'tile derived-tile', href: `#/derived/${encodeURIComponent(name)}`, role: 'listitem', dataset: { derived: name } },
@@ -115,7 +115,7 @@ export class OverviewView {
         h('span', { className: 'stat', title: 'degrees of freedom of u_c' }, h('span', { className: 'label', text: 'ν' }), parts.dof),
         h('span', { className: 'stat', title: 'input channels steady (steady or at target) of all inputs' }, h('span', { className: 'label', text: 'inputs steady' }), parts.inputs),
       ),
-      h('div', { className: 'tile-progress' }, parts.progress, parts.progressText),
+      h('div', { className: 'tile-progress' }, parts.progress.element, parts.progressText),
     );
     return { element, parts, state: null };
   }
@@ -168,9 +168,7 @@ export class OverviewView {
       else text = target.note ?? 'estimating…';
     }
     p.progressText.title = target ? `${target.on} ≤ ${trimNumber(target.bound, 3)}${unit}${target.note ? ` · ${target.note}` : ''}` : '';
-    p.bar.style.width = `${(fraction * 100).toFixed(1)}%`;
-    p.progress.setAttribute('aria-valuenow', String(Math.round(fraction * 100)));
-    p.progress.className = `bar${target?.reached ? ' done' : ''}`;
+    p.progress.show(fraction, target?.reached);
     setText(p.progressText, target && !target.reached ? `${Math.round(fraction * 100)} % · ${text}` : text);
   }
 
@@ -185,12 +183,10 @@ export class OverviewView {
       n: field('n', 'num'),
       nEff: field('nEff', 'num'),
       tau: field('tau', 'num'),
-      bar: h('span', { className: 'bar-fill' }),
       progressText: field('progress', 'progress-text'),
       meanLabel: h('span', { className: 'label', text: 'mean' }),
+      progress: new ProgressBar('progress towards the target precision'),
     };
-    const progress = h('div', { className: 'bar', role: 'progressbar', 'aria-valuemin': '0', 'aria-valuemax': '100', 'aria-label': 'progress towards the target precision' }, parts.bar);
-    parts.progress = progress;
     const element = h(
       'a',
       { className: 'tile', href: `#/channel/${encodeURIComponent(name)}`, role: 'listitem', dataset: { channel: name } },
@@ -204,7 +200,7 @@ export class OverviewView {
         h('span', { className: 'stat' }, h('span', { className: 'label', text: 'n_eff' }), parts.nEff),
         h('span', { className: 'stat' }, h('span', { className: 'label', text: 'τ_int' }), parts.tau),
       ),
-      h('div', { className: 'tile-progress' }, progress, parts.progressText),
+      h('div', { className: 'tile-progress' }, parts.progress.element, parts.progressText),
     );
     return { element, parts, state: null };
   }
@@ -229,12 +225,9 @@ export class OverviewView {
     if (s.mean === null || s.mean === undefined) {
       setText(p.mean, '–');
       setText(p.coverage, '');
-    } else if (s.expandedUncertainty === null) {
-      setText(p.mean, `${formatValue(s.mean, null)}${s.unit ? ` ${s.unit}` : ''}`);
-      setText(p.coverage, 'no uncertainty yet');
     } else {
-      setText(p.mean, `${formatValue(s.mean, decimals)} ± ${formatUncertainty(s.expandedUncertainty)}${s.unit ? ` ${s.unit}` : ''}`);
-      setText(p.coverage, `k = ${trimNumber(s.coverageFactor, 3)} · ${percent(s.confidence)}`);
+      setText(p.mean, formatResult(s.mean, s.expandedUncertainty, s.unit ? ` ${s.unit}` : ''));
+      setText(p.coverage, s.expandedUncertainty === null ? 'no uncertainty yet' : `k = ${trimNumber(s.coverageFactor, 3)} · ${percent(s.confidence)}`);
     }
     setText(p.n, formatCount(s.n));
     setText(p.nEff, formatEffective(s.nEff));
@@ -253,9 +246,7 @@ export class OverviewView {
       else text = 'estimating…';
     }
     if (target?.note) p.progressText.title = target.note;
-    p.bar.style.width = `${(fraction * 100).toFixed(1)}%`;
-    p.progress.setAttribute('aria-valuenow', String(Math.round(fraction * 100)));
-    p.progress.className = `bar${target?.reached ? ' done' : ''}`;
+    p.progress.show(fraction, target?.reached);
     setText(p.progressText, target && !target.reached ? `${Math.round(fraction * 100)} % · ${text}` : text);
   }
 }

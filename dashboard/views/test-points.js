@@ -4,7 +4,7 @@
 
 import { h, setText, replaceChildren } from '../lib/dom.js';
 import { api, recordUrl, derivedRecordUrl, reportUrl, writeKey } from '../lib/api.js';
-import { POINT_STATES, stateOf, dateTime, formatValue, formatUncertainty, decimalsFor, trimNumber, formatCount, percent, derivedStateOf } from '../lib/format.js';
+import { POINT_STATES, stateOf, dateTime, formatResult, trimNumber, formatCount, percent, derivedStateOf } from '../lib/format.js';
 
 export class TestPointsView {
   constructor(root, app) {
@@ -215,8 +215,7 @@ export class TestPointsView {
             'tbody',
             {},
             latest.entries.map((e) => {
-              const d = decimalsFor(e.expandedUncertainty);
-              const value = e.mean === null ? '–' : e.expandedUncertainty === null ? formatValue(e.mean, null) : `${formatValue(e.mean, d)} ± ${formatUncertainty(e.expandedUncertainty)}`;
+              const value = formatResult(e.mean, e.expandedUncertainty);
               return h('tr', { title: e.statement }, h('td', { text: e.channel }), h('td', { text: `${value}${e.unit ? ` ${e.unit}` : ''}` }), h('td', { text: trimNumber(e.coverageFactor, 3) }), h('td', { text: trimNumber(e.dof, 3) }), h('td', { text: formatCount(e.n) }), h('td', { text: stateOf(e.state).label.toLowerCase() }));
             }),
           ),
@@ -231,8 +230,7 @@ export class TestPointsView {
                 'tbody',
                 {},
                 latest.derived.map((e) => {
-                  const d = decimalsFor(e.expandedUncertainty);
-                  const value = e.value === null ? '–' : e.expandedUncertainty === null ? formatValue(e.value, null) : `${formatValue(e.value, d)} ± ${formatUncertainty(e.expandedUncertainty)}`;
+                  const value = formatResult(e.value, e.expandedUncertainty);
                   const mc = !e.monteCarlo ? '–' : e.monteCarlo.error ? 'failed' : e.monteCarlo.validated === null ? '–' : e.monteCarlo.validated ? 'validates' : 'differs';
                   const boot = !e.bootstrap || e.bootstrap.agrees === null ? '–' : e.bootstrap.agrees ? 'agrees' : 'differs';
                   return h('tr', { title: e.statement }, h('td', { text: e.name }), h('td', { text: `${value}${e.unit ? ` ${e.unit}` : ''}` }), h('td', { text: trimNumber(e.coverageFactor, 3) }), h('td', { text: trimNumber(e.dof, 3) }), h('td', { text: formatCount(e.rows) }), h('td', { text: mc, title: e.monteCarlo?.note ?? e.monteCarlo?.error ?? '' }), h('td', { text: boot, title: e.bootstrap?.note ?? '' }));
