@@ -33,14 +33,8 @@ export interface DaemonOptions {
   lagWarningMs?: number;
 }
 
-export interface PublishedEvent {
-  id: number;
-  timeMs: number;
-  source: string;
-  kind: string;
-  at: number | null;
-  body: Record<string, unknown>;
-}
+/** An event as committed to the store and then handed to the listeners and the MQTT event topic. */
+export type PublishedEvent = StoredEvent;
 
 export type DaemonListener = (event: PublishedEvent) => void;
 
@@ -82,7 +76,7 @@ export class Daemon {
   private lastCheckpoint = new Map<number, number>();
   private statusSent = new Map<string, string>();
   private listeners = new Set<DaemonListener>();
-  private lastEventId = 0;
+  private publishedId = 0;
   private lastRejectLog = new Map<string, number>();
   private lagWarned = false;
   private stopped = false;
@@ -421,18 +415,17 @@ export class Daemon {
   }
 
   private publish(events: { source: string; kind: string; at: number | null; body: Record<string, unknown> }[], now: number): void {
-    const stored = this.store.eventsAfter(this.lastEventId, events.length + 100);
+    const stored = this.store.eventsAfter(this.publishedId, events.length + 100);
     for (const event of stored) {
-      this.lastEventId = event.id;
-      const published: PublishedEvent = { id: event.id, timeMs: event.timeMs, source: event.source, kind: event.kind, at: event.at, body: event.body };
+      this.publishedId = event.id;
       for (const listener of this.listeners) {
         try {
-          listener(published);
+          listener(event);
         } catch (error) {
           this.log.warn({ err: (error as Error).message }, 'event listener failed');
         }
       }
-      this.ingest?.publish(`${this.config.topics.events}/${event.kind}`, JSON.stringify(published), { qos: 1, retain: false });
+      this.ingest?.publish(`${this.config.topics.events}/${event.kind}`, JSON.stringify(event), { qos: 1, retain: false });
     }
     // Retained status for every source whose state may have changed.
     const sources = new Set(events.map((e) => e.source));
@@ -522,8 +515,7 @@ export class Daemon {
       if (lastTime > channel.lastTimeMs) channel.lastTimeMs = lastTime;
     }
     this.testPoints.load(this.store.testPoints() as TestPoint[]);
-    const last = this.store.eventsAfter(0, 1).length > 0 ? this.lastStoredEventId() : 0;
-    this.lastEventId = last;
+    this.publishedId = this.store.lastEventId();
     const counters = this.store.counters();
     this.counters.accepted = counters.accepted ?? 0;
     this.counters.messages = counters.messages ?? 0;
@@ -531,15 +523,6 @@ export class Daemon {
     this.counters.restoredSamples = replayed;
     this.counters.restoreMs = performance.now() - started;
     this.log.info({ channels: this.registry.size, replayedSamples: replayed, ms: Math.round(this.counters.restoreMs) }, 'state rebuilt from the store');
-  }
-
-  private lastStoredEventId(): number {
-    let id = 0;
-    for (;;) {
-      const batch = this.store.eventsAfter(id, 10_000);
-      if (batch.length === 0) return id;
-      id = (batch.at(-1) as StoredEvent).id;
-    }
   }
 
   private counterSnapshot(): Record<string, number> {
@@ -566,6 +549,15 @@ export class Daemon {
 
   events(after: number, limit: number): StoredEvent[] {
     return this.store.eventsAfter(after, limit);
+  }
+
+  eventsOfKind(kind: string, after: number, limit: number): StoredEvent[] {
+    return this.store.eventsOfKind(kind, after, limit);
+  }
+
+  /** The id of the newest event, stored at the restore or published since (0 when there is none). */
+  get lastEventId(): number {
+    return this.publishedId;
   }
 }
 

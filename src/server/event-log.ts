@@ -1,11 +1,11 @@
-import type { Daemon, PublishedEvent } from '../daemon/daemon.js';
+import type { Daemon } from '../daemon/daemon.js';
 import type { StoredEvent } from '../store/sqlite-store.js';
 
 /**
  * What the HTTP API and the WebSocket hub need to know about the daemon's event stream beyond
- * `daemon.events(after, limit)`: the highest event id (so "the latest N events" is one query,
- * `events(lastId - N, N)`, since ids are consecutive and retention only removes the oldest) and
- * which alerts have been acknowledged.
+ * `daemon.events(after, limit)`: "the latest N events" as one query, `events(lastId - N, N)`
+ * (ids are consecutive and retention only removes the oldest), and which alerts have been
+ * acknowledged.
  *
  * An acknowledgement is itself an event (kind `alert-acknowledged`, source = the acknowledged
  * event's source, body { eventId, kind, note }): it is committed to SQLite with the others,
@@ -13,9 +13,10 @@ import type { StoredEvent } from '../store/sqlite-store.js';
  * rebuilds its map from the stored events. Acknowledging twice keeps the first acknowledgement.
  *
  * One log per daemon (eventLogFor): the HTTP app and the hub are built apart but share it. Its
- * listener is registered before the hub's, so the hub always sees an up-to-date lastId.
- * Cost: the construction pages once through the stored events (as the daemon's own restore does);
- * then O(1) per event. Memory: one entry per acknowledgement, at most MAX_ACKNOWLEDGEMENTS.
+ * listener is registered before the hub's, so the hub always sees the acknowledgements up to date;
+ * lastId is the daemon's own, set before any listener hears of the event.
+ * Cost: the first use pages once through the stored acknowledgements (not every event); then O(1)
+ * per event. Memory: one entry per acknowledgement, at most MAX_ACKNOWLEDGEMENTS.
  */
 export const ACKNOWLEDGED_KIND = 'alert-acknowledged';
 
@@ -35,7 +36,6 @@ const MAX_ACKNOWLEDGEMENTS = 10_000;
 const PAGE = 10_000;
 
 export class ServerEventLog {
-  private highestId = 0;
   private readonly acknowledgements = new Map<number, Acknowledgement>();
   private readonly daemon: Daemon;
   private scanned = false;
@@ -50,7 +50,7 @@ export class ServerEventLog {
     if (this.scanned) return;
     this.scanned = true;
     for (let after = 0; ; ) {
-      const page = this.daemon.events(after, PAGE);
+      const page = this.daemon.eventsOfKind(ACKNOWLEDGED_KIND, after, PAGE);
       for (const event of page) this.note(event);
       if (page.length < PAGE) break;
       after = (page.at(-1) as StoredEvent).id;
@@ -59,8 +59,7 @@ export class ServerEventLog {
 
   /** The id of the newest stored event (0 when there is none). */
   get lastId(): number {
-    this.scan();
-    return this.highestId;
+    return this.daemon.lastEventId;
   }
 
   /** The newest `limit` events, oldest first. */
@@ -104,8 +103,7 @@ export class ServerEventLog {
     return { acknowledgement: recorded, already: false };
   }
 
-  private note(event: PublishedEvent | StoredEvent): void {
-    if (event.id > this.highestId) this.highestId = event.id;
+  private note(event: StoredEvent): void {
     if (event.kind !== ACKNOWLEDGED_KIND) return;
     const eventId = Number(event.body.eventId);
     if (!Number.isInteger(eventId) || this.acknowledgements.has(eventId)) return;

@@ -79,6 +79,8 @@ export class SqliteStore {
       marksFrom: this.db.prepare('SELECT seq, kind FROM marks WHERE channel_id = ? AND seq >= ? ORDER BY seq'),
       insertEvent: this.db.prepare('INSERT INTO events (time_ms, source, kind, at, body) VALUES (?, ?, ?, ?, ?)'),
       eventsAfter: this.db.prepare('SELECT id, time_ms, source, kind, at, body FROM events WHERE id > ? ORDER BY id LIMIT ?'),
+      lastEventId: this.db.prepare('SELECT COALESCE(MAX(id), 0) AS id FROM events'),
+      eventsOfKind: this.db.prepare('SELECT id, time_ms, source, kind, at, body FROM events WHERE kind = ? AND id > ? ORDER BY id LIMIT ?'),
       eventsForSource: this.db.prepare('SELECT id, time_ms, source, kind, at, body FROM events WHERE source = ? ORDER BY id DESC LIMIT ?'),
       putTestPoint: this.db.prepare('INSERT INTO test_points (id, body, updated_ms) VALUES (?, ?, ?) ON CONFLICT(id) DO UPDATE SET body = excluded.body, updated_ms = excluded.updated_ms'),
       testPoints: this.db.prepare('SELECT body FROM test_points ORDER BY updated_ms'),
@@ -156,6 +158,15 @@ export class SqliteStore {
 
   eventsAfter(id: number, limit: number): StoredEvent[] {
     return (this.statements.eventsAfter.all(id, limit) as RawEvent[]).map(parseEvent);
+  }
+
+  /** The id of the newest stored event (0 when there is none): one look-up of the primary key. */
+  lastEventId(): number {
+    return (this.statements.lastEventId.get() as { id: number }).id;
+  }
+
+  eventsOfKind(kind: string, after: number, limit: number): StoredEvent[] {
+    return (this.statements.eventsOfKind.all(kind, after, limit) as RawEvent[]).map(parseEvent);
   }
 
   eventsFor(source: string, limit: number): StoredEvent[] {

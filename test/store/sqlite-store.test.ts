@@ -51,4 +51,21 @@ describe('SqliteStore', () => {
     expect(store.checkpoint(id)).toEqual({ seq: 200, state: { any: 'state' } });
     store.close();
   });
+
+  it('the newest event id in one look-up, and the events of one kind in id order', () => {
+    const store = new SqliteStore(':memory:');
+    expect(store.lastEventId()).toBe(0);
+    const event = (timeMs: number, kind: string) => ({ timeMs, source: 'flow', kind, at: null, body: { n: timeMs } });
+    store.commit({ ...emptyBatch(), events: [event(1, 'steady'), event(2, 'alert-acknowledged'), event(3, 'stale'), event(4, 'alert-acknowledged')] }, 0);
+    expect(store.lastEventId()).toBe(4);
+    expect(store.eventsOfKind('alert-acknowledged', 0, 10).map((e) => [e.id, e.body.n])).toEqual([[2, 2], [4, 4]]);
+    expect(store.eventsOfKind('alert-acknowledged', 2, 10).map((e) => e.id)).toEqual([4]);
+    expect(store.eventsOfKind('alert-acknowledged', 0, 1).map((e) => e.id)).toEqual([2]);
+    // Retention may empty the table; the ids still never repeat (AUTOINCREMENT).
+    store.prune(10);
+    expect(store.lastEventId()).toBe(0);
+    store.commit({ ...emptyBatch(), events: [event(20, 'steady')] }, 0);
+    expect(store.lastEventId()).toBe(5);
+    store.close();
+  });
 });
