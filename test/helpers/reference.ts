@@ -26,3 +26,14 @@ export function digitsAgreeing(actual: number, expected: number): number {
   const rel = Math.abs(actual - expected) / Math.max(Math.abs(expected), Number.MIN_VALUE);
   return Math.min(17, -Math.log10(rel));
 }
+
+/** Largest |a - b| over the elements, relative to the largest |b| (matrices and vectors as flat arrays). */
+export function relativeDifference(actual: ArrayLike<number>, expected: ArrayLike<number>): number {
+  let scale = 0;
+  let worst = 0;
+  for (let i = 0; i < expected.length; i++) {
+    scale = Math.max(scale, Math.abs(expected[i] as number));
+    worst = Math.max(worst, Math.abs((actual[i] as number) - (expected[i] as number)));
+  }
+  return worst / scale;
+}

@@ -5,7 +5,7 @@ import { minimumEss, multivariateBatchMeans, multivariateEss } from '../../../sr
 import { sampleCovariance } from '../../../src/core/multivariate/sample-covariance.js';
 import { cholesky } from '../../../src/core/multivariate/cholesky.js';
 import { SeededRandom } from '../../../src/core/random/seeded-random.js';
-import { ROOT, readFixture, sharedReferenceAvailable } from '../../helpers/reference.js';
+import { ROOT, readFixture, relativeDifference, sharedReferenceAvailable } from '../../helpers/reference.js';
 
 interface Case {
   batchSize: number;
@@ -35,17 +35,6 @@ function readSeries(): { rows: Float64Array; n: number; p: number } {
 }
 
 const series = readSeries();
-
-/** Largest |a - b| over the elements, relative to the largest |b|. */
-function relativeDifference(actual: ArrayLike<number>, expected: ArrayLike<number>): number {
-  let scale = 0;
-  let worst = 0;
-  for (let i = 0; i < expected.length; i++) {
-    scale = Math.max(scale, Math.abs(expected[i] as number));
-    worst = Math.max(worst, Math.abs((actual[i] as number) - (expected[i] as number)));
-  }
-  return worst / scale;
-}
 
 describe('multivariateBatchMeans', () => {
   it('reads the committed VAR(1) series whole', () => {

@@ -3,6 +3,7 @@ import { TimeBucketedCovariance, type TimeBucketedSnapshot } from '../../../src/
 import { multivariateBatchMeans, multivariateEss } from '../../../src/core/multivariate/multivariate-batch-means.js';
 import { sampleCovariance } from '../../../src/core/multivariate/sample-covariance.js';
 import { SeededRandom } from '../../../src/core/random/seeded-random.js';
+import { relativeDifference } from '../../helpers/reference.js';
 
 // The streaming accumulator is checked against the batch computation (multivariateBatchMeans, itself
 // checked against the numpy mcmcse re-implementation) applied to bucket means formed naively here:
@@ -90,16 +91,6 @@ function naiveAlignedBatchMeans(rows: Float64Array, m: number, p: number, window
   }
   const a = endBatch - firstBatch;
   return out.map((v) => (v * b) / (a - 1));
-}
-
-function relativeDifference(actual: ArrayLike<number>, expected: ArrayLike<number>): number {
-  let scale = 0;
-  let worst = 0;
-  for (let i = 0; i < expected.length; i++) {
-    scale = Math.max(scale, Math.abs(expected[i] as number));
-    worst = Math.max(worst, Math.abs((actual[i] as number) - (expected[i] as number)));
-  }
-  return worst / scale;
 }
 
 function ready(snapshot: ReturnType<TimeBucketedCovariance['snapshot']>): TimeBucketedSnapshot {
