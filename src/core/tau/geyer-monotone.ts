@@ -1,4 +1,4 @@
-import { type TauEstimate, tauFloor } from './tau-estimate.js';
+import { type TauEstimate, tauFloor, lagWindowEstimate } from './tau-estimate.js';
 
 /**
  * Integrated autocorrelation time by Geyer's initial monotone sequence estimator.
@@ -51,13 +51,5 @@ export function geyerMonotone(
   const tauInt = Math.max(tau, tauFloor(n));
   const window = 2 * lastPair + 1;
   const reliable = n >= 50 * Math.max(tauInt, 1);
-  return {
-    method: 'geyer',
-    tauInt,
-    varianceOfMean: (sampleVariance * tauInt) / n,
-    dof: n / (2 * window + 1),
-    window,
-    reliable,
-    ...(reliable ? {} : { note: `window shorter than 50 tau_int (n = ${n}, tau_int = ${tauInt.toPrecision(3)})` }),
-  };
+  return lagWindowEstimate('geyer', tauInt, sampleVariance, n, window, reliable);
 }

@@ -1,4 +1,4 @@
-import { type TauEstimate, tauFloor } from './tau-estimate.js';
+import { type TauEstimate, tauFloor, lagWindowEstimate } from './tau-estimate.js';
 
 /**
  * Integrated autocorrelation time by Sokal's automatic window.
@@ -47,13 +47,5 @@ export function sokalWindow(
   const floor = tauFloor(n);
   const reliable = window < available || complete ? n >= 50 * Math.max(tau, 1) : false;
   const tauInt = Math.max(tau, floor);
-  return {
-    method: 'sokal',
-    tauInt,
-    varianceOfMean: (sampleVariance * tauInt) / n,
-    dof: n / (2 * window + 1),
-    window,
-    reliable,
-    ...(reliable ? {} : { note: `window shorter than 50 tau_int (n = ${n}, tau_int = ${tauInt.toPrecision(3)})` }),
-  };
+  return lagWindowEstimate('sokal', tauInt, sampleVariance, n, window, reliable);
 }

@@ -33,3 +33,20 @@ export interface TauEstimate {
 export function tauFloor(n: number): number {
   return n > 10 ? 1 / Math.log10(n) : 1;
 }
+
+/**
+ * The estimate of a lag-window estimator (Sokal, Geyer) that summed lags 1..window: the variance
+ * of the mean from tau_int, n / (2 window + 1) degrees of freedom, and a note when the window
+ * holds fewer than 50 tau_int. O(1).
+ */
+export function lagWindowEstimate(method: EstimatorName, tauInt: number, sampleVariance: number, n: number, window: number, reliable: boolean): TauEstimate {
+  return {
+    method,
+    tauInt,
+    varianceOfMean: (sampleVariance * tauInt) / n,
+    dof: n / (2 * window + 1),
+    window,
+    reliable,
+    ...(reliable ? {} : { note: `window shorter than 50 tau_int (n = ${n}, tau_int = ${tauInt.toPrecision(3)})` }),
+  };
+}
