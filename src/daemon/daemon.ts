@@ -1,7 +1,7 @@
 import pino, { type Logger } from 'pino';
 import type { PlateauConfig, SubscriptionConfig } from '../config/plateau-config.js';
 import { settingsFor } from '../config/load-config.js';
-import { ChannelRegistry, type RegisteredChannel } from '../engine/channel-registry.js';
+import { ChannelRegistry, RECENT_TIMES, type RegisteredChannel } from '../engine/channel-registry.js';
 import type { ChannelOptions } from '../engine/channel-options.js';
 import type { ChannelEvent } from '../engine/channel-events.js';
 import { TestPoints, type TestPoint, type TestPointChange } from '../engine/test-points.js';
@@ -45,8 +45,6 @@ interface PendingChunk {
   values: number[];
 }
 
-/** Stored sample times read back before a checkpoint, for duplicate recognition (as many as the registry keeps). */
-const RECENT_TIMES_TO_RESTORE = 256;
 /** Log one line per reason at most this often. */
 const REJECT_LOG_INTERVAL_MS = 10_000;
 /** Ingest lag that raises a warning event, unless the options say otherwise. */
@@ -488,7 +486,7 @@ export class Daemon {
       let lastTime = Number.NEGATIVE_INFINITY;
       // The times of the samples just before the checkpoint are needed too: a message redelivered
       // after the restart must still be recognised as a repeat.
-      for (const chunk of this.store.samplesFrom(stored.id, Math.max(0, from - RECENT_TIMES_TO_RESTORE))) {
+      for (const chunk of this.store.samplesFrom(stored.id, Math.max(0, from - RECENT_TIMES))) {
         for (let i = 0; i < chunk.values.length; i++) {
           const seq = chunk.firstSeq + i;
           const time = chunk.times[i] as number;
