@@ -22,7 +22,7 @@ import { parseConfig } from '../dist/config/load-config.js';
 import { Daemon } from '../dist/daemon/daemon.js';
 import { startServer } from '../dist/server/server.js';
 import { SqliteStore } from '../dist/store/sqlite-store.js';
-import { ChannelPipeline } from '../dist/engine/channel-pipeline.js';
+import { ChannelRegistry } from '../dist/engine/channel-registry.js';
 import { DEFAULT_CHANNEL_OPTIONS } from '../dist/engine/channel-options.js';
 import { line, header, verdict } from './harness.js';
 
@@ -258,18 +258,17 @@ for (const [brokerLabel, url] of brokers) {
   header('memory at 10,000 channels (sliding windows of 1024 samples, each filled)');
   global.gc?.();
   const before = process.memoryUsage();
-  const pipelines = [];
+  // Through the registry, as the daemon holds them: the pipeline and the remembered payload times.
+  const registry = new ChannelRegistry(() => ({ ...DEFAULT_CHANNEL_OPTIONS, window: { kind: 'sliding', samples: 1024, maxSamples: 1024 } }));
   for (let c = 0; c < 10_000; c++) {
-    const p = new ChannelPipeline(`c${c}`, { ...DEFAULT_CHANNEL_OPTIONS, window: { kind: 'sliding', samples: 1024, maxSamples: 1024 } });
-    for (let i = 0; i < 1100; i++) p.push(Math.sin(i * 0.1 + c), i);
-    pipelines.push(p);
+    for (let i = 0; i < 1100; i++) registry.accept(`c${c}`, Math.sin(i * 0.1 + c), 1_790_000_000_000 + i * 100, true);
   }
   global.gc?.();
   const after = process.memoryUsage();
   const total = after.heapUsed + after.arrayBuffers - before.heapUsed - before.arrayBuffers;
   line('memory per channel', Math.round(total / 10_000).toLocaleString('en'), 'bytes', `window 1024 samples: ${(total / 10_000 / 1024).toFixed(1)} bytes per windowed sample including fixed state`);
   line('memory for 10,000 channels', (total / 2 ** 20).toFixed(0), 'MiB', `(heap + array buffers; run with --expose-gc for exact figures)`);
-  pipelines.length = 0;
+  if (registry.size !== 10_000) throw new Error('memory bench: channels missing');
 }
 
 // Restart: 10 million stored samples, no checkpoint, replayed through the engine.
