@@ -160,7 +160,7 @@ header('precision engine: snapshot and on-demand FFT');
     let s;
     for (let r = 0; r < reps; r++) {
       p.push(xMild[r], 200_000 + r);
-      const result = set.run(p.series, L);
+      const result = set.run(p.series, L, null);
       s = Object.values(result.estimates).map((e) => meanUncertainty(e, 0.95));
     }
     return s;

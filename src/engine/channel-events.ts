@@ -11,11 +11,14 @@ export type ChannelEvent =
   | { kind: 'steady'; at: number; warmupEnd: number; excluded: number }
   | { kind: 'stationarity-regained'; at: number; warmupEnd: number; excluded: number }
   | { kind: 'precision-reached'; at: number; standardUncertainty: number; expandedUncertainty: number | null; bound: number }
-  | { kind: 'stationarity-lost'; at: number; cause: BreakCause; changePoint: number; detail: string }
+  | { kind: 'stationarity-lost'; at: number; cause: BreakCause; changePoint: number; detail: string; slope?: { perSample: number; standardUncertainty: number } }
+  | { kind: 'break-revised'; at: number; cause: BreakCause; changePoint: number; slope?: { perSample: number; standardUncertainty: number }; warmup?: boolean }
+  | { kind: 'warmup-extended'; at: number; warmupEnd: number; excluded: number }
+  | { kind: 'steady-withdrawn'; at: number; reason: string }
   | { kind: 'averaging-limit'; at: number; m: number; tauSeconds: number | null; adev: number }
   | { kind: 'stale'; at: number; silentSeconds: number }
   | { kind: 'fresh'; at: number };
 
 export type EventKind = ChannelEvent['kind'];
 
-export const EVENT_KINDS: EventKind[] = ['steady', 'precision-reached', 'stationarity-lost', 'stationarity-regained', 'averaging-limit', 'stale', 'fresh'];
+export const EVENT_KINDS: EventKind[] = ['steady', 'precision-reached', 'stationarity-lost', 'stationarity-regained', 'break-revised', 'warmup-extended', 'steady-withdrawn', 'averaging-limit', 'stale', 'fresh'];

@@ -1,5 +1,6 @@
 import type { EstimatorName } from '../core/tau/tau-estimate.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
+import type { WarmupSetting } from './warmup-detector.js';
 
 /** How a channel's averaging window is bounded. */
 export interface WindowSpec {
@@ -17,8 +18,10 @@ export interface ChannelOptions {
   window: WindowSpec;
   /** Largest lag of the maintained autocovariance. */
   maxLag: number;
-  /** The tau_int estimator whose result is reported as the channel's uncertainty. */
+  /** The estimator whose result is reported as the channel's uncertainty (`auto`: the default rule). */
   estimator: EstimatorName;
+  /** How the warm-up is found: auto (default), none (every sample as given) or a fixed count. */
+  warmup?: WarmupSetting;
   /** Coverage probability of the expanded uncertainty. */
   confidence: number;
   target: TargetSpec | null;
@@ -36,12 +39,13 @@ export interface ChannelOptions {
 }
 
 /**
- * The default estimator, chosen by the coverage benchmark (bench/coverage.js; figures in
- * DEVELOPERS.md): blocking with Jonsson's automatic level keeps the 95 % interval's coverage
- * within 0.93-0.97 for AR(1) up to phi = 0.9 at n_eff near 100 and needs only O(levels) work per
- * snapshot.
+ * The default estimator: the `auto` rule (core/tau/estimator-set.ts), chosen by the coverage
+ * benchmark (bench/coverage.js; figures in DEVELOPERS.md): the autoregressive spectral estimate
+ * with spectral lines removed, and Beran's law under long memory, keeps the 95 % interval's coverage
+ * within 0.93-0.97 on AR(1) up to phi = 0.99, heavy-tailed innovations, ARMA(1,1) and damped
+ * oscillations at n_eff near 100, and reads only the maintained lags.
  */
-export const DEFAULT_ESTIMATOR: EstimatorName = 'geyer';
+export const DEFAULT_ESTIMATOR: EstimatorName = 'auto';
 
 /** Default growing-window cap: 2^22 samples (about 96 MiB of window per channel at the most). */
 export const DEFAULT_MAX_SAMPLES = 4_194_304;
@@ -55,6 +59,7 @@ export const DEFAULT_CHANNEL_OPTIONS: ChannelOptions = {
   rate: null,
   falseAlarmSamples: 1_000_000,
   staleSeconds: 30,
+  warmup: { mode: 'auto' },
 };
 
 /** Below this many samples the default estimator falls back to independent observations. */

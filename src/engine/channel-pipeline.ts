@@ -1,16 +1,21 @@
 import { WindowedSeries } from '../core/window/windowed-series.js';
+import { BlockHistory, type BlockHistoryState } from '../core/window/block-history.js';
 import { EstimatorSet } from '../core/tau/estimator-set.js';
 import { AutocovarianceFft } from '../core/acf/autocovariance-fft.js';
-import type { EstimatorName, TauEstimate } from '../core/tau/tau-estimate.js';
+import type { MethodEstimatorName, MethodName, TauEstimate } from '../core/tau/tau-estimate.js';
 import { meanUncertainty } from '../core/uncertainty/mean-uncertainty.js';
 import { targetStatus, type TargetStatus } from '../core/uncertainty/target-precision.js';
+import { PeriodogramWorkspace, MAX_SEGMENT } from '../core/spectrum/periodogram.js';
+import { diagnoseSpectrum, type SpectralDiagnosis } from '../core/spectrum/spectral-diagnosis.js';
+import { detectLattice, type Lattice } from '../core/resolution/lattice.js';
 import { type ChannelOptions, FEW_SAMPLES, MIN_REPORTED_LAGS } from './channel-options.js';
 import { CaoRhinehartFilter, type CaoRhinehartState } from '../core/stationarity/cao-rhinehart.js';
 import { StationarityMonitor, type MonitorState, type StationarityBreak } from './stationarity-monitor.js';
-import { detectWarmup } from './warmup-detector.js';
+import { detectWarmup, recheckTransient, alarmIsWarmup, formatSamples, MIN_EFFECTIVE, type WarmupPending, type WarmupVerdict, type TransientSummary } from './warmup-detector.js';
 import type { ChannelEvent, ChannelState } from './channel-events.js';
 import { stationarityReport, allanReport, type StationarityReport, type AllanReport } from './stationarity-report.js';
 import type { WindowedSeriesState } from '../core/window/windowed-series.js';
+import { channelVerdict, type ChannelVerdict } from './channel-verdict.js';
 
 /** One estimator's result as reported in a snapshot. */
 export interface EstimatorReport {
@@ -21,6 +26,16 @@ export interface EstimatorReport {
   window: number;
   reliable: boolean;
   note?: string;
+}
+
+/** What the spectral diagnosis found, as reported. */
+export interface SpectralReport {
+  /** Samples in the periodogram segment. */
+  segment: number;
+  /** Periodic components (a limit cycle, a pump stroke): period in samples, amplitude in data units. */
+  lines: { period: number; periodSeconds: number | null; amplitude: number; pValue: number }[];
+  /** Long memory: the Hurst exponent and whether the mean converges more slowly than 1 / sqrt(n). */
+  longMemory: { hurst: number; standardError: number; detected: boolean } | null;
 }
 
 /** A channel's state at one moment: the `plateau analyze --json` contract, one entry per channel. */
@@ -39,11 +54,15 @@ export interface ChannelSnapshot {
   expandedUncertainty: number | null;
   confidence: number;
   target: TargetStatus | null;
-  /** The estimator behind tauInt and the uncertainty. */
-  estimator: EstimatorName;
-  estimators: Partial<Record<EstimatorName, EstimatorReport>>;
+  /** The method behind tauInt and the uncertainty (what `auto` chose, or the configured estimator). */
+  estimator: MethodName;
+  /** Why that method: the rule that chose it, in words. */
+  estimatorReason: string;
+  estimators: Partial<Record<MethodEstimatorName, EstimatorReport>>;
   /** Present when the estimators differ by more than their sampling error. */
   disagreement: string[];
+  /** The verdict: ready to record, or which conditions are still pending and what they need. */
+  verdict: ChannelVerdict;
   window: {
     kind: 'growing' | 'sliding';
     /** 0-based index of the window's first sample since the channel (or test point) began. */
@@ -65,6 +84,10 @@ export interface ChannelSnapshot {
   excluded: number;
   /** Steady-state evidence: the warm-up end, the reported tests, the monitor, the last break. */
   stationarity: StationarityReport | null;
+  /** Spectral lines and long memory (null before the window holds 512 samples). */
+  spectrum: SpectralReport | null;
+  /** Readings on a lattice (an indication's resolution): the step and how many distinct values. */
+  resolution: Lattice | null;
   /** Overlapping Allan deviation at octave averaging factors. */
   allan: AllanReport['points'];
   averagingLimit: AllanReport['averagingLimit'];
@@ -91,9 +114,12 @@ export interface ChannelSummary {
   nEff: number | null;
   excluded: number;
   target: TargetStatus | null;
+  estimator: MethodName | null;
+  verdict: ChannelVerdict;
 }
 
 const SHARED_FFT = new AutocovarianceFft();
+const SHARED_PERIODOGRAM = new PeriodogramWorkspace();
 const NO_EVENTS: readonly ChannelEvent[] = Object.freeze([]);
 
 type SnapshotBase = Pick<ChannelSnapshot, 'name' | 'n' | 'confidence' | 'estimator' | 'window' | 'rate' | 'received' | 'last' | 'state' | 'excluded' | 'events' | 'eventCount'>;
@@ -104,46 +130,95 @@ function finiteOrNull(value: number): number | null {
 
 /** Samples the window must hold before the first warm-up check. */
 const FIRST_CHECK = 64;
+/** Warm-up and transient checks run every 1/CHECK_DIVISOR of the window, and at most every MIN_CHECK_STEP samples. */
+const CHECK_DIVISOR = 16;
+const MIN_CHECK_STEP = 16;
 /** Most recent events kept for snapshots (all events go to the caller as they happen). */
 const RECENT_EVENTS = 256;
 /** Blocks of this many tau_int feed the stationarity monitor. */
 const MONITOR_BLOCK_TAUS = 8;
 /** Effective samples since a break before stationarity may be regained (hysteresis). */
 const REGAIN_EFFECTIVE = 200;
+/**
+ * Monitor blocks (of MONITOR_BLOCK_TAUS tau_int) the first steady state must hold before an alarm
+ * counts as a break; an earlier alarm withdraws a premature verdict instead (the monitor's own
+ * reference period).
+ */
+const PREMATURE_BLOCKS = 64;
 /** Effective samples of uninterrupted steadiness after a regain that end a streak of losses. */
 const LONG_STEADY = 5000;
 /** precision-reached re-arms when U climbs this far above the bound (hysteresis). */
 const PRECISION_REARM = 1.1;
+/** Smallest periodogram segment the spectral diagnosis runs on. */
+const DIAGNOSIS_SEGMENT = 512;
+/** The diagnosis is refreshed after this many segments of new samples (or when the segment grows). */
+const DIAGNOSIS_REFRESH_SEGMENTS = 4;
+/** Version of the saved state below; a checkpoint of another version is replayed from samples. */
+export const PIPELINE_STATE_VERSION = 2;
 
 type Phase = 'warming' | 'steady' | 'unsteady';
 
 export interface ChannelPipelineState {
+  version: number;
   series: WindowedSeriesState;
-  numbers: number[];
+  history: BlockHistoryState;
   phase: Phase;
-  flags: boolean[];
+  received: number;
+  lastValue: number;
+  lastTime: number;
+  warmupEnd: number | null;
+  excluded: number;
+  windowOrigin: number;
+  nextWarmupCheck: number;
+  nextPrecisionCheck: number;
+  nextAllanCheck: number;
+  nextDiagnosis: number;
+  nextReclassify: number;
+  withdrawals: number;
+  indicatorBlock: number;
+  indicatorSum: number;
+  indicatorCount: number;
+  eventCount: number;
+  lastBreakAt: number;
+  breakNoise: number;
+  lossStreak: number;
+  regainedAt: number;
+  precise: boolean;
+  stale: boolean;
+  lostBefore: boolean;
+  averagingLimitSeen: boolean;
   monitor: MonitorState | null;
+  brokenMonitor: MonitorState | null;
   indicator: CaoRhinehartState;
   lastBreak: StationarityBreak | null;
+  diagnosis: SpectralDiagnosis | null;
+  warmupPending: WarmupPending | null;
+  warmupMethod: WarmupVerdict['method'] | null;
+  transient: TransientSummary | null;
   recentEvents: ChannelEvent[];
 }
 
 /**
  * A channel's pipeline: the window, its estimators, the detectors that decide when averaging is
- * valid, the channel's state and its events. Deterministic given the samples: the daemon and
- * `plateau analyze` both feed samples here, one at a time, in arrival order, and get the same
- * events at the same sample indices.
+ * valid, the channel's state, its verdict and its events. Deterministic given the samples: the
+ * daemon and `plateau analyze` both feed samples here, one at a time, in arrival order, and get the
+ * same events at the same sample indices. Reading (snapshot, summary) never changes the state.
  *
  * Phases: warming (no steady state yet: the warm-up detector runs on a geometric schedule),
- * steady (the stationarity monitor watches every sample; the precision check runs on a schedule),
- * unsteady (after a break: a growing window restarts at the change point and the warm-up detector
- * looks for steady state again). The displayed state adds precise (steady and at the target) and
- * stale (no data by the daemon's clock).
+ * steady (the stationarity monitor watches every sample; the precision check and, for a growing
+ * window, the transient check run on a schedule), unsteady (after a break: a growing window
+ * restarts at the change point and the warm-up detector looks for steady state again). The
+ * displayed state adds precise (steady and at the target) and stale (no data by the daemon's clock).
+ * The detectors take their long-run variance from the `auto` rule whatever estimator the user
+ * reports with, so that choosing, say, `iid` for a report cannot make every correlated channel
+ * lose stationarity.
  */
 export class ChannelPipeline {
   readonly name: string;
   readonly options: ChannelOptions;
   readonly series: WindowedSeries;
+  /** Every sample since the window began (block means): the transient fit reads it. */
+  readonly history = new BlockHistory(512);
   private readonly estimatorSet: EstimatorSet;
   private received = 0;
   private lastValue = Number.NaN;
@@ -154,6 +229,8 @@ export class ChannelPipeline {
   private lostBefore = false;
   private averagingLimitSeen = false;
   private monitor: StationarityMonitor | null = null;
+  /** The monitor that raised the last break (its CUSUM trace stays on display). */
+  private brokenMonitor: StationarityMonitor | null = null;
   private lastBreak: StationarityBreak | null = null;
   private lastBreakAt = -1;
   /** Losses in the current streak, and where the last regain happened. */
@@ -170,12 +247,23 @@ export class ChannelPipeline {
   private nextWarmupCheck = FIRST_CHECK;
   private nextPrecisionCheck = 0;
   private nextAllanCheck = 256;
+  private nextDiagnosis = DIAGNOSIS_SEGMENT;
+  /** Verdicts withdrawn in a row (reset when a steady state has held its monitor's reference period). */
+  private withdrawals = 0;
+  /** Index at which the last break is classified again (-1: not any more). */
+  private nextReclassify = -1;
+  private diagnosis: SpectralDiagnosis | null = null;
+  /** What the last warm-up check is still waiting for (null once steady). */
+  private warmupPending: WarmupPending | null = null;
+  private warmupMethod: WarmupVerdict['method'] | null = null;
+  private transient: TransientSummary | null = null;
   private indicator = new CaoRhinehartFilter();
   private indicatorBlock = 16;
   private indicatorSum = 0;
   private indicatorCount = 0;
   private recentEvents: ChannelEvent[] = [];
   private eventCount = 0;
+  private pendingEvents: ChannelEvent[] | null = null;
   private snapshotCache: { key: string; snapshot: ChannelSnapshot } | null = null;
 
   /**
@@ -195,6 +283,10 @@ export class ChannelPipeline {
     });
   }
 
+  private get growing(): boolean {
+    return this.options.window.kind === 'growing';
+  }
+
   /**
    * Feeds one sample (time in seconds; NaN when unknown). Values must be finite: the decoders and
    * the CSV reader reject the rest. Returns the events this sample raised (usually none).
@@ -202,6 +294,7 @@ export class ChannelPipeline {
   push(value: number, timeSeconds: number): readonly ChannelEvent[] {
     const index = this.series.nextIndex;
     this.series.push(value, timeSeconds);
+    this.history.push(value);
     this.received++;
     this.lastValue = value;
     this.lastTime = timeSeconds;
@@ -211,32 +304,43 @@ export class ChannelPipeline {
       const oldest = timeSeconds - window.seconds;
       while (ring.length > 1 && ring.timeAt(0) < oldest) this.series.shift();
     }
-    let events: ChannelEvent[] | null = null;
-    const raise = (event: ChannelEvent) => {
-      (events ??= []).push(event);
-      this.remember(event);
-    };
+    this.pendingEvents = null;
     if (this.stale) {
       this.stale = false;
-      raise({ kind: 'fresh', at: index });
+      this.raise({ kind: 'fresh', at: index });
     }
+    if (index >= this.nextDiagnosis) this.updateDiagnosis(index);
     if (this.options.detectors === false) {
       if (this.phase !== 'steady' && this.series.length >= 2) {
         this.phase = 'steady';
         this.warmupEnd = this.series.firstIndex;
+        this.warmupPending = null;
       }
-      if (this.phase === 'steady' && index >= this.nextPrecisionCheck) this.checkPrecision(index, raise);
-      return events ?? NO_EVENTS;
+      if (this.phase === 'steady' && index >= this.nextPrecisionCheck) this.checkPrecision(index);
+      return this.pendingEvents ?? NO_EVENTS;
     }
     this.feedIndicator(value);
+    if (this.brokenMonitor && index >= 0 && this.phase !== 'steady' && this.nextReclassify >= 0) {
+      this.brokenMonitor.observe(value, index);
+      if (index >= this.nextReclassify) this.reclassifyBreak(index);
+    }
     if (this.phase === 'steady' && this.monitor) {
       const found = this.monitor.push(value, index);
-      if (found) this.breakFound(found, index, raise);
+      if (found) this.breakFound(found, index);
+      else if (this.withdrawals > 0 && this.monitor.blockTotal >= PREMATURE_BLOCKS) this.withdrawals = 0;
     }
-    if (this.phase !== 'steady' && index >= this.nextWarmupCheck) this.checkWarmup(index, raise);
-    if (this.phase === 'steady' && index >= this.nextPrecisionCheck) this.checkPrecision(index, raise);
-    if (index >= this.nextAllanCheck) this.checkAveragingLimit(index, raise);
-    return events ?? NO_EVENTS;
+    if (index >= this.nextWarmupCheck) {
+      if (this.phase !== 'steady') this.checkWarmup(index);
+      else this.checkTransient(index);
+    }
+    if (this.phase === 'steady' && index >= this.nextPrecisionCheck) this.checkPrecision(index);
+    if (index >= this.nextAllanCheck) this.checkAveragingLimit(index);
+    return this.pendingEvents ?? NO_EVENTS;
+  }
+
+  private raise(event: ChannelEvent): void {
+    (this.pendingEvents ??= []).push(event);
+    this.remember(event);
   }
 
   /**
@@ -247,10 +351,9 @@ export class ChannelPipeline {
    */
   checkStale(silentSeconds: number): ChannelEvent | null {
     if (this.stale || this.received === 0) return null;
-    const silent = silentSeconds;
-    if (silent < this.options.staleSeconds) return null;
+    if (silentSeconds < this.options.staleSeconds) return null;
     this.stale = true;
-    const event: ChannelEvent = { kind: 'stale', at: this.received - 1, silentSeconds: silent };
+    const event: ChannelEvent = { kind: 'stale', at: this.received - 1, silentSeconds };
     this.remember(event);
     return event;
   }
@@ -259,15 +362,22 @@ export class ChannelPipeline {
   restartWindow(): void {
     this.series.clear();
     this.windowOrigin = this.series.nextIndex;
+    this.history.clear(this.windowOrigin);
     this.resetDetectors();
     this.lostBefore = false;
     this.lastBreak = null;
+    this.brokenMonitor = null;
+    this.nextReclassify = -1;
+    this.withdrawals = 0;
     this.breakNoise = 0;
     this.lossStreak = 0;
     this.regainedAt = -1;
     this.excluded = 0;
     this.averagingLimitSeen = false;
     this.nextAllanCheck = this.windowOrigin + 256;
+    this.diagnosis = null;
+    this.nextDiagnosis = this.windowOrigin + DIAGNOSIS_SEGMENT;
+    this.snapshotCache = null;
   }
 
   get count(): number {
@@ -293,9 +403,13 @@ export class ChannelPipeline {
     return { times, values, firstIndex: this.series.firstIndex + from };
   }
 
-  /** The stationarity monitor's recent CUSUM sums (empty while warming or unsteady). */
-  cusumTrace(): { blockSize: number; decisionInterval: number; upper: number[]; lower: number[] } | null {
-    return this.monitor ? this.monitor.cusumTrace() : null;
+  /**
+   * The stationarity monitor's recent CUSUM sums: the live monitor's, or after a break the sums of
+   * the monitor that raised it (so the alarm stays visible); null before the first steady state.
+   */
+  cusumTrace(): { blockSize: number; decisionInterval: number; upper: number[]; lower: number[]; alarmed: boolean } | null {
+    const monitor = this.monitor ?? this.brokenMonitor;
+    return monitor ? { ...monitor.cusumTrace(), alarmed: monitor === this.brokenMonitor } : null;
   }
 
   get totalReceived(): number {
@@ -322,27 +436,84 @@ export class ChannelPipeline {
   /** Plain-data state: restoring it into a pipeline with the same name and options continues bit for bit. */
   saveState(): ChannelPipelineState {
     return {
+      version: PIPELINE_STATE_VERSION,
       series: this.series.saveState(),
-      numbers: [this.received, this.lastValue, this.lastTime, this.warmupEnd ?? -1, this.excluded, this.windowOrigin, this.nextWarmupCheck, this.nextPrecisionCheck, this.nextAllanCheck, this.indicatorBlock, this.indicatorSum, this.indicatorCount, this.eventCount, this.lastBreakAt, this.breakNoise, this.lossStreak, this.regainedAt],
+      history: this.history.saveState(),
       phase: this.phase,
-      flags: [this.precise, this.stale, this.lostBefore, this.averagingLimitSeen],
+      received: this.received,
+      lastValue: this.lastValue,
+      lastTime: this.lastTime,
+      warmupEnd: this.warmupEnd,
+      excluded: this.excluded,
+      windowOrigin: this.windowOrigin,
+      nextWarmupCheck: this.nextWarmupCheck,
+      nextPrecisionCheck: this.nextPrecisionCheck,
+      nextAllanCheck: this.nextAllanCheck,
+      nextDiagnosis: this.nextDiagnosis,
+      nextReclassify: this.nextReclassify,
+      withdrawals: this.withdrawals,
+      indicatorBlock: this.indicatorBlock,
+      indicatorSum: this.indicatorSum,
+      indicatorCount: this.indicatorCount,
+      eventCount: this.eventCount,
+      lastBreakAt: this.lastBreakAt,
+      breakNoise: this.breakNoise,
+      lossStreak: this.lossStreak,
+      regainedAt: this.regainedAt,
+      precise: this.precise,
+      stale: this.stale,
+      lostBefore: this.lostBefore,
+      averagingLimitSeen: this.averagingLimitSeen,
       monitor: this.monitor ? this.monitor.saveState() : null,
+      brokenMonitor: this.brokenMonitor ? this.brokenMonitor.saveState() : null,
       indicator: this.indicator.state(),
       lastBreak: this.lastBreak ? { ...this.lastBreak } : null,
+      diagnosis: this.diagnosis ? structuredClone(this.diagnosis) : null,
+      warmupPending: this.warmupPending ? { ...this.warmupPending } : null,
+      warmupMethod: this.warmupMethod,
+      transient: this.transient ? { ...this.transient } : null,
       recentEvents: this.recentEvents.map((event) => ({ ...event })),
     };
   }
 
+  /** Restores a saved state; throws when the state is of another version (the caller replays from samples). */
   loadState(state: ChannelPipelineState): void {
+    if (state.version !== PIPELINE_STATE_VERSION) throw new RangeError(`channel state version ${String(state.version)} is not ${PIPELINE_STATE_VERSION}`);
     this.series.loadState(state.series);
-    let warmupEnd: number;
-    [this.received, this.lastValue, this.lastTime, warmupEnd, this.excluded, this.windowOrigin, this.nextWarmupCheck, this.nextPrecisionCheck, this.nextAllanCheck, this.indicatorBlock, this.indicatorSum, this.indicatorCount, this.eventCount, this.lastBreakAt, this.breakNoise, this.lossStreak, this.regainedAt] = state.numbers as number[] as [number, number, number, number, number, number, number, number, number, number, number, number, number, number, number, number, number];
-    this.warmupEnd = warmupEnd >= 0 ? warmupEnd : null;
+    this.history.loadState(state.history);
     this.phase = state.phase;
-    [this.precise, this.stale, this.lostBefore, this.averagingLimitSeen] = state.flags as [boolean, boolean, boolean, boolean];
+    this.received = state.received;
+    this.lastValue = state.lastValue;
+    this.lastTime = state.lastTime;
+    this.warmupEnd = state.warmupEnd;
+    this.excluded = state.excluded;
+    this.windowOrigin = state.windowOrigin;
+    this.nextWarmupCheck = state.nextWarmupCheck;
+    this.nextPrecisionCheck = state.nextPrecisionCheck;
+    this.nextAllanCheck = state.nextAllanCheck;
+    this.nextDiagnosis = state.nextDiagnosis;
+    this.nextReclassify = state.nextReclassify;
+    this.withdrawals = state.withdrawals;
+    this.indicatorBlock = state.indicatorBlock;
+    this.indicatorSum = state.indicatorSum;
+    this.indicatorCount = state.indicatorCount;
+    this.eventCount = state.eventCount;
+    this.lastBreakAt = state.lastBreakAt;
+    this.breakNoise = state.breakNoise;
+    this.lossStreak = state.lossStreak;
+    this.regainedAt = state.regainedAt;
+    this.precise = state.precise;
+    this.stale = state.stale;
+    this.lostBefore = state.lostBefore;
+    this.averagingLimitSeen = state.averagingLimitSeen;
     this.monitor = state.monitor ? StationarityMonitor.fromState(state.monitor) : null;
+    this.brokenMonitor = state.brokenMonitor ? StationarityMonitor.fromState(state.brokenMonitor) : null;
     this.indicator = CaoRhinehartFilter.fromState(state.indicator);
     this.lastBreak = state.lastBreak;
+    this.diagnosis = state.diagnosis;
+    this.warmupPending = state.warmupPending;
+    this.warmupMethod = state.warmupMethod;
+    this.transient = state.transient;
     this.recentEvents = state.recentEvents;
     this.snapshotCache = null;
   }
@@ -359,6 +530,9 @@ export class ChannelPipeline {
     this.precise = false;
     this.monitor = null;
     this.warmupEnd = null;
+    this.warmupPending = null;
+    this.warmupMethod = null;
+    this.transient = null;
     this.nextWarmupCheck = this.series.firstIndex + FIRST_CHECK;
     this.indicator.reset();
     this.indicatorSum = 0;
@@ -375,53 +549,148 @@ export class ChannelPipeline {
     this.indicator.update(mean + (Number.isFinite(this.series.anchor) ? this.series.anchor : 0));
   }
 
-  private tauNow(): number {
-    if (this.series.length < 8 || !(this.series.variance > 0)) return 1;
-    return Math.max(1, this.estimatorSet.estimate(this.series, this.options.estimator).tauInt);
+  /** The detectors' estimate: the `auto` rule, whatever the reported estimator (robust, fixed). */
+  private detectorEstimate(): TauEstimate {
+    return this.estimatorSet.auto(this.series, this.diagnosis).estimate;
   }
 
-  private checkWarmup(index: number, raise: (event: ChannelEvent) => void): void {
+  /**
+   * The noise the transient fit is judged against: the short-memory autoregressive estimate of the
+   * window (never Beran's law: a transient still in the window reads as long memory, and its
+   * inflated tau_int would leave too few blocks to see it by). O(maxLag^2).
+   */
+  private shortMemoryNoise(): { longRunVariance: number; tauInt: number } {
+    const estimate = this.estimatorSet.estimate(this.series, 'ar', this.diagnosis);
+    return { longRunVariance: estimate.varianceOfMean * this.series.length, tauInt: Math.max(1, estimate.tauInt) };
+  }
+
+  private tauNow(): number {
+    if (this.series.length < 8 || !(this.series.variance > 0)) return 1;
+    return Math.max(1, this.detectorEstimate().tauInt);
+  }
+
+  /**
+   * The spectral diagnosis (lines, long memory) of the most recent power-of-two segment of the
+   * window, refreshed when the segment grows or after DIAGNOSIS_REFRESH_SEGMENTS segments of new
+   * samples: O(log n) amortised per sample.
+   */
+  private updateDiagnosis(index: number): void {
     const n = this.series.length;
-    this.nextWarmupCheck = index + Math.max(FIRST_CHECK, Math.floor(n / 8));
+    let segment = 1;
+    while (segment * 2 <= n && segment < MAX_SEGMENT) segment *= 2;
+    if (segment < DIAGNOSIS_SEGMENT || !(this.series.variance > 0)) {
+      this.nextDiagnosis = index + Math.max(64, DIAGNOSIS_SEGMENT - n);
+      return;
+    }
+    const periodogram = SHARED_PERIODOGRAM.compute(this.series.values());
+    this.diagnosis = periodogram ? diagnoseSpectrum(periodogram, this.series.autocovariance(), n, this.series.variance) : null;
+    this.snapshotCache = null;
+    // Next: when the window reaches the next power of two, or after a few segments of new samples.
+    const grows = segment < MAX_SEGMENT ? Math.max(1, 2 * segment - n) : Number.POSITIVE_INFINITY;
+    this.nextDiagnosis = index + Math.min(grows, DIAGNOSIS_REFRESH_SEGMENTS * segment);
+  }
+
+  /** The window was cut: the diagnosis of the samples that left must not outlive them. */
+  private diagnosisAfterCut(index: number): void {
+    this.diagnosis = null;
+    this.nextDiagnosis = index + 1;
+  }
+
+  private checkWarmup(index: number): void {
+    const n = this.series.length;
+    this.nextWarmupCheck = index + Math.max(MIN_CHECK_STEP, Math.floor(n / CHECK_DIVISOR));
     // After a break a sliding window waits until the change point has slid out.
-    if (this.lastBreak && this.series.firstIndex <= this.lastBreak.changePoint && this.options.window.kind === 'sliding') return;
-    if (n < FIRST_CHECK || !(this.series.variance > 0)) return;
-    const tau = this.tauNow();
-    this.indicatorBlock = Math.max(8, Math.ceil(4 * tau));
+    if (this.lastBreak && this.series.firstIndex <= this.lastBreak.changePoint && !this.growing) {
+      this.warmupPending = { condition: 'warm-up', message: 'waiting for the break to slide out of the window', samplesToGo: this.lastBreak.changePoint - this.series.firstIndex + 1 };
+      return;
+    }
+    if (n < FIRST_CHECK) {
+      this.warmupPending = { condition: 'effective-samples', message: `${n} samples; the first steady-state check comes at ${FIRST_CHECK}`, samplesToGo: FIRST_CHECK - n };
+      return;
+    }
+    if (!(this.series.variance > 0)) {
+      this.warmupPending = { condition: 'warm-up', message: 'constant window: no variation to judge steady state by', samplesToGo: null };
+      return;
+    }
     const values = this.series.values();
-    const verdict = detectWarmup(values, tau);
-    if (!verdict.steady) return;
-    if (this.lostBefore && !this.regainConfirmed(values.subarray(verdict.truncation), tau)) return;
-    const end = this.series.firstIndex + verdict.truncation;
-    if (this.options.window.kind === 'growing' && verdict.truncation > 0) {
-      this.excluded += verdict.truncation;
+    const verdict = detectWarmup({ values, firstIndex: this.series.firstIndex, history: this.history, setting: this.options.warmup ?? { mode: 'auto' }, growing: this.growing, noise: this.shortMemoryNoise(), evidenceFactor: 2 ** Math.min(3, this.withdrawals) });
+    this.transient = verdict.transient;
+    this.warmupMethod = verdict.method;
+    this.indicatorBlock = Math.max(8, Math.ceil(4 * this.tauNow()));
+    if (!verdict.steady) {
+      this.warmupPending = verdict.pending;
+      return;
+    }
+    const tau = verdict.effectiveSamples ? Math.max(1, (index + 1 - verdict.start) / verdict.effectiveSamples) : this.tauNow();
+    if (this.lostBefore) {
+      const regain = this.regainEvidence(values.subarray(Math.max(0, verdict.start - this.series.firstIndex)), tau);
+      if (regain) {
+        this.warmupPending = regain;
+        return;
+      }
+    }
+    this.warmupPending = null;
+    const end = verdict.start;
+    if (this.growing && end > this.series.firstIndex) {
+      this.excluded += end - this.series.firstIndex;
       this.series.dropBefore(end);
+      this.diagnosisAfterCut(index);
     }
     this.warmupEnd = end;
     this.phase = 'steady';
     this.startMonitor(index);
     const excluded = this.excluded;
     if (this.lostBefore) this.regainedAt = index;
-    raise(this.lostBefore ? { kind: 'stationarity-regained', at: index, warmupEnd: end, excluded } : { kind: 'steady', at: index, warmupEnd: end, excluded });
+    this.raise(this.lostBefore ? { kind: 'stationarity-regained', at: index, warmupEnd: end, excluded } : { kind: 'steady', at: index, warmupEnd: end, excluded });
     this.nextPrecisionCheck = index;
+  }
+
+  /**
+   * A steady growing window: the record since the window began is fitted again as it grows. When
+   * the warm-up turns out longer than it looked (its tail, now resolved, still biases the kept mean),
+   * the start moves later (`warmup-extended`); when no later start leaves enough samples, the
+   * warm-up is not over and the channel is warming again.
+   */
+  private checkTransient(index: number): void {
+    const n = this.series.length;
+    this.nextWarmupCheck = index + Math.max(MIN_CHECK_STEP, Math.floor(n / CHECK_DIVISOR));
+    if (!this.growing || (this.options.warmup && this.options.warmup.mode !== 'auto') || !(this.series.variance > 0)) return;
+    const noise = this.shortMemoryNoise();
+    const found = recheckTransient(this.history, noise.longRunVariance, noise.tauInt, this.series.firstIndex, this.series.nextIndex);
+    if (!found) return;
+    this.transient = { amplitude: found.fit.amplitude, timeConstant: found.fit.timeConstant, level: found.fit.level, improvement: found.fit.improvement, significant: true, decays: found.fit.decays };
+    if (found.start === null) {
+      // The warm-up is not over: back to warming (not a break: the level is what it was heading for).
+      this.withdrawSteady(index, found.fit.timeConstant, found.fit.decays ? 'the warm-up is still decaying: its remaining transient biases the mean by more than its uncertainty allows' : 'the level is still moving, as it has since the window began: the mean is biased by more than its uncertainty allows');
+      return;
+    }
+    if (found.start <= this.series.firstIndex) return;
+    this.excluded += found.start - this.series.firstIndex;
+    this.series.dropBefore(found.start);
+    this.diagnosisAfterCut(index);
+    this.warmupEnd = found.start;
+    this.startMonitor(index);
+    this.raise({ kind: 'warmup-extended', at: index, warmupEnd: found.start, excluded: this.excluded });
   }
 
   /**
    * Hysteresis after a break: stationarity is regained only on twice the evidence that declared it
    * first (REGAIN_EFFECTIVE effective samples since the cut) and with no trend left in the block
-   * means (|z| < 2 against the pre-break long-run variance), so an ongoing drift cannot flap between lost
-   * and regained.
+   * means (|z| < 2 against the pre-break long-run variance), so an ongoing drift cannot flap between
+   * lost and regained. Returns what is still missing, or null when the regain is confirmed.
    */
-  private regainConfirmed(kept: Float64Array, tau: number): boolean {
+  private regainEvidence(kept: Float64Array, tau: number): WarmupPending | null {
     // Each loss in a streak doubles the evidence the next regain needs (a slow drift looks steady
     // over short stretches), so lost/regained cannot alternate quickly.
-    if (kept.length / tau < REGAIN_EFFECTIVE * 2 ** Math.min(10, this.lossStreak - 1)) return false;
+    const needed = REGAIN_EFFECTIVE * 2 ** Math.min(10, this.lossStreak - 1);
+    const have = kept.length / tau;
+    if (have < needed) return { condition: 'effective-samples', message: `after the break: ${Math.floor(have)} effective samples of the new level, ${needed} needed to regain steady state`, samplesToGo: Math.ceil((needed - have) * tau) };
     // A stretch shorter than twice the time the last break took to show cannot rule it out.
     const delay = this.lastBreak ? this.lastBreakAt - this.lastBreak.changePoint : 0;
-    if (kept.length < 2 * delay) return false;
+    if (kept.length < 2 * delay) return { condition: 'effective-samples', message: 'after the break: the new level must last twice as long as the break took to show', samplesToGo: 2 * delay - kept.length };
     const blockSize = Math.max(4, Math.ceil(MONITOR_BLOCK_TAUS * tau));
     const blocks = Math.floor(kept.length / blockSize);
-    if (blocks < 8) return false;
+    if (blocks < 8) return { condition: 'effective-samples', message: 'after the break: too few blocks to check for a trend', samplesToGo: (8 - blocks) * blockSize };
     const means = new Float64Array(blocks);
     for (let b = 0; b < blocks; b++) {
       let sum = 0;
@@ -430,8 +699,7 @@ export class ChannelPipeline {
     }
     // The noise level from before the break: a drift would inflate an estimate from the drifting
     // data itself and hide its own trend.
-    const estimate = this.estimatorSet.estimate(this.series, this.options.estimator);
-    const longRunVariance = this.breakNoise > 0 ? this.breakNoise : estimate.varianceOfMean * this.series.length;
+    const longRunVariance = this.breakNoise > 0 ? this.breakNoise : this.detectorEstimate().varianceOfMean * this.series.length;
     const sigmaBlock = Math.sqrt(longRunVariance / blockSize);
     const centre = (blocks - 1) / 2;
     let sxy = 0;
@@ -441,12 +709,12 @@ export class ChannelPipeline {
       sxx += (b - centre) ** 2;
     }
     const z = sxy / sxx / (sigmaBlock / Math.sqrt(sxx));
-    return Math.abs(z) < 2;
+    return Math.abs(z) < 2 ? null : { condition: 'break', message: `after the break the level still trends (z = ${z.toFixed(1)})`, samplesToGo: null };
   }
 
   private startMonitor(index: number): void {
-    const tau = this.tauNow();
-    const estimate = this.estimatorSet.estimate(this.series, this.options.estimator);
+    const estimate = this.detectorEstimate();
+    const tau = Math.max(1, estimate.tauInt);
     const blockSize = Math.max(16, Math.ceil(MONITOR_BLOCK_TAUS * tau));
     let longRunVariance = Math.max(estimate.varianceOfMean * this.series.length, Number.MIN_VALUE);
     // After a shift or a trend the noise is the channel's own: keep the pre-break level, since a
@@ -464,7 +732,47 @@ export class ChannelPipeline {
     );
   }
 
-  private breakFound(found: StationarityBreak, index: number, raise: (event: ChannelEvent) => void): void {
+  /**
+   * Whether an alarm of the monitor is the warm-up's tail rather than a break: a steady state
+   * declared early on a short record can hide a slow warm-up that the monitor then sees as a drift.
+   * When the record since the window began is explained by a decaying exponential that still biases
+   * the kept mean, the channel goes back to warming (no break, no penalty on the regain).
+   */
+  private alarmIsWarmupTail(index: number): boolean {
+    if (!this.growing || (this.options.warmup && this.options.warmup.mode !== 'auto') || this.lostBefore) return false;
+    const noise = this.shortMemoryNoise();
+    const fit = alarmIsWarmup(this.history, noise.longRunVariance, noise.tauInt);
+    if (!fit) return false;
+    this.transient = { amplitude: fit.amplitude, timeConstant: fit.timeConstant, level: fit.level, improvement: fit.improvement, significant: true, decays: fit.decays };
+    this.withdrawSteady(index, fit.timeConstant, 'the monitor\'s alarm is the warm-up still running: the record since the window began is explained by a decaying transient, not by a break');
+    return true;
+  }
+
+  private withdrawSteady(index: number, timeConstant: number, reason: string): void {
+    this.withdrawals++;
+    this.phase = 'warming';
+    this.precise = false;
+    this.monitor = null;
+    this.warmupEnd = null;
+    this.warmupPending = { condition: 'warm-up', message: Number.isFinite(timeConstant) ? `warm-up still decaying (time constant about ${formatSamples(timeConstant)} samples)` : 'steady state withdrawn', samplesToGo: null };
+    this.raise({ kind: 'steady-withdrawn', at: index, reason });
+    this.nextWarmupCheck = index + MIN_CHECK_STEP;
+  }
+
+  private breakFound(found: StationarityBreak, index: number): void {
+    if (this.alarmIsWarmupTail(index)) return;
+    if (!this.lostBefore && this.monitor && this.monitor.blockTotal < PREMATURE_BLOCKS) {
+      // The first steady state did not hold up through the monitor's reference period: it was
+      // declared on a record too short to show a slow movement. Warming again, from the change.
+      if (this.growing && found.changePoint > this.series.firstIndex) {
+        this.excluded += found.changePoint - this.series.firstIndex;
+        this.series.dropBefore(found.changePoint);
+        this.diagnosisAfterCut(index);
+      }
+      this.withdrawSteady(index, Number.NaN, `the level moved (${found.cause} from sample ${found.changePoint}) before the first steady state had held long enough to be a reference`);
+      this.warmupPending = { condition: 'warm-up', message: `not steady: the level moved (${found.cause}) soon after steady state was first declared`, samplesToGo: null };
+      return;
+    }
     // A break within LONG_STEADY effective samples of the last regain continues the streak.
     if (this.lossStreak > 0 && this.regainedAt >= 0 && (index - this.regainedAt) / this.tauNow() > LONG_STEADY) this.lossStreak = 0;
     this.lossStreak++;
@@ -472,49 +780,108 @@ export class ChannelPipeline {
     this.lastBreakAt = index;
     this.breakNoise = this.monitor?.settings.longRunVariance ?? this.breakNoise;
     this.lostBefore = true;
-    raise({ kind: 'stationarity-lost', at: index, cause: found.cause, changePoint: found.changePoint, detail: found.detail });
-    const kind = this.options.window.kind;
+    this.raise({ kind: 'stationarity-lost', at: index, cause: found.cause, changePoint: found.changePoint, detail: found.detail, ...(found.slope ? { slope: found.slope } : {}) });
     this.phase = 'unsteady';
     this.precise = false;
+    this.brokenMonitor = this.monitor;
+    this.nextReclassify = found.changePoint + 2 * Math.max(1, index - found.changePoint);
     this.monitor = null;
     this.warmupEnd = null;
-    if (kind === 'growing' && found.changePoint > this.series.firstIndex) {
+    this.warmupPending = { condition: 'break', message: `stationarity lost (${found.cause}) at sample ${found.changePoint}`, samplesToGo: null };
+    if (this.growing && found.changePoint > this.series.firstIndex) {
       // The level before the break is not the level now: the window restarts at the change point.
       this.excluded += found.changePoint - this.series.firstIndex;
       this.series.dropBefore(found.changePoint);
+      this.diagnosisAfterCut(index);
     }
+    // The transient fit starts again with the new level.
+    this.history.rebuild(this.series.values(), this.series.firstIndex);
     this.nextWarmupCheck = index + FIRST_CHECK;
   }
 
-  private checkPrecision(index: number, raise: (event: ChannelEvent) => void): void {
+  /**
+   * A break is classified again when what followed it is twice, then four times, as long as the
+   * time it took to show (stationarity-monitor.ts reclassify); a changed cause or change point is
+   * raised as `break-revised` and the verdict follows it.
+   */
+  private reclassifyBreak(index: number): void {
+    const last = this.lastBreak;
+    const monitor = this.brokenMonitor;
+    if (!last || !monitor) {
+      this.nextReclassify = -1;
+      return;
+    }
+    const revised = monitor.reclassify(index, last.detail);
+    const delay = Math.max(1, this.lastBreakAt - last.changePoint);
+    const after = index - last.changePoint;
+    this.nextReclassify = after >= 4 * delay ? -1 : last.changePoint + 4 * delay;
+    if (revised.cause === last.cause && Math.abs(revised.changePoint - last.changePoint) <= monitor.settings.blockSize) {
+      this.lastBreak = { ...last, ...(revised.slope ? { slope: revised.slope } : {}) };
+      return;
+    }
+    this.lastBreak = { ...revised, detail: last.detail };
+    // A trend that began where the monitor's reference began was the warm-up still running when
+    // steady state was first declared: no break of an established steady state, so regaining it
+    // needs no more evidence than a first verdict.
+    const warmup = revised.cause === 'trend' && this.lossStreak === 1 && revised.changePoint <= monitor.referenceStart + monitor.settings.blockSize;
+    if (warmup) {
+      this.lostBefore = false;
+      this.lossStreak = 0;
+      this.withdrawals++;
+      this.warmupPending = { condition: 'warm-up', message: `the level has been moving since steady state was first declared: the warm-up is still running`, samplesToGo: null };
+    }
+    this.raise({ kind: 'break-revised', at: index, cause: revised.cause, changePoint: revised.changePoint, ...(revised.slope ? { slope: revised.slope } : {}), ...(warmup ? { warmup: true } : {}) });
+  }
+
+  private checkPrecision(index: number): void {
     const n = this.series.length;
-    // Every 1/16 of the window (or a monitor block): an estimate costs O(maxLag) plus the pending
+    // Every 1/16 of the window (or a monitor block): an estimate costs O(maxLag^2) plus the pending
     // chunk of lagged products, so checking more often would dominate the per-sample cost.
     this.nextPrecisionCheck = index + Math.max(this.monitor?.settings.blockSize ?? 16, Math.floor(n / 16));
     if (n < 2 || !(this.series.variance > 0)) return;
-    const estimate = this.estimatorSet.estimate(this.series, this.options.estimator);
-    this.monitor?.refresh(estimate.varianceOfMean * n, estimate.dof);
+    const detector = this.detectorEstimate();
+    this.monitor?.refresh(detector.varianceOfMean * n, detector.dof);
+    const reported = this.options.estimator === 'auto' ? detector : this.estimatorSet.estimate(this.series, this.options.estimator, this.diagnosis);
+    this.estimatorSet.maintainLags(this.series, reported);
     const target = this.options.target;
     if (!target) return;
-    const u = meanUncertainty(estimate, this.options.confidence);
+    const u = meanUncertainty(withAnticorrelationFloor(reported, n), this.options.confidence);
     const status = targetStatus(target, { mean: this.series.mean, n, standardUncertainty: u.standardUncertainty, dof: u.dof, confidence: this.options.confidence, rate: null, capacity: Number.POSITIVE_INFINITY });
-    if (!this.precise && status.reached && status.bound !== null) {
+    // Under long memory U is a scale, not a calibrated interval: the target is never declared met.
+    const longMemory = this.diagnosis?.longMemory?.detected === true;
+    if (!this.precise && status.reached && status.bound !== null && !longMemory) {
       this.precise = true;
-      raise({ kind: 'precision-reached', at: index, standardUncertainty: u.standardUncertainty, expandedUncertainty: u.expandedUncertainty, bound: status.bound });
+      this.raise({ kind: 'precision-reached', at: index, standardUncertainty: u.standardUncertainty, expandedUncertainty: u.expandedUncertainty, bound: status.bound });
     } else if (this.precise && status.bound !== null) {
       const achieved = target.on === 'u' ? u.standardUncertainty : (u.expandedUncertainty ?? Number.POSITIVE_INFINITY);
-      if (achieved > PRECISION_REARM * status.bound) this.precise = false;
+      if (achieved > PRECISION_REARM * status.bound || longMemory) this.precise = false;
     }
   }
 
-  private checkAveragingLimit(index: number, raise: (event: ChannelEvent) => void): void {
+  private checkAveragingLimit(index: number): void {
     const n = this.series.length;
     this.nextAllanCheck = index + Math.max(256, n);
     if (this.averagingLimitSeen || this.phase === 'warming' || n < 4096) return;
-    const report = allanReport(this.series.values(), this.rate(), this.tauNow());
+    const report = allanReport(this.series.values(), this.rate());
     if (!report.averagingLimit) return;
     this.averagingLimitSeen = true;
-    raise({ kind: 'averaging-limit', at: index, m: report.averagingLimit.m, tauSeconds: report.averagingLimit.tauSeconds, adev: report.averagingLimit.adev });
+    this.raise({ kind: 'averaging-limit', at: index, m: report.averagingLimit.m, tauSeconds: report.averagingLimit.tauSeconds, adev: report.averagingLimit.adev });
+  }
+
+  /** What the verdict needs from the pipeline's own state (the rest comes from the estimate). */
+  private verdictInput(estimate: TauEstimate | null, target: TargetStatus | null, n: number) {
+    return {
+      state: this.state,
+      n,
+      received: this.received,
+      nEff: estimate ? n / estimate.tauInt : null,
+      warmupPending: this.warmupPending,
+      lastBreak: this.phase === 'unsteady' ? this.lastBreak : null,
+      longMemory: this.diagnosis?.longMemory?.detected ? this.diagnosis.longMemory : null,
+      target,
+      rate: this.rate(),
+      constant: n >= 2 && !(this.series.variance > 0),
+    };
   }
 
   /** Snapshot of an empty, one-sample or constant window: the mean where there is one, and why no uncertainty. */
@@ -530,11 +897,15 @@ export class ChannelPipeline {
       coverageFactor: null,
       expandedUncertainty: null,
       target: null,
+      estimatorReason: 'no variation to estimate from',
       estimators: {},
       disagreement: [],
       stationarity: null,
+      spectrum: null,
+      resolution: n > 0 ? detectLattice(this.series.values()) : null,
       allan: [],
       averagingLimit: null,
+      verdict: channelVerdict(this.verdictInput(null, null, n)),
     };
     if (n === 0) return { ...base, ...none, mean: null, notes: ['no samples in the window'] };
     const mean = this.series.mean;
@@ -543,22 +914,33 @@ export class ChannelPipeline {
     return { ...base, ...none, mean, sd: 0, standardUncertainty: 0, dof: n - 1, notes };
   }
 
+  /** The reported estimate: the configured estimator (or `auto`), independent observations below FEW_SAMPLES. */
+  private reportedEstimate(): { estimate: TauEstimate; reason: string } {
+    const n = this.series.length;
+    if (n < FEW_SAMPLES) return { estimate: this.estimatorSet.estimate(this.series, 'iid', null), reason: `only ${n} samples: treated as independent observations (GUM 4.2.3)` };
+    if (this.options.estimator === 'auto') {
+      const auto = this.estimatorSet.auto(this.series, this.diagnosis);
+      return { estimate: auto.estimate, reason: auto.reason };
+    }
+    return { estimate: this.estimatorSet.estimate(this.series, this.options.estimator, this.diagnosis), reason: `configured estimator ${this.options.estimator}` };
+  }
+
   /**
    * The light view for live displays and status messages: no stationarity tests, no Allan
-   * deviation, only the configured estimator. Cost: one estimator run (tens of microseconds).
+   * deviation, only the reported estimator. Cost: one estimator run (tens of microseconds).
    */
   summary(): ChannelSummary {
     const { series, options } = this;
     const n = series.length;
     const base = { name: this.name, state: this.state, n, received: this.received, last: this.received > 0 ? { value: this.lastValue, time: finiteOrNull(this.lastTime) } : null, confidence: options.confidence, excluded: this.excluded };
     if (n < 2 || !(series.variance > 0)) {
-      return { ...base, mean: n > 0 ? series.mean : null, standardUncertainty: n > 1 ? 0 : null, expandedUncertainty: null, coverageFactor: null, dof: null, tauInt: null, nEff: null, target: null };
+      return { ...base, mean: n > 0 ? series.mean : null, standardUncertainty: n > 1 ? 0 : null, expandedUncertainty: null, coverageFactor: null, dof: null, tauInt: null, nEff: null, target: null, estimator: null, verdict: channelVerdict(this.verdictInput(null, null, n)) };
     }
-    const estimate = n < FEW_SAMPLES ? this.estimatorSet.estimate(series, 'iid') : this.estimatorSet.estimate(series, options.estimator);
+    const estimate = withAnticorrelationFloor(this.reportedEstimate().estimate, n);
     const u = meanUncertainty(estimate, options.confidence);
     const mean = series.mean;
-    const target = options.target ? targetStatus(options.target, { mean, n, standardUncertainty: u.standardUncertainty, dof: u.dof, confidence: options.confidence, rate: this.rate(), capacity: options.window.kind === 'sliding' ? series.maxSamples : Math.max(series.maxSamples, n) }) : null;
-    return { ...base, mean, standardUncertainty: u.standardUncertainty, expandedUncertainty: u.expandedUncertainty, coverageFactor: u.coverageFactor, dof: u.dof, tauInt: estimate.tauInt, nEff: n / estimate.tauInt, target };
+    const target = options.target ? targetStatus(options.target, { mean, n, standardUncertainty: u.standardUncertainty, dof: u.dof, confidence: options.confidence, rate: this.rate(), capacity: this.growing ? Math.max(series.maxSamples, n) : series.maxSamples }) : null;
+    return { ...base, mean, standardUncertainty: u.standardUncertainty, expandedUncertainty: u.expandedUncertainty, coverageFactor: u.coverageFactor, dof: u.dof, tauInt: estimate.tauInt, nEff: n / estimate.tauInt, target, estimator: estimate.method, verdict: channelVerdict(this.verdictInput(estimate, target, n)) };
   }
 
   /**
@@ -566,7 +948,7 @@ export class ChannelPipeline {
    * stationarity tests and the Allan deviation are computed here, on demand.
    */
   snapshot(): ChannelSnapshot {
-    const key = `${this.series.firstIndex}:${this.series.nextIndex}:${this.eventCount}`;
+    const key = `${this.series.firstIndex}:${this.series.nextIndex}:${this.eventCount}:${this.stale}`;
     if (this.snapshotCache?.key === key) return this.snapshotCache.snapshot;
     const snapshot = this.computeSnapshot();
     this.snapshotCache = { key, snapshot };
@@ -583,7 +965,7 @@ export class ChannelPipeline {
       name: this.name,
       n,
       confidence: options.confidence,
-      estimator: options.estimator,
+      estimator: options.estimator === 'auto' ? 'ar' : options.estimator,
       window: {
         kind: options.window.kind,
         startIndex: series.firstIndex,
@@ -604,22 +986,32 @@ export class ChannelPipeline {
     if (n < 2 || !(series.variance > 0)) return this.degenerateSnapshot(base, notes);
     const mean = series.mean;
     const sd = Math.sqrt(series.variance);
-    const result = this.estimatorSet.run(series, Math.max(MIN_REPORTED_LAGS, options.maxLag));
+    const result = this.estimatorSet.run(series, Math.max(MIN_REPORTED_LAGS, options.maxLag), this.diagnosis);
     const gamma0 = result.gamma[0] as number;
     const lagCount = Math.min(n - 1, Math.max(MIN_REPORTED_LAGS, Math.min(options.maxLag, result.gamma.length - 1)));
     const acf: number[] = [];
     for (let k = 1; k <= lagCount; k++) acf.push((result.gamma[k] as number) / gamma0);
 
-    let chosen: TauEstimate = result.estimates[options.estimator];
-    if (n < FEW_SAMPLES && options.estimator !== 'iid') {
+    let chosen: TauEstimate;
+    let reason: string;
+    if (n < FEW_SAMPLES) {
       chosen = result.estimates.iid;
-      notes.push(`only ${n} samples: treated as independent observations (GUM 4.2.3) instead of ${options.estimator}`);
+      reason = `only ${n} samples: treated as independent observations (GUM 4.2.3)`;
+    } else if (options.estimator === 'auto') {
+      chosen = result.auto.estimate;
+      reason = result.auto.reason;
+    } else {
+      chosen = result.estimates[options.estimator];
+      reason = `configured estimator ${options.estimator}`;
     }
+    const floored = withAnticorrelationFloor(chosen, n);
+    if (floored !== chosen) notes.push(`anticorrelated samples (tau_int ${chosen.tauInt.toPrecision(3)} < 1): degrees of freedom taken as n - 1 = ${n - 1}, as for independent samples`);
+    chosen = floored;
     if (!chosen.reliable && chosen.note) notes.push(`${chosen.method}: ${chosen.note}`);
     for (const line of result.disagreements) notes.push(line);
     const uncertainty = meanUncertainty(chosen, options.confidence);
-    const estimators: Partial<Record<EstimatorName, EstimatorReport>> = {};
-    for (const [name, estimate] of Object.entries(result.estimates) as [EstimatorName, TauEstimate][]) {
+    const estimators: Partial<Record<MethodEstimatorName, EstimatorReport>> = {};
+    for (const [name, estimate] of Object.entries(result.estimates) as [MethodEstimatorName, TauEstimate][]) {
       estimators[name] = {
         tauInt: estimate.tauInt,
         nEff: n / estimate.tauInt,
@@ -630,7 +1022,8 @@ export class ChannelPipeline {
         ...(estimate.note ? { note: estimate.note } : {}),
       };
     }
-    const allan = allanReport(series.values(), base.rate, result.estimates[options.estimator].tauInt);
+    const values = series.values();
+    const allan = allanReport(values, base.rate);
     const target = options.target
       ? targetStatus(options.target, {
           mean,
@@ -639,13 +1032,18 @@ export class ChannelPipeline {
           dof: uncertainty.dof,
           confidence: options.confidence,
           rate: base.rate,
-          capacity: options.window.kind === 'sliding' ? capacity : Math.max(capacity, n),
+          capacity: this.growing ? Math.max(capacity, n) : capacity,
         })
       : null;
     if (target?.note) notes.push(`target: ${target.note}`);
+    const resolution = detectLattice(values);
+    if (resolution?.coarse) notes.push(`readings lie on a lattice of step ${resolution.step.toPrecision(3)} (${resolution.distinct} distinct values): the indication's resolution adds a rectangular component of half-width ${(resolution.step / 2).toPrecision(3)} (u = ${(resolution.step / Math.sqrt(12)).toPrecision(3)}) that this Type A uncertainty does not contain`);
+    const spectrum = this.spectralReport(base.rate);
+    for (const line of spectrum?.lines ?? []) notes.push(`periodic component: period ${line.period.toPrecision(3)} samples, amplitude ${line.amplitude.toPrecision(3)}`);
     return {
       ...base,
       estimator: chosen.method,
+      estimatorReason: reason,
       mean,
       sd,
       acf,
@@ -658,19 +1056,47 @@ export class ChannelPipeline {
       target,
       estimators,
       disagreement: result.disagreements,
+      verdict: channelVerdict(this.verdictInput(chosen, target, n)),
       stationarity: stationarityReport({
-        values: series.values(),
-        tauInt: chosen.tauInt,
+        values,
+        tauInt: result.auto.estimate.tauInt,
         phase: this.phase,
         warmupEnd: this.warmupEnd,
         excluded: this.excluded,
         indicator: this.indicator.ratio(),
         monitor: this.monitor,
         lastBreak: this.lastBreak,
+        warmupMethod: this.warmupMethod,
+        transient: this.transient,
       }),
+      spectrum,
+      resolution,
       allan: allan.points,
       averagingLimit: allan.averagingLimit,
       notes,
     };
   }
+
+  private spectralReport(rate: number | null): SpectralReport | null {
+    const d = this.diagnosis;
+    if (!d) return null;
+    return {
+      segment: d.segment,
+      lines: d.lines.map((line) => ({ period: line.period, periodSeconds: rate ? line.period / rate : null, amplitude: line.amplitude, pValue: line.pValue })),
+      longMemory: d.longMemory ? { hurst: d.longMemory.hurst, standardError: d.longMemory.standardError, detected: d.longMemory.detected } : null,
+    };
+  }
 }
+
+/**
+ * Anticorrelated samples (tau_int < 1: alternating readings, a dithering controller) make a
+ * lag-window's degrees of freedom n / (2M + 1) meaningless (NIST StRD NumAcc4 gave nu = 0.5 and
+ * k = 163). Their mean is at least as well determined as that of independent samples, so nu is
+ * never taken below the independent-sample n - 1 (GUM 4.2.3). O(1).
+ */
+export function withAnticorrelationFloor(estimate: TauEstimate, n: number): TauEstimate {
+  if (!(estimate.tauInt < 1) || estimate.dof >= n - 1) return estimate;
+  return { ...estimate, dof: Math.max(1, n - 1) };
+}
+
+export { MIN_EFFECTIVE };

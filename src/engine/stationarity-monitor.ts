@@ -43,6 +43,8 @@ export interface StationarityBreak {
   changePoint: number;
   /** The statistic that raised it: CUSUM side and sum, test z or F ratio. */
   detail: string;
+  /** For a trend: the fitted slope after the change point and its standard uncertainty, per sample. */
+  slope?: { perSample: number; standardUncertainty: number };
 }
 
 export interface MonitorSettings {
@@ -121,6 +123,31 @@ export class StationarityMonitor {
   }
 
   /**
+   * After an alarm: keeps recording block means (no alarms), so that the break can be classified
+   * again on more of what followed it (`reclassify`). O(1) per sample.
+   */
+  observe(value: number, index: number): void {
+    this.blockSum += value - this.origin;
+    this.blockCount++;
+    if (this.blockCount < this.settings.blockSize) return;
+    const mean = this.blockSum / this.blockCount;
+    this.blockSum = 0;
+    this.blockCount = 0;
+    this.blockStart = index + 1;
+    this.record(mean);
+  }
+
+  /**
+   * The break's cause and change point from every block recorded so far: shortly after an alarm a
+   * step and the start of a drift fit the few blocks since the change about equally well; a few
+   * times as many blocks later the shapes separate (a drift keeps rising, a step stays flat).
+   * O(K^2) in the K stored block means.
+   */
+  reclassify(index: number, detail: string): StationarityBreak {
+    return this.classify(detail, index);
+  }
+
+  /**
    * Updates the long-run variance (and its dof) as the estimate improves, during the reference
    * period only (the first REFERENCE_BLOCKS blocks, longer while the estimate has fewer than 200
    * degrees of freedom): later, a slow drift would inflate the estimate and hide itself. The block
@@ -133,6 +160,11 @@ export class StationarityMonitor {
 
   get blockTotal(): number {
     return this.blocks;
+  }
+
+  /** Absolute index of the first sample the monitor took as its reference (while its history holds it). */
+  get referenceStart(): number {
+    return this.historyStart;
   }
 
   /** The CUSUM sums of the most recent blocks (up to TRACE_BLOCKS), oldest first, with the block length. */
@@ -295,6 +327,8 @@ export class StationarityMonitor {
     // Ramp: y = a + b * max(0, i - c); least squares for each c (O(k) each).
     let bestRamp = Number.NEGATIVE_INFINITY;
     let rampAt = 0;
+    let rampSlope = 0;
+    let rampSxx = 1;
     for (let c = 0; c < k - 2; c++) {
       let su = 0;
       let suu = 0;
@@ -313,6 +347,8 @@ export class StationarityMonitor {
       if (ll > bestRamp) {
         bestRamp = ll;
         rampAt = c;
+        rampSlope = slope;
+        rampSxx = sxx;
       }
     }
     // Variance: level = mean of all blocks; the spread after c is fitted.
@@ -344,7 +380,10 @@ export class StationarityMonitor {
       block = varianceAt;
     }
     const changePoint = Math.min(index, this.historyStart + block * blockSize);
-    return { cause, changePoint, detail };
+    if (cause !== 'trend') return { cause, changePoint, detail };
+    // Slope per block of the ramp, its standard error sigma_b / sqrt(S_uu); per sample by / blockSize.
+    const slope = { perSample: rampSlope / blockSize, standardUncertainty: Math.sqrt(sigma2 / rampSxx) / blockSize };
+    return { cause, changePoint, detail: `${detail}; slope ${slope.perSample.toPrecision(3)} \u00b1 ${slope.standardUncertainty.toPrecision(2)} per sample`, slope };
   }
 }
 

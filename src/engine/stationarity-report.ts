@@ -5,6 +5,9 @@ import { mser, batchMeans, batchSizeFromTau } from '../core/stationarity/mser.js
 import { CAO_RHINEHART_CRITICAL_VALUE } from '../core/stationarity/cao-rhinehart.js';
 import { overlappingAllanDeviation, octaveFactors, averagingLimit, type AllanPoint } from '../core/allan/allan-deviation.js';
 import type { StationarityBreak, StationarityMonitor } from './stationarity-monitor.js';
+import type { WarmupVerdict, TransientSummary } from './warmup-detector.js';
+import { autoregressiveSpectrumOfValues } from '../core/tau/autoregressive-spectrum.js';
+import { linearResiduals } from '../core/stationarity/linear-residuals.js';
 
 /**
  * The steady-state evidence of a snapshot: the engine's verdict and the tests behind it, each with
@@ -15,6 +18,10 @@ export interface StationarityReport {
   /** 0-based index of the first sample after the warm-up, or null while warming. */
   warmupEnd: number | null;
   excluded: number;
+  /** How the warm-up end was found: transient-fit, whole-window, mser, none or fixed. */
+  warmupMethod: WarmupVerdict['method'] | null;
+  /** The fitted warm-up: amplitude, time constant (samples), level, significance. */
+  transient: TransientSummary | null;
   tests: {
     heidelbergerWelch: { statistic: number | null; pValue: number | null; passed: boolean; startIndex: number | null; halfwidthPassed: boolean | null } | null;
     geweke: { statistic: number | null; passed: boolean | null; note?: string } | null;
@@ -35,6 +42,10 @@ export interface StationarityInput {
   indicator: number | null;
   monitor: StationarityMonitor | null;
   lastBreak: StationarityBreak | null;
+  /** How the warm-up end was found (null while warming). */
+  warmupMethod: WarmupVerdict['method'] | null;
+  /** The fitted warm-up transient, when one was fitted. */
+  transient: TransientSummary | null;
 }
 
 /** Fewest samples for the window tests to mean anything. */
@@ -56,6 +67,8 @@ export function stationarityReport(input: StationarityInput): StationarityReport
     steady: input.phase === 'steady',
     warmupEnd: input.warmupEnd,
     excluded: input.excluded,
+    warmupMethod: input.warmupMethod,
+    transient: input.transient,
     tests: {
       heidelbergerWelch: hw ? { statistic: hw.statistic, pValue: hw.pValue, passed: hw.stationary, startIndex: hw.startIndex, halfwidthPassed: hw.halfwidthPassed } : null,
       geweke: gw ? { statistic: gw.z, passed: gw.z === null ? null : Math.abs(gw.z) < 1.96, ...(gw.note ? { note: gw.note } : {}) } : null,
@@ -78,14 +91,30 @@ export interface AllanReport {
  * one-sigma error bars, and the averaging limit: the averaging time beyond which it stops falling.
  * Cost: O(n log n).
  */
-export function allanReport(values: Float64Array, rate: number | null, tauInt = 1): AllanReport {
+/**
+ * tau_int of the short-memory part of a window: the autoregressive estimate of its residuals about
+ * the least-squares line, so that a drift (which the Allan deviation is there to reveal) does not
+ * inflate the hump it is compared beyond. O(n * order).
+ */
+export function shortMemoryTau(values: Float64Array): number {
+  if (values.length < 16) return 1;
+  return Math.max(1, autoregressiveSpectrumOfValues(linearResiduals(values, true).residuals).tauInt);
+}
+
+/** Octaves shorter than this many tau_int are on the short-memory hump, not candidates for a floor. */
+const HUMP_TAUS = 8;
+
+export function allanReport(values: Float64Array, rate: number | null, tauInt = shortMemoryTau(values)): AllanReport {
   if (values.length < 4) return { points: [], averagingLimit: null };
   const points = overlappingAllanDeviation(values, octaveFactors(values.length), 1);
   const tau0 = rate && rate > 0 ? 1 / rate : null;
   // The Allan deviation of positively correlated noise rises over the first octaves (averaging has
-  // not yet reached independent samples) and falls as 1/sqrt(m) beyond a few tau_int. The limit is
-  // sought after its first fall: a later rise, significant against the error bars, means drift.
-  // (tau_int is not used to skip the hump: a drift inflates the tau_int estimate itself.)
+  // not yet reached independent samples) and approaches the white-noise fall, 1/sqrt(m), only for m
+  // well beyond tau_int; in between it falls more slowly, which a test against the white-noise
+  // continuation reads as a floor (it did on ARMA(1,1) about half the time). The limit is sought
+  // only among octaves past the first fall and at least HUMP_TAUS tau_int long (tau_int from the
+  // short-memory part of the window, trend removed), and it must be confirmed by the error bars
+  // (core/allan/allan-deviation.ts averagingLimit).
   let firstFall = -1;
   for (let i = 0; i + 1 < points.length; i++) {
     if ((points[i + 1] as AllanPoint).adev < (points[i] as AllanPoint).adev) {
@@ -93,9 +122,9 @@ export function allanReport(values: Float64Array, rate: number | null, tauInt = 
       break;
     }
   }
-  void tauInt;
+  const beyondHump = HUMP_TAUS * Math.max(1, tauInt);
   // Octaves with fewer than 16 independent averages carry error bars too wide to name a limit.
-  const candidates = firstFall >= 0 ? points.slice(firstFall).filter((p) => p.m <= values.length / 16) : [];
+  const candidates = firstFall >= 0 ? points.slice(firstFall).filter((p) => p.m >= beyondHump && p.m <= values.length / 16) : [];
   const limit = candidates.length >= 3 ? averagingLimit(candidates) : null;
   return {
     points: points.map((p) => ({ m: p.m, tauSeconds: tau0 === null ? null : p.m * tau0, adev: p.adev, count: p.count, edf: p.edf, low: p.low, high: p.high })),

@@ -1,66 +1,289 @@
 import { mser, batchSizeFromTau, type MserResult } from '../core/stationarity/mser.js';
 import { heidelbergerWelch, type HeidelbergerWelchResult } from '../core/stationarity/heidelberger-welch.js';
+import { fitTransient, admissibleStart, transientBias, warmupExplains, MIN_FIT_BLOCKS, type TransientFit } from '../core/stationarity/transient-fit.js';
+import { autoregressiveSpectrumOfValues } from '../core/tau/autoregressive-spectrum.js';
+import type { BlockHistory } from '../core/window/block-history.js';
 
 /**
- * Where steady state begins in a window, or that it has not begun.
+ * Where steady state begins in a window, or why it has not begun yet.
  *
- * The Heidelberger-Welch test on the whole window comes first: a window that is stationary from its
- * first sample is steady with nothing cut. Otherwise MSER (K. P. White Jr (1997), "An effective
- * truncation heuristic for bias reduction in simulation output", Simulation 69(6), 323-334; from
- * memory) proposes the truncation point, with its batches
- * sized from tau_int (core/stationarity/mser.ts explains why batches of 5 truncate too early on
- * strongly autocorrelated data); the Heidelberger-Welch stationarity test (P. Heidelberger &
- * P. D. Welch (1983), Operations Research 31(6), 1109-1144; as implemented by R coda) confirms that
- * the kept part is stationary, and may discard a further 10-40 % when it is not at first. Steady
- * state needs both, and at least MIN_EFFECTIVE effective samples in the kept part, so that the
- * first verdict does not rest on a handful of correlated samples.
+ * The setting (`warmup` in the channel options, `--warmup` in analyze):
+ *   auto   find the end of the warm-up and confirm steady state on the kept samples only;
+ *   none   every sample is taken as given: no cut, steady once the window holds MIN_EFFECTIVE
+ *          effective samples (the user vouches for the record, e.g. certified reference data);
+ *   N      the first N samples since the window began are the warm-up: cut there, then steady
+ *          once the rest holds MIN_EFFECTIVE effective samples.
  *
- * Cost: O(n) for MSER, O(n * order) for the test (an AR fit by Levinson-Durbin and five Cramer-von
- * Mises statistics); the pipeline runs it on a geometric schedule while the channel is warming.
+ * `auto`, each time the pipeline checks (a geometric schedule while warming):
+ * 1. The transient fit (core/stationarity/transient-fit.ts) over the whole record since the window
+ *    began, cut samples included: when a decaying exponential explains it significantly, the
+ *    start is the earliest one at which the rest of the fitted transient biases the kept mean by
+ *    at most BIAS_TOLERANCE standard uncertainties; none yet means the warm-up is still decaying.
+ * 2. Otherwise the Heidelberger-Welch test of the whole window (P. Heidelberger & P. D. Welch
+ *    (1983), Operations Research 31(6), 1109-1144, as coda's heidel.diag): stationary from its
+ *    first sample, nothing is cut (a cut would only throw data away).
+ * 3. Otherwise MSER (K. P. White Jr (1997), Simulation 69(6), 323-334) with batches of 2 tau_int
+ *    proposes the cut (a warm-up that is not exponential: an overshoot, a ramp and hold).
+ * The kept part is then confirmed on its own samples: at least MIN_EFFECTIVE effective samples by
+ * its own autoregressive tau_int (the transient is not there to inflate it), and the
+ * Heidelberger-Welch test on it (which may discard a further 10-40 %).
+ * Why the record before the cut still counts: the first, visible part of a warm-up tells its time
+ * constant; on the kept part alone a tail that has sunk into the noise is invisible, yet it biases
+ * the mean (measured in bench/verdict.js: detection-only rules such as MSER or the truncation that
+ * maximises the effective sample size left a bias of 0.3-0.7 U on exponential warm-ups with time
+ * constants of a tenth of the record; the fit leaves below 0.15 U).
+ * The S(0) that scales the fit is the spectral density at zero of the window's second half (the
+ * Heidelberger-Welch computation's own), where a warm-up has usually ended.
+ *
+ * Cost: O(n * order) for each Heidelberger-Welch test and the autoregression of the kept part
+ *   (order <= 10 log10 n), O(n) for MSER, O(K * 80) for the fit over K <= 512 history blocks.
  */
-export interface WarmupVerdict {
-  steady: boolean;
-  /** Samples to drop from the front of the window (MSER truncation plus any Heidelberger-Welch discard). */
-  truncation: number;
-  mser: MserResult | null;
-  heidelbergerWelch: HeidelbergerWelchResult | null;
-  reason: string;
+export type WarmupSetting = { mode: 'auto' } | { mode: 'none' } | { mode: 'fixed'; samples: number };
+
+export interface WarmupPending {
+  condition: 'warm-up' | 'effective-samples' | 'break';
+  message: string;
+  /** Samples still needed, when it can be said. */
+  samplesToGo: number | null;
 }
 
-/**
- * Effective samples the kept part must hold before steady state is declared: a slow transient
- * (a time constant of several hundred samples) is indistinguishable from correlated noise in a
- * short record, so the first verdict waits for a record of this many effective samples.
- */
-export const MIN_EFFECTIVE = 100;
+export interface TransientSummary {
+  amplitude: number;
+  timeConstant: number;
+  level: number;
+  /** Fall of the residual sum of squares against a constant, in block variances. */
+  improvement: number;
+  significant: boolean;
+  /** Decayed within the record (a warm-up seen to settle, not a level still moving). */
+  decays: boolean;
+}
 
-export function detectWarmup(values: Float64Array, tauInt: number): WarmupVerdict {
-  const batchSize = batchSizeFromTau(Math.max(1, tauInt));
-  if (values.length < 10 * batchSize) {
-    return { steady: false, truncation: 0, mser: null, heidelbergerWelch: null, reason: `fewer than ten batches of ${batchSize} samples` };
+export interface WarmupVerdict {
+  steady: boolean;
+  /** Absolute index of the first kept sample (the proposal, when not steady yet). */
+  start: number;
+  method: 'transient-fit' | 'whole-window' | 'mser' | 'none' | 'fixed';
+  reason: string;
+  pending: WarmupPending | null;
+  transient: TransientSummary | null;
+  heidelbergerWelch: HeidelbergerWelchResult | null;
+  mser: MserResult | null;
+  /** Effective samples of the kept part (its own autoregressive tau_int). */
+  effectiveSamples: number | null;
+}
+
+/** Effective samples the kept part must hold before steady state is declared. */
+export const MIN_EFFECTIVE = 50;
+/**
+ * Largest transient bias left in the kept mean when steady state is declared, in standard
+ * uncertainties of that mean.
+ */
+export const BIAS_TOLERANCE = 0.25;
+/**
+ * A steady window's start moves later only when the fitted transient's bias there exceeds this
+ * many standard uncertainties (hysteresis: the time constant is underestimated early and grows as
+ * the tail is seen, so a start that was just admissible would otherwise creep at every check).
+ */
+export const BIAS_TRIGGER = 0.6;
+
+export interface WarmupInput {
+  /** The window's values, oldest first. */
+  values: Float64Array;
+  /** Absolute index of values[0]. */
+  firstIndex: number;
+  /** Every sample since the window began (block means). */
+  history: BlockHistory;
+  setting: WarmupSetting;
+  /** Whether the window can be cut (growing) or only waits for the warm-up to slide out. */
+  growing: boolean;
+  /** The window's short-memory noise estimate (the autoregressive one): S(0) and tau_int. */
+  noise: { longRunVariance: number; tauInt: number };
+  /**
+   * Multiplies the effective samples a declaration needs (default 1): the pipeline doubles it for
+   * each withdrawn verdict in a row, so a young, uncertain fit cannot make the verdict flap.
+   */
+  evidenceFactor?: number;
+}
+
+export function detectWarmup(input: WarmupInput): WarmupVerdict {
+  const { values, firstIndex, setting } = input;
+  const n = values.length;
+  const next = firstIndex + n;
+  const none: Omit<WarmupVerdict, 'steady' | 'start' | 'method' | 'reason' | 'pending'> = { transient: null, heidelbergerWelch: null, mser: null, effectiveSamples: null };
+  if (setting.mode === 'none') return confirmCount(values, firstIndex, firstIndex, 'none', 'warm-up set to none: every sample is kept', none);
+  if (setting.mode === 'fixed') {
+    const start = input.history.start + setting.samples;
+    if (start >= next) {
+      return { ...none, steady: false, start, method: 'fixed', reason: `fixed warm-up of ${setting.samples} samples`, pending: { condition: 'warm-up', message: `fixed warm-up of ${setting.samples} samples: ${start - next} to go`, samplesToGo: start - next } };
+    }
+    return confirmCount(values.subarray(Math.max(0, start - firstIndex)), Math.max(firstIndex, start), firstIndex, 'fixed', `fixed warm-up of ${setting.samples} samples`, none);
   }
-  if (values.length / Math.max(1, tauInt) < MIN_EFFECTIVE) {
-    return { steady: false, truncation: 0, mser: null, heidelbergerWelch: null, reason: `fewer than ${MIN_EFFECTIVE} effective samples` };
-  }
-  // A window that passes the stationarity test as it is keeps every sample: MSER always proposes a
-  // cut, even on a stationary record, and a cut there would only throw data away.
+
   const whole = heidelbergerWelch(values);
-  if (whole.stationary && whole.startIndex === 0) {
-    return { steady: true, truncation: 0, mser: null, heidelbergerWelch: whole, reason: 'Heidelberger-Welch: stationary from the first sample' };
+  const secondHalf = whole.secondHalfSpectrum;
+  const tail = values.subarray(n >> 1);
+  const tailVariance = variance(tail);
+  const s0 = secondHalf !== null && secondHalf > 0 ? secondHalf : tailVariance;
+  const tau = tailVariance > 0 ? Math.max(1, s0 / tailVariance) : 1;
+  const history = input.history;
+  // The fit takes the same noise estimate as the steady window's recheck (recheckTransient), so the
+  // two cannot disagree about one record and flap.
+  const fit = fitTransient({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance: input.noise.longRunVariance, tauInt: input.noise.tauInt });
+  const transient = fit ? summary(fit) : null;
+  const needed = MIN_EFFECTIVE * (input.evidenceFactor ?? 1);
+  const minKept = Math.ceil(needed * tau);
+  if (!fit) {
+    // Too short a record to fit a warm-up (fewer than MIN_FIT_BLOCKS blocks of 4 tau_int): a slow
+    // transient cannot be told from correlated noise yet, so steady state is not declared.
+    const needed = MIN_FIT_BLOCKS * Math.max(history.blockSize, Math.ceil(4 * tau));
+    const toGo = Math.max(1, needed - history.length);
+    return { ...none, heidelbergerWelch: whole, steady: false, start: firstIndex, method: 'transient-fit', reason: 'too short to check for a warm-up', pending: { condition: 'effective-samples', message: `the record is too short to tell a warm-up from correlated noise: about ${formatSamples(toGo)} more samples`, samplesToGo: toGo } };
   }
-  const proposal = mser(values, batchSize);
-  if (proposal.tooShort) return { steady: false, truncation: 0, mser: proposal, heidelbergerWelch: null, reason: 'MSER: the run is too short to place the end of the warm-up' };
-  const kept = values.subarray(proposal.truncation);
-  if (kept.length / Math.max(1, tauInt) < MIN_EFFECTIVE) {
-    return { steady: false, truncation: proposal.truncation, mser: proposal, heidelbergerWelch: null, reason: `fewer than ${MIN_EFFECTIVE} effective samples after the warm-up` };
+  let start: number;
+  let method: WarmupVerdict['method'];
+  let reason: string;
+  let proposal: MserResult | null = null;
+  if (fit?.significant) {
+    const admissible = admissibleStart(fit, firstIndex, next, BIAS_TOLERANCE, minKept);
+    if (admissible === null) {
+      if (!fit.decays) {
+        return {
+          ...none, transient, heidelbergerWelch: whole, steady: false, start: firstIndex, method: 'transient-fit', reason: 'the level is still moving',
+          pending: { condition: 'warm-up', message: `the level is still moving across the whole record (fitted time constant ${formatSamples(fit.timeConstant)} samples, longer than a third of the record)`, samplesToGo: null },
+        };
+      }
+      const toGo = samplesUntilAdmissible(fit, firstIndex, next, minKept);
+      return {
+        ...none, transient, heidelbergerWelch: whole, steady: false, start: firstIndex, method: 'transient-fit', reason: 'warm-up still decaying',
+        pending: { condition: 'warm-up', message: `warm-up still decaying (time constant about ${formatSamples(fit.timeConstant)} samples)${toGo === null ? '' : `: about ${formatSamples(toGo)} more samples`}`, samplesToGo: toGo },
+      };
+    }
+    if (!input.growing && admissible > firstIndex) {
+      return { ...none, transient, heidelbergerWelch: whole, steady: false, start: admissible, method: 'transient-fit', reason: 'warm-up still in the sliding window', pending: { condition: 'warm-up', message: `the warm-up slides out of the window in about ${formatSamples(admissible - firstIndex)} samples`, samplesToGo: admissible - firstIndex } };
+    }
+    start = admissible;
+    method = 'transient-fit';
+    reason = `warm-up fitted (time constant about ${formatSamples(fit.timeConstant)} samples); the rest of it biases the mean by at most ${BIAS_TOLERANCE} u`;
+  } else if (whole.stationary && whole.startIndex === 0) {
+    start = firstIndex;
+    method = 'whole-window';
+    reason = 'Heidelberger-Welch: stationary from the first sample';
+  } else {
+    const batch = batchSizeFromTau(tau);
+    if (n < 10 * batch) return { ...none, transient, heidelbergerWelch: whole, steady: false, start: firstIndex, method: 'mser', reason: 'too short to place the end of the warm-up', pending: { condition: 'warm-up', message: `not stationary yet; ${10 * batch - n} more samples before the end of the warm-up can be placed`, samplesToGo: 10 * batch - n } };
+    proposal = mser(values, batch);
+    if (proposal.tooShort) return { ...none, transient, heidelbergerWelch: whole, mser: proposal, steady: false, start: firstIndex, method: 'mser', reason: 'MSER: the run is too short to place the end of the warm-up', pending: { condition: 'warm-up', message: 'not stationary yet: the end of the warm-up is not in sight', samplesToGo: null } };
+    if (!input.growing && proposal.truncation > 0) return { ...none, transient, heidelbergerWelch: whole, mser: proposal, steady: false, start: firstIndex + proposal.truncation, method: 'mser', reason: 'warm-up still in the sliding window', pending: { condition: 'warm-up', message: `the warm-up slides out of the window in about ${formatSamples(proposal.truncation)} samples`, samplesToGo: proposal.truncation } };
+    start = firstIndex + proposal.truncation;
+    method = 'mser';
+    reason = 'MSER truncation';
+  }
+  const kept = values.subarray(start - firstIndex);
+  const keptEstimate = autoregressiveSpectrumOfValues(kept);
+  const effective = kept.length / Math.max(keptEstimate.tauInt, 1e-12);
+  const base = { transient, heidelbergerWelch: whole, mser: proposal, effectiveSamples: effective };
+  if (effective < needed) {
+    const toGo = Math.ceil((needed - effective) * Math.max(1, keptEstimate.tauInt));
+    return { ...base, steady: false, start, method, reason, pending: { condition: 'effective-samples', message: `${Math.floor(effective)} effective samples after the warm-up, ${Math.round(needed)} needed to confirm steady state (about ${formatSamples(toGo)} more samples)`, samplesToGo: toGo } };
   }
   const test = heidelbergerWelch(kept);
   if (!test.stationary || test.startIndex === null) {
-    return { steady: false, truncation: proposal.truncation, mser: proposal, heidelbergerWelch: test, reason: 'Heidelberger-Welch: not stationary yet' };
+    return { ...base, heidelbergerWelch: test, steady: false, start, method, reason, pending: { condition: 'warm-up', message: 'the samples after the warm-up are not stationary yet (Heidelberger-Welch)', samplesToGo: null } };
   }
-  const truncation = proposal.truncation + test.startIndex;
-  if ((values.length - truncation) / Math.max(1, tauInt) < MIN_EFFECTIVE) {
-    return { steady: false, truncation, mser: proposal, heidelbergerWelch: test, reason: `fewer than ${MIN_EFFECTIVE} effective samples after the warm-up` };
+  start += test.startIndex;
+  if (test.startIndex > 0) reason += `; Heidelberger-Welch discarded ${test.startIndex} more`;
+  if (fit?.significant && Math.abs(transientBias(fit, start, next)) > BIAS_TOLERANCE * Math.sqrt(fit.longRunVariance / (next - start))) {
+    return { ...base, heidelbergerWelch: test, steady: false, start, method, reason, pending: { condition: 'warm-up', message: 'warm-up still decaying', samplesToGo: null } };
   }
-  return { steady: true, truncation, mser: proposal, heidelbergerWelch: test, reason: 'MSER truncation confirmed by Heidelberger-Welch' };
+  const keptEffective = test.startIndex > 0 ? ((next - start) / kept.length) * effective : effective;
+  if (keptEffective < needed) {
+    return { ...base, heidelbergerWelch: test, effectiveSamples: keptEffective, steady: false, start, method, reason, pending: { condition: 'effective-samples', message: `${Math.floor(keptEffective)} effective samples after the warm-up, ${Math.round(needed)} needed to confirm steady state`, samplesToGo: Math.ceil((needed - keptEffective) * Math.max(1, keptEstimate.tauInt)) } };
+  }
+  return { ...base, heidelbergerWelch: test, effectiveSamples: keptEffective, steady: true, start, method, reason, pending: null };
+}
+
+/**
+ * Transient check of a steady growing window: when the record since the window began now shows a
+ * significant exponential transient (or a level still moving since it began, which no cut can
+ * settle) whose remaining bias at the current start exceeds the
+ * trigger (BIAS_TRIGGER by default; at least BIAS_TOLERANCE), the earliest admissible start
+ * (later than the current one), or null when none leaves enough samples (the warm-up is not over
+ * after all). Undefined when nothing changes.
+ */
+export function recheckTransient(history: BlockHistory, longRunVariance: number, tauInt: number, firstIndex: number, next: number, trigger = BIAS_TRIGGER): { start: number | null; fit: TransientFit } | undefined {
+  const fit = fitTransient({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance, tauInt });
+  if (!fit?.significant) return undefined;
+  const s0 = fit.longRunVariance;
+  if (Math.abs(transientBias(fit, firstIndex, next)) <= Math.max(trigger, BIAS_TOLERANCE) * Math.sqrt(s0 / (next - firstIndex))) return undefined;
+  // Only a record that a warm-up explains at least as well as a late break moves the start or
+  // withdraws the verdict; a break is the stationarity monitor's to name.
+  if (!warmupExplains(fit)) return undefined;
+  const minKept = Math.ceil(MIN_EFFECTIVE * Math.max(1, tauInt));
+  // The declaration's tolerance where it can be had, else the trigger's (hysteresis).
+  const start = admissibleStart(fit, firstIndex, next, BIAS_TOLERANCE, minKept) ?? admissibleStart(fit, firstIndex, next, Math.max(trigger, BIAS_TOLERANCE), minKept);
+  return { start, fit };
+}
+
+/**
+ * When the stationarity monitor alarms on a growing window: whether the record since the window
+ * began is a warm-up still running (a significant fit that explains the record at least as well as
+ * a step or a ramp would, core/stationarity/transient-fit.ts warmupExplains) rather than a break.
+ */
+export function alarmIsWarmup(history: BlockHistory, longRunVariance: number, tauInt: number): TransientFit | null {
+  const fit = fitTransient({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance, tauInt });
+  return fit?.significant && warmupExplains(fit) ? fit : null;
+}
+
+function confirmCount(kept: Float64Array, start: number, firstIndex: number, method: 'none' | 'fixed', reason: string, base: Omit<WarmupVerdict, 'steady' | 'start' | 'method' | 'reason' | 'pending'>): WarmupVerdict {
+  void firstIndex;
+  if (kept.length < 8) return { ...base, steady: false, start, method, reason, pending: { condition: 'effective-samples', message: 'fewer than eight samples', samplesToGo: 8 - kept.length } };
+  const estimate = autoregressiveSpectrumOfValues(kept);
+  const effective = kept.length / Math.max(estimate.tauInt, 1e-12);
+  if (effective < MIN_EFFECTIVE) {
+    const toGo = Math.ceil((MIN_EFFECTIVE - effective) * Math.max(1, estimate.tauInt));
+    return { ...base, effectiveSamples: effective, steady: false, start, method, reason, pending: { condition: 'effective-samples', message: `${Math.floor(effective)} effective samples, ${MIN_EFFECTIVE} needed (about ${formatSamples(toGo)} more samples)`, samplesToGo: toGo } };
+  }
+  return { ...base, effectiveSamples: effective, steady: true, start, method, reason, pending: null };
+}
+
+/** Samples after `next` until some start leaves an admissible bias (doubling, then bisection); null beyond 64 time constants. */
+function samplesUntilAdmissible(fit: TransientFit, from: number, next: number, minKept: number): number | null {
+  const ok = (end: number) => admissibleStart(fit, from, end, BIAS_TOLERANCE, minKept) !== null;
+  let step = Math.max(64, Math.ceil(fit.timeConstant / 8));
+  const limit = 64 * fit.timeConstant + minKept;
+  let high = next + step;
+  while (!ok(high)) {
+    if (high - next > limit) return null;
+    step *= 2;
+    high = next + step;
+  }
+  let low = next;
+  while (high - low > Math.max(16, (high - next) / 64)) {
+    const mid = Math.floor((low + high) / 2);
+    if (ok(mid)) high = mid;
+    else low = mid;
+  }
+  return high - next;
+}
+
+function summary(fit: TransientFit): TransientSummary {
+  return { amplitude: fit.amplitude, timeConstant: fit.timeConstant, level: fit.level, improvement: fit.improvement, significant: fit.significant, decays: fit.decays };
+}
+
+function variance(values: Float64Array): number {
+  const m = values.length;
+  if (m < 2) return 0;
+  let mean = 0;
+  for (let i = 0; i < m; i++) mean += values[i] as number;
+  mean /= m;
+  let squares = 0;
+  for (let i = 0; i < m; i++) squares += ((values[i] as number) - mean) ** 2;
+  return squares / (m - 1);
+}
+
+/** A sample count in words: grouped digits, two significant figures above 1000. */
+export function formatSamples(count: number): string {
+  if (!Number.isFinite(count)) return 'unbounded';
+  const rounded = count >= 1000 ? Number(count.toPrecision(2)) : Math.round(count);
+  return rounded.toLocaleString('en-US').replace(/,/g, '\u202f');
 }

@@ -410,7 +410,7 @@ function traceChart(channel: ReportChannel): string {
 function acfChart(s: ChannelSnapshot): string {
   if (s.acf.length < 2) return '';
   const lags = s.acf.map((_, i) => i + 1);
-  const used = s.estimators[s.estimator];
+  const used = s.estimator === 'beran' ? undefined : s.estimators[s.estimator];
   const noise = 2 / Math.sqrt(Math.max(1, s.n));
   return svgChart({
     width: 300,

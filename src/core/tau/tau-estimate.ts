@@ -1,6 +1,14 @@
-/** The estimators of the integrated autocorrelation time that plateau offers. */
-export const ESTIMATOR_NAMES = ['blocking', 'sokal', 'geyer', 'batch-means', 'iid'] as const;
+/**
+ * The estimators of the variance of a windowed mean that plateau offers; `auto` is the default
+ * rule (core/tau/estimator-set.ts: an autoregressive spectral estimate after removing spectral
+ * lines, and Beran's long-memory law where the series has long memory).
+ */
+export const ESTIMATOR_NAMES = ['auto', 'ar', 'geyer', 'sokal', 'obm', 'lugsail', 'blocking', 'batch-means', 'iid'] as const;
 export type EstimatorName = (typeof ESTIMATOR_NAMES)[number];
+/** The estimators computed for every snapshot (all but the `auto` rule, which picks among them). */
+export type MethodEstimatorName = Exclude<EstimatorName, 'auto'>;
+/** What produced an estimate: one of the estimators, or the long-memory law. */
+export type MethodName = MethodEstimatorName | 'beran';
 
 export function isEstimatorName(name: string): name is EstimatorName {
   return (ESTIMATOR_NAMES as readonly string[]).includes(name);
@@ -11,7 +19,7 @@ export function isEstimatorName(name: string): name is EstimatorName {
  * tauInt = n * varianceOfMean / sampleVariance, so n / tauInt is the effective sample size.
  */
 export interface TauEstimate {
-  method: EstimatorName;
+  method: MethodName;
   /** Integrated autocorrelation time, in samples. */
   tauInt: number;
   /** Estimated variance of the window mean (squared data units). */
@@ -39,7 +47,7 @@ export function tauFloor(n: number): number {
  * of the mean from tau_int, n / (2 window + 1) degrees of freedom, and a note when the window
  * holds fewer than 50 tau_int. O(1).
  */
-export function lagWindowEstimate(method: EstimatorName, tauInt: number, sampleVariance: number, n: number, window: number, reliable: boolean): TauEstimate {
+export function lagWindowEstimate(method: MethodName, tauInt: number, sampleVariance: number, n: number, window: number, reliable: boolean): TauEstimate {
   return {
     method,
     tauInt,
