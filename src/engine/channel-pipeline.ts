@@ -174,6 +174,7 @@ export interface ChannelPipelineState {
   nextAllanCheck: number;
   nextDiagnosis: number;
   nextReclassify: number;
+  breakChangePoint: number;
   withdrawals: number;
   indicatorBlock: number;
   indicatorSum: number;
@@ -252,6 +253,8 @@ export class ChannelPipeline {
   private withdrawals = 0;
   /** Index at which the last break is classified again (-1: not any more). */
   private nextReclassify = -1;
+  /** The change point the last break was first classified with. */
+  private breakChangePoint = -1;
   private diagnosis: SpectralDiagnosis | null = null;
   /** What the last warm-up check is still waiting for (null once steady). */
   private warmupPending: WarmupPending | null = null;
@@ -451,6 +454,7 @@ export class ChannelPipeline {
       nextAllanCheck: this.nextAllanCheck,
       nextDiagnosis: this.nextDiagnosis,
       nextReclassify: this.nextReclassify,
+      breakChangePoint: this.breakChangePoint,
       withdrawals: this.withdrawals,
       indicatorBlock: this.indicatorBlock,
       indicatorSum: this.indicatorSum,
@@ -493,6 +497,7 @@ export class ChannelPipeline {
     this.nextAllanCheck = state.nextAllanCheck;
     this.nextDiagnosis = state.nextDiagnosis;
     this.nextReclassify = state.nextReclassify;
+    this.breakChangePoint = state.breakChangePoint;
     this.withdrawals = state.withdrawals;
     this.indicatorBlock = state.indicatorBlock;
     this.indicatorSum = state.indicatorSum;
@@ -636,8 +641,10 @@ export class ChannelPipeline {
       this.series.dropBefore(end);
       this.diagnosisAfterCut(index);
     }
+    if (this.nextReclassify >= 0 && this.lostBefore) this.reclassifyBreak(index);
     this.warmupEnd = end;
     this.phase = 'steady';
+    this.nextReclassify = -1;
     this.startMonitor(index);
     const excluded = this.excluded;
     if (this.lostBefore) this.regainedAt = index;
@@ -660,6 +667,8 @@ export class ChannelPipeline {
     if (!found) return;
     this.transient = { amplitude: found.fit.amplitude, timeConstant: found.fit.timeConstant, level: found.fit.level, improvement: found.fit.improvement, significant: true, decays: found.fit.decays };
     if (found.start === null) {
+      // After a break the level's own movements are the monitor's to judge (a drift is a trend).
+      if (this.lostBefore) return;
       // The warm-up is not over: back to warming (not a break: the level is what it was heading for).
       this.withdrawSteady(index, found.fit.timeConstant, found.fit.decays ? 'the warm-up is still decaying: its remaining transient biases the mean by more than its uncertainty allows' : 'the level is still moving, as it has since the window began: the mean is biased by more than its uncertainty allows');
       return;
@@ -781,10 +790,12 @@ export class ChannelPipeline {
     this.breakNoise = this.monitor?.settings.longRunVariance ?? this.breakNoise;
     this.lostBefore = true;
     this.raise({ kind: 'stationarity-lost', at: index, cause: found.cause, changePoint: found.changePoint, detail: found.detail, ...(found.slope ? { slope: found.slope } : {}) });
+    delete found.margin;
     this.phase = 'unsteady';
     this.precise = false;
     this.brokenMonitor = this.monitor;
-    this.nextReclassify = found.changePoint + 2 * Math.max(1, index - found.changePoint);
+    this.breakChangePoint = found.changePoint;
+    this.nextReclassify = index + Math.max(index - found.changePoint, 16 * (this.brokenMonitor?.settings.blockSize ?? 16));
     this.monitor = null;
     this.warmupEnd = null;
     this.warmupPending = { condition: 'break', message: `stationarity lost (${found.cause}) at sample ${found.changePoint}`, samplesToGo: null };
@@ -800,9 +811,11 @@ export class ChannelPipeline {
   }
 
   /**
-   * A break is classified again when what followed it is twice, then four times, as long as the
-   * time it took to show (stationarity-monitor.ts reclassify); a changed cause or change point is
-   * raised as `break-revised` and the verdict follows it.
+   * A break is classified again when what followed the alarm is once, then three times, as long as
+   * the time the alarm took (and at least 16, then 96, monitor blocks), and a last time when
+   * stationarity is regained: stationarity-monitor.ts
+   * reclassify. A changed cause or change point is raised as `break-revised` and the verdict
+   * follows it.
    */
   private reclassifyBreak(index: number): void {
     const last = this.lastBreak;
@@ -811,10 +824,16 @@ export class ChannelPipeline {
       this.nextReclassify = -1;
       return;
     }
-    const revised = monitor.reclassify(index, last.detail);
-    const delay = Math.max(1, this.lastBreakAt - last.changePoint);
-    const after = index - last.changePoint;
-    this.nextReclassify = after >= 4 * delay ? -1 : last.changePoint + 4 * delay;
+    // After once, then three times what the alarm took (at least 16 and 96 monitor blocks after it);
+    // later the monitor's history (1024 blocks) would begin to lose the level before the break.
+    const second = this.lastBreakAt + Math.max(3 * (this.lastBreakAt - this.breakChangePoint), 96 * monitor.settings.blockSize);
+    this.nextReclassify = index < second ? second : -1;
+    // Only while the monitor's history still holds a stretch of the level before the break.
+    if (monitor.referenceStart > this.breakChangePoint - 16 * monitor.settings.blockSize) {
+      this.nextReclassify = -1;
+      return;
+    }
+    const revised = monitor.reclassify(index, last.detail, last.cause);
     if (revised.cause === last.cause && Math.abs(revised.changePoint - last.changePoint) <= monitor.settings.blockSize) {
       this.lastBreak = { ...last, ...(revised.slope ? { slope: revised.slope } : {}) };
       return;

@@ -45,6 +45,8 @@ export interface StationarityBreak {
   detail: string;
   /** For a trend: the fitted slope after the change point and its standard uncertainty, per sample. */
   slope?: { perSample: number; standardUncertainty: number };
+  /** Log-likelihood lead of the named cause over the next best (classification only). */
+  margin?: number;
 }
 
 export interface MonitorSettings {
@@ -143,8 +145,12 @@ export class StationarityMonitor {
    * times as many blocks later the shapes separate (a drift keeps rising, a step stays flat).
    * O(K^2) in the K stored block means.
    */
-  reclassify(index: number, detail: string): StationarityBreak {
-    return this.classify(detail, index);
+  reclassify(index: number, detail: string, current: BreakCause): StationarityBreak {
+    // With the shapes apart, the step needs no head start; the cause changes only on decisive
+    // evidence (a log-likelihood lead of REVISE_MARGIN), so a revision cannot flip back and forth.
+    const revised = this.classify(detail, index, undefined, 0);
+    if (revised.cause === current || (revised.margin ?? 0) >= REVISE_MARGIN) return revised;
+    return this.classify(detail, index, current, 0);
   }
 
   /**
@@ -299,7 +305,7 @@ export class StationarityMonitor {
    * reports how often each kind of change is named correctly.
    * Cost: O(k^2) in the k stored block means, at alarm time only.
    */
-  private classify(detail: string, index: number, forced?: BreakCause): StationarityBreak {
+  private classify(detail: string, index: number, forced?: BreakCause, stepPreference = STEP_PREFERENCE): StationarityBreak {
     const k = this.historyLength;
     const y = this.history;
     const { blockSize } = this.settings;
@@ -318,7 +324,7 @@ export class StationarityMonitor {
       const before = prefix / c;
       const after = (total - prefix) / (k - c);
       const rss = squares - c * (before - mean) ** 2 - (k - c) * (after - mean) ** 2;
-      const ll = -rss / (2 * sigma2) + STEP_PREFERENCE;
+      const ll = -rss / (2 * sigma2) + stepPreference;
       if (ll > bestStep) {
         bestStep = ll;
         stepAt = c;
@@ -380,13 +386,18 @@ export class StationarityMonitor {
       block = varianceAt;
     }
     const changePoint = Math.min(index, this.historyStart + block * blockSize);
-    if (cause !== 'trend') return { cause, changePoint, detail };
+    const scores = { shift: bestStep, trend: bestRamp, variance: bestVariance };
+    const others = (Object.keys(scores) as BreakCause[]).filter((c) => c !== cause).map((c) => scores[c]);
+    const margin = scores[cause] - Math.max(...others);
+    if (cause !== 'trend') return { cause, changePoint, detail, margin };
     // Slope per block of the ramp, its standard error sigma_b / sqrt(S_uu); per sample by / blockSize.
     const slope = { perSample: rampSlope / blockSize, standardUncertainty: Math.sqrt(sigma2 / rampSxx) / blockSize };
-    return { cause, changePoint, detail: `${detail}; slope ${slope.perSample.toPrecision(3)} \u00b1 ${slope.standardUncertainty.toPrecision(2)} per sample`, slope };
+    return { cause, changePoint, detail: `${detail}; slope ${slope.perSample.toPrecision(3)} \u00b1 ${slope.standardUncertainty.toPrecision(2)} per sample`, slope, margin };
   }
 }
 
+/** Log-likelihood lead a reclassification needs to change a break's cause (a likelihood ratio of e^2). */
+const REVISE_MARGIN = 2;
 /** Log-likelihood head start of the step model in classification (about one block's worth of evidence). */
 const STEP_PREFERENCE = 0.5;
 

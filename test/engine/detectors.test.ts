@@ -19,6 +19,21 @@ function firstLossAfter(events: ChannelEvent[], index: number) {
   return events.find((e) => e.kind === 'stationarity-lost' && e.at >= index) as Extract<ChannelEvent, { kind: 'stationarity-lost' }> | undefined;
 }
 
+/** The break's cause as last revised (a break-revised event after the loss replaces its cause). */
+function finalCause(events: ChannelEvent[], loss: Extract<ChannelEvent, { kind: 'stationarity-lost' }>) {
+  let cause = loss.cause;
+  let changePoint = loss.changePoint;
+  for (const e of events) {
+    if (e.at <= loss.at) continue;
+    if (e.kind === 'stationarity-lost' || e.kind === 'stationarity-regained') break;
+    if (e.kind === 'break-revised') {
+      cause = e.cause;
+      changePoint = e.changePoint;
+    }
+  }
+  return { cause, changePoint };
+}
+
 describe('stationarity detectors', () => {
   it('no stationarity-lost on long stationary AR(1) streams, phi 0 to 0.95, at a budget of one false alarm per 10^8 samples', () => {
     for (const phi of [0, 0.5, 0.9, 0.95]) {
@@ -42,19 +57,21 @@ describe('stationarity detectors', () => {
     }
   });
 
-  it('a step is detected as a shift, with the change point near the truth (10 seeds, phi 0.9, step of 3)', () => {
+  it('a step is named a shift once what follows it is in view, with the change point near the truth (10 seeds, phi 0.9, step of 3)', () => {
     let right = 0;
     for (let seed = 0; seed < 10; seed++) {
       const x = ar1Series(new SeededRandom(5000 + seed), 0.9, 90_000).map((v, i) => (i >= 60_000 ? v + 3 : v));
-      const loss = firstLossAfter(runStream(x, { falseAlarmSamples: 1e7 }).events, 60_000);
+      const { events } = runStream(x, { falseAlarmSamples: 1e7 });
+      const loss = firstLossAfter(events, 59_000);
       expect(loss).toBeDefined();
       expect(loss!.at - 60_000).toBeLessThan(3000);
-      expect(Math.abs(loss!.changePoint - 60_000)).toBeLessThan(2000);
-      if (loss!.cause === 'shift') right++;
+      const final = finalCause(events, loss!);
+      expect(Math.abs(final.changePoint - 60_000)).toBeLessThan(2000);
+      if (final.cause === 'shift') right++;
     }
-    // Measured: 8 of 10 named shift (one trend, one variance: a step seen only a few blocks after
-    // it happened fits the other shapes too).
-    expect(right).toBeGreaterThanOrEqual(7);
+    // A step seen only a few blocks after it happened fits a ramp about as well; the break is
+    // classified again on twice and four times what followed it (break-revised).
+    expect(right).toBeGreaterThanOrEqual(9);
   });
 
   it('a variance change is detected as such (10 seeds, white noise doubling its spread)', () => {
@@ -69,37 +86,47 @@ describe('stationarity detectors', () => {
     expect(right).toBeGreaterThanOrEqual(7);
   });
 
-  it('a drift is detected as a trend, its change point near its start (10 seeds, one false alarm per 10^8 samples)', () => {
-    // Shortly after a slow drift starts it looks much like a step (stationarity-monitor.ts gives the
-    // step a small head start). At a budget of one false alarm per 10^8 samples the alarm comes a
-    // little later, with more of the ramp in view: measured 9 of 10 named trend (7 of 10 at the
-    // default budget of 10^6; bench/detect.js reports the default-budget figures).
-    let trend = 0;
-    for (let seed = 0; seed < 10; seed++) {
-      const x = ar1Series(new SeededRandom(900 + seed), 0, 120_000).map((v, i) => (i >= 60_000 ? v + 2e-5 * (i - 60_000) : v));
-      const loss = firstLossAfter(runStream(x, { falseAlarmSamples: 1e8 }).events, 60_000);
-      expect(loss).toBeDefined();
-      expect(loss!.at - 60_000).toBeLessThan(20_000);
-      expect(Math.abs(loss!.changePoint - 60_000)).toBeLessThan(10_000);
-      if (loss!.cause === 'trend') trend++;
-    }
-    expect(trend).toBeGreaterThanOrEqual(8);
-  });
+  for (const budget of [1e6, 1e8]) {
+    it(`a drift is named a trend with its slope, its change point near its start (10 seeds, one false alarm per ${budget.toExponential(0)} samples)`, () => {
+      // Shortly after a slow drift starts it looks much like a step; classified again on what
+      // followed (break-revised), it is a trend, and the verdict carries its slope.
+      let trend = 0;
+      for (let seed = 0; seed < 10; seed++) {
+        const x = ar1Series(new SeededRandom(900 + seed), 0, 120_000).map((v, i) => (i >= 60_000 ? v + 2e-5 * (i - 60_000) : v));
+        const { events, pipeline } = runStream(x, { falseAlarmSamples: budget });
+        const loss = firstLossAfter(events, 60_000);
+        expect(loss).toBeDefined();
+        expect(loss!.at - 60_000).toBeLessThan(20_000);
+        const final = finalCause(events, loss!);
+        expect(Math.abs(final.changePoint - 60_000)).toBeLessThan(10_000);
+        if (final.cause === 'trend') {
+          trend++;
+          const pending = pipeline.summary().verdict.pending.find((p) => p.condition === 'break');
+          if (pipeline.state === 'unsteady') expect(pending?.message).toMatch(/trend .* slope/);
+        }
+      }
+      // Measured: 8 of 10 at the default budget (an alarm that comes early, on a drift of 2e-5 per
+      // sample in unit white noise, leaves too little ramp to tell from a step), 10 of 10 at 10^8.
+      expect(trend).toBeGreaterThanOrEqual(budget >= 1e8 ? 9 : 8);
+    });
+  }
 
   it('warm-up: the kept mean carries no transient bias comparable to its uncertainty, and the excluded samples are reported', () => {
     for (const seed of [1, 2, 3]) {
       const n = 60_000;
       const x = ar1Series(new SeededRandom(3000 + seed), 0.9, n).map((v, i) => v + 5 * Math.exp(-i / 1000));
       const { events, pipeline } = runStream(x);
-      const steady = events.find((e) => e.kind === 'steady') as Extract<ChannelEvent, { kind: 'steady' }>;
-      expect(steady).toBeDefined();
-      expect(steady.warmupEnd).toBeGreaterThan(0);
+      expect(pipeline.state).toBe('steady');
       const s = pipeline.snapshot();
-      expect(s.excluded).toBeGreaterThanOrEqual(steady.warmupEnd);
+      expect(s.window.startIndex).toBeGreaterThan(0);
+      expect(s.excluded).toBe(s.window.startIndex);
       expect(s.n + s.excluded).toBe(n);
+      // The last declaration (steady or a later extension of the warm-up) names the kept start.
+      const last = events.filter((e) => e.kind === 'steady' || e.kind === 'warmup-extended').at(-1) as { warmupEnd: number };
+      expect(last.warmupEnd).toBe(s.window.startIndex);
       let bias = 0;
       for (let i = n - s.n; i < n; i++) bias += 5 * Math.exp(-i / 1000);
-      expect(bias / s.n).toBeLessThan(s.standardUncertainty as number);
+      expect(bias / s.n).toBeLessThan(0.5 * (s.standardUncertainty as number));
     }
   });
 
@@ -132,14 +159,14 @@ describe('stationarity detectors', () => {
     expect(s.target?.reached).toBe(true);
   });
 
-  it('averaging limit: white noise plus a drift stops averaging down; plain white noise does not', () => {
+  it('averaging limit: white noise plus a drift that sets in after a steady stretch stops averaging down; plain white noise does not', () => {
     const random = new SeededRandom(5);
     const drifting = new Float64Array(1 << 15);
     const plain = new Float64Array(1 << 15);
     for (let i = 0; i < drifting.length; i++) {
       const e = random.normal();
       plain[i] = e;
-      drifting[i] = e + 2e-4 * i;
+      drifting[i] = e + (i > 8192 ? 3e-4 * (i - 8192) : 0);
     }
     const withDrift = runStream(drifting, { falseAlarmSamples: 1e12 });
     const limit = withDrift.events.find((e) => e.kind === 'averaging-limit');
