@@ -150,6 +150,9 @@ const EVENT_TEXT = {
   'precision-reached': ['good', 'Target precision met'],
   'stationarity-lost': ['alert', 'Steady state lost'],
   'stationarity-regained': ['good', 'Steady again'],
+  'break-revised': ['notice', 'Break classified again'],
+  'warmup-extended': ['notice', 'Warm-up longer than it looked: start moved'],
+  'steady-withdrawn': ['alert', 'Steady state withdrawn: warm-up not over'],
   'averaging-limit': ['notice', 'Averaging limit: longer runs no longer help'],
   stale: ['alert', 'Data stopped'],
   fresh: ['info', 'Data flowing again'],
@@ -183,7 +186,12 @@ function eventDetail(event) {
       return `${body.cause ?? 'change'} from sample ${body.changePoint ?? '?'}${body.detail ? `: ${body.detail}` : ''}`;
     case 'steady':
     case 'stationarity-regained':
+    case 'warmup-extended':
       return `from sample ${body.warmupEnd ?? '?'}; ${formatCount(body.excluded ?? 0)} samples excluded`;
+    case 'break-revised':
+      return `${body.cause ?? 'change'} from sample ${body.changePoint ?? '?'}${body.slope ? `, slope ${trimNumber(body.slope.perSample, 2)} ± ${trimNumber(body.slope.standardUncertainty, 2)} per sample` : ''}${body.warmup ? ' (the warm-up still running)' : ''}`;
+    case 'steady-withdrawn':
+      return `${body.reason ?? ''}`;
     case 'precision-reached':
       return `${body.derived ? `${trimNumber(body.value, 6)} ${body.unit ?? ''}, ` : ''}U = ${trimNumber(body.expandedUncertainty, 3)} within ${trimNumber(body.bound, 3)}${body.derived && body.unit ? ` ${body.unit}` : ''}`;
     case 'averaging-limit':

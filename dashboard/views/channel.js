@@ -42,6 +42,8 @@ export class ChannelView extends DetailView {
       traceNote: h('p', { className: 'chart-note' }),
       cusumNote: h('p', { className: 'chart-note' }),
       estimators: h('tbody'),
+      verdict: h('ul', { className: 'verdict-list' }),
+      estimatorReason: h('p', { className: 'chart-note' }),
       evidence: h('tbody'),
       notes: h('ul', { className: 'notes' }),
       events: h('ol', { className: 'channel-events' }),
@@ -59,6 +61,7 @@ export class ChannelView extends DetailView {
       h('div', { className: 'view-head' }, h('a', { className: 'back', href: '#/', text: '← all channels' }), h('h1', { className: 'channel-title' }, h('span', { text: name }), p.unit), p.badge),
       p.error,
       h('div', { className: 'result-row' }, h('div', { className: 'result-box' }, h('span', { className: 'label', text: 'mean ± U' }), p.result, p.coverage), h('div', { className: 'tile-progress wide' }, this.progress.element, p.progressText)),
+      h('div', { className: 'panel verdict-panel' }, h('h2', { text: 'Verdict' }), p.verdict),
       h(
         'div',
         { className: 'stat-grid' },
@@ -89,7 +92,7 @@ export class ChannelView extends DetailView {
       h(
         'div',
         { className: 'chart-row' },
-        h('div', { className: 'panel' }, h('h2', { text: 'Estimators of the uncertainty' }), h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['estimator', 'τ_int', 'n_eff', 'u', 'ν', 'window', 'reliable'].map((t) => h('th', { text: t })))), p.estimators)),
+        h('div', { className: 'panel' }, h('h2', { text: 'Estimators of the uncertainty' }), p.estimatorReason, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['estimator', 'τ_int', 'n_eff', 'u', 'ν', 'window', 'reliable'].map((t) => h('th', { text: t })))), p.estimators)),
         h('div', { className: 'panel' }, h('h2', { text: 'Steady-state evidence' }), h('table', { className: 'table' }, p.evidence), p.notes),
       ),
     );
@@ -131,6 +134,8 @@ export class ChannelView extends DetailView {
     }
     this.progress.show(fraction, target?.reached);
     setText(p.progressText, text);
+    const verdict = s.verdict;
+    if (verdict) replaceChildren(p.verdict, verdict.ready ? [h('li', { className: 'ready', text: 'Ready to record: steady, and at the target where one is set.' })] : verdict.pending.map((c) => h('li', {}, h('strong', { text: `${c.condition}: ` }), c.message)));
   }
 
   load(name) {
@@ -141,9 +146,11 @@ export class ChannelView extends DetailView {
     const p = this.parts;
     for (const chart of this.charts) chart.update(d);
     setText(p.estimator, d.estimator);
+    setText(p.estimatorReason, d.estimatorReason ? `Used: ${d.estimator}, ${d.estimatorReason}.` : '');
     setText(p.rate, d.rate === null ? '–' : `${trimNumber(d.rate, 3)} /s`);
     const used = d.estimators?.[d.estimator];
-    setText(p.tauNote, d.tauInt === null ? 'No autocorrelation yet (too few samples).' : `τ_int = ${trimNumber(d.tauInt, 3)} samples by ${d.estimator}${used ? `, summed over lags 1…${used.window}` : ''}; n_eff = n / τ_int = ${formatEffective(d.nEff)}.`);
+    const windowText = !used ? '' : d.estimator === 'ar' ? `, an autoregression of order ${used.window}` : ['geyer', 'sokal'].includes(d.estimator) ? `, summed over lags 1…${used.window}` : `, batches of ${used.window}`;
+    setText(p.tauNote, d.tauInt === null ? 'No autocorrelation yet (too few samples).' : `τ_int = ${trimNumber(d.tauInt, 3)} samples by ${d.estimator}${windowText}; n_eff = n / τ_int = ${formatEffective(d.nEff)}.`);
     setText(p.allanNote, d.averagingLimit ? `Averaging limit at m = ${d.averagingLimit.m}${d.averagingLimit.tauSeconds ? ` (${formatDuration(d.averagingLimit.tauSeconds)})` : ''}: beyond it drift dominates and longer averaging does not help.` : 'No averaging limit in this window: the Allan deviation still falls with averaging time.');
     const trace = d.trace;
     const before = trace.windowStartIndex - trace.firstIndex;
@@ -158,6 +165,11 @@ export class ChannelView extends DetailView {
     const t = d.stationarity?.tests;
     const rows = [
       ['steady from sample', d.stationarity?.warmupEnd ?? 'not steady'],
+      ['warm-up found by', d.stationarity?.warmupMethod ?? '–'],
+      ['warm-up fit', d.stationarity?.transient ? `time constant ${trimNumber(d.stationarity.transient.timeConstant, 3)} samples, amplitude ${trimNumber(d.stationarity.transient.amplitude, 3)}${d.stationarity.transient.significant ? '' : ' (not significant)'}` : '–'],
+      ['periodic components', d.spectrum?.lines?.length ? d.spectrum.lines.map((l) => `period ${trimNumber(l.period, 3)} samples, amplitude ${trimNumber(l.amplitude, 3)}`).join('; ') : 'none'],
+      ['long memory', d.spectrum?.longMemory ? `H = ${trimNumber(d.spectrum.longMemory.hurst, 3)}${d.spectrum.longMemory.detected ? ' (long memory)' : ' (short memory)'}` : '–'],
+      ['resolution', d.resolution ? `lattice of step ${trimNumber(d.resolution.step, 3)} (${d.resolution.distinct} values)` : 'none found'],
       ['Heidelberger-Welch', t?.heidelbergerWelch ? `${t.heidelbergerWelch.passed ? 'passed' : 'failed'} (p = ${trimNumber(t.heidelbergerWelch.pValue, 3)})` : '–'],
       ['Geweke z', t?.geweke ? trimNumber(t.geweke.statistic, 3) : '–'],
       ['KPSS (block means)', t?.kpss ? `${trimNumber(t.kpss.statistic, 3)} (${t.kpss.passed ? 'not rejected' : 'rejected'} at 5 %)` : '–'],

@@ -184,6 +184,7 @@ export class OverviewView {
       nEff: field('nEff', 'num'),
       tau: field('tau', 'num'),
       progressText: field('progress', 'progress-text'),
+      verdict: field('verdict', 'tile-verdict'),
       meanLabel: h('span', { className: 'label', text: 'mean' }),
       progress: new ProgressBar('progress towards the target precision'),
     };
@@ -201,6 +202,7 @@ export class OverviewView {
         h('span', { className: 'stat' }, h('span', { className: 'label', text: 'τ_int' }), parts.tau),
       ),
       h('div', { className: 'tile-progress' }, parts.progress.element, parts.progressText),
+      parts.verdict,
     );
     return { element, parts, state: null };
   }
@@ -248,5 +250,10 @@ export class OverviewView {
     if (target?.note) p.progressText.title = target.note;
     p.progress.show(fraction, target?.reached);
     setText(p.progressText, target && !target.reached ? `${Math.round(fraction * 100)} % · ${text}` : text);
+    // The verdict in words: ready, or the first thing the channel still waits for.
+    const verdict = s.verdict;
+    setText(p.verdict, verdict ? (verdict.ready ? 'ready to record' : `waiting: ${verdict.summary}`) : '');
+    p.verdict.title = verdict && !verdict.ready ? verdict.pending.map((c) => `${c.condition}: ${c.message}`).join('\n') : '';
+    p.verdict.classList.toggle('ready', Boolean(verdict?.ready));
   }
 }

@@ -8,6 +8,7 @@ import { UsageError } from './cli-error.js';
 import { formatDuration, formatSignificant, roundWithUncertainty, textTable } from './format.js';
 import { CAUTION } from './caution.js';
 import type { ChannelEvent } from '../engine/channel-events.js';
+import type { WarmupSetting } from '../engine/warmup-detector.js';
 import { prepareDerived, DERIVE_HELP, parseDeriveFlags, renderDerived, type DeriveOptions, type DerivedRecorder, type DerivedReportEntry } from './analyze-derived.js';
 
 const MAX_EVENTS = 10_000;
@@ -28,7 +29,11 @@ Options:
   --target-on u|U        apply the target to u or to U (default U)
   --max-lag L            lags of the maintained autocovariance (default 64)
   --rate HZ              samples per second (default: from the time column)
-  --estimator NAME       ${ESTIMATOR_NAMES.join(', ')} (default ${DEFAULT_CHANNEL_OPTIONS.estimator})
+  --estimator NAME       ${ESTIMATOR_NAMES.join(', ')} (default ${DEFAULT_CHANNEL_OPTIONS.estimator}:
+                         the autoregressive spectral estimate, with periodic components removed
+                         and Beran's law under long memory)
+  --warmup auto|none|N   how the warm-up is found: auto (default) fits and cuts it; none keeps every
+                         sample as given; N cuts the first N samples of each channel
   --time-column NAME     the column holding time (default: a column named time, t, timestamp, ...)
   --delimiter C          field separator (default: guessed from the header: , ; or tab)
 ${DERIVE_HELP}`;
@@ -63,6 +68,7 @@ export async function runAnalyze(argv: string[], io: Io): Promise<number> {
       'max-lag': { type: 'string' },
       rate: { type: 'string' },
       estimator: { type: 'string' },
+      warmup: { type: 'string' },
       'time-column': { type: 'string' },
       delimiter: { type: 'string' },
       derive: { type: 'string', multiple: true },
@@ -108,6 +114,14 @@ export function channelOptionsFromFlags(flags: Flags): ChannelOptions {
   if (estimator !== undefined && (typeof estimator !== 'string' || !isEstimatorName(estimator))) {
     throw new UsageError(`--estimator ${String(estimator)}: expected one of ${ESTIMATOR_NAMES.join(', ')}`);
   }
+  const warmupFlag = flags.warmup;
+  let warmup: WarmupSetting = { mode: 'auto' };
+  if (warmupFlag !== undefined) {
+    const text = String(warmupFlag);
+    if (text === 'auto' || text === 'none') warmup = { mode: text };
+    else if (/^\d+$/.test(text)) warmup = { mode: 'fixed', samples: Number(text) };
+    else throw new UsageError(`--warmup ${text}: expected auto, none or a whole number of samples`);
+  }
   const on = flags['target-on'];
   if (on !== undefined && on !== 'u' && on !== 'U') throw new UsageError(`--target-on ${String(on)}: expected u or U`);
   if (target !== undefined && targetRel !== undefined) throw new UsageError('--target and --target-rel: give one or the other');
@@ -126,6 +140,7 @@ export function channelOptionsFromFlags(flags: Flags): ChannelOptions {
     maxLag: maxLag ?? DEFAULT_CHANNEL_OPTIONS.maxLag,
     rate: rate ?? null,
     estimator: (estimator as ChannelOptions['estimator'] | undefined) ?? DEFAULT_CHANNEL_OPTIONS.estimator,
+    warmup,
   };
 }
 
@@ -200,17 +215,20 @@ export function finiteOrNull(_key: string, value: unknown): unknown {
 }
 
 function renderReport(report: AnalyzeReport): string {
-  const header = ['channel', 'state', 'n', 'mean', 'U', 'k', 'u', 'nu_eff', 'tau_int', 'n_eff', 'target'];
+  const header = ['channel', 'verdict', 'state', 'n', 'mean', 'U', 'k', 'u', 'nu_eff', 'tau_int', 'n_eff', 'estimator', 'target'];
   const rows = report.channels.map((c) => {
     const rounded = c.mean === null ? { value: '-', uncertainty: null } : roundWithUncertainty(c.mean, c.expandedUncertainty ?? c.standardUncertainty);
+    const steady = c.state === 'steady' || c.state === 'precise';
     let target = '-';
     if (c.target) {
-      if (c.target.reached) target = 'reached';
+      if (c.target.reached) target = steady ? 'met' : 'met, not steady';
+      else if (!steady) target = 'not met';
       else if (c.target.samplesToTarget !== null) target = `${c.target.samplesToTarget} more${c.target.secondsToTarget !== null ? ` (${formatDuration(c.target.secondsToTarget)})` : ''}`;
       else target = 'out of reach';
     }
     return [
       c.name,
+      c.verdict.ready ? 'ready' : `waiting: ${c.verdict.pending[0]?.condition ?? '-'}`,
       c.state,
       String(c.n),
       rounded.value,
@@ -220,6 +238,7 @@ function renderReport(report: AnalyzeReport): string {
       formatSignificant(c.dof, 3),
       formatSignificant(c.tauInt, 3),
       formatSignificant(c.nEff, 3),
+      c.estimator,
       target,
     ];
   });
@@ -229,8 +248,15 @@ function renderReport(report: AnalyzeReport): string {
     '',
     textTable(header, rows),
     '',
-    `U = k * u at ${(confidence * 100).toPrecision(4).replace(/\.?0+$/, '')} % coverage; k from Student's t at nu_eff; u from the ${report.channels[0]?.estimator ?? ''} estimate of tau_int.`,
+    `U = k * u at ${(confidence * 100).toPrecision(4).replace(/\.?0+$/, '')} % coverage; k from Student's t at nu_eff; u from the estimator named in each row.`,
   ];
+  const waiting = report.channels.filter((c) => !c.verdict.ready);
+  if (waiting.length > 0) {
+    lines.push('', 'Not ready yet:');
+    for (const c of waiting) for (const p of c.verdict.pending) lines.push(`  - ${c.name}: ${p.condition}: ${p.message}`);
+  }
+  const reasons = report.channels.filter((c) => c.mean !== null && c.n >= 2).map((c) => `  - ${c.name}: ${c.estimator}, ${c.estimatorReason}`);
+  if (reasons.length > 0) lines.push('', 'Estimators:', ...reasons);
   if (report.derived.length > 0) lines.push('', ...renderDerived(report.derived));
   const notes = [...report.notes, ...report.channels.flatMap((c) => c.notes.map((note) => `${c.name}: ${note}`)), ...report.derived.flatMap((d) => d.notes.map((note) => `${d.name}: ${note}`))];
   if (notes.length > 0) lines.push('', 'Notes:', ...notes.map((note) => `  - ${note}`));

@@ -13,6 +13,7 @@ export const CHANNEL_DEFAULTS: ChannelSettings = {
   window: { kind: 'growing', maxSamples: DEFAULT_MAX_SAMPLES },
   maxLag: DEFAULT_CHANNEL_OPTIONS.maxLag,
   estimator: DEFAULT_CHANNEL_OPTIONS.estimator,
+  warmup: { mode: 'auto' },
   confidence: 0.95,
   target: null,
   falseAlarmSamples: 1_000_000, // mean samples between false alarms
@@ -172,7 +173,7 @@ export function parseConfig(document: unknown, source = 'config'): PlateauConfig
   return { source, broker, subscriptions, channels: { defaults, groups }, derived, store, http, topics, log };
 }
 
-const SETTING_KEYS = ['window', 'maxLag', 'estimator', 'confidence', 'target', 'falseAlarmSamples', 'staleSeconds', 'rate', 'range', 'unit'];
+const SETTING_KEYS = ['window', 'maxLag', 'estimator', 'warmup', 'confidence', 'target', 'falseAlarmSamples', 'staleSeconds', 'rate', 'range', 'unit'];
 
 function readChannelSettings(r: ConfigReader, value: unknown, path: string): Partial<ChannelSettings> {
   const s = r.section(value, path, SETTING_KEYS);
@@ -193,6 +194,12 @@ function readChannelSettings(r: ConfigReader, value: unknown, path: string): Par
   }
   if (s.maxLag !== undefined) out.maxLag = r.number(s, 'maxLag', path, { min: 1, max: 4096, integer: true }, CHANNEL_DEFAULTS.maxLag);
   if (s.estimator !== undefined) out.estimator = r.oneOf(s, 'estimator', path, ESTIMATOR_NAMES, CHANNEL_DEFAULTS.estimator);
+  if (s.warmup !== undefined) {
+    const w = s.warmup;
+    if (w === 'auto' || w === 'none') out.warmup = { mode: w };
+    else if (typeof w === 'number' && Number.isInteger(w) && w >= 0) out.warmup = { mode: 'fixed', samples: w };
+    else r.problem(join(path, 'warmup'), `expected auto, none or a whole number of samples, got ${describe(w)}`);
+  }
   if (s.confidence !== undefined) out.confidence = r.number(s, 'confidence', path, { above: 0, below: 1 }, 0.95);
   if (s.target !== undefined) out.target = readTarget(r, s.target, join(path, 'target'));
   if (s.falseAlarmSamples !== undefined) out.falseAlarmSamples = r.number(s, 'falseAlarmSamples', path, { min: 100, integer: true }, CHANNEL_DEFAULTS.falseAlarmSamples);

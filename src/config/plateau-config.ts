@@ -1,5 +1,6 @@
 import type { DecoderSpec } from '../ingest/payload-decoder.js';
 import type { EstimatorName } from '../core/tau/tau-estimate.js';
+import type { WarmupSetting } from '../engine/warmup-detector.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
 import type { WindowSpec } from '../engine/channel-options.js';
 
@@ -41,6 +42,8 @@ export interface ChannelSettings {
   window: WindowSpec;
   maxLag: number;
   estimator: EstimatorName;
+  /** How the warm-up is found: auto (fitted and cut), none (every sample as given) or a fixed count. */
+  warmup: WarmupSetting;
   confidence: number;
   target: TargetSpec | null;
   /** Mean samples between false stationarity alarms on a stationary channel. */

@@ -114,7 +114,7 @@ export class Daemon {
 
   channelOptions(name: string): ChannelOptions {
     const s = settingsFor(this.config, name);
-    return { window: s.window, maxLag: s.maxLag, estimator: s.estimator, confidence: s.confidence, target: s.target, rate: s.rate, falseAlarmSamples: s.falseAlarmSamples, staleSeconds: s.staleSeconds };
+    return { window: s.window, maxLag: s.maxLag, estimator: s.estimator, warmup: s.warmup, confidence: s.confidence, target: s.target, rate: s.rate, falseAlarmSamples: s.falseAlarmSamples, staleSeconds: s.staleSeconds };
   }
 
   /** Opens the store, rebuilds every channel's state, connects to the broker. */

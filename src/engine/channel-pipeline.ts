@@ -175,7 +175,6 @@ export interface ChannelPipelineState {
   nextDiagnosis: number;
   nextReclassify: number;
   breakChangePoint: number;
-  withdrawals: number;
   indicatorBlock: number;
   indicatorSum: number;
   indicatorCount: number;
@@ -249,8 +248,6 @@ export class ChannelPipeline {
   private nextPrecisionCheck = 0;
   private nextAllanCheck = 256;
   private nextDiagnosis = DIAGNOSIS_SEGMENT;
-  /** Verdicts withdrawn in a row (reset when a steady state has held its monitor's reference period). */
-  private withdrawals = 0;
   /** Index at which the last break is classified again (-1: not any more). */
   private nextReclassify = -1;
   /** The change point the last break was first classified with. */
@@ -330,7 +327,6 @@ export class ChannelPipeline {
     if (this.phase === 'steady' && this.monitor) {
       const found = this.monitor.push(value, index);
       if (found) this.breakFound(found, index);
-      else if (this.withdrawals > 0 && this.monitor.blockTotal >= PREMATURE_BLOCKS) this.withdrawals = 0;
     }
     if (index >= this.nextWarmupCheck) {
       if (this.phase !== 'steady') this.checkWarmup(index);
@@ -371,7 +367,6 @@ export class ChannelPipeline {
     this.lastBreak = null;
     this.brokenMonitor = null;
     this.nextReclassify = -1;
-    this.withdrawals = 0;
     this.breakNoise = 0;
     this.lossStreak = 0;
     this.regainedAt = -1;
@@ -455,7 +450,6 @@ export class ChannelPipeline {
       nextDiagnosis: this.nextDiagnosis,
       nextReclassify: this.nextReclassify,
       breakChangePoint: this.breakChangePoint,
-      withdrawals: this.withdrawals,
       indicatorBlock: this.indicatorBlock,
       indicatorSum: this.indicatorSum,
       indicatorCount: this.indicatorCount,
@@ -498,7 +492,6 @@ export class ChannelPipeline {
     this.nextDiagnosis = state.nextDiagnosis;
     this.nextReclassify = state.nextReclassify;
     this.breakChangePoint = state.breakChangePoint;
-    this.withdrawals = state.withdrawals;
     this.indicatorBlock = state.indicatorBlock;
     this.indicatorSum = state.indicatorSum;
     this.indicatorCount = state.indicatorCount;
@@ -618,7 +611,7 @@ export class ChannelPipeline {
       return;
     }
     const values = this.series.values();
-    const verdict = detectWarmup({ values, firstIndex: this.series.firstIndex, history: this.history, setting: this.options.warmup ?? { mode: 'auto' }, growing: this.growing, noise: this.shortMemoryNoise(), evidenceFactor: 2 ** Math.min(3, this.withdrawals) });
+    const verdict = detectWarmup({ values, firstIndex: this.series.firstIndex, history: this.history, setting: this.options.warmup ?? { mode: 'auto' }, growing: this.growing, noise: this.shortMemoryNoise() });
     this.transient = verdict.transient;
     this.warmupMethod = verdict.method;
     this.indicatorBlock = Math.max(8, Math.ceil(4 * this.tauNow()));
@@ -758,7 +751,6 @@ export class ChannelPipeline {
   }
 
   private withdrawSteady(index: number, timeConstant: number, reason: string): void {
-    this.withdrawals++;
     this.phase = 'warming';
     this.precise = false;
     this.monitor = null;
@@ -846,7 +838,6 @@ export class ChannelPipeline {
     if (warmup) {
       this.lostBefore = false;
       this.lossStreak = 0;
-      this.withdrawals++;
       this.warmupPending = { condition: 'warm-up', message: `the level has been moving since steady state was first declared: the warm-up is still running`, samplesToGo: null };
     }
     this.raise({ kind: 'break-revised', at: index, cause: revised.cause, changePoint: revised.changePoint, ...(revised.slope ? { slope: revised.slope } : {}), ...(warmup ? { warmup: true } : {}) });

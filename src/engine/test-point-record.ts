@@ -19,7 +19,11 @@ export interface RecordEntry {
   nEff: number | null;
   tauInt: number | null;
   estimator: string;
+  /** Why that estimator (the rule's reason, in words). */
+  estimatorReason: string;
   state: string;
+  /** The channel's verdict when the record was made: "ready to record", or what it still waited for. */
+  verdict: string;
   steadyStart: number | null;
   excluded: number;
   windowStartIndex: number;
@@ -69,7 +73,9 @@ export function recordEntry(snapshot: ChannelSnapshot, unit: string | null): Rec
     nEff: snapshot.nEff,
     tauInt: snapshot.tauInt,
     estimator: snapshot.estimator,
+    estimatorReason: snapshot.estimatorReason,
     state: snapshot.state,
+    verdict: snapshot.verdict.summary,
     steadyStart: snapshot.stationarity?.warmupEnd ?? null,
     excluded: snapshot.excluded,
     windowStartIndex: snapshot.window.startIndex,
@@ -108,7 +114,7 @@ function roundPair(value: number, uncertainty: number): { value: string; uncerta
   return { value: (Math.round(value / scale) * scale).toFixed(decimals), uncertainty: (Math.round(uncertainty / scale) * scale).toFixed(decimals) };
 }
 
-const CSV_COLUMNS: (keyof RecordEntry)[] = ['channel', 'unit', 'mean', 'standardUncertainty', 'dof', 'coverageFactor', 'expandedUncertainty', 'confidence', 'n', 'nEff', 'tauInt', 'estimator', 'state', 'steadyStart', 'excluded', 'windowStartIndex', 'windowEndIndex', 'windowStartTime', 'windowEndTime'];
+const CSV_COLUMNS: (keyof RecordEntry)[] = ['channel', 'unit', 'mean', 'standardUncertainty', 'dof', 'coverageFactor', 'expandedUncertainty', 'confidence', 'n', 'nEff', 'tauInt', 'estimator', 'state', 'verdict', 'steadyStart', 'excluded', 'windowStartIndex', 'windowEndIndex', 'windowStartTime', 'windowEndTime'];
 
 /** CSV (RFC 4180) of a record's entries; full-precision numbers, one row per channel. */
 export function recordCsv(record: TestPointRecord): string {

@@ -1,3 +1,4 @@
+import type { ChannelPipeline } from './channel-pipeline.js';
 import type { ChannelRegistry } from './channel-registry.js';
 import { recordEntry, RECORD_CAUTION, type TestPointRecord } from './test-point-record.js';
 import { channelBootstrapCheck } from './derived/bootstrap-cross-check.js';
@@ -5,11 +6,23 @@ import { channelBootstrapCheck } from './derived/bootstrap-cross-check.js';
 /**
  * Test points: a set of channels held at one set point. Starting one restarts the growing window of
  * each of its channels at its next sample (a mark the store keeps, so a replay restarts it at the
- * same sample); the test point is ready when every channel is steady and at its target precision
- * (state precise) and every derived result it holds is at target. Readiness is edge-triggered: the
+ * same sample); the test point is ready when every channel's verdict is ready (steady, at its
+ * target precision when it has one) and every derived result it holds is at target. Readiness is edge-triggered: the
  * record is written once, when it becomes ready, and again when the test point stops.
  */
 export type TestPointState = 'running' | 'ready' | 'stopped';
+
+/**
+ * A channel is ready when its verdict is (channel-verdict.ts): steady, at its target when it has one,
+ * and no long memory. The state is checked first; the verdict (one estimator run) only for channels
+ * that could be ready.
+ */
+function channelReady(pipeline: ChannelPipeline | undefined): boolean {
+  if (!pipeline) return false;
+  const state = pipeline.state;
+  if (state !== 'precise' && !(state === 'steady' && !pipeline.options.target)) return false;
+  return pipeline.summary().verdict.ready;
+}
 
 export interface TestPoint {
   id: string;
@@ -139,7 +152,7 @@ export class TestPoints {
     const changes: TestPointChange[] = [];
     for (const point of this.points.values()) {
       if (point.state !== 'running') continue;
-      const channelsReady = point.channels.every((name) => this.registry.get(name)?.pipeline.state === 'precise');
+      const channelsReady = point.channels.every((name) => channelReady(this.registry.get(name)?.pipeline));
       const derivedReady = point.derived.every((name) => this.derived?.atTarget(name) !== false);
       if (channelsReady && derivedReady) {
         point.state = 'ready';
@@ -150,11 +163,13 @@ export class TestPoints {
     return changes;
   }
 
-  /** The verdict per channel, for display. */
-  verdict(point: TestPoint): { channel: string; state: string; reached: boolean }[] {
+  /** The verdict per channel, for display: its state, whether it is ready, and what it waits for. */
+  verdict(point: TestPoint): { channel: string; state: string; reached: boolean; pending: string[] }[] {
     return point.channels.map((name) => {
-      const state = this.registry.get(name)?.pipeline.state ?? 'no data';
-      return { channel: name, state, reached: state === 'precise' };
+      const pipeline = this.registry.get(name)?.pipeline;
+      if (!pipeline) return { channel: name, state: 'no data', reached: false, pending: ['no samples yet'] };
+      const verdict = pipeline.summary().verdict;
+      return { channel: name, state: pipeline.state, reached: verdict.ready, pending: verdict.pending.map((p) => p.message) };
     });
   }
 

@@ -98,11 +98,6 @@ export interface WarmupInput {
   growing: boolean;
   /** The window's short-memory noise estimate (the autoregressive one): S(0) and tau_int. */
   noise: { longRunVariance: number; tauInt: number };
-  /**
-   * Multiplies the effective samples a declaration needs (default 1): the pipeline doubles it for
-   * each withdrawn verdict in a row, so a young, uncertain fit cannot make the verdict flap.
-   */
-  evidenceFactor?: number;
 }
 
 export function detectWarmup(input: WarmupInput): WarmupVerdict {
@@ -130,7 +125,7 @@ export function detectWarmup(input: WarmupInput): WarmupVerdict {
   // two cannot disagree about one record and flap.
   const fit = fitTransient({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance: input.noise.longRunVariance, tauInt: input.noise.tauInt });
   const transient = fit ? summary(fit) : null;
-  const needed = MIN_EFFECTIVE * (input.evidenceFactor ?? 1);
+  const needed = MIN_EFFECTIVE;
   const minKept = Math.ceil(needed * tau);
   if (!fit) {
     // Too short a record to fit a warm-up (fewer than MIN_FIT_BLOCKS blocks of 4 tau_int): a slow

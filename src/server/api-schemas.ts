@@ -40,6 +40,29 @@ const targetStatus = {
 
 export const channelState = { type: 'string', enum: ['warming', 'steady', 'precise', 'unsteady', 'stale'] } as const;
 
+/** Is the channel's mean ready to record, and if not, what it still waits for (engine/channel-verdict.ts). */
+const channelVerdict = {
+  type: 'object',
+  properties: {
+    ready: { type: 'boolean' },
+    summary: { type: 'string' },
+    pending: {
+      type: 'array',
+      items: {
+        type: 'object',
+        properties: {
+          condition: { type: 'string', enum: ['no-data', 'stale', 'constant', 'warm-up', 'effective-samples', 'break', 'long-memory', 'target'] },
+          message: { type: 'string' },
+          samplesToGo: nullableNumber,
+          secondsToGo: nullableNumber,
+        },
+        additionalProperties: true,
+      },
+    },
+  },
+  additionalProperties: true,
+} as const;
+
 /** The light view pushed over the WebSocket and returned by /api/channels?view=summary. */
 export const channelSummary = {
   type: 'object',
@@ -61,6 +84,8 @@ export const channelSummary = {
     nEff: nullableNumber,
     excluded: { type: 'integer' },
     target: targetStatus,
+    estimator: nullableString,
+    verdict: channelVerdict,
   },
   additionalProperties: true,
 } as const;
@@ -76,6 +101,8 @@ export const channelSnapshot = {
     state: channelState,
     confidence: { type: 'number' },
     estimator: { type: 'string' },
+    estimatorReason: { type: 'string' },
+    verdict: channelVerdict,
   },
   additionalProperties: true,
 } as const;

@@ -47,10 +47,14 @@ export interface ReportInput {
 }
 
 const ESTIMATOR_TEXT: Record<string, string> = {
+  ar: 'the spectral density at zero frequency of an autoregressive fit, order by AIC (Heidelberger and Welch 1983; the estimator behind R coda spectrum0.ar); nu_eff by the delta method on the Yule-Walker estimates',
+  beran: "Beran's law for long memory, var = s^2 n^(2H - 2) with the Hurst exponent H from the local Whittle estimator (Robinson 1995): a scale, not a calibrated interval",
+  obm: 'overlapping batch means with batches of sqrt(n) samples (Meketon and Schmeiser 1984); nu_eff = 1.5 (n / b - 1)',
+  lugsail: 'lugsail batch means, 2 sigma2(b) - sigma2(b/2) (Vats and Flegal 2022, with r = 2); nu_eff = batches - 1',
   geyer: "Geyer's initial monotone sequence estimator of the integrated autocorrelation time (C. J. Geyer 1992, Statistical Science 7, 473-483); nu_eff = n / (2M + 1) for the summation window M",
   sokal: "Sokal's automatic window (smallest M with M >= 5 tau_int(M)); nu_eff = n / (2M + 1)",
   'batch-means': 'non-overlapping batch means with batches near sqrt(n) samples long; nu_eff = batches - 1',
-  blocking: "the blocking method of Flyvbjerg and Petersen with Jonsson's automatic level choice",
+  blocking: "the blocking method of Flyvbjerg and Petersen with Jonsson's automatic level choice, taken one level up and lugsail-corrected",
   iid: 'independent observations (GUM 4.2.3): s / sqrt(n) with n - 1 degrees of freedom',
 };
 
@@ -191,7 +195,7 @@ function channelSection(channel: ReportChannel, entry: RecordEntry | null, recor
 <h3>Result</h3>
 <table>${rows(result)}</table>
 <h3>Standard uncertainty of the mean</h3>
-<p>Estimated with ${escapeHtml(ESTIMATOR_TEXT[estimator] ?? estimator)}. The other estimators on the same window, for comparison${s.n !== values.n ? ` (window now n = ${s.n})` : ''}:</p>
+<p>Estimated with ${escapeHtml(ESTIMATOR_TEXT[estimator] ?? estimator)}${s.estimatorReason ? ` (${escapeHtml(s.estimatorReason)})` : ''}. The other estimators on the same window, for comparison${s.n !== values.n ? ` (window now n = ${s.n})` : ''}:</p>
 <table><tr><th>estimator</th><th>tau_int</th><th>n_eff</th><th>u</th><th>nu</th><th>window / batch</th><th>reliable</th></tr>${estimatorRows.join('')}</table>
 ${s.disagreement.length ? `<p class="note">Disagreement: ${escapeHtml(s.disagreement.join('; '))}</p>` : ''}
 <h3>Steady-state evidence</h3>

@@ -91,7 +91,7 @@ describe('plateau analyze: bad input', () => {
     const cases: [string[], string][] = [
       [['--confidence', '1.5'], 'plateau: --confidence 1.5: expected a probability between 0 and 1, e.g. 0.95'],
       [['--window', '2'], 'plateau: --window 2: expected a whole number of samples, at least 4'],
-      [['--estimator', 'magic'], 'plateau: --estimator magic: expected one of blocking, sokal, geyer, batch-means, iid'],
+      [['--estimator', 'magic'], 'plateau: --estimator magic: expected one of auto, ar, geyer, sokal, obm, lugsail, blocking, batch-means, iid'],
       [['--target=-1'], 'plateau: --target -1: expected a positive uncertainty in the channel units'],
       [['--window-seconds', '10'], `plateau: --window-seconds needs a time column, and ${file} has none (name one with --time-column)`],
     ];

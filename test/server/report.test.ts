@@ -61,7 +61,7 @@ describe('renderReport', () => {
     const record = t.daemon.store.records('rep-2').at(-1)?.body as { entries: { statement: string }[]; createdAt: string };
     for (const entry of record.entries) expect(html).toContain(entry.statement.replace(/&/g, '&amp;'));
     expect(html).toContain(`written ${record.createdAt} when the test point became ready`);
-    expect(html).toContain('Geyer&#39;s initial monotone sequence estimator');
+    expect(html).toContain('the spectral density at zero frequency of an autoregressive fit');
     expect(html).toContain('Heidelberger-Welch stationarity test');
     expect(html).toContain('KPSS level test on block means');
     // Trace, ACF, Allan deviation and CUSUM for each of the two channels.

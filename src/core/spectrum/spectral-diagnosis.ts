@@ -63,7 +63,12 @@ export function diagnoseSpectrum(periodogram: Periodogram, gamma: ArrayLike<numb
   };
   const prewhitened = localWhittle(working, shape, 0.5);
   const raw = localWhittle(working, undefined, 0.65);
-  const longMemory = prewhitened && raw ? { ...raw, detected: prewhitened.d - LONG_MEMORY_SE * prewhitened.standardError > 0 && raw.d > 0 } : null;
+  // Stationary long memory has 0 < d < 1/2; an estimate at or beyond 1/2 is a level that wanders
+  // without bound (a trend or a random walk, which the stationarity tests judge), and a degenerate
+  // low-frequency periodogram (an alternating series has almost no power there) can push the
+  // estimate to the edge of its search: neither is called long memory.
+  const stationaryRange = raw !== null && raw.d > 0 && raw.d < 0.49 && prewhitened !== null && prewhitened.d < 0.49;
+  const longMemory = prewhitened && raw ? { ...raw, detected: stationaryRange && prewhitened.d - LONG_MEMORY_SE * prewhitened.standardError > 0 } : null;
   return { segment: periodogram.length, lines, longMemory };
 }
 

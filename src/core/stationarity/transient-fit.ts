@@ -87,7 +87,7 @@ export interface TransientFitInput {
 /** A fit decays within the record when its time constant is at most span / DECAYED_SPANS (e^-3 left). */
 export const DECAYED_SPANS = 3;
 /** Fall of the residual sum of squares (in block variances) that makes a fit significant. */
-export const DEFAULT_THRESHOLD = Number(process.env.PLATEAU_FIT_THRESHOLD ?? 16);
+export const DEFAULT_THRESHOLD = 16;
 /** Fewest blocks a fit needs. */
 export const MIN_FIT_BLOCKS = 16;
 const GRID_RATIO = 1.12;
