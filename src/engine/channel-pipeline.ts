@@ -6,7 +6,8 @@ import type { MethodEstimatorName, MethodName, TauEstimate } from '../core/tau/t
 import { meanUncertainty } from '../core/uncertainty/mean-uncertainty.js';
 import { targetStatus, type TargetStatus } from '../core/uncertainty/target-precision.js';
 import { PeriodogramWorkspace, MAX_SEGMENT } from '../core/spectrum/periodogram.js';
-import { diagnoseSpectrum, type SpectralDiagnosis } from '../core/spectrum/spectral-diagnosis.js';
+import { diagnoseSpectrum, removeLines, linesBlockVariance, type SpectralDiagnosis } from '../core/spectrum/spectral-diagnosis.js';
+import { fitAutoregression, blockMeanVariance, type ArFit } from '../core/tau/autoregressive-spectrum.js';
 import { detectLattice, type Lattice } from '../core/resolution/lattice.js';
 import { type ChannelOptions, FEW_SAMPLES, MIN_REPORTED_LAGS } from './channel-options.js';
 import { CaoRhinehartFilter, type CaoRhinehartState } from '../core/stationarity/cao-rhinehart.js';
@@ -714,19 +715,44 @@ export class ChannelPipeline {
     return Math.abs(z) < 2 ? null : { condition: 'break', message: `after the break the level still trends (z = ${z.toFixed(1)})`, samplesToGo: null };
   }
 
-  private startMonitor(index: number): void {
+  /**
+   * What the stationarity monitor works with: its block size and the variance of a block mean
+   * (passed as blockSize times that variance, the "long-run variance" at that block size).
+   * Block size: at least 16 samples, MONITOR_BLOCK_TAUS tau_int, twice the fitted model's correlation
+   * length (a damped oscillation decays slower than its tau_int says) and four periods of any
+   * spectral line. Variance: that of the mean of a block under the fitted autoregression plus the
+   * lines' share (blockMeanVariance, linesBlockVariance), not S(0) / b, which a damped oscillation or
+   * a cycle that does not fit a whole number of times into a block would get wrong.
+   */
+  private monitorNoise(blockSize?: number): { blockSize: number; longRunVariance: number; dof: number } {
     const estimate = this.detectorEstimate();
-    const tau = Math.max(1, estimate.tauInt);
-    const blockSize = Math.max(16, Math.ceil(MONITOR_BLOCK_TAUS * tau));
-    let longRunVariance = Math.max(estimate.varianceOfMean * this.series.length, Number.MIN_VALUE);
+    const n = this.series.length;
+    const lines = this.diagnosis?.lines ?? [];
+    const maintained = this.series.autocovariance();
+    const gamma = lines.length > 0 ? removeLines(maintained, n, lines) : maintained;
+    const fit = fitAutoregression(gamma, n);
+    let size = blockSize;
+    if (size === undefined) {
+      size = Math.max(16, Math.ceil(MONITOR_BLOCK_TAUS * Math.max(1, estimate.tauInt)));
+      if (fit) size = Math.max(size, 2 * correlationLength(gamma, fit));
+      for (const line of lines) size = Math.max(size, Math.ceil(4 * line.period));
+    }
+    let longRunVariance = estimate.varianceOfMean * n;
+    if (fit && estimate.method !== 'beran') longRunVariance = size * (blockMeanVariance(gamma, fit, size) + linesBlockVariance(lines, size));
+    return { blockSize: size, longRunVariance: Math.max(longRunVariance, Number.MIN_VALUE), dof: Math.max(1, estimate.dof) };
+  }
+
+  private startMonitor(index: number): void {
+    const noise = this.monitorNoise();
+    let longRunVariance = noise.longRunVariance;
     // After a shift or a trend the noise is the channel's own: keep the pre-break level, since a
     // drift still in the data would inflate a fresh estimate. After a variance change, the new one.
     if (this.lastBreak && this.lastBreak.cause !== 'variance' && this.breakNoise > 0) longRunVariance = Math.min(longRunVariance, this.breakNoise);
     this.monitor = new StationarityMonitor(
       {
-        blockSize,
+        blockSize: noise.blockSize,
         longRunVariance,
-        longRunDof: Math.max(1, estimate.dof),
+        longRunDof: noise.dof,
         falseAlarmSamples: this.options.falseAlarmSamples,
       },
       index + 1,
@@ -850,7 +876,10 @@ export class ChannelPipeline {
     this.nextPrecisionCheck = index + Math.max(this.monitor?.settings.blockSize ?? 16, Math.floor(n / 16));
     if (n < 2 || !(this.series.variance > 0)) return;
     const detector = this.detectorEstimate();
-    this.monitor?.refresh(detector.varianceOfMean * n, detector.dof);
+    if (this.monitor?.refining) {
+      const noise = this.monitorNoise(this.monitor.settings.blockSize);
+      this.monitor.refresh(noise.longRunVariance, noise.dof);
+    }
     const reported = this.options.estimator === 'auto' ? detector : this.estimatorSet.estimate(this.series, this.options.estimator, this.diagnosis);
     this.estimatorSet.maintainLags(this.series, reported);
     const target = this.options.target;
@@ -1096,6 +1125,31 @@ export class ChannelPipeline {
       longMemory: d.longMemory ? { hurst: d.longMemory.hurst, standardError: d.longMemory.standardError, detected: d.longMemory.detected } : null,
     };
   }
+}
+
+/**
+ * Correlation length of a fitted autoregression: the lag after which the model's autocorrelation
+ * stays within 0.05 for 16 lags in a row (capped at 4096). O(length p).
+ */
+function correlationLength(gamma: ArrayLike<number>, fit: ArFit): number {
+  const p = fit.order;
+  const gamma0 = gamma[0] as number;
+  if (p === 0 || !(gamma0 > 0)) return 1;
+  const limit = 4096;
+  const model = new Float64Array(limit);
+  let quiet = 0;
+  for (let k = 0; k < limit; k++) {
+    if (k <= p && k < gamma.length) model[k] = gamma[k] as number;
+    else {
+      let value = 0;
+      for (let j = 1; j <= p; j++) value += (fit.coefficients[j - 1] as number) * (model[k - j] as number);
+      model[k] = value;
+    }
+    if (Math.abs((model[k] as number) / gamma0) < 0.05) {
+      if (++quiet >= 16) return Math.max(1, k - 15);
+    } else quiet = 0;
+  }
+  return limit;
 }
 
 /**

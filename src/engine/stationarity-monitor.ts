@@ -159,8 +159,13 @@ export class StationarityMonitor {
    * degrees of freedom): later, a slow drift would inflate the estimate and hide itself. The block
    * size stays.
    */
+  /** Whether the long-run variance is still being refined (the reference period). */
+  get refining(): boolean {
+    return this.blocks < REFERENCE_BLOCKS || this.settings.longRunDof < 200;
+  }
+
   refresh(longRunVariance: number, longRunDof: number): void {
-    if (!(longRunVariance > 0) || (this.blocks >= REFERENCE_BLOCKS && this.settings.longRunDof >= 200)) return;
+    if (!(longRunVariance > 0) || !this.refining) return;
     this.settings = { ...this.settings, longRunVariance, longRunDof };
   }
 
@@ -224,7 +229,11 @@ export class StationarityMonitor {
     let alarm: 'up' | 'down' | null = null;
     if (j >= 1 && sigmaBlock > 0) {
       const z = (mean - this.referenceMean) / (sigmaBlock * Math.sqrt(1 + 1 / j));
-      const side = this.cusum.update(z);
+      // Winsorised at +/- Z_CLIP: one wild block (heavy-tailed noise, a spike) moves the sums by at
+      // most Z_CLIP - k, while a real shift of a few sigma_b is untouched (the robust CUSUM of J. M.
+      // Lucas & R. B. Crosier (1982), "Robust CUSUM: a robustness study for CUSUM quality control
+      // schemes", Commun. Statist. Theory Methods 11(23), 2669-2687; from memory).
+      const side = this.cusum.update(Math.max(-Z_CLIP, Math.min(Z_CLIP, z)));
       if (j >= BURN_IN_BLOCKS) alarm = side;
       const slot = this.traceCount % TRACE_BLOCKS;
       this.trace[2 * slot] = this.cusum.upper;
@@ -238,9 +247,16 @@ export class StationarityMonitor {
       return this.classify(detail, index);
     }
     if (this.blocks >= BURN_IN_BLOCKS + RECENT_BLOCKS && this.blocks % RECENT_BLOCKS === 0 && sigmaBlock > 0) {
-      const recent = this.recentVariance();
+      const recent = this.recentVariance(sigmaBlock);
+      // Heavy-tailed noise makes the variance of a sample variance larger than the normal
+      // theory's 2 / (n - 1): Var(s^2) / sigma^4 = 2 / (n - 1) + kappa / n for excess kurtosis kappa
+      // (a standard result for the sample variance; e.g. G. E. P. Box (1953), Biometrika 40,
+      // 318-335, on the non-robustness of variance tests; from memory), so the recent variance gets
+      // the chi-square degrees of freedom 2 / that, kappa from the stored block means.
+      const kappa = this.blockKurtosis();
+      const recentDof = 2 / (2 / (RECENT_BLOCKS - 1) + kappa / RECENT_BLOCKS);
       const test = varianceChangeTest(
-        { longRunVariance: recent * blockSize, dof: RECENT_BLOCKS - 1 },
+        { longRunVariance: recent * blockSize, dof: recentDof },
         { longRunVariance, dof: Math.max(1, this.settings.longRunDof) },
         this.thresholds.varianceAlpha,
       );
@@ -264,13 +280,39 @@ export class StationarityMonitor {
     this.history[this.historyLength++] = mean;
   }
 
-  private recentVariance(): number {
+  /** Excess kurtosis of the stored block means (0 when they look normal or are too few), clipped to [0, 20]. */
+  private blockKurtosis(): number {
+    const k = this.historyLength;
+    if (k < 32) return 0;
+    let mean = 0;
+    for (let i = 0; i < k; i++) mean += this.history[i] as number;
+    mean /= k;
+    let m2 = 0;
+    let m4 = 0;
+    for (let i = 0; i < k; i++) {
+      const d = (this.history[i] as number) - mean;
+      m2 += d * d;
+      m4 += d * d * d * d;
+    }
+    m2 /= k;
+    m4 /= k;
+    if (!(m2 > 0)) return 0;
+    return Math.max(0, Math.min(20, m4 / (m2 * m2) - 3));
+  }
+
+  /**
+   * Sample variance of the last RECENT_BLOCKS block means, each deviation winsorised at Z_CLIP
+   * sigma_b (as the CUSUM's input is): a single wild block cannot fake a change of noise, while a
+   * real increase shows in most blocks.
+   */
+  private recentVariance(sigmaBlock: number): number {
     let sum = 0;
     const from = this.historyLength - RECENT_BLOCKS;
     for (let i = from; i < this.historyLength; i++) sum += this.history[i] as number;
     const m = sum / RECENT_BLOCKS;
+    const clip = Z_CLIP * sigmaBlock;
     let squares = 0;
-    for (let i = from; i < this.historyLength; i++) squares += ((this.history[i] as number) - m) ** 2;
+    for (let i = from; i < this.historyLength; i++) squares += Math.min(clip, Math.abs((this.history[i] as number) - m)) ** 2;
     return squares / (RECENT_BLOCKS - 1);
   }
 
@@ -396,6 +438,8 @@ export class StationarityMonitor {
   }
 }
 
+/** Winsorisation of the standardised block means fed to the CUSUM. */
+const Z_CLIP = 3;
 /** Log-likelihood lead a reclassification needs to change a break's cause (a likelihood ratio of e^2). */
 const REVISE_MARGIN = 2;
 /** Log-likelihood head start of the step model in classification (about one block's worth of evidence). */

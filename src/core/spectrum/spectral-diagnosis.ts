@@ -94,3 +94,17 @@ export function removeLines(gamma: ArrayLike<number>, n: number, lines: readonly
   }
   return out;
 }
+
+/**
+ * Variance a spectral line adds to the mean of `blockSize` consecutive samples, for a random phase:
+ * (A^2 / 2) (sin(w b / 2) / (b sin(w / 2)))^2 (the Fejer kernel at the line's frequency). O(lines).
+ */
+export function linesBlockVariance(lines: readonly SpectralLine[], blockSize: number): number {
+  let total = 0;
+  for (const line of lines) {
+    const w = line.frequency;
+    const ratio = Math.sin((w * blockSize) / 2) / (blockSize * Math.sin(w / 2));
+    total += ((line.amplitude * line.amplitude) / 2) * ratio * ratio;
+  }
+  return total;
+}

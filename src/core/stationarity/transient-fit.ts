@@ -206,8 +206,10 @@ export function samplesUntilBelow(fit: TransientFit, at: number, level: number):
   return Math.max(0, Math.ceil(reached - at));
 }
 
+const BREAK_MARGIN = 10;
+
 /**
- * Whether a decaying warm-up from the start of the record explains it at least as well as a break:
+ * Whether a decaying warm-up from the start of the record explains it about as well as a break:
  * a step at some block c, or a ramp from block c on, each fitted to the same block means by least
  * squares (three parameters each, like the exponential, so their residual sums compare directly;
  * the profile-likelihood comparison of stationarity-monitor.ts classify). A ramp that starts in the
@@ -252,7 +254,9 @@ export function warmupExplains(fit: TransientFit): boolean {
       rampAt = c;
     }
   }
-  const slack = 2 * fit.blockVariance;
-  if (fit.rss <= Math.min(stepRss, rampRss) + slack) return true;
+  // A break has to fit decisively better (BREAK_MARGIN block variances: a log-likelihood lead of 5)
+  // for the record not to count as a warm-up: a weak warm-up and a step fitted to the same noise
+  // trade places at random, while a real late step or drift wins by far.
+  if (fit.rss <= Math.min(stepRss, rampRss) + BREAK_MARGIN * fit.blockVariance) return true;
   return rampRss <= stepRss && rampAt < K / 4;
 }

@@ -164,3 +164,30 @@ export function autoregressiveSpectrumOfValues(values: ArrayLike<number>): TauEs
   squares = (gamma[0] as number) * m;
   return autoregressiveSpectrum(gamma, m, squares / (m - 1));
 }
+
+/**
+ * Variance of the mean of `blockSize` consecutive samples under the fitted autoregression:
+ * (1 / b^2) [b gamma_0 + 2 sum_(k=1..b-1) (b - k) gamma_k], with gamma_0..gamma_p those the
+ * Yule-Walker fit reproduces (the sample values) and gamma_k = sum_j phi_j gamma_(k-j) beyond
+ * (the model's own autocovariance; Brockwell & Davis (1991), section 3.3; from memory). For b much
+ * longer than the correlation it tends to S(0) / b; for a short block, or a damped oscillation whose
+ * first lobe outweighs the rest, it differs from S(0) / b, which is what a monitor of block means
+ * must be scaled by. Cost: O(b p).
+ */
+export function blockMeanVariance(gamma: ArrayLike<number>, fit: ArFit, blockSize: number): number {
+  const b = Math.max(1, Math.floor(blockSize));
+  const p = fit.order;
+  const model = new Float64Array(b);
+  for (let k = 0; k < b; k++) {
+    if (k <= p && k < gamma.length) {
+      model[k] = gamma[k] as number;
+      continue;
+    }
+    let value = 0;
+    for (let j = 1; j <= p; j++) value += (fit.coefficients[j - 1] as number) * (model[k - j] as number);
+    model[k] = value;
+  }
+  let total = b * (model[0] as number);
+  for (let k = 1; k < b; k++) total += 2 * (b - k) * (model[k] as number);
+  return Math.max(total / (b * b), 0);
+}
