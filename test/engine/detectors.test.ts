@@ -74,16 +74,19 @@ describe('stationarity detectors', () => {
     expect(right).toBeGreaterThanOrEqual(9);
   });
 
-  it('a variance change is detected as such (10 seeds, white noise doubling its spread)', () => {
+  it('a variance change is named as such once what follows it is in view (10 seeds, white noise doubling its spread)', () => {
     let right = 0;
     for (let seed = 0; seed < 10; seed++) {
       const x = ar1Series(new SeededRandom(900 + seed), 0, 80_000).map((v, i) => (i >= 60_000 ? 2 * v : v));
-      const loss = firstLossAfter(runStream(x).events, 60_000);
+      const { events } = runStream(x);
+      const loss = firstLossAfter(events, 59_000);
       expect(loss).toBeDefined();
-      expect(Math.abs(loss!.changePoint - 60_000)).toBeLessThan(2000);
-      if (loss!.cause === 'variance') right++;
+      expect(loss!.at - 60_000).toBeLessThan(5000);
+      const final = finalCause(events, loss!);
+      expect(Math.abs(final.changePoint - 60_000)).toBeLessThan(2000);
+      if (final.cause === 'variance') right++;
     }
-    expect(right).toBeGreaterThanOrEqual(7);
+    expect(right).toBeGreaterThanOrEqual(9);
   });
 
   for (const budget of [1e6, 1e8]) {
@@ -137,13 +140,10 @@ describe('stationarity detectors', () => {
     const { events, pipeline } = runStream(x);
     const changes = events.filter((e) => e.kind === 'stationarity-lost' || e.kind === 'stationarity-regained');
     expect(changes.length).toBeLessThanOrEqual(6);
-    const regains = changes.filter((e) => e.kind === 'stationarity-regained');
-    const losses = changes.filter((e) => e.kind === 'stationarity-lost') as Extract<ChannelEvent, { kind: 'stationarity-lost' }>[];
-    for (let i = 1; i < regains.length; i++) {
-      const previousSpan = (regains[i - 1] as ChannelEvent).at - (losses[i - 1] as ChannelEvent).at;
-      const span = (regains[i] as ChannelEvent).at - (losses[i] as ChannelEvent).at;
-      expect(span).toBeGreaterThan(previousSpan);
-    }
+    // Each loss in a streak doubles the effective samples of the new level the next regain needs
+    // (200, 400, ...; tau_int = 3 at phi = 0.5), counted from where the kept part begins.
+    const regains = changes.filter((e) => e.kind === 'stationarity-regained') as Extract<ChannelEvent, { kind: 'stationarity-regained' }>[];
+    regains.forEach((regain, i) => expect(regain.at - regain.warmupEnd).toBeGreaterThanOrEqual(200 * 2 ** i * 3 * 0.8));
     expect(changes.at(-1)?.kind).toBe('stationarity-lost');
     expect(pipeline.state).toBe('unsteady');
   });
