@@ -4,7 +4,7 @@
 // Run: npm run bench:verdict   (SEEDS=20 by default)
 import { ChannelPipeline } from '../dist/engine/channel-pipeline.js';
 import { DEFAULT_CHANNEL_OPTIONS } from '../dist/engine/channel-options.js';
-import { warmupFamilies, warmupSeries, transientMean } from './verdict-families.js';
+import { warmupFamilies, warmupSeries, transientMean } from '../dist/sim/warmup-families.js';
 import { header, line } from './harness.js';
 
 const SEEDS = Number(process.env.SEEDS ?? 20);
@@ -26,7 +26,7 @@ export function runWarmup(family, seed) {
   return {
     steadyBy60: steadySince >= 0 && steadySince <= 0.6 * family.N,
     steadyAtEnd: s.state === 'steady' || s.state === 'precise',
-    within: (s.state === 'steady' || s.state === 'precise') && s.expandedUncertainty !== null && Math.abs(s.mean - 10) <= s.expandedUncertainty,
+    within: (s.state === 'steady' || s.state === 'precise') && s.expandedUncertainty !== null && Math.abs(s.mean - family.level) <= s.expandedUncertainty,
     widthRatio: s.expandedUncertainty / ((s.coverageFactor ?? 1.96) * uIdeal),
     bias: transientMean(family.A, family.T, start, family.N) / s.expandedUncertainty,
     cut: start / family.N,

@@ -214,8 +214,11 @@ export function recheckTransient(history: BlockHistory, longRunVariance: number,
   // withdraws the verdict; a break is the stationarity monitor's to name.
   if (!warmupExplains(fit)) return undefined;
   const minKept = Math.ceil(MIN_EFFECTIVE * Math.max(1, tauInt));
-  // The declaration's tolerance where it can be had, else the trigger's (hysteresis).
-  const start = admissibleStart(fit, firstIndex, next, BIAS_TOLERANCE, minKept) ?? admissibleStart(fit, firstIndex, next, Math.max(trigger, BIAS_TOLERANCE), minKept);
+  const level = Math.max(trigger, BIAS_TOLERANCE);
+  // The declaration's tolerance where it can be had, else the trigger's; and before the verdict is
+  // withdrawn, the fastest decay the record still allows (hysteresis: a young fit overstates its
+  // time constant as often as not, and a withdrawal should rest on more than that).
+  const start = admissibleStart(fit, firstIndex, next, BIAS_TOLERANCE, minKept) ?? admissibleStart(fit, firstIndex, next, level, minKept) ?? admissibleStart(fit, firstIndex, next, level, minKept, 'fastest');
   return { start, fit };
 }
 

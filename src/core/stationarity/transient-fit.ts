@@ -68,6 +68,8 @@ export interface TransientFit {
    * its amplitude: a slow tail that a young record cannot rule out yet.
    */
   slowest: { timeConstant: number; amplitude: number };
+  /** The shortest time constant still consistent with the record, likewise, and its amplitude. */
+  fastest: { timeConstant: number; amplitude: number };
 }
 
 export interface TransientFitInput {
@@ -147,7 +149,12 @@ export function fitTransient(input: TransientFitInput): TransientFit | null {
   const blockVariance = Math.min(sigma2, Math.max(residualVariance, Number.MIN_VALUE));
   const improvement = (rss0 - best.rss) / blockVariance;
   let slowest = { timeConstant: best.T, amplitude: best.A };
-  for (const point of profile) if (point.T > slowest.timeConstant && point.rss <= best.rss + 3.84 * blockVariance) slowest = { timeConstant: point.T, amplitude: point.A };
+  let fastest = { timeConstant: best.T, amplitude: best.A };
+  for (const point of profile) {
+    if (point.rss > best.rss + 3.84 * blockVariance) continue;
+    if (point.T > slowest.timeConstant) slowest = { timeConstant: point.T, amplitude: point.A };
+    if (point.T < fastest.timeConstant) fastest = { timeConstant: point.T, amplitude: point.A };
+  }
   return {
     significant: improvement > (input.threshold ?? DEFAULT_THRESHOLD),
     improvement,
@@ -163,17 +170,18 @@ export function fitTransient(input: TransientFitInput): TransientFit | null {
     longRunVariance: blockVariance * b,
     means: y,
     slowest,
+    fastest,
   };
 }
 
 /**
  * The fitted transient's mean over samples [from, to) (absolute indices): the bias it leaves there;
- * with `slowest`, that of the slowest transient the record is still consistent with.
+ * or that of the slowest or the fastest transient the record is still consistent with.
  */
-export function transientBias(fit: TransientFit, from: number, to: number, slowest = false): number {
+export function transientBias(fit: TransientFit, from: number, to: number, which: 'best' | 'slowest' | 'fastest' = 'best'): number {
   if (to <= from) return 0;
-  const T = slowest ? fit.slowest.timeConstant : fit.timeConstant;
-  const amplitude = slowest ? fit.slowest.amplitude : fit.amplitude;
+  const T = which === 'best' ? fit.timeConstant : fit[which].timeConstant;
+  const amplitude = which === 'best' ? fit.amplitude : fit[which].amplitude;
   const a = Math.max(0, from - fit.origin);
   const length = to - from;
   // sum_(t = a .. a + length - 1) exp(-t / T) = exp(-a / T) (1 - exp(-length / T)) / (1 - exp(-1 / T))
@@ -186,10 +194,10 @@ export function transientBias(fit: TransientFit, from: number, to: number, slowe
  * transient bias of at most `tolerance` times its standard uncertainty sqrt(S(0) / kept); null when
  * none does (the transient still dominates: not steady yet).
  */
-export function admissibleStart(fit: TransientFit, from: number, to: number, tolerance: number, minKept: number, longRunVariance = fit.longRunVariance): number | null {
+export function admissibleStart(fit: TransientFit, from: number, to: number, tolerance: number, minKept: number, which: 'best' | 'slowest' | 'fastest' = 'best'): number | null {
   const step = Math.max(1, Math.floor(fit.blockSize / 4));
   for (let c = from; c <= to - minKept; c += step) {
-    if (Math.abs(transientBias(fit, c, to)) <= tolerance * Math.sqrt(longRunVariance / (to - c))) return c;
+    if (Math.abs(transientBias(fit, c, to, which)) <= tolerance * Math.sqrt(fit.longRunVariance / (to - c))) return c;
   }
   return null;
 }
