@@ -153,7 +153,7 @@ const PRECISION_REARM = 1.1;
 /** Smallest periodogram segment the spectral diagnosis runs on. */
 const DIAGNOSIS_SEGMENT = 512;
 /** The diagnosis is refreshed after this many segments of new samples (or when the segment grows). */
-const DIAGNOSIS_REFRESH_SEGMENTS = 4;
+const DIAGNOSIS_REFRESH_SEGMENTS = 0.5;
 /** Version of the saved state below; a checkpoint of another version is replayed from samples. */
 export const PIPELINE_STATE_VERSION = 2;
 
@@ -581,12 +581,13 @@ export class ChannelPipeline {
       this.nextDiagnosis = index + Math.max(64, DIAGNOSIS_SEGMENT - n);
       return;
     }
-    const periodogram = SHARED_PERIODOGRAM.compute(this.series.values());
-    this.diagnosis = periodogram ? diagnoseSpectrum(periodogram, this.series.autocovariance(), n, this.series.variance) : null;
+    const values = this.series.values();
+    const periodogram = SHARED_PERIODOGRAM.compute(values);
+    this.diagnosis = periodogram ? diagnoseSpectrum(periodogram, this.series.autocovariance(), n, this.series.variance, values) : null;
     this.snapshotCache = null;
     // Next: when the window reaches the next power of two, or after a few segments of new samples.
     const grows = segment < MAX_SEGMENT ? Math.max(1, 2 * segment - n) : Number.POSITIVE_INFINITY;
-    this.nextDiagnosis = index + Math.min(grows, DIAGNOSIS_REFRESH_SEGMENTS * segment);
+    this.nextDiagnosis = index + Math.max(1, Math.min(grows, Math.floor(DIAGNOSIS_REFRESH_SEGMENTS * segment)));
   }
 
   /** The window was cut: the diagnosis of the samples that left must not outlive them. */

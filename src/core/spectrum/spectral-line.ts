@@ -11,8 +11,9 @@ import type { Periodogram } from './periodogram.js';
  *   P(g > x) = sum_(k = 1 .. floor(1/x)) (-1)^(k-1) C(m, k) (1 - k x)^(m-1).
  * Fisher's null is white noise. A rig's noise is coloured (its spectrum falls away from zero
  * frequency), so the ordinates are first divided by a smooth background that one line moves little:
- * the geometric mean of the ordinates within +/- K_j of ordinate j, times exp(Euler's gamma) (the
- * mean of ln Exp(1) is -gamma), with K_j = j / 2 clamped to [4, 32] so the window stays centred
+ * the geometric mean of the ordinates within +/- K_j of ordinate j (leaving out the two on each side
+ * of it), times exp(Euler's gamma) (the mean of ln Exp(1) is -gamma), with K_j = j / 2 clamped to
+ * [4, 32] so the window stays centred
  * and narrow where a red spectrum is steep (our choice, in the spirit of the prewhitening used in
  * practice). Ordinates below FIRST_CANDIDATE (fewer than 8 cycles in the segment) are not
  * candidates: a cycle that long is not averaged out in the window, it is a slow wander, which the
@@ -35,6 +36,9 @@ export interface SpectralLine {
   g: number;
   /** P(g >= observed) under the null of no line. */
   pValue: number;
+  /** After refinement on a window: x_t ~ mean + cosine cos(w t) + sine sin(w t), t the window index. */
+  cosine?: number;
+  sine?: number;
 }
 
 /** Largest half-width of the background window. */
@@ -94,18 +98,29 @@ export function findSpectralLine(periodogram: Periodogram, alpha = 1e-4): Spectr
   return { frequency, period: (2 * Math.PI) / frequency, amplitude, g, pValue };
 }
 
-/** The local background of every ordinate: exp(gamma) times the geometric mean over +/- K_j. O(m). */
+/**
+ * The local background of every ordinate: exp(gamma) times the geometric mean of the ordinates
+ * within +/- K_j of it, leaving out the GAP ordinates on each side of it (a line between two Fourier
+ * frequencies spreads over its neighbours, which must not raise its own background). O(m).
+ */
 export function smoothBackground(ordinates: Float64Array): Float64Array {
   const m = ordinates.length;
   const prefix = new Float64Array(m + 1);
   for (let i = 0; i < m; i++) prefix[i + 1] = (prefix[i] as number) + Math.log(Math.max(ordinates[i] as number, Number.MIN_VALUE));
+  const sum = (from: number, to: number) => (to < from ? 0 : (prefix[to + 1] as number) - (prefix[from] as number));
   const out = new Float64Array(m);
   for (let i = 0; i < m; i++) {
     const j = i + 1;
-    const half = Math.max(4, Math.min(BACKGROUND_HALF_WIDTH, Math.floor(j / 2)));
+    const half = Math.max(4, Math.min(BACKGROUND_HALF_WIDTH, Math.floor(j / 2))) + GAP;
     const from = Math.max(0, i - half);
     const to = Math.min(m - 1, i + half);
-    out[i] = Math.exp(((prefix[to + 1] as number) - (prefix[from] as number)) / (to - from + 1) + EULER_GAMMA);
+    const innerFrom = Math.max(from, i - GAP);
+    const innerTo = Math.min(to, i + GAP);
+    const count = to - from + 1 - (innerTo - innerFrom + 1);
+    out[i] = Math.exp((sum(from, to) - sum(innerFrom, innerTo)) / Math.max(1, count) + EULER_GAMMA);
   }
   return out;
 }
+
+/** Ordinates on each side of a candidate left out of its background. */
+const GAP = 2;

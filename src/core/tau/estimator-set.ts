@@ -1,7 +1,7 @@
 import type { WindowedSeries } from '../window/windowed-series.js';
 import type { PyramidLevelStats } from '../window/block-pyramid.js';
 import { AutocovarianceFft } from '../acf/autocovariance-fft.js';
-import { type EstimatorName, type MethodEstimatorName, type TauEstimate } from './tau-estimate.js';
+import { type EstimatorName, type MethodEstimatorName, type TauEstimate, tauFloor } from './tau-estimate.js';
 import { sokalWindow } from './sokal-window.js';
 import { geyerMonotone } from './geyer-monotone.js';
 import { blocking, batchMeans, independentSamples } from './blocking.js';
@@ -84,6 +84,15 @@ export class EstimatorSet {
       return { estimate, reason: `long memory (Hurst exponent ${memory.hurst.toFixed(2)} +/- ${memory.standardError.toFixed(2)}): Beran's n^(2H-2) law` };
     }
     const lines = diagnosis?.lines ?? [];
+    const noise = diagnosis?.lineFreeNoise;
+    if (lines.length > 0 && noise) {
+      // The noise under the lines, fitted on the samples with the sinusoids subtracted (the
+      // diagnosis'); S(0) is a property of the process, so it holds for the window as it grows.
+      const tauInt = Math.max(noise.spectrumAtZero / variance, tauFloor(n));
+      const estimate: TauEstimate = { method: 'ar', tauInt, varianceOfMean: (variance * tauInt) / n, dof: Math.max(1, Math.min(n - 1, 2 / noise.logSpectrumVariance)), window: noise.order, reliable: n >= 50 * tauInt, ...(n >= 50 * tauInt ? {} : { note: `window shorter than 50 tau_int (n = ${n}, tau_int = ${tauInt.toPrecision(3)})` }) };
+      const periods = lines.map((line) => line.period.toFixed(1)).join(', ');
+      return { estimate, reason: `autoregressive spectrum at zero of the samples with ${lines.length === 1 ? 'a periodic component' : `${lines.length} periodic components`} (period ${periods} samples) subtracted` };
+    }
     if (lines.length > 0) {
       const estimate = autoregressiveSpectrum(removeLines(gamma, n, lines), n, variance);
       const periods = lines.map((line) => line.period.toFixed(1)).join(', ');
