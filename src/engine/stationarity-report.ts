@@ -6,8 +6,6 @@ import { CAO_RHINEHART_CRITICAL_VALUE } from '../core/stationarity/cao-rhinehart
 import { overlappingAllanDeviation, octaveFactors, averagingLimit, type AllanPoint } from '../core/allan/allan-deviation.js';
 import type { StationarityBreak, StationarityMonitor } from './stationarity-monitor.js';
 import type { WarmupVerdict, TransientSummary } from './warmup-detector.js';
-import { autoregressiveSpectrumOfValues } from '../core/tau/autoregressive-spectrum.js';
-import { linearResiduals } from '../core/stationarity/linear-residuals.js';
 
 /**
  * The steady-state evidence of a snapshot: the engine's verdict and the tests behind it, each with
@@ -92,19 +90,12 @@ export interface AllanReport {
  * Cost: O(n log n).
  */
 /**
- * tau_int of the short-memory part of a window: the autoregressive estimate of its residuals about
- * the least-squares line, so that a drift (which the Allan deviation is there to reveal) does not
- * inflate the hump it is compared beyond. O(n * order).
+ * Log-log slope of the Allan deviation over one octave at which the averaging counts as having
+ * reached the white-noise regime (-1/2 exactly; -0.4 leaves room for the error bars).
  */
-export function shortMemoryTau(values: Float64Array): number {
-  if (values.length < 16) return 1;
-  return Math.max(1, autoregressiveSpectrumOfValues(linearResiduals(values, true).residuals).tauInt);
-}
+const WHITE_SLOPE = -0.4;
 
-/** Octaves shorter than this many tau_int are on the short-memory hump, not candidates for a floor. */
-const HUMP_TAUS = 8;
-
-export function allanReport(values: Float64Array, rate: number | null, tauInt = shortMemoryTau(values)): AllanReport {
+export function allanReport(values: Float64Array, rate: number | null): AllanReport {
   if (values.length < 4) return { points: [], averagingLimit: null };
   const points = overlappingAllanDeviation(values, octaveFactors(values.length), 1);
   const tau0 = rate && rate > 0 ? 1 / rate : null;
@@ -112,19 +103,20 @@ export function allanReport(values: Float64Array, rate: number | null, tauInt = 
   // not yet reached independent samples) and approaches the white-noise fall, 1/sqrt(m), only for m
   // well beyond tau_int; in between it falls more slowly, which a test against the white-noise
   // continuation reads as a floor (it did on ARMA(1,1) about half the time). The limit is sought
-  // only among octaves past the first fall and at least HUMP_TAUS tau_int long (tau_int from the
-  // short-memory part of the window, trend removed), and it must be confirmed by the error bars
-  // (core/allan/allan-deviation.ts averagingLimit).
-  let firstFall = -1;
+  // only after the averaging has been seen to reach the white-noise regime (an octave over which the
+  // deviation falls as fast as m^-0.4 or faster), and it must be confirmed by the error bars
+  // (core/allan/allan-deviation.ts averagingLimit). A series that never gets there (a drift that
+  // sets in before its own correlation has averaged out) is not given a limit it cannot support.
+  let white = -1;
   for (let i = 0; i + 1 < points.length; i++) {
-    if ((points[i + 1] as AllanPoint).adev < (points[i] as AllanPoint).adev) {
-      firstFall = i;
+    const slope = Math.log2((points[i + 1] as AllanPoint).adev / (points[i] as AllanPoint).adev);
+    if (slope <= WHITE_SLOPE) {
+      white = i;
       break;
     }
   }
-  const beyondHump = HUMP_TAUS * Math.max(1, tauInt);
   // Octaves with fewer than 16 independent averages carry error bars too wide to name a limit.
-  const candidates = firstFall >= 0 ? points.slice(firstFall).filter((p) => p.m >= beyondHump && p.m <= values.length / 16) : [];
+  const candidates = white >= 0 ? points.slice(white).filter((p) => p.m <= values.length / 16) : [];
   const limit = candidates.length >= 3 ? averagingLimit(candidates) : null;
   return {
     points: points.map((p) => ({ m: p.m, tauSeconds: tau0 === null ? null : p.m * tau0, adev: p.adev, count: p.count, edf: p.edf, low: p.low, high: p.high })),

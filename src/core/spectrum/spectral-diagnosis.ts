@@ -53,7 +53,10 @@ const LONG_MEMORY_SE = 3.5;
 /** Smallest periodogram segment long memory is judged on. */
 export const LONG_MEMORY_SEGMENT = 2048;
 
-export function diagnoseSpectrum(periodogram: Periodogram, gamma: ArrayLike<number>, n: number, variance: number, values?: ArrayLike<number>): SpectralDiagnosis {
+export function diagnoseSpectrum(periodogram: Periodogram, gamma: ArrayLike<number>, n: number, variance: number, windowValues?: Float64Array): SpectralDiagnosis {
+  // Lines are refined, and the noise under them fitted, on the periodogram's own segment (the most
+  // recent samples, at most 65,536): O(segment) per step whatever the window's length.
+  const values = windowValues?.subarray(windowValues.length - periodogram.length);
   const ordinates = periodogram.ordinates.slice();
   const working: Periodogram = { length: periodogram.length, ordinates };
   const lines: SpectralLine[] = [];
@@ -66,7 +69,7 @@ export function diagnoseSpectrum(periodogram: Periodogram, gamma: ArrayLike<numb
     lines.push(line);
   }
   let lineFreeNoise: SpectralDiagnosis['lineFreeNoise'] = null;
-  if (lines.length > 0 && values && lines.every((l) => l.cosine !== undefined)) lineFreeNoise = residualNoise(values, lines, periodogram.length);
+  if (lines.length > 0 && values && lines.every((l) => l.cosine !== undefined)) lineFreeNoise = residualNoise(values, lines);
   const fit = fitAutoregression(lines.length > 0 ? removeLines(gamma, n, lines) : gamma, n, Number.POSITIVE_INFINITY, Math.log(n));
   const coefficients = fit?.coefficients ?? new Float64Array(0);
   const shape = (lambda: number): number => {
@@ -89,11 +92,11 @@ export function diagnoseSpectrum(periodogram: Periodogram, gamma: ArrayLike<numb
   return { segment: periodogram.length, lines, lineFreeNoise, longMemory };
 }
 
-/** The autoregressive S(0) of the last `segment` values with the lines' sinusoids subtracted. O(segment order). */
-function residualNoise(values: ArrayLike<number>, lines: readonly SpectralLine[], segment: number): SpectralDiagnosis['lineFreeNoise'] {
+/** The autoregressive S(0) of the values with the lines' sinusoids subtracted. O(values order). */
+function residualNoise(values: ArrayLike<number>, lines: readonly SpectralLine[]): SpectralDiagnosis['lineFreeNoise'] {
   const n = values.length;
-  const m = Math.min(n, segment);
-  const from = n - m;
+  const m = n;
+  const from = 0;
   let mean = 0;
   for (let t = 0; t < n; t++) mean += values[t] as number;
   mean /= n;
@@ -116,8 +119,8 @@ function residualNoise(values: ArrayLike<number>, lines: readonly SpectralLine[]
 }
 
 /**
- * The line's frequency and amplitude from the whole window rather than the periodogram segment: the
- * frequency maximising |sum (x_t - xbar) e^(-i w t)| within one segment bin of the periodogram's
+ * The line's frequency and amplitude from the segment's samples by least squares rather than from
+ * the periodogram's ordinates: the frequency maximising |sum (x_t - xbar) e^(-i w t)| within one segment bin of the periodogram's
  * estimate (golden section, 24 steps), the amplitude 2 |sum| / n there (least squares for a
  * sinusoid at a known frequency, n much longer than the period). A frequency between two Fourier
  * frequencies leaks into many ordinates, so the periodogram's amplitude falls short by up to a
