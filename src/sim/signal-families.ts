@@ -113,12 +113,7 @@ export function fractionalGaussianNoise(random: SeededRandom, hurst: number, n: 
   let half = 1;
   while (half < n) half *= 2;
   const size = 2 * half;
-  const fft = new FFT(size);
-  const row = fft.createComplexArray() as number[];
-  for (let k = 0; k <= half; k++) row[2 * k] = fgnAutocovariance(hurst, k);
-  for (let k = half + 1; k < size; k++) row[2 * k] = fgnAutocovariance(hurst, size - k);
-  const eigen = fft.createComplexArray() as number[];
-  fft.transform(eigen, row);
+  const { fft, eigen } = circulantEigenvalues(hurst, size);
   const input = fft.createComplexArray() as number[];
   for (let k = 0; k < size; k++) {
     const lambda = Math.max(0, eigen[2 * k] as number);
@@ -131,6 +126,26 @@ export function fractionalGaussianNoise(random: SeededRandom, hurst: number, n: 
   const out = new Float64Array(n);
   for (let i = 0; i < n; i++) out[i] = output[2 * i] as number;
   return out;
+}
+
+/** The embedding's transform and eigenvalues depend only on H and the size: kept for the last few. */
+const EIGEN_CACHE = new Map<string, { fft: FFT; eigen: number[] }>();
+
+function circulantEigenvalues(hurst: number, size: number): { fft: FFT; eigen: number[] } {
+  const key = `${hurst}:${size}`;
+  let entry = EIGEN_CACHE.get(key);
+  if (entry) return entry;
+  const half = size / 2;
+  const fft = new FFT(size);
+  const row = fft.createComplexArray() as number[];
+  for (let k = 0; k <= half; k++) row[2 * k] = fgnAutocovariance(hurst, k);
+  for (let k = half + 1; k < size; k++) row[2 * k] = fgnAutocovariance(hurst, size - k);
+  const eigen = fft.createComplexArray() as number[];
+  fft.transform(eigen, row);
+  entry = { fft, eigen };
+  if (EIGEN_CACHE.size >= 4) EIGEN_CACHE.delete(EIGEN_CACHE.keys().next().value as string);
+  EIGEN_CACHE.set(key, entry);
+  return entry;
 }
 
 /** Readings rounded to a lattice of `step` (an indication's resolution), in place. */

@@ -270,7 +270,8 @@ describe.skipIf(!available)('dashboard in Chromium', () => {
     await page.goto(`${base}#/channel/${encodeURIComponent('hx7.glycol_flow_kg_s')}`);
     for (const id of ['chart-trace', 'chart-acf', 'chart-allan', 'chart-cusum']) await page.locator(`#${id} canvas`).first().waitFor({ timeout: 10_000 });
     await untilText(page.locator('.view-channel .chart-note'), /samples/);
-    await untilText(page.locator('.view-channel'), /τ_int = [\d.]+ samples by geyer, summed over lags 1…\d+/);
+    await untilText(page.locator(".view-channel"), /τ_int = [\d.]+ samples by ar, an autoregression of order \d+/);
+    await untilText(page.locator(".verdict-panel"), /Ready to record|waiting|warm-up|effective-samples|target/);
     await untilText(page.locator('.view-channel [data-field="result"]'), /^[\d.]+ ± [\d.]+ kg\/s$/);
     await untilVisible(page.locator('.view-channel .channel-events li'));
     // The test point restarted this channel's window: the trace shows the samples before it, shaded.

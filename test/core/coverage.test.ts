@@ -66,7 +66,7 @@ describe('coverage of mean +/- U over stationary families (default auto estimato
       expect(result.coverage).toBeGreaterThanOrEqual(0.93);
       expect(result.coverage).toBeLessThanOrEqual(0.97);
       expect(result.longMemory).toBe(0);
-    });
+    }, 240_000);
   });
 
   it('a limit cycle (period 50, amplitude 2) on AR(1) noise: U no wider than 1.3 times the true one, and the cycle is found', () => {
@@ -76,7 +76,7 @@ describe('coverage of mean +/- U over stationary families (default auto estimato
     expect(result.meanU / trueU).toBeLessThanOrEqual(1.3);
     expect(result.coverage).toBeGreaterThanOrEqual(0.93);
     expect(result.lines).toBeGreaterThanOrEqual(0.95 * REPLICATES);
-  });
+  }, 240_000);
 
   it('fractional Gaussian noise (H = 0.8): no tight U; the verdict says the mean has long memory', () => {
     // Var(mean of n) = n^(2H - 2) exactly for unit-variance fractional Gaussian noise (Beran 1994).
@@ -84,5 +84,5 @@ describe('coverage of mean +/- U over stationary families (default auto estimato
     console.log(`coverage fGn H = 0.8, n = 16384: plateau ${result.coverage.toFixed(3)} (Beran's law in ${result.longMemory}), naive ${result.naive.toFixed(3)}; verdict names long memory in ${result.pendingLongMemory} of ${REPLICATES}`);
     expect(result.pendingLongMemory).toBeGreaterThanOrEqual(0.95 * REPLICATES);
     expect(result.coverage).toBeGreaterThanOrEqual(0.9);
-  });
+  }, 240_000);
 });

@@ -34,7 +34,7 @@ describe('stationary records with about 100 effective samples are called steady'
       }
       console.log(`${family.name}: steady in ${steady} of 100`);
       expect(steady).toBeGreaterThanOrEqual(90);
-    });
+    }, 240_000);
   });
 });
 
@@ -61,6 +61,6 @@ describe('false alarms on stationary families at the default budget (one per 10^
       console.log(`${family.name}: ${lost} false alarms in ${((SAMPLES - steadyAt) / 1e6).toFixed(2)} million monitored samples`);
       expect(steadyAt).toBeGreaterThanOrEqual(0);
       expect(lost).toBeLessThanOrEqual(5);
-    });
+    }, 240_000);
   });
 });

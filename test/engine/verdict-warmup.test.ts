@@ -49,6 +49,6 @@ describe('the verdict on exponential warm-ups inside a growing window (20 seeds 
         expect(within, family.name).toBeGreaterThanOrEqual(18);
         expect(narrow, family.name).toBeGreaterThanOrEqual(18);
       }
-    });
+    }, 240_000);
   }
 });
