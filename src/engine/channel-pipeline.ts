@@ -153,7 +153,7 @@ const PRECISION_REARM = 1.1;
 /** Smallest periodogram segment the spectral diagnosis runs on. */
 const DIAGNOSIS_SEGMENT = 512;
 /** The diagnosis is refreshed after this many segments of new samples (or when the segment grows). */
-const DIAGNOSIS_REFRESH_SEGMENTS = 0.5;
+const DIAGNOSIS_REFRESH_SEGMENTS = 4;
 /** Version of the saved state below; a checkpoint of another version is replayed from samples. */
 export const PIPELINE_STATE_VERSION = 2;
 
@@ -176,6 +176,7 @@ export interface ChannelPipelineState {
   nextDiagnosis: number;
   nextReclassify: number;
   breakChangePoint: number;
+  failedChecks: number;
   indicatorBlock: number;
   indicatorSum: number;
   indicatorCount: number;
@@ -253,6 +254,8 @@ export class ChannelPipeline {
   private nextReclassify = -1;
   /** The change point the last break was first classified with. */
   private breakChangePoint = -1;
+  /** Warm-up checks in a row that did not find steady state (a full sliding window backs off). */
+  private failedChecks = 0;
   private diagnosis: SpectralDiagnosis | null = null;
   /** What the last warm-up check is still waiting for (null once steady). */
   private warmupPending: WarmupPending | null = null;
@@ -451,6 +454,7 @@ export class ChannelPipeline {
       nextDiagnosis: this.nextDiagnosis,
       nextReclassify: this.nextReclassify,
       breakChangePoint: this.breakChangePoint,
+      failedChecks: this.failedChecks,
       indicatorBlock: this.indicatorBlock,
       indicatorSum: this.indicatorSum,
       indicatorCount: this.indicatorCount,
@@ -493,6 +497,7 @@ export class ChannelPipeline {
     this.nextDiagnosis = state.nextDiagnosis;
     this.nextReclassify = state.nextReclassify;
     this.breakChangePoint = state.breakChangePoint;
+    this.failedChecks = state.failedChecks;
     this.indicatorBlock = state.indicatorBlock;
     this.indicatorSum = state.indicatorSum;
     this.indicatorCount = state.indicatorCount;
@@ -532,6 +537,7 @@ export class ChannelPipeline {
     this.warmupPending = null;
     this.warmupMethod = null;
     this.transient = null;
+    this.failedChecks = 0;
     this.nextWarmupCheck = this.series.firstIndex + FIRST_CHECK;
     this.indicator.reset();
     this.indicatorSum = 0;
@@ -598,7 +604,12 @@ export class ChannelPipeline {
 
   private checkWarmup(index: number): void {
     const n = this.series.length;
-    this.nextWarmupCheck = index + Math.max(MIN_CHECK_STEP, Math.floor(n / CHECK_DIVISOR));
+    // A growing window's checks thin out as it grows; a full sliding window's would not, so while it
+    // stays not steady they back off (doubling, up to four window lengths apart): a drifting channel
+    // costs no more than a steady one.
+    const backoff = this.growing || n < this.series.maxSamples ? 1 : 2 ** Math.min(6, this.failedChecks);
+    this.nextWarmupCheck = index + Math.max(MIN_CHECK_STEP, Math.floor((n / CHECK_DIVISOR) * backoff));
+    this.failedChecks++;
     // After a break a sliding window waits until the change point has slid out.
     if (this.lastBreak && this.series.firstIndex <= this.lastBreak.changePoint && !this.growing) {
       this.warmupPending = { condition: 'warm-up', message: 'waiting for the break to slide out of the window', samplesToGo: this.lastBreak.changePoint - this.series.firstIndex + 1 };
@@ -639,6 +650,7 @@ export class ChannelPipeline {
     if (this.nextReclassify >= 0 && this.lostBefore) this.reclassifyBreak(index);
     this.warmupEnd = end;
     this.phase = 'steady';
+    this.failedChecks = 0;
     this.nextReclassify = -1;
     this.startMonitor(index);
     const excluded = this.excluded;
@@ -689,9 +701,11 @@ export class ChannelPipeline {
     const needed = REGAIN_EFFECTIVE * 2 ** Math.min(10, this.lossStreak - 1);
     const have = kept.length / tau;
     if (have < needed) return { condition: 'effective-samples', message: `after the break: ${Math.floor(have)} effective samples of the new level, ${needed} needed to regain steady state`, samplesToGo: Math.ceil((needed - have) * tau) };
-    // A stretch shorter than twice the time the last break took to show cannot rule it out.
-    const delay = this.lastBreak ? this.lastBreakAt - this.lastBreak.changePoint : 0;
-    if (kept.length < 2 * delay) return { condition: 'effective-samples', message: 'after the break: the new level must last twice as long as the break took to show', samplesToGo: 2 * delay - kept.length };
+    // A stretch shorter than twice the time the last break took to show cannot rule it out (a
+    // sliding window asks at most half its length).
+    const delay = this.lastBreak ? this.lastBreakAt - this.breakChangePoint : 0;
+    const wanted = this.growing ? 2 * delay : Math.min(2 * delay, this.series.maxSamples / 2);
+    if (kept.length < wanted) return { condition: 'effective-samples', message: 'after the break: the new level must last twice as long as the break took to show', samplesToGo: Math.ceil(wanted - kept.length) };
     const blockSize = Math.max(4, Math.ceil(MONITOR_BLOCK_TAUS * tau));
     const blocks = Math.floor(kept.length / blockSize);
     if (blocks < 8) return { condition: 'effective-samples', message: 'after the break: too few blocks to check for a trend', samplesToGo: (8 - blocks) * blockSize };

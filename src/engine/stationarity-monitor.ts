@@ -155,13 +155,13 @@ export class StationarityMonitor {
 
   /**
    * Updates the long-run variance (and its dof) as the estimate improves, during the reference
-   * period only (the first REFERENCE_BLOCKS blocks, longer while the estimate has fewer than 200
-   * degrees of freedom): later, a slow drift would inflate the estimate and hide itself. The block
-   * size stays.
+   * period only (the first REFERENCE_BLOCKS blocks, up to four times longer while the estimate has
+   * fewer than 200 degrees of freedom: a sliding window's estimate may never get there): later, a
+   * slow drift would inflate the estimate and hide itself. The block size stays.
    */
   /** Whether the long-run variance is still being refined (the reference period). */
   get refining(): boolean {
-    return this.blocks < REFERENCE_BLOCKS || this.settings.longRunDof < 200;
+    return this.blocks < REFERENCE_BLOCKS || (this.settings.longRunDof < 200 && this.blocks < 4 * REFERENCE_BLOCKS);
   }
 
   refresh(longRunVariance: number, longRunDof: number): void {

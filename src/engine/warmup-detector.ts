@@ -114,25 +114,36 @@ export function detectWarmup(input: WarmupInput): WarmupVerdict {
     return confirmCount(values.subarray(Math.max(0, start - firstIndex)), Math.max(firstIndex, start), firstIndex, 'fixed', `fixed warm-up of ${setting.samples} samples`, none);
   }
 
-  const whole = heidelbergerWelch(values);
-  const secondHalf = whole.secondHalfSpectrum;
-  const tail = values.subarray(n >> 1);
-  const tailVariance = variance(tail);
-  const s0 = secondHalf !== null && secondHalf > 0 ? secondHalf : tailVariance;
-  const tau = tailVariance > 0 ? Math.max(1, s0 / tailVariance) : 1;
   const history = input.history;
   // The fit takes the same noise estimate as the steady window's recheck (recheckTransient), so the
-  // two cannot disagree about one record and flap.
+  // two cannot disagree about one record and flap. It is cheap (the history's blocks): it runs
+  // first, and the tests over the window's samples only where it leaves the question open.
   const fit = fitTransient({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance: input.noise.longRunVariance, tauInt: input.noise.tauInt });
   const transient = fit ? summary(fit) : null;
   const needed = MIN_EFFECTIVE;
-  const minKept = Math.ceil(needed * tau);
+  let tau = Math.max(1, input.noise.tauInt);
+  let minKept = Math.ceil(needed * tau);
   if (!fit) {
     // Too short a record to fit a warm-up (fewer than MIN_FIT_BLOCKS blocks of 4 tau_int): a slow
     // transient cannot be told from correlated noise yet, so steady state is not declared.
-    const needed = MIN_FIT_BLOCKS * Math.max(history.blockSize, Math.ceil(4 * tau));
-    const toGo = Math.max(1, needed - history.length);
-    return { ...none, heidelbergerWelch: whole, steady: false, start: firstIndex, method: 'transient-fit', reason: 'too short to check for a warm-up', pending: { condition: 'effective-samples', message: `the record is too short to tell a warm-up from correlated noise: about ${formatSamples(toGo)} more samples`, samplesToGo: toGo } };
+    const toGo = Math.max(1, MIN_FIT_BLOCKS * Math.max(history.blockSize, Math.ceil(4 * tau)) - history.length);
+    return { ...none, steady: false, start: firstIndex, method: 'transient-fit', reason: 'too short to check for a warm-up', pending: { condition: 'effective-samples', message: `the record is too short to tell a warm-up from correlated noise: about ${formatSamples(toGo)} more samples`, samplesToGo: toGo } };
+  }
+  let whole: HeidelbergerWelchResult | null = null;
+  if (fit.significant) {
+    // The window's own tau_int is inflated by the transient it holds; the fit's noise (its residual
+    // S(0)) over the second half's spread gives the steady noise's.
+    const tailVariance = variance(values.subarray(n >> 1));
+    if (tailVariance > 0) tau = Math.max(1, Math.min(tau, fit.longRunVariance / tailVariance));
+    minKept = Math.ceil(needed * tau);
+  } else {
+    whole = heidelbergerWelch(values);
+    // tau_int for MSER's batches and the kept part from the second half, where a warm-up has
+    // usually ended.
+    const tailVariance = variance(values.subarray(n >> 1));
+    const s0 = whole.secondHalfSpectrum !== null && whole.secondHalfSpectrum > 0 ? whole.secondHalfSpectrum : tailVariance;
+    tau = tailVariance > 0 ? Math.max(1, s0 / tailVariance) : 1;
+    minKept = Math.ceil(needed * tau);
   }
   let start: number;
   let method: WarmupVerdict['method'];
@@ -143,32 +154,32 @@ export function detectWarmup(input: WarmupInput): WarmupVerdict {
     if (admissible === null) {
       if (!fit.decays) {
         return {
-          ...none, transient, heidelbergerWelch: whole, steady: false, start: firstIndex, method: 'transient-fit', reason: 'the level is still moving',
+          ...none, transient, heidelbergerWelch: whole ?? null, steady: false, start: firstIndex, method: 'transient-fit', reason: 'the level is still moving',
           pending: { condition: 'warm-up', message: `the level is still moving across the whole record (fitted time constant ${formatSamples(fit.timeConstant)} samples, longer than a third of the record)`, samplesToGo: null },
         };
       }
       const toGo = samplesUntilAdmissible(fit, firstIndex, next, minKept);
       return {
-        ...none, transient, heidelbergerWelch: whole, steady: false, start: firstIndex, method: 'transient-fit', reason: 'warm-up still decaying',
+        ...none, transient, heidelbergerWelch: whole ?? null, steady: false, start: firstIndex, method: 'transient-fit', reason: 'warm-up still decaying',
         pending: { condition: 'warm-up', message: `warm-up still decaying (time constant about ${formatSamples(fit.timeConstant)} samples)${toGo === null ? '' : `: about ${formatSamples(toGo)} more samples`}`, samplesToGo: toGo },
       };
     }
     if (!input.growing && admissible > firstIndex) {
-      return { ...none, transient, heidelbergerWelch: whole, steady: false, start: admissible, method: 'transient-fit', reason: 'warm-up still in the sliding window', pending: { condition: 'warm-up', message: `the warm-up slides out of the window in about ${formatSamples(admissible - firstIndex)} samples`, samplesToGo: admissible - firstIndex } };
+      return { ...none, transient, heidelbergerWelch: whole ?? null, steady: false, start: admissible, method: 'transient-fit', reason: 'warm-up still in the sliding window', pending: { condition: 'warm-up', message: `the warm-up slides out of the window in about ${formatSamples(admissible - firstIndex)} samples`, samplesToGo: admissible - firstIndex } };
     }
     start = admissible;
     method = 'transient-fit';
     reason = `warm-up fitted (time constant about ${formatSamples(fit.timeConstant)} samples); the rest of it biases the mean by at most ${BIAS_TOLERANCE} u`;
-  } else if (whole.stationary && whole.startIndex === 0) {
+  } else if (whole?.stationary && whole.startIndex === 0) {
     start = firstIndex;
     method = 'whole-window';
     reason = 'Heidelberger-Welch: stationary from the first sample';
   } else {
     const batch = batchSizeFromTau(tau);
-    if (n < 10 * batch) return { ...none, transient, heidelbergerWelch: whole, steady: false, start: firstIndex, method: 'mser', reason: 'too short to place the end of the warm-up', pending: { condition: 'warm-up', message: `not stationary yet; ${10 * batch - n} more samples before the end of the warm-up can be placed`, samplesToGo: 10 * batch - n } };
+    if (n < 10 * batch) return { ...none, transient, heidelbergerWelch: whole ?? null, steady: false, start: firstIndex, method: 'mser', reason: 'too short to place the end of the warm-up', pending: { condition: 'warm-up', message: `not stationary yet; ${10 * batch - n} more samples before the end of the warm-up can be placed`, samplesToGo: 10 * batch - n } };
     proposal = mser(values, batch);
-    if (proposal.tooShort) return { ...none, transient, heidelbergerWelch: whole, mser: proposal, steady: false, start: firstIndex, method: 'mser', reason: 'MSER: the run is too short to place the end of the warm-up', pending: { condition: 'warm-up', message: 'not stationary yet: the end of the warm-up is not in sight', samplesToGo: null } };
-    if (!input.growing && proposal.truncation > 0) return { ...none, transient, heidelbergerWelch: whole, mser: proposal, steady: false, start: firstIndex + proposal.truncation, method: 'mser', reason: 'warm-up still in the sliding window', pending: { condition: 'warm-up', message: `the warm-up slides out of the window in about ${formatSamples(proposal.truncation)} samples`, samplesToGo: proposal.truncation } };
+    if (proposal.tooShort) return { ...none, transient, heidelbergerWelch: whole ?? null, mser: proposal, steady: false, start: firstIndex, method: 'mser', reason: 'MSER: the run is too short to place the end of the warm-up', pending: { condition: 'warm-up', message: 'not stationary yet: the end of the warm-up is not in sight', samplesToGo: null } };
+    if (!input.growing && proposal.truncation > 0) return { ...none, transient, heidelbergerWelch: whole ?? null, mser: proposal, steady: false, start: firstIndex + proposal.truncation, method: 'mser', reason: 'warm-up still in the sliding window', pending: { condition: 'warm-up', message: `the warm-up slides out of the window in about ${formatSamples(proposal.truncation)} samples`, samplesToGo: proposal.truncation } };
     start = firstIndex + proposal.truncation;
     method = 'mser';
     reason = 'MSER truncation';
@@ -176,7 +187,7 @@ export function detectWarmup(input: WarmupInput): WarmupVerdict {
   const kept = values.subarray(start - firstIndex);
   const keptEstimate = autoregressiveSpectrumOfValues(kept);
   const effective = kept.length / Math.max(keptEstimate.tauInt, 1e-12);
-  const base = { transient, heidelbergerWelch: whole, mser: proposal, effectiveSamples: effective };
+  const base = { transient, heidelbergerWelch: whole ?? null, mser: proposal, effectiveSamples: effective };
   if (effective < needed) {
     const toGo = Math.ceil((needed - effective) * Math.max(1, keptEstimate.tauInt));
     return { ...base, steady: false, start, method, reason, pending: { condition: 'effective-samples', message: `${Math.floor(effective)} effective samples after the warm-up, ${Math.round(needed)} needed to confirm steady state (about ${formatSamples(toGo)} more samples)`, samplesToGo: toGo } };

@@ -58,6 +58,11 @@ export class WindowedSeries {
   /** Absolute index the next sample will get. */
   nextIndex = 0;
   private removalsSinceRebuild = 0;
+  /** The last autocovariance computed without a buffer, and the window it was computed for. */
+  private cachedAcf: Float64Array | null = null;
+  private cachedAcfFirst = -1;
+  private cachedAcfNext = -1;
+  private cachedAcfLags = -1;
   private nextAnchorCheck = 16;
   /** Largest |shifted value| that entered the sums since the last rebuild. */
   private pollution = 0;
@@ -132,6 +137,7 @@ export class WindowedSeries {
 
   /** Removes every sample; the next one starts a new window at the next absolute index. */
   clear(): void {
+    this.cachedAcf = null;
     this.ring.clear();
     this.moments.reset();
     this.lags.reset();
@@ -158,8 +164,23 @@ export class WindowedSeries {
     return this.ring.at(i) - this.anchor;
   }
 
-  /** Biased autocovariance at lags 0..min(maxLag, n - 1) from the maintained products. Cost O(maxLag). */
+  /**
+   * Biased autocovariance at lags 0..min(maxLag, n - 1) from the maintained products. Cost O(maxLag).
+   * Without `out` the result is cached until the window changes: callers must not modify it.
+   */
   autocovariance(out?: Float64Array): Float64Array {
+    if (out === undefined) {
+      if (this.cachedAcf && this.cachedAcfFirst === this.firstIndex && this.cachedAcfNext === this.nextIndex && this.cachedAcfLags === this.maxLag) return this.cachedAcf;
+      this.cachedAcf = this.computeAutocovariance();
+      this.cachedAcfFirst = this.firstIndex;
+      this.cachedAcfNext = this.nextIndex;
+      this.cachedAcfLags = this.maxLag;
+      return this.cachedAcf;
+    }
+    return this.computeAutocovariance(out);
+  }
+
+  private computeAutocovariance(out?: Float64Array): Float64Array {
     const ring = this.ring;
     const n = ring.length;
     const anchor = this.anchor;
@@ -195,6 +216,7 @@ export class WindowedSeries {
   }
 
   loadState(state: WindowedSeriesState): void {
+    this.cachedAcf = null;
     const maxLag = state.numbers[7] ?? this.maxLag;
     if (maxLag !== this.maxLag) {
       this.maxLag = maxLag;
@@ -220,6 +242,7 @@ export class WindowedSeries {
 
   /** Rebuilds every sum exactly from the stored samples, around `anchor`. Cost O(n * maxLag). */
   rebuild(anchor: number): void {
+    this.cachedAcf = null;
     const n = this.ring.length;
     this.anchor = n > 0 ? anchor : Number.NaN;
     this.moments.reset();
