@@ -1,6 +1,7 @@
 import { TwoSidedCusum, decisionIntervalForArl, type CusumState } from '../core/stationarity/cusum.js';
 import { varianceChangeTest } from '../core/stationarity/variance-change.js';
 import normalQuantile from '@stdlib/stats-base-dists-normal-quantile';
+import { changeFits } from '../core/stationarity/change-point-fits.js';
 
 /**
  * Watches a steady channel for the end of stationarity: a shift, a trend or a change in noise.
@@ -334,7 +335,8 @@ export class StationarityMonitor {
 
   /**
    * Shift, trend or variance: the block means since the reference start are fitted by three
-   * one-change models with the reference block variance sigma_b^2 known before the change:
+   * one-change models (step and ramp: core/stationarity/change-point-fits.ts) with the reference
+   * block variance sigma_b^2 known before the change:
    *   step      the level changes at block c                    (maximised over c and the two levels)
    *   ramp      the level is constant, then linear from block c (over c, level and slope)
    *   variance  the level stays, the spread changes at block c  (over c and the new spread)
@@ -355,50 +357,14 @@ export class StationarityMonitor {
     let total = 0;
     for (let i = 0; i < k; i++) total += y[i] as number;
     const mean = total / k;
-    let squares = 0;
-    for (let i = 0; i < k; i++) squares += ((y[i] as number) - mean) ** 2;
-    // Step: RSS(c) from prefix sums.
-    let bestStep = Number.NEGATIVE_INFINITY;
-    let stepAt = Math.max(1, k - 1);
-    let prefix = 0;
-    for (let c = 1; c < k; c++) {
-      prefix += y[c - 1] as number;
-      const before = prefix / c;
-      const after = (total - prefix) / (k - c);
-      const rss = squares - c * (before - mean) ** 2 - (k - c) * (after - mean) ** 2;
-      const ll = -rss / (2 * sigma2) + stepPreference;
-      if (ll > bestStep) {
-        bestStep = ll;
-        stepAt = c;
-      }
-    }
-    // Ramp: y = a + b * max(0, i - c); least squares for each c (O(k) each).
-    let bestRamp = Number.NEGATIVE_INFINITY;
-    let rampAt = 0;
-    let rampSlope = 0;
-    let rampSxx = 1;
-    for (let c = 0; c < k - 2; c++) {
-      let su = 0;
-      let suu = 0;
-      let suy = 0;
-      for (let i = c + 1; i < k; i++) {
-        const u = i - c;
-        su += u;
-        suu += u * u;
-        suy += u * (y[i] as number);
-      }
-      const uMean = su / k;
-      const sxx = suu - k * uMean * uMean;
-      if (!(sxx > 0)) continue;
-      const slope = (suy - uMean * total) / sxx;
-      const ll = -(squares - slope * slope * sxx) / (2 * sigma2);
-      if (ll > bestRamp) {
-        bestRamp = ll;
-        rampAt = c;
-        rampSlope = slope;
-        rampSxx = sxx;
-      }
-    }
+    const fits = changeFits(y, k);
+    const squares = fits.squares;
+    const bestStep = Number.isFinite(fits.step.rss) ? -fits.step.rss / (2 * sigma2) + stepPreference : Number.NEGATIVE_INFINITY;
+    const stepAt = fits.step.at;
+    const bestRamp = Number.isFinite(fits.ramp.rss) ? -fits.ramp.rss / (2 * sigma2) : Number.NEGATIVE_INFINITY;
+    const rampAt = fits.ramp.at;
+    const rampSlope = fits.ramp.slope;
+    const rampSxx = fits.ramp.sxx;
     // Variance: level = mean of all blocks; the spread after c is fitted.
     let bestVariance = Number.NEGATIVE_INFINITY;
     let varianceAt = Math.max(1, k - 1);

@@ -1,4 +1,5 @@
 import type { Periodogram } from './periodogram.js';
+import { goldenSection } from '../numeric/golden-section.js';
 
 /**
  * Long memory: the memory parameter d (Hurst exponent H = d + 1/2) by the local Whittle estimator.
@@ -16,7 +17,8 @@ import type { Periodogram } from './periodogram.js';
  *   "prewhitened" local Whittle; our choice, after the AR-prewhitening of semiparametric
  *   estimators discussed in the long-memory literature).
  * - m = floor(N^0.65) (a common bandwidth choice; Robinson's theory needs m -> inf, m / N -> 0).
- * - d is searched on [-0.49, 0.99] by golden section (R(d) is smooth and unimodal in practice).
+ * - d is searched on [-0.49, 0.99] by golden section (core/numeric/golden-section.ts; R(d) is
+ *   smooth and unimodal in practice).
  * Cost: O(m) per evaluation of R, about 40 evaluations (golden section to 1e-8 in d); plus the caller's shape.
  */
 export interface LongMemoryEstimate {
@@ -47,28 +49,6 @@ export function localWhittle(periodogram: Periodogram, shape?: (lambda: number) 
     for (let j = 0; j < m; j++) s += Math.exp(2 * d * (Math.log(lambdas[j] as number) - meanLog)) * (y[j] as number);
     return Math.log(s / m);
   };
-  let a = -0.49;
-  let b = 0.99;
-  const ratio = (Math.sqrt(5) - 1) / 2;
-  let c = b - ratio * (b - a);
-  let e = a + ratio * (b - a);
-  let fc = objective(c);
-  let fe = objective(e);
-  for (let i = 0; i < 40; i++) {
-    if (fc < fe) {
-      b = e;
-      e = c;
-      fe = fc;
-      c = b - ratio * (b - a);
-      fc = objective(c);
-    } else {
-      a = c;
-      c = e;
-      fc = fe;
-      e = a + ratio * (b - a);
-      fe = objective(e);
-    }
-  }
-  const d = (a + b) / 2;
+  const d = goldenSection(objective, -0.49, 0.99, 40, 'min');
   return { d, hurst: d + 0.5, standardError: 1 / (2 * Math.sqrt(m)), m };
 }

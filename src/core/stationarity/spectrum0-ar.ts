@@ -1,5 +1,6 @@
 import { laggedProductSums } from '../acf/direct-autocovariance.js';
 import { correctedMean, linearResiduals } from './linear-residuals.js';
+import { levinsonDurbin } from '../tau/autoregressive-spectrum.js';
 
 /**
  * Spectral density at frequency zero from an autoregressive fit, as R coda's `spectrum0.ar`.
@@ -92,35 +93,9 @@ export function spectrum0Ar(values: ArrayLike<number>, options: Spectrum0ArOptio
   for (let i = 0; i < n; i++) centred[i] = (centred[i] as number) - mean2;
   const gamma = laggedProductSums(centred, orderMax);
   for (let k = 0; k <= orderMax; k++) gamma[k] = (gamma[k] as number) / n;
-  const gamma0 = gamma[0] as number;
 
-  // Levinson-Durbin: phi holds phi_(k,1..k) after step k; the best-AIC coefficients are copied out.
-  let phi = new Float64Array(orderMax + 1);
-  let next = new Float64Array(orderMax + 1);
-  let variance = gamma0;
-  let bestOrder = 0;
-  let bestVariance = gamma0;
-  let bestAic = n * Math.log(gamma0);
-  let bestCoefficients = new Float64Array(0);
-  for (let k = 1; k <= orderMax; k++) {
-    let numerator = gamma[k] as number;
-    for (let j = 1; j < k; j++) numerator -= (phi[j] as number) * (gamma[k - j] as number);
-    const reflection = numerator / variance;
-    for (let j = 1; j < k; j++) next[j] = (phi[j] as number) - reflection * (phi[k - j] as number);
-    next[k] = reflection;
-    const swap = phi;
-    phi = next;
-    next = swap;
-    variance *= 1 - reflection * reflection;
-    if (!(variance > 0)) break; // a perfectly predictable series: stop at the last proper order
-    const aic = n * Math.log(variance) + 2 * k;
-    if (aic < bestAic) {
-      bestAic = aic;
-      bestOrder = k;
-      bestVariance = variance;
-      bestCoefficients = phi.slice(1, k + 1);
-    }
-  }
+  // Levinson-Durbin with AIC (core/tau/autoregressive-spectrum.ts), up to coda's order.max.
+  const { order: bestOrder, coefficients: bestCoefficients, variance: bestVariance } = levinsonDurbin(gamma, n, orderMax);
   const varPred = (bestVariance * n) / (n - (bestOrder + 1));
   let coefficientSum = 0;
   for (let j = 0; j < bestOrder; j++) coefficientSum += bestCoefficients[j] as number;

@@ -1,3 +1,4 @@
+import { changeFits } from './change-point-fits.js';
 /**
  * Warm-up transient fit: the record since the window began, as block means, fitted by a level plus
  * a decaying exponential, mu + A exp(-t / T), and the bias that the rest of the transient leaves in
@@ -225,43 +226,11 @@ const BREAK_MARGIN = 10;
  * Cost: O(K^2) for the ramp over K blocks; run only when the stationarity monitor alarms.
  */
 export function warmupExplains(fit: TransientFit): boolean {
-  const y = fit.means;
-  const K = y.length;
-  let total = 0;
-  for (let i = 0; i < K; i++) total += y[i] as number;
-  const mean = total / K;
-  let squares = 0;
-  for (let i = 0; i < K; i++) squares += ((y[i] as number) - mean) ** 2;
-  let stepRss = squares;
-  let prefix = 0;
-  for (let c = 1; c < K; c++) {
-    prefix += y[c - 1] as number;
-    const before = prefix / c;
-    const after = (total - prefix) / (K - c);
-    stepRss = Math.min(stepRss, squares - c * (before - mean) ** 2 - (K - c) * (after - mean) ** 2);
-  }
-  let rampRss = squares;
-  let rampAt = 0;
-  for (let c = 0; c < K - 2; c++) {
-    let su = 0;
-    let suu = 0;
-    let suy = 0;
-    for (let i = c + 1; i < K; i++) {
-      const u = i - c;
-      su += u;
-      suu += u * u;
-      suy += u * (y[i] as number);
-    }
-    const uMean = su / K;
-    const sxx = suu - K * uMean * uMean;
-    if (!(sxx > 0)) continue;
-    const slope = (suy - uMean * total) / sxx;
-    const rss = squares - slope * slope * sxx;
-    if (rss < rampRss) {
-      rampRss = rss;
-      rampAt = c;
-    }
-  }
+  const K = fit.means.length;
+  const fits = changeFits(fit.means);
+  const stepRss = fits.step.rss;
+  const rampRss = fits.ramp.rss;
+  const rampAt = fits.ramp.at;
   // A break has to fit decisively better (BREAK_MARGIN block variances: a log-likelihood lead of 5)
   // for the record not to count as a warm-up: a weak warm-up and a step fitted to the same noise
   // trade places at random, while a real late step or drift wins by far.

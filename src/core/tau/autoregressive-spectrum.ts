@@ -50,23 +50,26 @@ export interface ArFit {
   logSpectrumVariance: number;
 }
 
-/** Yule-Walker AR fit with AIC order selection from a biased autocovariance (lag 0 first). */
-export function fitAutoregression(gamma: ArrayLike<number>, n: number, orderCap = Number.POSITIVE_INFINITY, penalty = 2): ArFit | null {
+/**
+ * Levinson-Durbin recursion for the Yule-Walker fits of orders 1..maxOrder from a biased
+ * autocovariance, keeping the order that minimises n ln sigma2_k + penalty k (AIC for penalty 2, BIC
+ * for ln n), the first minimiser as R's `ar.yw`. Stops at an order whose innovations variance is no
+ * longer positive (a perfectly predictable series). Returns the chosen order, its coefficients and
+ * its innovations variance sigma2_p (without the n / (n - p - 1) correction). O(maxOrder^2).
+ */
+export function levinsonDurbin(gamma: ArrayLike<number>, n: number, maxOrder: number, penalty = 2): { order: number; coefficients: Float64Array; variance: number } {
   const gamma0 = gamma[0] as number;
-  if (!(gamma0 > 0) || n < 8) return null;
-  const maxOrder = Math.max(0, Math.min(gamma.length - 1, Math.floor(10 * Math.log10(n)), n - 2, orderCap));
   let phi = new Float64Array(maxOrder + 1);
   let next = new Float64Array(maxOrder + 1);
   let variance = gamma0;
   let bestOrder = 0;
   let bestVariance = gamma0;
-  let bestAic = n * Math.log(gamma0);
+  let bestCriterion = n * Math.log(gamma0);
   let best = new Float64Array(0);
   for (let k = 1; k <= maxOrder; k++) {
     let numerator = gamma[k] as number;
     for (let j = 1; j < k; j++) numerator -= (phi[j] as number) * (gamma[k - j] as number);
     const reflection = numerator / variance;
-    if (!(Math.abs(reflection) < 1)) break; // not positive definite any more (round-off at a near-unit root)
     for (let j = 1; j < k; j++) next[j] = (phi[j] as number) - reflection * (phi[k - j] as number);
     next[k] = reflection;
     const swap = phi;
@@ -74,14 +77,23 @@ export function fitAutoregression(gamma: ArrayLike<number>, n: number, orderCap 
     next = swap;
     variance *= 1 - reflection * reflection;
     if (!(variance > 0)) break;
-    const aic = n * Math.log(variance) + penalty * k;
-    if (aic < bestAic) {
-      bestAic = aic;
+    const criterion = n * Math.log(variance) + penalty * k;
+    if (criterion < bestCriterion) {
+      bestCriterion = criterion;
       bestOrder = k;
       bestVariance = variance;
       best = phi.slice(1, k + 1);
     }
   }
+  return { order: bestOrder, coefficients: best, variance: bestVariance };
+}
+
+/** Yule-Walker AR fit with AIC order selection from a biased autocovariance (lag 0 first). */
+export function fitAutoregression(gamma: ArrayLike<number>, n: number, orderCap = Number.POSITIVE_INFINITY, penalty = 2): ArFit | null {
+  const gamma0 = gamma[0] as number;
+  if (!(gamma0 > 0) || n < 8) return null;
+  const maxOrder = Math.max(0, Math.min(gamma.length - 1, Math.floor(10 * Math.log10(n)), n - 2, orderCap));
+  const { order: bestOrder, coefficients: best, variance: bestVariance } = levinsonDurbin(gamma, n, maxOrder, penalty);
   const innovationsVariance = (bestVariance * n) / (n - bestOrder - 1);
   let sum = 0;
   for (let j = 0; j < bestOrder; j++) sum += best[j] as number;
