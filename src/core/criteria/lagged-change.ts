@@ -41,9 +41,9 @@ export class LaggedChange {
   /** Largest change in the direction asked (a rise is positive, a fall is positive for 'fall'); -Infinity when no pair. */
   largest(direction: ChangeDirection): number {
     if (direction === 'rise') return this.changes.max;
-    if (direction === 'fall') return -this.changes.min;
+    if (direction === 'fall') return -this.changes.min + 0;
     const up = this.changes.max;
-    const down = -this.changes.min;
+    const down = -this.changes.min + 0;
     return up > down ? up : down;
   }
 

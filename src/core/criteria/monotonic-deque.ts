@@ -161,7 +161,7 @@ export class SlidingExtremes {
   }
 
   get min(): number {
-    return -this.lower.max;
+    return -this.lower.max + 0; // + 0: no -0 for a minimum of 0
   }
 
   get maxSeq(): number {
