@@ -69,10 +69,11 @@ export function readCriteria(r: ConfigReader, value: unknown, path: string): Cri
   r.list(section.rules, join(path, 'rules')).forEach((item, index) => {
     const rulePath = join(join(path, 'rules'), index);
     const spec = readRule(r, item, rulePath, index);
-    if (!spec) return;
-    if (names.has(spec.name)) r.problem(join(rulePath, 'name'), `"${spec.name}" is already the name of rules[${names.get(spec.name)}]: give each rule its own name`);
-    else names.set(spec.name, index);
-    rules.push(spec);
+    // Names are checked on what was written, so a repeated name shows even beside other problems.
+    const name = ruleName(item, index);
+    if (names.has(name)) r.problem(join(rulePath, 'name'), `"${name}" is already the name of rules[${names.get(name)}]: give each rule its own name`);
+    else names.set(name, index);
+    if (spec) rules.push(spec);
   });
   if (policy === 'rules' && rules.length === 0) r.problem(join(path, 'policy'), 'policy "rules" needs at least one rule under rules');
   return { policy, rules };
@@ -83,6 +84,13 @@ export function parseCriteria(value: unknown, path = 'criteria'): { settings: Cr
   const r = new ConfigReader();
   const settings = readCriteria(r, value, path);
   return { settings: r.problems.length > 0 ? null : settings, problems: r.problems };
+}
+
+function ruleName(item: unknown, index: number): string {
+  const plain = item !== null && typeof item === 'object' && !Array.isArray(item) ? (item as Plain) : {};
+  if (typeof plain.name === 'string' && plain.name.length > 0) return plain.name;
+  if (typeof plain.preset === 'string') return plain.preset;
+  return `rule-${index + 1}`;
 }
 
 function readRule(r: ConfigReader, item: unknown, path: string, index: number): CriterionSpec | null {

@@ -125,12 +125,13 @@ export function criterionProblems(spec: CriterionSpec): SpecProblem[] {
     add('windowReadings', `expected a whole number of readings of at least 1, got ${spec.window.readings}`);
   }
   const minimum = statisticMinimum(spec);
+  const countWindowUsable = spec.window.kind === 'readings' && Number.isInteger(spec.window.readings) && spec.window.readings >= minimum;
   if (spec.window.kind === 'readings' && spec.window.readings >= 1 && spec.window.readings < minimum) {
     add('windowReadings', `${spec.statistic}${spec.statistic === 'change' ? ` (lag ${spec.lag})` : ''} needs at least ${minimum} readings in the window, got ${spec.window.readings}`);
   }
   if (!(Number.isInteger(spec.minReadings) && spec.minReadings >= minimum)) {
     add('minReadings', `expected a whole number of at least ${minimum} (what ${spec.statistic} needs), got ${spec.minReadings}`);
-  } else if (spec.window.kind === 'readings' && spec.minReadings > spec.window.readings) {
+  } else if (countWindowUsable && spec.window.kind === 'readings' && spec.minReadings > spec.window.readings) {
     add('minReadings', `${spec.minReadings} readings can never fit a window of ${spec.window.readings}`);
   }
   const span = windowSeconds(spec);
@@ -150,11 +151,10 @@ export function criterionProblems(spec: CriterionSpec): SpecProblem[] {
   if (t.relative !== null && !(t.relative >= 0 && Number.isFinite(t.relative))) add('tolerance.relative', `expected a fraction of at least 0, got ${t.relative}`);
   if (!Number.isFinite(t.zero)) add('tolerance.zero', `expected a number, got ${t.zero}`);
   if (t.relative !== null && spec.statistic === 'cv') add('tolerance.relative', 'the coefficient of variation is already relative: give its limit as an absolute fraction');
-  if (t.relative !== null && t.relativeTo === 'setpoint' && spec.setPoint.kind === 'none') {
-    add('tolerance.relativeTo', 'a tolerance relative to the set point needs a set point (setPoint: <value> or setPoint: test-point)');
-  }
   if (SETPOINT_STATISTICS.includes(spec.statistic) && spec.setPoint.kind === 'none') {
     add('setPoint', `${spec.statistic} compares with a set point: give setPoint: <value> or setPoint: test-point`);
+  } else if (t.relative !== null && t.relativeTo === 'setpoint' && spec.setPoint.kind === 'none') {
+    add('tolerance.relativeTo', 'a tolerance relative to the set point needs a set point (setPoint: <value> or setPoint: test-point)');
   }
   if (spec.setPoint.kind === 'config' && !Number.isFinite(spec.setPoint.value)) add('setPoint', `expected a number or "test-point", got ${spec.setPoint.value}`);
   return problems;

@@ -145,10 +145,12 @@ export interface StatisticDetail {
 }
 
 export function statisticDetail(spec: CriterionSpec, window: SlidingWindow): StatisticDetail {
+  // Only what this criterion keeps: a window shared with other rules may keep more.
+  const needs = criterionNeeds(spec);
   const n = window.count;
   const finite = (x: number) => (Number.isFinite(x) ? x : null);
-  const e = window.extremes;
-  const sums = window.sums;
+  const e = needs.extremes ? window.extremes : null;
+  const sums = needs.moments || needs.regression ? window.sums : null;
   const fit = spec.statistic === 'slope' && sums ? sums.slope() : null;
   return {
     readings: n,
