@@ -1,4 +1,4 @@
-import type { CriterionSpec } from './criterion-spec.js';
+import { toleranceFor, type CriterionSpec } from './criterion-spec.js';
 import type { LaggedChange } from './lagged-change.js';
 import type { SlidingWindow, WindowNeeds } from './sliding-window.js';
 
@@ -16,11 +16,11 @@ export function criterionNeeds(spec: CriterionSpec): WindowNeeds {
     case 'setpoint-deviation':
       return { extremes: true, moments: relativeToMean };
     case 'deviation':
-      return { extremes: true, moments: true };
     case 'mean-deviation':
+      return { extremes: spec.statistic === 'deviation', moments: true };
     case 'sd':
     case 'cv':
-      return { moments: true };
+      return { moments: true, spread: true };
     case 'slope':
       return { regression: true };
     case 'change':
@@ -34,70 +34,165 @@ function changeStatistic(spec: CriterionSpec): boolean {
   return spec.statistic === 'change' || spec.statistic === 'average-change';
 }
 
-function laggedFor(spec: CriterionSpec, window: SlidingWindow): LaggedChange | null {
+/** The lagged change a change statistic reads from its window (null for other statistics). */
+export function laggedFor(spec: CriterionSpec, window: SlidingWindow): LaggedChange | null {
+  if (spec.statistic !== 'average-change' && (spec.statistic !== 'change' || spec.lag === 'window')) return null;
   const lag = spec.statistic === 'average-change' ? 1 : spec.lag;
   for (const change of window.lagged) if (change.lag === lag) return change;
   return null;
 }
 
-/** The value compared with the tolerance; NaN when the window cannot give it (too few readings, no set point, zero mean for cv). */
-export function statisticValue(spec: CriterionSpec, window: SlidingWindow, setPoint: number | null): number {
-  const n = window.count;
-  if (n === 0) return Number.NaN;
+// Statistic codes: the per-sample evaluation switches on small integers.
+const RANGE = 0;
+const DEVIATION = 1;
+const MEAN_DEVIATION = 2;
+const SETPOINT_DEVIATION = 3;
+const SD = 4;
+const CV = 5;
+const SLOPE = 6;
+const CHANGE_ACROSS = 7;
+const CHANGE_LAGGED = 8;
+
+function statisticCode(spec: CriterionSpec): number {
   switch (spec.statistic) {
-    case 'range': {
-      const e = window.extremes!;
-      return n >= 2 ? e.max - e.min : Number.NaN;
-    }
-    case 'deviation': {
-      if (n < 2) return Number.NaN;
-      const e = window.extremes!;
-      const mean = window.sums!.mean;
-      const above = e.max - mean;
-      const below = mean - e.min;
-      return above > below ? above : below;
-    }
+    case 'range':
+      return RANGE;
+    case 'deviation':
+      return DEVIATION;
     case 'mean-deviation':
-      return setPoint === null ? Number.NaN : Math.abs(window.sums!.mean - setPoint);
-    case 'setpoint-deviation': {
-      if (setPoint === null) return Number.NaN;
-      const e = window.extremes!;
-      const above = e.max - setPoint;
-      const below = setPoint - e.min;
-      return above > below ? above : below;
-    }
+      return MEAN_DEVIATION;
+    case 'setpoint-deviation':
+      return SETPOINT_DEVIATION;
     case 'sd':
-      return n >= 2 ? window.sums!.standardDeviation : Number.NaN;
-    case 'cv': {
-      if (n < 2) return Number.NaN;
-      const sums = window.sums!;
-      const mean = Math.abs(sums.mean);
-      return mean > 0 ? sums.standardDeviation / mean : Number.NaN;
-    }
-    case 'slope': {
-      const fit = window.sums!.slope();
-      if (!fit || n < 3) return Number.NaN;
-      const perUnit = fit.perSecond * spec.perSeconds;
-      return spec.direction === 'rise' ? perUnit : spec.direction === 'fall' ? -perUnit : Math.abs(perUnit);
-    }
+      return SD;
+    case 'cv':
+      return CV;
+    case 'slope':
+      return SLOPE;
     case 'change':
-    case 'average-change': {
-      if (spec.statistic === 'change' && spec.lag === 'window') {
-        if (n < 2) return Number.NaN;
-        const change = window.newestValue - window.firstValue;
-        return spec.direction === 'rise' ? change : spec.direction === 'fall' ? -change : Math.abs(change);
-      }
-      const largest = laggedFor(spec, window)!.largest(spec.direction);
-      return largest === Number.NEGATIVE_INFINITY ? Number.NaN : largest;
-    }
+      return spec.lag === 'window' ? CHANGE_ACROSS : CHANGE_LAGGED;
+    case 'average-change':
+      return CHANGE_LAGGED;
   }
+}
+
+const ANY = 0;
+const RISE = 1;
+const FALL = 2;
+
+/**
+ * A criterion's statistic and tolerance over its window, worked out after each reading: `update`
+ * reads the window's figures (fields, see sliding-window.ts) and sets `value` and `tolerance`;
+ * NaN when the window cannot give them (too few readings, no set point, a zero mean for cv). O(1),
+ * and nothing is passed or returned as a number, so V8 boxes nothing on the per-sample path.
+ */
+export class CriterionEvaluator {
+  readonly spec: CriterionSpec;
+  readonly window: SlidingWindow;
+  /** The set point now (NaN: none). */
+  setPoint = Number.NaN;
+  /** The statistic's value at the last update. */
+  value = Number.NaN;
+  /** The tolerance at the last update (NaN: unknown, e.g. relative to a set point not given). */
+  tolerance = Number.NaN;
+  private readonly code: number;
+  private readonly direction: number;
+  private readonly perSeconds: number;
+  private readonly lagged: LaggedChange | null;
+  /** The tolerance when it depends on neither the readings nor the set point, else NaN. */
+  private readonly fixedTolerance: number;
+
+  constructor(spec: CriterionSpec, window: SlidingWindow) {
+    this.spec = spec;
+    this.window = window;
+    this.code = statisticCode(spec);
+    this.direction = spec.direction === 'rise' ? RISE : spec.direction === 'fall' ? FALL : ANY;
+    this.perSeconds = spec.perSeconds;
+    this.lagged = laggedFor(spec, window);
+    this.fixedTolerance = spec.tolerance.relative === null && spec.tolerance.absolute !== null ? spec.tolerance.absolute : Number.NaN;
+  }
+
+  update(): void {
+    this.measure();
+    let tolerance = this.fixedTolerance;
+    if (Number.isNaN(tolerance)) {
+      const setPoint = this.setPoint;
+      const found = toleranceFor(this.spec.tolerance, readingBasis(this.spec, this.window), Number.isNaN(setPoint) ? null : setPoint);
+      tolerance = found === null ? Number.NaN : found;
+    }
+    this.tolerance = tolerance;
+  }
+
+  /** Sets `value` (assigned, not returned: V8 would box a returned number when the call is not inlined). */
+  private measure(): void {
+    const window = this.window;
+    const n = window.end - window.start;
+    let value = Number.NaN;
+    if (n > 0) {
+      switch (this.code) {
+        case RANGE:
+          if (n >= 2) value = window.max - window.min;
+          break;
+        case DEVIATION:
+          if (n >= 2) {
+            const above = window.max - window.mean;
+            const below = window.mean - window.min;
+            value = above > below ? above : below;
+          }
+          break;
+        case MEAN_DEVIATION:
+          value = Math.abs(window.mean - this.setPoint);
+          break;
+        case SETPOINT_DEVIATION: {
+          const above = window.max - this.setPoint;
+          const below = this.setPoint - window.min;
+          value = above > below ? above : below;
+          break;
+        }
+        case SD:
+          if (n >= 2) value = Math.sqrt(window.variance);
+          break;
+        case CV: {
+          const mean = Math.abs(window.mean);
+          if (n >= 2 && mean > 0) value = Math.sqrt(window.variance) / mean;
+          break;
+        }
+        case SLOPE:
+          if (n >= 3) value = this.directed(window.slopePerSecond * this.perSeconds);
+          break;
+        case CHANGE_ACROSS:
+          if (n >= 2) value = this.directed(window.newestValue - window.firstValue);
+          break;
+        default: {
+          const lagged = this.lagged;
+          if (lagged !== null) {
+            const largest = this.direction === RISE ? lagged.largest('rise') : this.direction === FALL ? lagged.largest('fall') : lagged.largest('any');
+            if (largest !== Number.NEGATIVE_INFINITY) value = largest;
+          }
+        }
+      }
+    }
+    this.value = value;
+  }
+
+  private directed(change: number): number {
+    return this.direction === RISE ? change : this.direction === FALL ? -change : Math.abs(change);
+  }
+}
+
+/** The value compared with the tolerance (NaN when the window cannot give it); allocates: not for the per-sample path. */
+export function statisticValue(spec: CriterionSpec, window: SlidingWindow, setPoint: number | null): number {
+  const evaluator = new CriterionEvaluator(spec, window);
+  evaluator.setPoint = setPoint === null ? Number.NaN : setPoint;
+  evaluator.update();
+  return evaluator.value;
 }
 
 /** The basis of a tolerance relative to the reading: the newest reading for changes, else the window's mean. */
 export function readingBasis(spec: CriterionSpec, window: SlidingWindow): number {
   if (window.count === 0) return Number.NaN;
   if (changeStatistic(spec)) return window.newestValue;
-  return window.sums ? window.sums.mean : Number.NaN;
+  return window.sums ? window.mean : Number.NaN;
 }
 
 /**
@@ -149,15 +244,15 @@ export function statisticDetail(spec: CriterionSpec, window: SlidingWindow): Sta
   const needs = criterionNeeds(spec);
   const n = window.count;
   const finite = (x: number) => (Number.isFinite(x) ? x : null);
-  const e = needs.extremes ? window.extremes : null;
-  const sums = needs.moments || needs.regression ? window.sums : null;
-  const fit = spec.statistic === 'slope' && sums ? sums.slope() : null;
+  const extremes = needs.extremes === true && n > 0;
+  const sums = (needs.moments === true || needs.regression === true) && window.sums !== null && n > 0;
+  const fit = spec.statistic === 'slope' && sums ? window.sums!.slope() : null;
   return {
     readings: n,
-    mean: n > 0 && sums ? finite(sums.mean) : null,
-    min: n > 0 && e ? e.min : null,
-    max: n > 0 && e ? e.max : null,
-    sd: n > 1 && sums ? sums.standardDeviation : null,
+    mean: sums ? finite(window.mean) : null,
+    min: extremes ? window.min : null,
+    max: extremes ? window.max : null,
+    sd: sums && n > 1 ? window.sums!.standardDeviation : null,
     slope: fit ? { value: fit.perSecond * spec.perSeconds, standardError: fit.standardError === null ? null : fit.standardError * spec.perSeconds, perSeconds: spec.perSeconds } : null,
     firstTime: n > 0 ? window.firstTime : null,
     newestTime: n > 0 ? window.newestTime : null,

@@ -6,7 +6,7 @@ import { WindowSums, type WindowSumsState } from './window-sums.js';
 
 /**
  * Sliding window over a reading ring, bounded by a duration or by a number of readings, with the
- * running statistics a rule needs: minimum and maximum (monotonic deques), mean and variance
+ * running statistics its rules need: minimum and maximum (monotonic deques), mean and variance
  * (shifted compensated sums), least-squares slope against time, and the largest change between
  * readings k apart.
  *
@@ -16,10 +16,15 @@ import { WindowSums, type WindowSumsState } from './window-sums.js';
  * average, stamped with the interval's end) is inside only when its whole interval is (`span`).
  * A count window holds the newest `readings` readings.
  *
- * Round-off: the sums are rebuilt exactly from the ring after a window's length of removals (this
- * also moves the time anchor along), when the mean has drifted more than 1024 standard deviations
- * from the anchor, and when a reading that dominated the sum of squares leaves; the last two at
- * most once per eighth of a window of readings, so rebuilding stays O(1) amortised.
+ * After each reading the window's figures (first and newest reading, min, max, mean, variance,
+ * slope, as kept) are worked out once and held in fields, so the rules sharing the window read
+ * them without recomputing (and without calls that would box numbers in V8).
+ *
+ * Round-off: the sums are rebuilt exactly from the ring after four window lengths of removals (this
+ * also moves the time anchor along, so times stay within a few windows of it), when the mean has drifted more than 1024 standard deviations
+ * from the anchor (checked every 64 readings in windows of 512 or more), and when a reading that carried more than half the
+ * sum of squares has left; the last two at most once per eighth of a window of readings, so
+ * rebuilding stays O(1) amortised.
  *
  * Cost: O(1) amortised per reading. Memory: the deques and sums; the readings stay in the ring,
  * which the owner trims to the oldest `start` of the windows sharing it.
@@ -28,9 +33,11 @@ export type WindowBound = { kind: 'seconds'; seconds: number } | { kind: 'readin
 
 export interface WindowNeeds {
   extremes?: boolean;
-  /** Mean and variance. */
+  /** The mean. */
   moments?: boolean;
-  /** Mean, variance and the least-squares slope. */
+  /** The variance as well (with moments or regression). */
+  spread?: boolean;
+  /** The mean and the least-squares slope. */
   regression?: boolean;
   /** Lags of the changes between readings k apart to keep. */
   lags?: readonly number[];
@@ -43,7 +50,7 @@ export interface SlidingWindowState {
   pushes: number;
   extremes: SlidingExtremesState | null;
   sums: WindowSumsState | null;
-  lagged: ReturnType<LaggedChange['saveState']>[];
+  lagged: SlidingExtremesState[];
 }
 
 /** Smallest number of removals between two scheduled exact rebuilds of the sums. */
@@ -61,6 +68,22 @@ export class SlidingWindow {
   start: number;
   /** One past the newest reading's sequence number. */
   end: number;
+  // The window's figures after the last change (NaN when empty or not kept).
+  firstTime = Number.NaN;
+  firstValue = Number.NaN;
+  newestTime = Number.NaN;
+  newestValue = Number.NaN;
+  min = Number.NaN;
+  max = Number.NaN;
+  mean = Number.NaN;
+  /** Sample variance (divisor n - 1; 0 below two readings), when the window keeps it (`spread`). */
+  variance = Number.NaN;
+  /** Least-squares slope, value units per second (NaN below two readings or with one time). */
+  slopePerSecond = Number.NaN;
+  private readonly durationSeconds: number;
+  private readonly countLimit: number;
+  private readonly hasLags: boolean;
+  private readonly keepsVariance: boolean;
   private removals = 0;
   private pushes = 0;
   private rebuildWanted = false;
@@ -71,9 +94,13 @@ export class SlidingWindow {
     this.ring = ring;
     this.bound = bound;
     this.span = span;
+    this.durationSeconds = bound.kind === 'seconds' ? bound.seconds : Number.NaN;
+    this.countLimit = bound.kind === 'readings' ? bound.readings : 0;
     this.extremes = needs.extremes ? new SlidingExtremes() : null;
     this.sums = needs.moments || needs.regression ? new WindowSums(needs.regression === true) : null;
     this.lagged = [...new Set(needs.lags ?? [])].map((k) => new LaggedChange(k));
+    this.hasLags = this.lagged.length > 0;
+    this.keepsVariance = this.sums !== null && needs.spread === true;
     this.start = ring.nextSeq;
     this.end = ring.nextSeq;
   }
@@ -83,22 +110,6 @@ export class SlidingWindow {
     return this.end - this.start;
   }
 
-  get firstTime(): number {
-    return this.ring.timeAt(this.start);
-  }
-
-  get newestTime(): number {
-    return this.ring.timeAt(this.end - 1);
-  }
-
-  get firstValue(): number {
-    return this.ring.valueAt(this.start);
-  }
-
-  get newestValue(): number {
-    return this.ring.valueAt(this.end - 1);
-  }
-
   /** Time at which the reading `seq` leaves a duration window (the newest time that still holds it). */
   exitTime(seq: number): number {
     return this.bound.kind === 'seconds' ? this.ring.timeAt(seq) - this.span + this.bound.seconds : Number.NaN;
@@ -106,31 +117,38 @@ export class SlidingWindow {
 
   /** Takes in the ring's newest reading (pushed just before) and lets old readings leave. */
   push(): void {
+    const ring = this.ring;
     const seq = this.end++;
-    const time = this.ring.timeAt(seq);
-    const value = this.ring.valueAt(seq);
+    const time = ring.timeAt(seq);
+    const value = ring.valueAt(seq);
     const sums = this.sums;
-    if (sums) sums.add(time, value);
-    if (this.extremes) this.extremes.push(seq, value);
-    // Let old readings leave before the new changes are paired, so no pair reaches outside.
+    if (sums !== null) sums.add(time, value);
+    if (this.extremes !== null) this.extremes.push(seq, value);
+    // Old readings leave before the new change is paired, so no pair reaches outside.
     const before = this.start;
-    if (this.bound.kind === 'seconds') {
-      const oldest = time - this.bound.seconds - TIME_EPSILON + this.span;
-      while (this.start < seq && this.ring.timeAt(this.start) < oldest) this.leave();
+    const seconds = this.durationSeconds;
+    if (!Number.isNaN(seconds)) {
+      const oldest = time - seconds - TIME_EPSILON + this.span;
+      while (this.start < seq && ring.timeAt(this.start) < oldest) this.leave();
     } else {
-      while (this.end - this.start > this.bound.readings) this.leave();
+      while (this.end - this.start > this.countLimit) this.leave();
     }
-    if (this.start !== before) {
-      if (this.extremes) this.extremes.expireBefore(this.start);
-      for (const change of this.lagged) change.expire(this.start);
+    if (this.start !== before && this.extremes !== null) this.extremes.expireBefore(this.start);
+    if (this.hasLags) {
+      for (let i = 0; i < this.lagged.length; i++) {
+        const change = this.lagged[i] as LaggedChange;
+        if (this.start !== before) change.expire(this.start);
+        change.push(ring, seq, this.start);
+      }
     }
-    for (const change of this.lagged) change.push(this.ring, seq, this.start);
-    if (sums) {
-      this.pushes++;
+    if (sums !== null) {
+      const pushes = ++this.pushes;
       const count = this.end - this.start;
-      if (this.removals >= Math.max(count, MIN_REBUILD_REMOVALS)) this.rebuild();
-      else if (this.pushes * 8 >= count && (this.rebuildWanted || sums.drifted)) this.rebuild();
+      if (this.removals >= 4 * count && this.removals >= MIN_REBUILD_REMOVALS) this.rebuild();
+      // The drift test costs a division: in long windows every 64 readings is often enough.
+      else if (pushes * 8 >= count && (this.rebuildWanted || ((count < 512 || (pushes & 63) === 0) && sums.drifted))) this.rebuild();
     }
+    this.refresh();
   }
 
   /** Empties the window (the ring's readings stay until the owner drops them). */
@@ -143,6 +161,7 @@ export class SlidingWindow {
     this.removals = 0;
     this.pushes = 0;
     this.rebuildWanted = false;
+    this.refresh();
   }
 
   saveState(): SlidingWindowState {
@@ -169,20 +188,17 @@ export class SlidingWindow {
       const saved = state.lagged[i];
       if (saved) change.loadState(saved);
     });
+    this.refresh();
   }
 
   private leave(): void {
     const seq = this.start++;
     const sums = this.sums;
-    if (sums) {
-      const time = this.ring.timeAt(seq);
+    if (sums !== null) {
       const value = this.ring.valueAt(seq);
       // A reading that carries most of the sum of squares leaving: its round-off stays behind.
-      if (!this.rebuildWanted && sums.count > 2) {
-        const deviation = value - sums.mean;
-        if (deviation * deviation * 2 > sums.squaredDeviations) this.rebuildWanted = true;
-      }
-      sums.remove(time, value);
+      if (sums.count > 2 && sums.dominates(value)) this.rebuildWanted = true;
+      sums.remove(this.ring.timeAt(seq), value);
       this.removals++;
     }
   }
@@ -190,13 +206,38 @@ export class SlidingWindow {
   /** Recomputes the sums from the window's readings, anchored at its first time and its mean. */
   private rebuild(): void {
     const sums = this.sums as WindowSums;
-    // The mean keeps its digits when the centred sums do not (first-order sum): a good anchor.
+    // The mean keeps its digits when the centred sums do not (a first-order sum): a good anchor.
     const mean = sums.mean;
-    const anchor = Number.isFinite(mean) ? mean : this.newestValue;
-    sums.reset(this.firstTime, anchor);
+    sums.reset(this.ring.timeAt(this.start), Number.isFinite(mean) ? mean : this.ring.valueAt(this.end - 1));
     for (let seq = this.start; seq < this.end; seq++) sums.add(this.ring.timeAt(seq), this.ring.valueAt(seq));
     this.removals = 0;
     this.pushes = 0;
     this.rebuildWanted = false;
+  }
+
+  private refresh(): void {
+    const n = this.end - this.start;
+    if (n === 0) {
+      this.firstTime = this.firstValue = this.newestTime = this.newestValue = Number.NaN;
+      this.min = this.max = this.mean = this.variance = this.slopePerSecond = Number.NaN;
+      return;
+    }
+    const ring = this.ring;
+    this.firstTime = ring.timeAt(this.start);
+    this.firstValue = ring.valueAt(this.start);
+    this.newestTime = ring.timeAt(this.end - 1);
+    this.newestValue = ring.valueAt(this.end - 1);
+    const extremes = this.extremes;
+    if (extremes !== null) {
+      this.min = extremes.min;
+      this.max = extremes.max;
+    }
+    const sums = this.sums;
+    if (sums !== null) {
+      sums.settle(this.keepsVariance);
+      this.mean = sums.settledMean;
+      this.variance = sums.settledVariance;
+      this.slopePerSecond = sums.settledSlope;
+    }
   }
 }

@@ -3,8 +3,8 @@ import { SubIntervalAverages, type SubIntervalAveragesState } from '../../core/c
 import { SampledReadings, type SampledReadingsState } from '../../core/criteria/sampled-readings.js';
 import { SlidingWindow, type SlidingWindowState, type WindowNeeds } from '../../core/criteria/sliding-window.js';
 import { TIME_EPSILON } from '../../core/criteria/time-grid.js';
-import { criterionProblems, describeTolerance, statisticMinimum, toleranceFor, type Comparison, type CriterionSpec, type StatisticName } from '../../core/criteria/criterion-spec.js';
-import { blockingReading, criterionNeeds, readingBasis, statisticDetail, statisticValue, type StatisticDetail } from '../../core/criteria/criterion-statistic.js';
+import { criterionProblems, describeTolerance, statisticMinimum, type Comparison, type CriterionSpec, type StatisticName } from '../../core/criteria/criterion-spec.js';
+import { blockingReading, CriterionEvaluator, criterionNeeds, statisticDetail, type StatisticDetail } from '../../core/criteria/criterion-statistic.js';
 import type { CriterionEvent } from './criteria-events.js';
 
 /**
@@ -107,10 +107,10 @@ abstract class Stream {
   readonly windows: SlidingWindow[] = [];
   /** Set by `push`: the sample produced a reading. */
   changed = false;
-  abstract readonly ring: ReadingRing;
   /** Time from which the stream has observed the channel (NaN before the first sample). */
-  abstract get origin(): number;
-  /** Offers a sample; true when it produced a reading. */
+  origin = Number.NaN;
+  abstract readonly ring: ReadingRing;
+  /** Offers a sample; true when it produced a reading (and keeps `origin` up to date). */
   abstract take(time: number, value: number): boolean;
   /** Earliest time of the reading `ahead` readings from now (1 = the next); null when unknown. */
   abstract readingTime(ahead: number): number | null;
@@ -124,7 +124,8 @@ abstract class Stream {
     this.changed = this.take(time, value);
     if (!this.changed) return;
     const windows = this.windows;
-    let oldest = Number.POSITIVE_INFINITY;
+    // A whole number throughout (no Infinity), so the call below passes it unboxed.
+    let oldest = this.ring.nextSeq;
     for (let i = 0; i < windows.length; i++) {
       const w = windows[i] as SlidingWindow;
       w.push();
@@ -136,12 +137,8 @@ abstract class Stream {
 
 class SampleStream extends Stream {
   readonly ring = new ReadingRing(256);
-  private first = Number.NaN;
-  get origin(): number {
-    return this.first;
-  }
   take(time: number, value: number): boolean {
-    if (Number.isNaN(this.first)) this.first = time;
+    if (Number.isNaN(this.origin)) this.origin = time;
     this.ring.push(time, value);
     return true;
   }
@@ -152,15 +149,15 @@ class SampleStream extends Stream {
     return time;
   }
   clear(): void {
-    this.first = Number.NaN;
+    this.origin = Number.NaN;
     this.ring.clear();
   }
   saveState(): StreamState {
-    return { kind: 'readings', origin: Number.isNaN(this.first) ? null : this.first, ring: this.ring.saveState() };
+    return { kind: 'readings', origin: Number.isNaN(this.origin) ? null : this.origin, ring: this.ring.saveState() };
   }
   loadState(state: StreamState): void {
     if (state.kind !== 'readings') return;
-    this.first = state.origin ?? Number.NaN;
+    this.origin = state.origin ?? Number.NaN;
     this.ring.loadState(state.ring);
   }
 }
@@ -173,11 +170,10 @@ class AverageStream extends Stream {
     this.averager = new SubIntervalAverages(seconds);
     this.ring = this.averager.averages;
   }
-  get origin(): number {
-    return this.averager.originTime;
-  }
   take(time: number, value: number): boolean {
-    return this.averager.push(time, value);
+    const closed = this.averager.push(time, value);
+    this.origin = this.averager.originTime;
+    return closed;
   }
   readingTime(ahead: number): number | null {
     const next = this.averager.nextAverageTime;
@@ -190,12 +186,15 @@ class AverageStream extends Stream {
   }
   clear(): void {
     this.averager.clear();
+    this.origin = Number.NaN;
   }
   saveState(): StreamState {
     return { kind: 'averages', state: this.averager.saveState() };
   }
   loadState(state: StreamState): void {
-    if (state.kind === 'averages') this.averager.loadState(state.state);
+    if (state.kind !== 'averages') return;
+    this.averager.loadState(state.state);
+    this.origin = this.averager.originTime;
   }
 }
 
@@ -207,11 +206,10 @@ class SampledStream extends Stream {
     this.sampler = new SampledReadings(seconds);
     this.ring = this.sampler.readings;
   }
-  get origin(): number {
-    return this.sampler.originTime;
-  }
   take(time: number, value: number): boolean {
-    return this.sampler.push(time, value);
+    const taken = this.sampler.push(time, value);
+    this.origin = this.sampler.originTime;
+    return taken;
   }
   readingTime(ahead: number): number | null {
     const next = this.sampler.nextReadingTime;
@@ -224,24 +222,27 @@ class SampledStream extends Stream {
   }
   clear(): void {
     this.sampler.clear();
+    this.origin = Number.NaN;
   }
   saveState(): StreamState {
     return { kind: 'sampled', state: this.sampler.saveState() };
   }
   loadState(state: StreamState): void {
-    if (state.kind === 'sampled') this.sampler.loadState(state.state);
+    if (state.kind !== 'sampled') return;
+    this.sampler.loadState(state.state);
+    this.origin = this.sampler.originTime;
   }
 }
 
-class RuleRuntime {
-  readonly spec: CriterionSpec;
+class RuleRuntime extends CriterionEvaluator {
   readonly stream: Stream;
-  readonly window: SlidingWindow;
   readonly strict: boolean;
-  /** The tolerance when it does not depend on the readings or the set point, else NaN. */
-  readonly fixedTolerance: number;
-  value = Number.NaN;
-  tolerance = Number.NaN;
+  /** Duration of the window, NaN for a count window. */
+  readonly windowSeconds: number;
+  /** Length of a count window, 0 for a duration window. */
+  readonly windowReadings: number;
+  readonly minReadings: number;
+  readonly holdSeconds: number;
   covered = false;
   met = false;
   since = Number.NaN;
@@ -250,11 +251,13 @@ class RuleRuntime {
   dirty = false;
 
   constructor(spec: CriterionSpec, stream: Stream, window: SlidingWindow) {
-    this.spec = spec;
+    super(spec, window);
     this.stream = stream;
-    this.window = window;
     this.strict = spec.comparison === 'less-than';
-    this.fixedTolerance = spec.tolerance.relative === null ? (spec.tolerance.absolute as number) : Number.NaN;
+    this.windowSeconds = spec.window.kind === 'seconds' ? spec.window.seconds : Number.NaN;
+    this.windowReadings = spec.window.kind === 'readings' ? spec.window.readings : 0;
+    this.minReadings = spec.minReadings;
+    this.holdSeconds = spec.holdSeconds;
   }
 
   saveState(): RuleRuntimeState {
@@ -339,6 +342,7 @@ export class CriteriaTracker {
       const windowKey = `${streamKey}|${spec.window.kind}:${spec.window.kind === 'seconds' ? spec.window.seconds : spec.window.readings}`;
       this.rules.push(new RuleRuntime(spec, streamsByKey.get(streamKey) as Stream, windowFor.get(windowKey) as SlidingWindow));
     }
+    this.refreshSetPoints();
   }
 
   /** Samples taken (ignored ones included): the index of the next sample. */
@@ -371,6 +375,7 @@ export class CriteriaTracker {
     const next = value !== null && Number.isFinite(value) ? value : null;
     if (next === this.testPointSetPoint) return;
     this.testPointSetPoint = next;
+    this.refreshSetPoints();
     for (const rule of this.rules) if (rule.spec.setPoint.kind === 'test-point') rule.dirty = true;
   }
 
@@ -403,7 +408,7 @@ export class CriteriaTracker {
         }
       }
       if (rule.met) {
-        if (!rule.holds && time - rule.since >= rule.spec.holdSeconds - TIME_EPSILON) {
+        if (!rule.holds && time - rule.since >= rule.holdSeconds - TIME_EPSILON) {
           rule.holds = true;
           (events ??= []).push({ kind: 'criterion-holds', at, time, rule: rule.spec.name, since: rule.since, value: rule.value, tolerance: rule.tolerance, margin: rule.tolerance - rule.value });
         }
@@ -478,10 +483,15 @@ export class CriteriaTracker {
     this.lateCount = state.late;
     this.lastTime = state.lastTime ?? Number.NaN;
     this.testPointSetPoint = state.testPointSetPoint;
+    this.refreshSetPoints();
     this.streams.forEach((stream, i) => stream.loadState(state.streams[i] as StreamState));
     this.windows.forEach((window, i) => window.loadState(state.windows[i] as SlidingWindowState));
     this.rules.forEach((rule, i) => rule.loadState(state.rules[i] as RuleRuntimeState));
     return true;
+  }
+
+  private refreshSetPoints(): void {
+    for (const rule of this.rules) rule.setPoint = this.setPointOf(rule.spec) ?? Number.NaN;
   }
 
   private setPointOf(spec: CriterionSpec): number | null {
@@ -491,23 +501,14 @@ export class CriteriaTracker {
 
   private evaluate(rule: RuleRuntime): void {
     rule.dirty = false;
-    const spec = rule.spec;
     const window = rule.window;
-    const n = window.count;
-    const bound = spec.window;
+    const n = window.end - window.start;
+    const seconds = rule.windowSeconds;
     rule.covered =
-      n >= spec.minReadings &&
-      (bound.kind === 'seconds' ? n > 0 && window.newestTime - rule.stream.origin >= bound.seconds - TIME_EPSILON : n >= bound.readings);
-    const setPoint = this.setPointOf(spec);
-    rule.value = statisticValue(spec, window, setPoint);
-    if (Number.isNaN(rule.fixedTolerance)) {
-      const tolerance = toleranceFor(spec.tolerance, readingBasis(spec, window), setPoint);
-      rule.tolerance = tolerance === null ? Number.NaN : tolerance;
-    } else rule.tolerance = rule.fixedTolerance;
-    const value = rule.value;
-    const tolerance = rule.tolerance;
+      n >= rule.minReadings && (!Number.isNaN(seconds) ? n > 0 && window.newestTime - rule.stream.origin >= seconds - TIME_EPSILON : n >= rule.windowReadings);
+    rule.update();
     // NaN compares false: an undefined value or tolerance never meets the condition.
-    rule.met = rule.covered && (rule.strict ? value < tolerance : value <= tolerance);
+    rule.met = rule.covered && (rule.strict ? rule.value < rule.tolerance : rule.value <= rule.tolerance);
   }
 
   private lostReason(rule: RuleRuntime): string {
@@ -615,6 +616,7 @@ function mergeNeeds(a: WindowNeeds, b: WindowNeeds): WindowNeeds {
   return {
     extremes: a.extremes || b.extremes,
     moments: a.moments || b.moments,
+    spread: a.spread || b.spread,
     regression: a.regression || b.regression,
     lags: [...new Set([...(a.lags ?? []), ...(b.lags ?? [])])],
   };

@@ -2,7 +2,7 @@ import { describe, expect, it } from 'vitest';
 import fc from 'fast-check';
 import { ReadingRing } from '../../../src/core/criteria/reading-ring.js';
 import { SlidingWindow, type WindowBound } from '../../../src/core/criteria/sliding-window.js';
-import { MonotonicDeque, SlidingExtremes } from '../../../src/core/criteria/monotonic-deque.js';
+import { SlidingExtremes } from '../../../src/core/criteria/monotonic-deque.js';
 import { SubIntervalAverages } from '../../../src/core/criteria/sub-interval-averages.js';
 import { SampledReadings } from '../../../src/core/criteria/sampled-readings.js';
 import { naiveAverages, naiveLaggedChange, naiveMax, naiveMean, naiveMin, naiveSampled, naiveSlope, naiveVariance, pick, windowIndices } from '../../helpers/naive-criteria.js';
@@ -162,24 +162,25 @@ describe('SlidingWindow', () => {
   });
 });
 
-describe('MonotonicDeque', () => {
-  it('newestAbove finds the newest reading of the window above a threshold', () => {
+describe('SlidingExtremes', () => {
+  it('newestAbove and newestBelow find the newest reading of the window beyond a threshold', () => {
     fc.assert(
       fc.property(fc.array(fc.integer({ min: -4, max: 4 }), { minLength: 1, maxLength: 80 }), fc.integer({ min: 1, max: 20 }), fc.integer({ min: -5, max: 5 }), (values, width, threshold) => {
-        const d = new MonotonicDeque(2);
+        const e = new SlidingExtremes(2);
         values.forEach((v, i) => {
-          d.push(i, v);
-          d.expireBefore(i - width + 1);
+          e.push(i, v);
+          e.expireBefore(i - width + 1);
         });
         const first = Math.max(0, values.length - width);
-        let expected = -1;
-        for (let i = values.length - 1; i >= first; i--) {
-          if ((values[i] as number) > threshold) {
-            expected = i;
-            break;
-          }
-        }
-        expect(d.newestAbove(threshold)).toBe(expected);
+        const newest = (test: (v: number) => boolean) => {
+          for (let i = values.length - 1; i >= first; i--) if (test(values[i] as number)) return i;
+          return -1;
+        };
+        expect(e.newestAbove(threshold)).toBe(newest((v) => v > threshold));
+        expect(e.newestBelow(threshold)).toBe(newest((v) => v < threshold));
+        const window = values.slice(first);
+        expect(e.max).toBe(naiveMax(window));
+        expect(e.min).toBe(naiveMin(window));
       }),
     );
   });
