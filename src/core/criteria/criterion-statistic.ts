@@ -180,14 +180,6 @@ export class CriterionEvaluator {
   }
 }
 
-/** The value compared with the tolerance (NaN when the window cannot give it); allocates: not for the per-sample path. */
-export function statisticValue(spec: CriterionSpec, window: SlidingWindow, setPoint: number | null): number {
-  const evaluator = new CriterionEvaluator(spec, window);
-  evaluator.setPoint = setPoint === null ? Number.NaN : setPoint;
-  evaluator.update();
-  return evaluator.value;
-}
-
 /** The basis of a tolerance relative to the reading: the newest reading for changes, else the window's mean. */
 export function readingBasis(spec: CriterionSpec, window: SlidingWindow): number {
   if (window.count === 0) return Number.NaN;

@@ -314,20 +314,20 @@ export class CriteriaTracker {
     this.fingerprint = JSON.stringify(this.specs);
     this.testPointSetPoint = options.setPoint ?? null;
     const streamsByKey = new Map<string, Stream>();
-    const windowsByKey = new Map<string, { stream: Stream; spec: CriterionSpec; needs: WindowNeeds; rules: CriterionSpec[] }>();
+    const windowsByKey = new Map<string, { stream: Stream; spec: CriterionSpec; needs: WindowNeeds }>();
     for (const spec of this.specs) {
-      const streamKey = spec.basis.kind === 'readings' ? 'readings' : `${spec.basis.kind}:${spec.basis.seconds}`;
+      const streamKey = streamKeyOf(spec);
       let stream = streamsByKey.get(streamKey);
       if (!stream) {
         stream = spec.basis.kind === 'readings' ? new SampleStream() : spec.basis.kind === 'averages' ? new AverageStream(spec.basis.seconds) : new SampledStream(spec.basis.seconds);
         streamsByKey.set(streamKey, stream);
         this.streams.push(stream);
       }
-      const windowKey = `${streamKey}|${spec.window.kind}:${spec.window.kind === 'seconds' ? spec.window.seconds : spec.window.readings}`;
+      const windowKey = windowKeyOf(spec);
       const needs = criterionNeeds(spec);
       const entry = windowsByKey.get(windowKey);
       if (entry) entry.needs = mergeNeeds(entry.needs, needs);
-      else windowsByKey.set(windowKey, { stream, spec, needs, rules: [] });
+      else windowsByKey.set(windowKey, { stream, spec, needs });
     }
     const windowFor = new Map<string, SlidingWindow>();
     for (const [key, entry] of windowsByKey) {
@@ -338,9 +338,7 @@ export class CriteriaTracker {
       windowFor.set(key, window);
     }
     for (const spec of this.specs) {
-      const streamKey = spec.basis.kind === 'readings' ? 'readings' : `${spec.basis.kind}:${spec.basis.seconds}`;
-      const windowKey = `${streamKey}|${spec.window.kind}:${spec.window.kind === 'seconds' ? spec.window.seconds : spec.window.readings}`;
-      this.rules.push(new RuleRuntime(spec, streamsByKey.get(streamKey) as Stream, windowFor.get(windowKey) as SlidingWindow));
+      this.rules.push(new RuleRuntime(spec, streamsByKey.get(streamKeyOf(spec)) as Stream, windowFor.get(windowKeyOf(spec)) as SlidingWindow));
     }
     this.refreshSetPoints();
   }
@@ -610,6 +608,15 @@ export class CriteriaTracker {
     if (met === null) return { earliest: null, pending };
     return { earliest: stream.readingAtOrAfter(met) + hold, pending };
   }
+}
+
+/** Rules on the same readings share a stream; rules on the same readings and window bound share a window. */
+function streamKeyOf(spec: CriterionSpec): string {
+  return spec.basis.kind === 'readings' ? 'readings' : `${spec.basis.kind}:${spec.basis.seconds}`;
+}
+
+function windowKeyOf(spec: CriterionSpec): string {
+  return `${streamKeyOf(spec)}|${spec.window.kind}:${spec.window.kind === 'seconds' ? spec.window.seconds : spec.window.readings}`;
 }
 
 function mergeNeeds(a: WindowNeeds, b: WindowNeeds): WindowNeeds {
