@@ -112,19 +112,10 @@ export class CriterionEvaluator {
     this.fixedTolerance = spec.tolerance.relative === null && spec.tolerance.absolute !== null ? spec.tolerance.absolute : Number.NaN;
   }
 
+  /** Sets `value` and `tolerance` (assigned, not returned: V8 boxes a number returned from a call it does not inline). */
   update(): void {
-    this.measure();
-    let tolerance = this.fixedTolerance;
-    if (Number.isNaN(tolerance)) {
-      const setPoint = this.setPoint;
-      const found = toleranceFor(this.spec.tolerance, readingBasis(this.spec, this.window), Number.isNaN(setPoint) ? null : setPoint);
-      tolerance = found === null ? Number.NaN : found;
-    }
-    this.tolerance = tolerance;
-  }
-
-  /** Sets `value` (assigned, not returned: V8 would box a returned number when the call is not inlined). */
-  private measure(): void {
+    if (Number.isNaN(this.fixedTolerance)) this.updateTolerance();
+    else this.tolerance = this.fixedTolerance;
     const window = this.window;
     const n = window.end - window.start;
     let value = Number.NaN;
@@ -173,6 +164,12 @@ export class CriterionEvaluator {
       }
     }
     this.value = value;
+  }
+
+  private updateTolerance(): void {
+    const setPoint = this.setPoint;
+    const found = toleranceFor(this.spec.tolerance, readingBasis(this.spec, this.window), Number.isNaN(setPoint) ? null : setPoint);
+    this.tolerance = found === null ? Number.NaN : found;
   }
 
   private directed(change: number): number {

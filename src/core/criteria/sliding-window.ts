@@ -127,12 +127,13 @@ export class SlidingWindow {
     // Old readings leave before the new change is paired, so no pair reaches outside.
     const before = this.start;
     const seconds = this.durationSeconds;
+    let start = before;
     if (!Number.isNaN(seconds)) {
       const oldest = time - seconds - TIME_EPSILON + this.span;
-      while (this.start < seq && ring.timeAt(this.start) < oldest) this.leave();
-    } else {
-      while (this.end - this.start > this.countLimit) this.leave();
-    }
+      while (start < seq && ring.timeAt(start) < oldest) start++;
+    } else if (seq + 1 - start > this.countLimit) start = seq + 1 - this.countLimit;
+    if (sums !== null) for (let leaving = before; leaving < start; leaving++) this.leave(sums, leaving);
+    this.start = start;
     if (this.start !== before && this.extremes !== null) this.extremes.expireBefore(this.start);
     if (this.hasLags) {
       for (let i = 0; i < this.lagged.length; i++) {
@@ -191,16 +192,12 @@ export class SlidingWindow {
     this.refresh();
   }
 
-  private leave(): void {
-    const seq = this.start++;
-    const sums = this.sums;
-    if (sums !== null) {
-      const value = this.ring.valueAt(seq);
-      // A reading that carries most of the sum of squares leaving: its round-off stays behind.
-      if (sums.count > 2 && sums.dominates(value)) this.rebuildWanted = true;
-      sums.remove(this.ring.timeAt(seq), value);
-      this.removals++;
-    }
+  private leave(sums: WindowSums, seq: number): void {
+    const value = this.ring.valueAt(seq);
+    // A reading that carries most of the sum of squares leaving: its round-off stays behind.
+    if (sums.count > 2 && sums.dominates(value)) this.rebuildWanted = true;
+    sums.remove(this.ring.timeAt(seq), value);
+    this.removals++;
   }
 
   /** Recomputes the sums from the window's readings, anchored at its first time and its mean. */

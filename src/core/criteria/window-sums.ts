@@ -84,12 +84,7 @@ export class WindowSums {
   add(time: number, value: number): void {
     if (!this.anchored) this.reset(time, value);
     this.count++;
-    const x = value - this.valueAnchor;
-    this.accumulate(x, x * x);
-    if (this.regression) {
-      const t = time - this.timeAnchor;
-      this.accumulateTime(t, t * t, t * x);
-    }
+    this.accumulate(value - this.valueAnchor, time - this.timeAnchor);
   }
 
   remove(time: number, value: number): void {
@@ -97,12 +92,7 @@ export class WindowSums {
       this.clear();
       return;
     }
-    const x = value - this.valueAnchor;
-    this.accumulate(-x, -(x * x));
-    if (this.regression) {
-      const t = time - this.timeAnchor;
-      this.accumulateTime(-t, -(t * t), -(t * x));
-    }
+    this.accumulate(this.valueAnchor - value, this.timeAnchor - time, -1);
   }
 
   /** Mean of the window's readings (NaN when empty). */
@@ -209,31 +199,36 @@ export class WindowSums {
     [this.sx, this.cx, this.sxx, this.cxx, this.st, this.ct, this.stt, this.ctt, this.stx, this.ctx] = state.sums as [number, number, number, number, number, number, number, number, number, number];
   }
 
-  // TwoSum: u = s + v exactly splits into the rounded sum u and the error (s - (u - b)) + (v - b).
-  private accumulate(x: number, xx: number): void {
+  /**
+   * Adds (sign 1) or removes (sign -1) one reading, shifted: x' = sign (x - anchor), t' likewise,
+   * so the squares are added with the sign and the products come out right. TwoSum: u = s + v
+   * splits exactly into the rounded sum u and the error (s - (u - b)) + (v - b), b = u - s.
+   */
+  private accumulate(x: number, t: number, sign = 1): void {
     let s = this.sx;
     let u = s + x;
     let b = u - s;
     this.cx += s - (u - b) + (x - b);
     this.sx = u;
+    const xx = sign * x * x;
     s = this.sxx;
     u = s + xx;
     b = u - s;
     this.cxx += s - (u - b) + (xx - b);
     this.sxx = u;
-  }
-
-  private accumulateTime(t: number, tt: number, tx: number): void {
-    let s = this.st;
-    let u = s + t;
-    let b = u - s;
+    if (!this.regression) return;
+    s = this.st;
+    u = s + t;
+    b = u - s;
     this.ct += s - (u - b) + (t - b);
     this.st = u;
+    const tt = sign * t * t;
     s = this.stt;
     u = s + tt;
     b = u - s;
     this.ctt += s - (u - b) + (tt - b);
     this.stt = u;
+    const tx = sign * t * x;
     s = this.stx;
     u = s + tx;
     b = u - s;
