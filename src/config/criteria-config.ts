@@ -29,7 +29,8 @@ import { READINESS_POLICIES, type ReadinessPolicy } from '../engine/criteria/rea
  *       comparison: at-most      # or less-than
  *       setPoint: test-point     # or a number; omitted: no set point
  *       minReadings: 10
- *       holdSeconds: 60          # must hold continuously this long (not longer than the window)
+ *       holdSeconds: 60          # must hold continuously this long (not longer than the window,
+ *                                # checked where its duration is known)
  *       lag: 1                   # change: readings apart, or "window" (first to newest reading)
  *       direction: any           # change, average-change, slope: any, rise or fall
  *       perSeconds: 60           # slope: value and tolerance per minute
