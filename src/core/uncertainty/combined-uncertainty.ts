@@ -285,3 +285,38 @@ function inputLevel(inputs: readonly BudgetInput[], rows: BudgetRow[], rowInput:
 function finiteOrNull(nu: number): number | null {
   return Number.isFinite(nu) ? nu : null;
 }
+
+/**
+ * The split the stopping rule needs (dominance-stop.ts): the Type A variance terms and their
+ * Welch-Satterthwaite denominator, and the rest of u_c^2 with the denominator of its (independent)
+ * sources, shared components merged as in combineUncertainty.
+ * Cost: O(rows).
+ */
+export function typeASplit(combined: CombinedUncertainty): { typeAVariance: number; typeADofDenominator: number; typeADof: number | null; otherVariance: number; otherDofDenominator: number } {
+  let typeAVariance = 0;
+  let typeADofDenominator = 0;
+  const others = new Map<string, { contribution: number; dof: number | null }>();
+  combined.rows.forEach((row, i) => {
+    if (row.evaluation === 'A') {
+      const v = row.contribution * row.contribution;
+      typeAVariance += v;
+      if (row.dof !== null) typeADofDenominator += (v * v) / row.dof;
+      return;
+    }
+    const key = row.shared === null ? `#${i}` : `shared:${row.shared}`;
+    const entry = others.get(key);
+    if (entry) {
+      entry.contribution += row.contribution;
+      if (row.dof !== null) entry.dof = entry.dof === null ? row.dof : Math.min(entry.dof, row.dof);
+    } else others.set(key, { contribution: row.contribution, dof: row.dof });
+  });
+  let otherVariance = 0;
+  let otherDofDenominator = 0;
+  for (const { contribution, dof } of others.values()) {
+    const v = contribution * contribution;
+    otherVariance += v;
+    if (dof !== null) otherDofDenominator += (v * v) / dof;
+  }
+  const typeADof = typeADofDenominator > 0 ? (typeAVariance * typeAVariance) / typeADofDenominator : null;
+  return { typeAVariance, typeADofDenominator, typeADof, otherVariance, otherDofDenominator };
+}
