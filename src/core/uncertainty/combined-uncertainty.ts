@@ -200,12 +200,11 @@ export function combineUncertainty(inputs: readonly BudgetInput[], options: Comb
   }
 
   const nu = effectiveDegreesOfFreedom(sources.map((s) => ({ contribution: s.contribution, dof: s.dof })), variance);
-  let dof: number | null = nu === null || nu === Number.POSITIVE_INFINITY ? null : nu;
+  const dof: number | null = nu === null || nu === Number.POSITIVE_INFINITY ? null : nu;
   let dofNote: string | undefined;
   if (nu === null) dofNote = 'combined standard uncertainty is zero: effective degrees of freedom undefined';
   if (notes.length > 0) dofNote = [dofNote, ...new Set(notes)].filter(Boolean).join('; ');
   const coverageDof = dof === null ? null : rounding === 'truncate' ? truncateDegreesOfFreedom(dof) : dof;
-  if (nu === null) dof = null;
   const k = coverageFactor(options.confidence, coverageDof ?? Number.POSITIVE_INFINITY);
 
   const { summaries, covariances } = inputLevel(inputs, rows, rowInput, rowOwn, sharedSources, share);

@@ -161,7 +161,8 @@ function targetCondition(
   const achieved = achievedAt(1);
   if (!(bound > 0)) return { ...base, achieved, ...fromFactor(null, spec.relative ? 'relative target with a zero mean cannot be met' : 'target must be positive') };
   if (achieved <= bound) return { ...base, achieved, met: true, samplesToMeet: 0, secondsToMeet: 0 };
-  if (n < 2 || va === 0) return { ...base, achieved, ...fromFactor(null, 'the Type B components alone exceed the target: averaging longer cannot meet it') };
+  if (n < 2) return { ...base, achieved, ...fromFactor(null, 'not enough samples to estimate the Type A uncertainty') };
+  if (va === 0) return { ...base, achieved, ...fromFactor(null, 'the Type B components alone exceed the target: averaging longer cannot meet it') };
   // the limit m -> infinity: u_c -> sqrt(V_B), nu_eff -> V_B^2 / D_B
   if (achievedAt(1e12) > bound) return { ...base, achieved, ...fromFactor(null, 'the Type B components alone exceed the target: averaging longer cannot meet it') };
   let m: number;

@@ -73,7 +73,7 @@ describe('combineUncertainty: JCGM 100:2008 H.1, the end gauge, with Type A and 
     expect(Math.abs((result.dof as number) - 16.7)).toBeLessThanOrEqual(0.1);
     expect(result.coverageDof).toBe(16); // GUM G.4.1 / H.1.6: truncated to the next lower integer
     expect(result.coverageFactor as number).toBeCloseTo(h1.t99AtTruncatedNu, 9);
-    expectPublished(result.coverageFactor as number, 2.92, 0.005); // GUM Table G.2, nu = 16 would be interpolated; H.1.6 prints 2.92
+    expectPublished(result.coverageFactor as number, 2.92, 0.005); // t_99(16) as H.1.6 prints it (from memory)
     // U99 = 93 nm (from memory) is 2.92 x the rounded u_c = 32 nm; unrounded 2.9208 x 31.66 = 92.48: within 1 nm
     expectPublished(Number((result.coverageFactor as number).toFixed(2)) * Math.round(result.standardUncertainty), 93, 0.5);
     expect(Math.abs((result.expandedUncertainty as number) - 93)).toBeLessThanOrEqual(1);
