@@ -587,7 +587,8 @@ export class ChannelPipeline {
       this.nextDiagnosis = index + Math.max(64, DIAGNOSIS_SEGMENT - n);
       return;
     }
-    const values = this.series.values();
+    // Only the periodogram's segment is read (the newest `segment` samples), never the whole window.
+    const values = this.series.newestValues(segment);
     const periodogram = SHARED_PERIODOGRAM.compute(values);
     this.diagnosis = periodogram ? diagnoseSpectrum(periodogram, this.series.autocovariance(), n, this.series.variance, values) : null;
     this.snapshotCache = null;

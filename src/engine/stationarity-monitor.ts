@@ -254,13 +254,14 @@ export class StationarityMonitor {
       // (a standard result for the sample variance; e.g. G. E. P. Box (1953), Biometrika 40,
       // 318-335, on the non-robustness of variance tests; from memory), so the recent variance gets
       // the chi-square degrees of freedom 2 / that, kappa from the stored block means.
-      const kappa = this.blockKurtosis();
-      const recentDof = 2 / (2 / (RECENT_BLOCKS - 1) + kappa / RECENT_BLOCKS);
-      const test = varianceChangeTest(
-        { longRunVariance: recent * blockSize, dof: recentDof },
-        { longRunVariance, dof: Math.max(1, this.settings.longRunDof) },
-        this.thresholds.varianceAlpha,
-      );
+      // (The kurtosis only ever weakens the test, so it is worked out only when the normal-theory
+      // test would fire.)
+      const reference = { longRunVariance, dof: Math.max(1, this.settings.longRunDof) };
+      let test = varianceChangeTest({ longRunVariance: recent * blockSize, dof: RECENT_BLOCKS - 1 }, reference, this.thresholds.varianceAlpha);
+      if (test.changed && test.direction === 'up') {
+        const kappa = this.blockKurtosis();
+        test = varianceChangeTest({ longRunVariance: recent * blockSize, dof: 2 / (2 / (RECENT_BLOCKS - 1) + kappa / RECENT_BLOCKS) }, reference, this.thresholds.varianceAlpha);
+      }
       // Only more noise breaks the averaging: less noise leaves the stated uncertainty conservative.
       if (test.changed && test.direction === 'up') {
         const start = this.historyStart + (this.historyLength - RECENT_BLOCKS) * blockSize;

@@ -99,14 +99,24 @@ export function allanReport(values: Float64Array, rate: number | null): AllanRep
   if (values.length < 4) return { points: [], averagingLimit: null };
   const points = overlappingAllanDeviation(values, octaveFactors(values.length), 1);
   const tau0 = rate && rate > 0 ? 1 / rate : null;
-  // The Allan deviation of positively correlated noise rises over the first octaves (averaging has
-  // not yet reached independent samples) and approaches the white-noise fall, 1/sqrt(m), only for m
-  // well beyond tau_int; in between it falls more slowly, which a test against the white-noise
-  // continuation reads as a floor (it did on ARMA(1,1) about half the time). The limit is sought
-  // only after the averaging has been seen to reach the white-noise regime (an octave over which the
-  // deviation falls as fast as m^-0.4 or faster), and it must be confirmed by the error bars
-  // (core/allan/allan-deviation.ts averagingLimit). A series that never gets there (a drift that
-  // sets in before its own correlation has averaged out) is not given a limit it cannot support.
+  const limit = limitFromPoints(points, values.length);
+  return {
+    points: points.map((p) => ({ m: p.m, tauSeconds: tau0 === null ? null : p.m * tau0, adev: p.adev, count: p.count, edf: p.edf, low: p.low, high: p.high })),
+    averagingLimit: limit ? { m: limit.m, tauSeconds: tau0 === null ? null : limit.m * tau0, adev: limit.adev } : null,
+  };
+}
+
+/**
+ * The Allan deviation of positively correlated noise rises over the first octaves (averaging has
+ * not yet reached independent samples) and approaches the white-noise fall, 1/sqrt(m), only for m
+ * well beyond tau_int; in between it falls more slowly, which a test against the white-noise
+ * continuation reads as a floor (it did on ARMA(1,1) about half the time). The limit is sought only
+ * after the averaging has been seen to reach the white-noise regime (an octave over which the
+ * deviation falls as fast as m^-0.4 or faster), and it must be confirmed by the error bars
+ * (core/allan/allan-deviation.ts averagingLimit). A series that never gets there (a drift that sets
+ * in before its own correlation has averaged out) is not given a limit it cannot support.
+ */
+function limitFromPoints(points: readonly AllanPoint[], n: number): { m: number; adev: number } | null {
   let white = -1;
   for (let i = 0; i + 1 < points.length; i++) {
     const slope = Math.log2((points[i + 1] as AllanPoint).adev / (points[i] as AllanPoint).adev);
@@ -116,10 +126,6 @@ export function allanReport(values: Float64Array, rate: number | null): AllanRep
     }
   }
   // Octaves with fewer than 16 independent averages carry error bars too wide to name a limit.
-  const candidates = white >= 0 ? points.slice(white).filter((p) => p.m <= values.length / 16) : [];
-  const limit = candidates.length >= 3 ? averagingLimit(candidates) : null;
-  return {
-    points: points.map((p) => ({ m: p.m, tauSeconds: tau0 === null ? null : p.m * tau0, adev: p.adev, count: p.count, edf: p.edf, low: p.low, high: p.high })),
-    averagingLimit: limit ? { m: limit.m, tauSeconds: tau0 === null ? null : limit.m * tau0, adev: limit.adev } : null,
-  };
+  const candidates = white >= 0 ? points.slice(white).filter((p) => p.m <= n / 16) : [];
+  return candidates.length >= 3 ? averagingLimit(candidates) : null;
 }

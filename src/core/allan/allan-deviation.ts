@@ -126,6 +126,16 @@ export function allanFromBlockMeans(blockMeans: ArrayLike<number>, m: number, ta
   let squares = 0;
   for (let k = 1; k < blocks; k++) squares += ((blockMeans[k] as number) - (blockMeans[k - 1] as number)) ** 2;
   if (!Number.isFinite(squares)) throw new RangeError('allan deviation requires finite block means');
+  return allanFromDifferences(m, blocks, squares, tau0, confidence);
+}
+
+/**
+ * Non-overlapping Allan deviation at factor m from the sum of squared differences of `blocks`
+ * successive block means (what the block pyramid maintains): sqrt(squares / (2 (blocks - 1))).
+ * Null for fewer than two blocks. O(1) plus two chi-square quantiles.
+ */
+function allanFromDifferences(m: number, blocks: number, squares: number, tau0 = 1, confidence = ONE_SIGMA_COVERAGE): AllanPoint | null {
+  if (blocks < 2 || !(squares >= 0)) return null;
   return makePoint(m, tau0, Math.sqrt(squares / (2 * (blocks - 1))), blocks - 1, nonOverlappingWhiteFmEdf(blocks), confidence);
 }
 

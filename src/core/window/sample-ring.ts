@@ -100,6 +100,16 @@ export class SampleRing {
     this.count = 0;
   }
 
+  /** The newest `count` values (all when fewer), oldest first (a copy). O(count). */
+  copyNewestValues(count: number): Float64Array {
+    const n = Math.min(count, this.count);
+    const out = new Float64Array(n);
+    let start = this.head + this.count - n;
+    if (start >= this.valueSlots.length) start -= this.valueSlots.length;
+    copyRing(this.valueSlots, start, n, out);
+    return out;
+  }
+
   /** Plain-data state (live samples only), for persistence. */
   saveState(): SampleRingState {
     return { values: this.copyValues(), times: this.copyTimes() };

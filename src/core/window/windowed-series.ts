@@ -199,6 +199,11 @@ export class WindowedSeries {
     return this.ring.copyValues();
   }
 
+  /** The newest `count` values of the window, oldest first (a copy). O(count). */
+  newestValues(count: number): Float64Array {
+    return this.ring.copyNewestValues(count);
+  }
+
   /** Bytes held by the window's buffers. */
   get byteLength(): number {
     return this.ring.capacity * 16 + this.pyramid.byteLength + this.lags.byteLength;
