@@ -7,10 +7,21 @@ import type { ChannelEvent } from '../engine/channel-events.js';
 import { TestPoints, type TestPoint, type TestPointChange } from '../engine/test-points.js';
 import { decodePayload, DECODER_DEFAULTS } from '../ingest/payload-decoder.js';
 import { REJECT_REASONS, type RejectReason } from '../ingest/sample.js';
-import { MqttIngest, isUnknownTopic } from '../ingest/mqtt-ingest.js';
-import { SqliteStore, type FlushBatch, type StoredEvent } from '../store/sqlite-store.js';
+import { MqttConnection } from '../ingest/mqtt-connection.js';
+import { MqttSampleSource } from '../ingest/mqtt-sample-source.js';
+import { MqttPublisher } from '../ingest/mqtt-publisher.js';
+import { SqliteStore } from '../store/sqlite-store.js';
+import { SystemClock } from '../clock/system-clock.js';
 import type { ChannelPipelineState } from '../engine/channel-pipeline.js';
+import type { Clock } from '../ports/clock.js';
+import type { Publisher, VolatileEvent } from '../ports/publisher.js';
+import type { SampleSource, SourceBatch, SourceStatus } from '../ports/sample-source.js';
+import { isUnstamped, type Store, type StoredEvent } from '../ports/store.js';
 import { DerivedResults } from './derived-results.js';
+import { CommitCycle, type CommitHealth } from './commit-cycle.js';
+import { ListenerPublisher } from './listener-publisher.js';
+import { PlateauError } from '../errors/catalogue.js';
+import type { PendingBatch } from './pending-batch.js';
 
 /**
  * The daemon: MQTT streams in, the engine, SQLite state, test points, alerts out. This is the
@@ -28,22 +39,30 @@ export interface DaemonOptions {
   logger?: Logger;
   /** Broker URL to use when the config says "embedded" (the demo starts the broker itself). */
   brokerUrl?: string;
-  now?: () => number;
+  clock?: Clock;
   /** Ingest lag that raises the `ingest-lag` warning event (default 5000 ms). */
   lagWarningMs?: number;
+  /** The store (default: SqliteStore on config.store.path, opened by start()). */
+  store?: Store;
+  /** The sample source (default: MQTT on the configured broker); with it, `publisher` replaces the MQTT publisher. */
+  source?: SampleSource;
+  publisher?: Publisher;
+  /** Backoff of the commit retries after a failed commit (ms). */
+  commitRetry?: { initialMs?: number; maxMs?: number };
+}
+
+/** The daemon's health: the store's commits and the broker connection. */
+export interface DaemonHealth {
+  /** ok; degraded: the broker is not connected; failing: commits fail (nothing is acknowledged). */
+  status: 'ok' | 'degraded' | 'failing';
+  broker: 'connected' | 'disconnected';
+  store: CommitHealth;
 }
 
 /** An event as committed to the store and then handed to the listeners and the MQTT event topic. */
 export type PublishedEvent = StoredEvent;
 
 export type DaemonListener = (event: PublishedEvent) => void;
-
-interface PendingChunk {
-  channelId: number;
-  firstSeq: number;
-  times: number[];
-  values: number[];
-}
 
 /** Log one line per reason at most this often. */
 const REJECT_LOG_INTERVAL_MS = 10_000;
@@ -58,22 +77,17 @@ export class Daemon {
   readonly registry: ChannelRegistry;
   readonly testPoints: TestPoints;
   readonly derived: DerivedResults;
-  store!: SqliteStore;
-  ingest: MqttIngest | null = null;
-  private readonly now: () => number;
+  store!: Store;
+  private source: SampleSource | null = null;
+  private readonly publishers: Publisher[] = [];
+  private readonly listeners: ListenerPublisher;
+  private readonly options: DaemonOptions;
+  private readonly clock: Clock;
   private readonly brokerUrl: string;
   private readonly lagWarningMs: number;
-  private pendingChunks = new Map<number, PendingChunk>();
-  private pendingEvents: { source: string; kind: string; at: number | null; body: Record<string, unknown> }[] = [];
-  private pendingMarks: FlushBatch['marks'] = [];
-  private pendingTestPoints: TestPoint[] = [];
-  private pendingRecords: { testPointId: string; body: unknown }[] = [];
-  private flushScheduled = false;
-  private flushTimer: NodeJS.Timeout | null = null;
+  readonly commits: CommitCycle;
   private timers: NodeJS.Timeout[] = [];
-  private lastCheckpoint = new Map<number, number>();
-  private statusSent = new Map<string, string>();
-  private listeners = new Set<DaemonListener>();
+  private lastCheckpoint = new Map<string, number>();
   private publishedId = 0;
   private lastRejectLog = new Map<string, number>();
   private lagWarned = false;
@@ -82,11 +96,7 @@ export class Daemon {
     messages: 0,
     accepted: 0,
     rejected: Object.fromEntries(REJECT_REASONS.map((r) => [r, 0])) as Record<RejectReason, number>,
-    flushes: 0,
-    lastFlushMs: 0,
-    maxFlushMs: 0,
     ingestLagMs: 0,
-    acknowledged: 0,
     commands: 0,
     restoredSamples: 0,
     late: 0,
@@ -95,14 +105,43 @@ export class Daemon {
 
   constructor(config: PlateauConfig, options: DaemonOptions = {}) {
     this.config = config;
+    this.options = options;
     this.log = options.logger ?? pino({ level: config.log.level, base: { service: 'plateau' } });
-    this.now = options.now ?? Date.now;
+    this.clock = options.clock ?? new SystemClock();
     this.lagWarningMs = options.lagWarningMs ?? LAG_WARNING_MS;
     this.brokerUrl = config.broker.url === 'embedded' ? options.brokerUrl ?? 'mqtt://127.0.0.1:1883' : config.broker.url;
     this.registry = new ChannelRegistry((name) => this.channelOptions(name));
     this.testPoints = new TestPoints(this.registry);
     this.derived = new DerivedResults(config, this.registry);
     this.testPoints.useDerived(this.derived);
+    this.listeners = new ListenerPublisher((err) => this.log.warn({ err }, 'event listener failed'));
+    this.commits = new CommitCycle({
+      store: { commit: (batch, nowMs) => this.store.commit(batch, nowMs) },
+      clock: this.clock,
+      log: this.log,
+      flushIntervalMs: config.store.flushIntervalMs,
+      ...(options.commitRetry?.initialMs !== undefined ? { retryInitialMs: options.commitRetry.initialMs } : {}),
+      ...(options.commitRetry?.maxMs !== undefined ? { retryMaxMs: options.commitRetry.maxMs } : {}),
+      acknowledge: (tokens) => this.source?.acknowledge(tokens) ?? 0,
+      prepare: (batch, final) => this.prepareCommit(batch, final),
+      committed: (events) => this.publish(events),
+      healthChanged: (health) => this.storeHealthChanged(health),
+    });
+  }
+
+  private now(): number {
+    return this.clock.now();
+  }
+
+  /** The sample source's state: connected, reconnects, batches not yet acknowledged (null before start). */
+  get ingest(): SourceStatus | null {
+    return this.source?.status() ?? null;
+  }
+
+  health(): DaemonHealth {
+    const store = this.commits.health();
+    const connected = this.source?.status().connected ?? false;
+    return { status: store.failing ? 'failing' : connected ? 'ok' : 'degraded', broker: connected ? 'connected' : 'disconnected', store };
   }
 
   /** The unit the configuration gives a channel (looked up once per channel). */
@@ -119,19 +158,30 @@ export class Daemon {
 
   /** Opens the store, rebuilds every channel's state, connects to the broker. */
   async start(): Promise<void> {
-    this.store = new SqliteStore(this.config.store.path);
+    this.store = this.options.store ?? new SqliteStore(this.config.store.path);
     this.restore();
-    const commandSubscription: SubscriptionConfig = { ...COMMAND_SUBSCRIPTION, topic: `${this.config.topics.command}/#` };
-    this.ingest = new MqttIngest(this.config.broker, this.brokerUrl, [...this.config.subscriptions, commandSubscription], {
-      onMessage: (topic, payload, subscription) => this.onMessage(topic, payload, subscription),
-      onConnectionChange: (connected, detail) => {
-        this.log.info({ broker: this.brokerUrl, connected }, `broker ${detail}`);
-        this.queueEvent('daemon', connected ? 'broker-connected' : 'broker-disconnected', null, { broker: this.brokerUrl, detail });
-        this.scheduleFlush();
+    if (this.options.source) {
+      this.source = this.options.source;
+      if (this.options.publisher) this.publishers.push(this.options.publisher);
+    } else {
+      const subscriptions = daemonSubscriptions(this.config);
+      const connection = new MqttConnection(this.config.broker, this.brokerUrl, subscriptions.map((s) => s.topic));
+      this.source = new MqttSampleSource(connection, subscriptions);
+      this.publishers.push(this.options.publisher ?? new MqttPublisher(connection, this.config.topics));
+    }
+    this.publishers.push(this.listeners);
+    await this.source.start(
+      {
+        batch: (batch) => this.onBatch(batch),
+        connection: (connected, detail) => {
+          this.log.info({ broker: this.brokerUrl, connected }, `broker ${detail}`);
+          this.queueEvent('daemon', connected ? 'broker-connected' : 'broker-disconnected', null, { broker: this.brokerUrl, detail });
+          this.commits.request();
+        },
+        error: (err) => this.log.warn({ err }, 'mqtt'),
       },
-      onError: (error) => this.log.warn({ err: error.message }, 'mqtt'),
-    });
-    await this.ingest.start();
+      this.store.position(this.source.name),
+    );
     this.timers.push(setInterval(() => this.checkStale(), 1000));
     this.timers.push(setInterval(() => this.prune(), 3_600_000));
     for (const timer of this.timers) timer.unref();
@@ -142,25 +192,49 @@ export class Daemon {
     if (this.stopped) return;
     this.stopped = true;
     for (const timer of this.timers) clearInterval(timer);
-    if (this.flushTimer) clearTimeout(this.flushTimer);
     // Commit what is pending with a checkpoint of every channel, acknowledge it, then disconnect.
-    this.flush(true);
-    await this.ingest?.stop();
+    this.commits.stop();
+    await this.source?.stop();
     this.store.close();
   }
 
   onEvent(listener: DaemonListener): () => void {
-    this.listeners.add(listener);
-    return () => this.listeners.delete(listener);
+    return this.listeners.onEvent(listener);
+  }
+
+  /** Volatile events (the store-failing alert), as they are raised. */
+  onVolatileEvent(listener: (event: VolatileEvent) => void): () => void {
+    return this.listeners.onVolatileEvent(listener);
+  }
+
+  /** Health changes (the store failing or recovering), as they happen. */
+  onHealth(listener: (health: DaemonHealth) => void): () => void {
+    return this.listeners.onStatus((subject) => {
+      if (subject === 'daemon') listener(this.health());
+    });
+  }
+
+  /** Commits what is pending now (tests, and commands that must be durable before they answer). */
+  commitNow(): boolean {
+    return this.commits.commit(false);
   }
 
   // ---- ingest -------------------------------------------------------------------------------
 
-  onMessage(topic: string, payload: Buffer, subscription: SubscriptionConfig): void {
+  private onBatch(batch: SourceBatch): void {
+    for (const delivery of batch.deliveries) {
+      this.onMessage(delivery.topic, delivery.payload, delivery.subscription);
+      if (delivery.position.durable) this.commits.batch.setPosition(delivery.position);
+    }
+    this.commits.batch.addToken(batch.token);
+    this.commits.request();
+  }
+
+  private onMessage(topic: string, payload: Uint8Array, subscription: SubscriptionConfig | null): void {
     const arrival = this.now();
     this.counters.messages++;
     if (topic.startsWith(`${this.config.topics.command}/`)) return this.onCommand(topic, payload);
-    if (isUnknownTopic(subscription)) return this.rejected('unknown-topic', `topic ${topic.slice(0, 80)}: no subscription of this daemon matches it`);
+    if (subscription === null) return this.rejected('unknown-topic', `topic ${topic.slice(0, 80)}: no subscription of this daemon matches it`);
     const decoded = decodePayload(topic, payload, subscription, arrival);
     for (const rejection of decoded.rejections) this.rejected(rejection.reason, rejection.detail);
     let latestStamp = 0;
@@ -182,27 +256,27 @@ export class Daemon {
       if (sample.stamped && sample.timeMs > latestStamp) latestStamp = sample.timeMs;
       const channel = result.channel;
       channel.lastArrivalMs = arrival;
-      if (channel.id < 0) channel.id = this.store.addChannel(channel.name, channel.unit, arrival);
-      let chunk = this.pendingChunks.get(channel.id);
-      if (!chunk) {
-        chunk = { channelId: channel.id, firstSeq: result.seq, times: [], values: [] };
-        this.pendingChunks.set(channel.id, chunk);
-      }
-      chunk.times.push(result.timeMs);
-      chunk.values.push(sample.value);
+      this.introduce(channel);
+      this.commits.batch.addSample(channel.name, result.seq, result.timeMs, sample.value, sample.stamped);
       for (const event of result.events) this.queueChannelEvent(channel, event);
       this.derived.onSample(channel.name, sample.value, result.timeMs);
     }
     if (latestStamp > 0) this.noteLag(arrival, arrival - latestStamp);
-    this.scheduleFlush();
   }
 
-  private onCommand(topic: string, payload: Buffer): void {
+  /** A channel the store has not seen joins the pending batch (its first commit creates it). */
+  private introduce(channel: RegisteredChannel): void {
+    if (channel.stored) return;
+    channel.stored = true;
+    this.commits.batch.addChannel(channel.name, channel.unit);
+  }
+
+  private onCommand(topic: string, payload: Uint8Array): void {
     this.counters.commands++;
     const action = topic.slice(this.config.topics.command.length + 1);
     let body: Record<string, unknown> = {};
     try {
-      const text = payload.toString('utf8');
+      const text = Buffer.from(payload.buffer, payload.byteOffset, payload.byteLength).toString('utf8');
       body = text.trim() === '' ? {} : (JSON.parse(text) as Record<string, unknown>);
       if (typeof body !== 'object' || body === null || Array.isArray(body)) throw new Error('not an object');
     } catch {
@@ -215,9 +289,8 @@ export class Daemon {
         this.stopTestPoint(String(body.id ?? ''));
       } else this.rejected('unknown-topic', `command topic ${topic.slice(0, 80)}: unknown command (test-point/start, test-point/stop)`);
     } catch (error) {
-      this.log.warn({ command: action, err: (error as Error).message }, 'command refused');
+      this.log.warn({ command: action, err: error }, 'command refused');
       this.queueEvent('daemon', 'command-refused', null, { command: action, reason: (error as Error).message });
-      this.scheduleFlush();
     }
   }
 
@@ -261,7 +334,14 @@ export class Daemon {
 
   // ---- test points --------------------------------------------------------------------------
 
+  /** Commands change durable state: refused while commits fail (nothing would be stored). */
+  private requireStore(): void {
+    const health = this.commits.health();
+    if (health.failing) throw new PlateauError('ERR_STORE_UNAVAILABLE', { since: new Date(health.since as number).toISOString(), detail: health.lastError?.message ?? 'unknown error' });
+  }
+
   startTestPoint(request: { id?: string; name?: string; channels: string[]; derived?: string[] }): TestPoint {
+    this.requireStore();
     const change = this.testPoints.start(request, this.now(), this.derived.names());
     if (change.kind === 'test-point-started') {
       const marks = [...change.marks];
@@ -276,51 +356,42 @@ export class Daemon {
       }
       for (const mark of marks) {
         const channel = this.registry.get(mark.channel) as RegisteredChannel;
-        if (channel.id < 0) channel.id = this.store.addChannel(channel.name, channel.unit, this.now());
-        this.pendingMarks.push({ channelId: channel.id, seq: mark.seq, kind: 'restart-window' });
-        // The samples before the restart are in an earlier chunk: start a new one here.
-        this.closeChunk(channel.id);
+        this.introduce(channel);
+        this.commits.batch.addMark({ channel: channel.name, seq: mark.seq, kind: 'restart-window' });
       }
       this.derived.restart(change.point.derived);
     }
     this.applyTestPointChange(change);
-    this.flush(false);
+    this.commits.commit(false);
     return change.point;
   }
 
   stopTestPoint(id: string): TestPoint {
+    this.requireStore();
     const change = this.testPoints.stop(id, this.now());
     this.applyTestPointChange(change);
-    this.flush(false);
+    this.commits.commit(false);
     return change.point;
   }
 
   annotateTestPoint(id: string, text: string): TestPoint {
+    this.requireStore();
     const point = this.testPoints.annotate(id, text, this.now());
-    this.pendingTestPoints.push(point);
+    this.commits.batch.putTestPoint(point.id, point);
     this.queueEvent(id, 'test-point-annotated', null, { text: text.slice(0, 2000) });
-    this.flush(false);
+    this.commits.commit(false);
     return point;
   }
 
   private applyTestPointChange(change: TestPointChange): void {
-    this.pendingTestPoints.push(change.point);
+    this.commits.batch.putTestPoint(change.point.id, change.point);
     const body: Record<string, unknown> = { testPoint: change.point.id, name: change.point.name, channels: change.point.channels, state: change.point.state };
     if (change.kind !== 'test-point-started') {
-      this.pendingRecords.push({ testPointId: change.point.id, body: change.record });
+      this.commits.batch.addRecord(change.point.id, change.record);
       body.record = change.record;
     }
     this.queueEvent(change.point.id, change.kind, null, body);
   }
-
-  private closeChunk(channelId: number): void {
-    const chunk = this.pendingChunks.get(channelId);
-    if (!chunk) return;
-    this.pendingChunks.delete(channelId);
-    this.closedChunks.push(chunk);
-  }
-
-  private closedChunks: PendingChunk[] = [];
 
   // ---- events and flushing ------------------------------------------------------------------
 
@@ -330,119 +401,61 @@ export class Daemon {
   }
 
   queueEvent(source: string, kind: string, at: number | null, body: Record<string, unknown>): void {
-    this.pendingEvents.push({ source, kind, at, body });
+    this.commits.batch.addEvent({ timeMs: this.now(), source, kind, at, body });
+    this.commits.request();
   }
 
-  /**
-   * A commit is due: at once (after the burst of messages in hand, which mqtt.js handles on the next
-   * ticks, before setImmediate) when acknowledgements or events wait on it, else within
-   * store.flushIntervalMs, so that QoS 0 streams are committed in batches.
-   */
-  scheduleFlush(): void {
-    if (this.stopped) return;
-    const urgent = (this.ingest?.heldCount ?? 0) > 0 || this.pendingEvents.length > 0 || this.pendingTestPoints.length > 0;
-    if (urgent) {
-      if (this.flushScheduled) return;
-      if (this.flushTimer) {
-        clearTimeout(this.flushTimer);
-        this.flushTimer = null;
-      }
-      this.flushScheduled = true;
-      setImmediate(() => this.flush(false));
-      return;
-    }
-    if (this.flushScheduled || this.flushTimer) return;
-    this.flushTimer = setTimeout(() => {
-      this.flushTimer = null;
-      this.flush(false);
-    }, this.config.store.flushIntervalMs);
-  }
-
-  /** Commits the pending batch, then acknowledges and publishes. `final` checkpoints every channel. */
-  flush(final: boolean): void {
-    this.flushScheduled = false;
-    if (this.flushTimer) {
-      clearTimeout(this.flushTimer);
-      this.flushTimer = null;
-    }
-    const started = performance.now();
+  /** Before each commit attempt: test-point verdicts, derived events, checkpoints due; returns the counters to store. */
+  private prepareCommit(batch: PendingBatch, final: boolean): Record<string, number> {
     const now = this.now();
     for (const change of this.testPoints.evaluate(now)) this.applyTestPointChange(change);
-    for (const event of this.derived.drainEvents()) this.queueEvent(event.source, event.kind, event.at, event.body);
-    const chunks = [...this.closedChunks, ...this.pendingChunks.values()];
-    this.closedChunks = [];
-    this.pendingChunks = new Map();
-    const checkpoints: FlushBatch['checkpoints'] = [];
+    for (const event of this.derived.drainEvents()) batch.addEvent({ timeMs: now, source: event.source, kind: event.kind, at: event.at, body: event.body });
     for (const channel of this.registry.all()) {
-      if (channel.id < 0) continue;
+      if (!channel.stored) continue;
       const received = channel.pipeline.totalReceived;
-      const last = this.lastCheckpoint.get(channel.id) ?? 0;
+      const last = this.lastCheckpoint.get(channel.name) ?? 0;
       const due = Math.max(this.config.store.checkpointSamples, 2 * channel.pipeline.count);
       if ((final && received > last) || received - last >= due) {
-        checkpoints.push({ channelId: channel.id, seq: received, state: channel.pipeline.saveState() });
-        this.lastCheckpoint.set(channel.id, received);
+        batch.setCheckpoint({ channel: channel.name, seq: received, state: channel.pipeline.saveState() });
+        this.lastCheckpoint.set(channel.name, received);
       }
     }
-    const events = this.pendingEvents;
-    this.pendingEvents = [];
-    const batch: FlushBatch = {
-      chunks: chunks.map((c) => ({ channelId: c.channelId, firstSeq: c.firstSeq, times: Float64Array.from(c.times), values: Float64Array.from(c.values) })),
-      events: events.map((e) => ({ timeMs: now, source: e.source, kind: e.kind, at: e.at, body: e.body })),
-      checkpoints,
-      marks: this.pendingMarks,
-      testPoints: this.pendingTestPoints.map((p) => ({ id: p.id, body: p })),
-      records: this.pendingRecords,
-      counters: this.counterSnapshot(),
-    };
-    this.pendingMarks = [];
-    this.pendingTestPoints = [];
-    this.pendingRecords = [];
-    try {
-      this.store.commit(batch, now);
-    } catch (error) {
-      // The acknowledgements stay held: the broker will redeliver after a restart.
-      this.log.error({ err: (error as Error).message }, 'commit failed; messages are not acknowledged');
-      return;
-    }
-    this.counters.acknowledged += this.ingest?.releaseAcknowledgements() ?? 0;
-    this.counters.flushes++;
-    const elapsed = performance.now() - started;
-    this.counters.lastFlushMs = elapsed;
-    if (elapsed > this.counters.maxFlushMs) this.counters.maxFlushMs = elapsed;
-    if (events.length > 0) this.publish(events, now);
+    return this.counterSnapshot();
   }
 
-  private publish(events: { source: string; kind: string; at: number | null; body: Record<string, unknown> }[], now: number): void {
-    const stored = this.store.eventsAfter(this.publishedId, events.length + 100);
-    for (const event of stored) {
+  /** After a commit: the stored events go to every publisher, then the retained status of what they concern. */
+  private publish(events: StoredEvent[]): void {
+    const now = this.now();
+    for (const event of events) {
       this.publishedId = event.id;
-      for (const listener of this.listeners) {
-        try {
-          listener(event);
-        } catch (error) {
-          this.log.warn({ err: (error as Error).message }, 'event listener failed');
-        }
-      }
-      this.ingest?.publish(`${this.config.topics.events}/${event.kind}`, JSON.stringify(event), { qos: 1, retain: false });
+      for (const publisher of this.publishers) publisher.event(event);
     }
     // Retained status for every source whose state may have changed.
     const sources = new Set(events.map((e) => e.source));
     for (const source of sources) {
       const point = this.testPoints.get(source);
       if (point) {
-        this.publishStatus(`${this.config.topics.status}/test-point/${point.id}`, { testPoint: point.id, name: point.name, state: point.state, channels: this.testPoints.verdict(point), timeMs: now });
+        this.publishStatus(`test-point/${point.id}`, { testPoint: point.id, name: point.name, state: point.state, channels: this.testPoints.verdict(point), timeMs: now });
         continue;
       }
       const channel = this.registry.get(source);
-      if (channel) this.publishStatus(`${this.config.topics.status}/channel/${channel.name}`, { ...channel.pipeline.summary(), unit: channel.unit, timeMs: now });
+      if (channel) this.publishStatus(`channel/${channel.name}`, { ...channel.pipeline.summary(), unit: channel.unit, timeMs: now });
     }
   }
 
-  private publishStatus(topic: string, body: Record<string, unknown>): void {
-    const text = JSON.stringify(body, (_k, v) => (typeof v === 'number' && !Number.isFinite(v) ? null : v));
-    if (this.statusSent.get(topic) === text) return;
-    this.statusSent.set(topic, text);
-    this.ingest?.publish(topic, text, { qos: 1, retain: true });
+  /** The store started failing or recovered: the volatile `store-failing` alert, the daemon's status. */
+  private storeHealthChanged(health: CommitHealth): void {
+    const now = this.now();
+    if (health.failing) {
+      const body = { since: health.since, error: health.lastError, samples: health.pendingSamples, unacknowledged: health.pendingAcknowledgements, detail: 'commits to the store fail: nothing is acknowledged to the broker until they succeed again' };
+      for (const publisher of this.publishers) publisher.volatileEvent({ timeMs: now, source: 'daemon', kind: 'store-failing', body });
+    }
+    const h = this.health();
+    this.publishStatus('daemon', { status: h.status, broker: h.broker, store: { failing: h.store.failing, since: h.store.since, error: h.store.lastError }, timeMs: now });
+  }
+
+  private publishStatus(subject: string, body: Record<string, unknown>): void {
+    for (const publisher of this.publishers) publisher.status(subject, body);
   }
 
   private checkStale(): void {
@@ -457,13 +470,17 @@ export class Daemon {
         any = true;
       }
     }
-    if (any) this.scheduleFlush();
+    if (any) this.commits.request();
   }
 
   private prune(): void {
     const before = this.now() - this.config.store.retentionSeconds * 1000;
-    const removed = this.store.prune(before);
-    if (removed.chunks + removed.events > 0) this.log.info(removed, 'retention: old samples and events deleted');
+    try {
+      const removed = this.store.prune(before);
+      if (removed.chunks + removed.events > 0) this.log.info(removed, 'retention: old samples and events deleted');
+    } catch (err) {
+      this.log.error({ err }, 'retention failed; it runs again within the hour');
+    }
   }
 
   // ---- restart ------------------------------------------------------------------------------
@@ -473,26 +490,27 @@ export class Daemon {
     const started = performance.now();
     let replayed = 0;
     for (const stored of this.store.channels()) {
-      const channel = this.registry.ensure(stored.name, stored.unit, stored.id);
-      const checkpoint = this.store.checkpoint(stored.id);
+      const channel = this.registry.ensure(stored.name, stored.unit, true);
+      const checkpoint = this.store.checkpoint(stored.name);
       let from = 0;
       if (checkpoint) {
         channel.pipeline.loadState(checkpoint.state as ChannelPipelineState);
         from = checkpoint.seq;
-        this.lastCheckpoint.set(stored.id, from);
+        this.lastCheckpoint.set(stored.name, from);
       }
-      const marks = this.store.marksFrom(stored.id, from);
+      const marks = this.store.marksFrom(stored.name, from);
       let markIndex = 0;
       let lastTime = Number.NEGATIVE_INFINITY;
       // The times of the samples just before the checkpoint are needed too: a message redelivered
       // after the restart must still be recognised as a repeat.
-      for (const chunk of this.store.samplesFrom(stored.id, Math.max(0, from - RECENT_TIMES))) {
+      for (const chunk of this.store.samplesFrom(stored.name, Math.max(0, from - RECENT_TIMES))) {
         for (let i = 0; i < chunk.values.length; i++) {
           const seq = chunk.firstSeq + i;
           const time = chunk.times[i] as number;
           lastTime = time;
+          const stamped = !isUnstamped(chunk.unstamped, i);
           if (seq < from) {
-            this.registry.rememberTime(channel, time);
+            if (stamped) this.registry.rememberTime(channel, time);
             continue;
           }
           while (markIndex < marks.length && (marks[markIndex] as { seq: number }).seq <= seq) {
@@ -500,7 +518,7 @@ export class Daemon {
             markIndex++;
           }
           channel.pipeline.push(chunk.values[i] as number, time / 1000);
-          this.registry.rememberTime(channel, time);
+          if (stamped) this.registry.rememberTime(channel, time);
           this.derived.onSample(channel.name, chunk.values[i] as number, time, true);
           replayed++;
         }
@@ -531,14 +549,15 @@ export class Daemon {
 
   /** Counters for the API: samples accepted and rejected by reason, broker, lag, database. */
   counterReport(): Record<string, unknown> {
+    const health = this.commits.health();
     return {
       samples: { accepted: this.counters.accepted, late: this.counters.late, rejected: { ...this.counters.rejected } },
       messages: this.counters.messages,
       commands: this.counters.commands,
-      broker: { url: this.brokerUrl, connected: this.ingest?.connected ?? false, reconnects: this.ingest?.reconnects ?? 0, heldAcknowledgements: this.ingest?.heldCount ?? 0 },
+      broker: { url: this.brokerUrl, connected: this.ingest?.connected ?? false, reconnects: this.ingest?.reconnects ?? 0, heldAcknowledgements: this.ingest?.unacknowledged ?? 0 },
       ingestLagMs: this.counters.ingestLagMs,
-      flush: { count: this.counters.flushes, lastMs: this.counters.lastFlushMs, maxMs: this.counters.maxFlushMs },
-      database: { path: this.config.store.path, bytes: this.store.sizeBytes() },
+      flush: { count: health.commits, lastMs: health.lastCommitMs, maxMs: health.maxCommitMs, acknowledged: this.commits.acknowledgedCount, failing: health.failing, failedAttempts: health.attempts, pendingSamples: health.pendingSamples, error: health.lastError },
+      database: { path: this.store.location, bytes: this.store.sizeBytes() },
       channels: this.registry.size,
       restore: { samples: this.counters.restoredSamples, ms: this.counters.restoreMs },
       memory: process.memoryUsage(),
@@ -557,6 +576,11 @@ export class Daemon {
   get lastEventId(): number {
     return this.publishedId;
   }
+}
+
+/** What a daemon's sample source subscribes to: the configured subscriptions and the command topic. */
+export function daemonSubscriptions(config: PlateauConfig): SubscriptionConfig[] {
+  return [...config.subscriptions, { ...COMMAND_SUBSCRIPTION, topic: `${config.topics.command}/#` }];
 }
 
 /** The command topic's subscription (its payloads are read by onCommand, not by the decoder). */

@@ -32,8 +32,8 @@ export interface RegisteredChannel {
   lastTimeMs: number;
   /** Wall-clock milliseconds when the last sample arrived (for staleness). */
   lastArrivalMs: number;
-  /** Store id, filled in by the daemon. */
-  id: number;
+  /** The store has the channel, or the batch waiting for a commit introduces it (set by the daemon). */
+  stored: boolean;
   /** The last RECENT_TIMES accepted payload times (a ring), for duplicate and lateness checks. */
   recentTimes: Float64Array;
   recentCount: number;
@@ -63,10 +63,10 @@ export class ChannelRegistry {
     return this.channels.size;
   }
 
-  ensure(name: string, unit: string | null, id = -1): RegisteredChannel {
+  ensure(name: string, unit: string | null, stored = false): RegisteredChannel {
     let channel = this.channels.get(name);
     if (!channel) {
-      channel = { name, unit, pipeline: new ChannelPipeline(name, this.optionsFor(name)), lastTimeMs: Number.NEGATIVE_INFINITY, lastArrivalMs: Number.NaN, id, recentTimes: new Float64Array(RECENT_TIMES), recentCount: 0 };
+      channel = { name, unit, pipeline: new ChannelPipeline(name, this.optionsFor(name)), lastTimeMs: Number.NEGATIVE_INFINITY, lastArrivalMs: Number.NaN, stored, recentTimes: new Float64Array(RECENT_TIMES), recentCount: 0 };
       this.channels.set(name, channel);
     } else if (unit && !channel.unit) channel.unit = unit;
     return channel;

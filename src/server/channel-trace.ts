@@ -39,11 +39,11 @@ export function channelTrace(daemon: Daemon, channel: RegisteredChannel, count: 
   const times: (number | null)[] = [];
   const values: number[] = [];
   let firstIndex = window.firstIndex;
-  if (missing > 0 && windowStartIndex > 0 && channel.id >= 0 && daemon.store) {
+  if (missing > 0 && windowStartIndex > 0 && channel.stored && daemon.store) {
     const from = Math.max(0, windowStartIndex - missing);
     firstIndex = from;
     let expected = from;
-    for (const chunk of daemon.store.samplesFrom(channel.id, from)) {
+    for (const chunk of daemon.store.samplesFrom(channel.name, from)) {
       if (chunk.firstSeq >= windowStartIndex) break;
       for (let i = 0; i < chunk.values.length; i++) {
         const seq = chunk.firstSeq + i;

@@ -1,5 +1,6 @@
 import type { Daemon } from '../daemon/daemon.js';
-import type { StoredEvent } from '../store/sqlite-store.js';
+import type { StoredEvent } from '../ports/store.js';
+import { PlateauError } from '../errors/catalogue.js';
 
 /**
  * What the HTTP API and the WebSocket hub need to know about the daemon's event stream beyond
@@ -95,9 +96,11 @@ export class ServerEventLog {
     this.scan();
     const existing = this.acknowledgements.get(event.id);
     if (existing) return { acknowledgement: existing, already: true };
+    const health = this.daemon.health().store;
+    if (health.failing) throw new PlateauError('ERR_STORE_UNAVAILABLE', { since: new Date(health.since as number).toISOString(), detail: health.lastError?.message ?? 'unknown error' });
     this.daemon.queueEvent(event.source, ACKNOWLEDGED_KIND, null, { eventId: event.id, kind: event.kind, note });
     // Commits and publishes synchronously: the listener above records the acknowledgement.
-    this.daemon.flush(false);
+    this.daemon.commitNow();
     const recorded = this.acknowledgements.get(event.id);
     if (!recorded) throw new Error(`acknowledgement of event ${event.id} was not committed (see the daemon log)`);
     return { acknowledgement: recorded, already: false };

@@ -4,6 +4,7 @@ import { fileURLToPath } from 'node:url';
 import { dirname, join, normalize, sep } from 'node:path';
 import type { Daemon } from '../daemon/daemon.js';
 import { TestPointError, type TestPoint } from '../engine/test-points.js';
+import { PlateauError } from '../errors/catalogue.js';
 import { recordCsv, RECORD_CAUTION, type TestPointRecord } from '../engine/test-point-record.js';
 import { renderReport } from './report.js';
 import { openApiDocument, type DocumentedRoute } from './openapi.js';
@@ -112,6 +113,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
 
   app.setErrorHandler((error: Error & { statusCode?: number; code?: string; validation?: unknown; validationContext?: string }, request, reply) => {
     if (error instanceof TestPointError && error.status >= 400 && error.status < 500) return reply.code(error.status).send({ error: error.code, message: error.message });
+    if (error instanceof PlateauError && error.status !== 500) return reply.code(error.status).send({ error: error.code, message: error.message });
     if (error.validation) return reply.code(400).send({ error: 'ERR_REQUEST_INVALID', message: `request ${error.message}` });
     const known = FRAMEWORK_ERRORS[error.code ?? ''];
     if (known) return reply.code(known.status).send({ error: known.error, message: known.message(options.maxBodyBytes) });
@@ -152,19 +154,39 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
   const testPointParams = { type: 'object', properties: { id: { type: 'string', pattern: TEST_POINT_ID_PATTERN } }, required: ['id'] } as const;
   const unknownTestPoint = (reply: FastifyReply, id: string) => notFound(reply, 'ERR_TEST_POINT_UNKNOWN', `no test point ${id}`);
 
+  const healthReply = {
+    type: 'object',
+    required: ['status', 'broker', 'store', 'channels'],
+    properties: {
+      status: { type: 'string', enum: ['ok', 'degraded', 'failing'] },
+      broker: { type: 'string', enum: ['connected', 'disconnected'] },
+      store: { type: 'string', enum: ['ok', 'failing'] },
+      channels: { type: 'integer' },
+      failingSinceMs: { type: 'number' },
+      error: { type: 'object', properties: { code: { type: 'string' }, message: { type: 'string' } }, additionalProperties: false },
+    },
+    additionalProperties: false,
+  } as const;
   app.get(
     '/healthz',
     {
       schema: {
-        summary: 'liveness and the broker connection',
-        response: { 200: { type: 'object', properties: { status: { type: 'string', enum: ['ok', 'degraded'] }, broker: { type: 'string' }, channels: { type: 'integer' } }, additionalProperties: false } },
+        summary: 'liveness: 200 while commits succeed (status degraded while the broker is disconnected), 503 while commits to the store fail (nothing is acknowledged then)',
+        response: { 200: healthReply, 503: healthReply },
       },
     },
-    async () => ({
-      status: daemon.ingest?.connected ? 'ok' : 'degraded',
-      broker: daemon.ingest?.connected ? 'connected' : 'disconnected',
-      channels: daemon.registry.size,
-    }),
+    async (_request, reply) => {
+      const health = daemon.health();
+      const body = {
+        status: health.status,
+        broker: health.broker,
+        store: health.store.failing ? 'failing' : 'ok',
+        channels: daemon.registry.size,
+        ...(health.store.since !== null ? { failingSinceMs: health.store.since } : {}),
+        ...(health.store.lastError !== null ? { error: health.store.lastError } : {}),
+      };
+      return reply.code(health.store.failing ? 503 : 200).send(body);
+    },
   );
 
   app.get(

@@ -2,7 +2,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { startEmbeddedBroker, type EmbeddedBroker } from '../../src/ingest/embedded-broker.js';
 import { Daemon } from '../../src/daemon/daemon.js';
 import { eventLogFor } from '../../src/server/event-log.js';
-import type { StoredEvent } from '../../src/store/sqlite-store.js';
+import type { StoredEvent } from '../../src/ports/store.js';
 import { testConfig } from '../helpers/daemon-config.js';
 import { unique, waitFor } from '../helpers/brokers.js';
 
@@ -26,7 +26,7 @@ describe('event log after a restart', () => {
     await waitFor(() => first.ingest?.connected === true, 5000, 'the first daemon to connect');
     first.queueEvent('bath.probe', 'stale', 12, { seconds: 30 });
     first.queueEvent('bath.probe', 'averaging-limit', 40, { m: 64 });
-    first.flush(false);
+    first.commitNow();
     const log = eventLogFor(first);
     const byKind = (kind: string) => first.events(0, 1000).find((e) => e.kind === kind) as StoredEvent;
     const stale = byKind('stale');
@@ -48,7 +48,7 @@ describe('event log after a restart', () => {
     expect(reopened.acknowledge(stale, 'again').already).toBe(true);
     const before = reopened.lastId;
     second.queueEvent('bath.probe', 'stale', 80, { seconds: 30 });
-    second.flush(false);
+    second.commitNow();
     expect(reopened.lastId).toBeGreaterThan(before);
     expect(reopened.lastId).toBe(second.events(0, 1000).at(-1)!.id);
     await second.stop();

@@ -10,12 +10,12 @@ import { makeTestDaemon, RIG_START_SECONDS, type TestDaemon } from './harness.js
 
 let t: TestDaemon;
 
-beforeAll(() => {
-  t = makeTestDaemon();
+beforeAll(async () => {
+  t = await makeTestDaemon();
   t.feedRig(30);
   // A unit with markup, as a SenML pack may carry one.
-  t.publishRaw('rig/hx7/senml', JSON.stringify([{ bn: 'hx7.', bt: RIG_START_SECONDS + 31, bu: '<img src=x onerror=alert(1)>', n: 'probe_unit', v: 1 }, { n: 'probe_unit', t: 1, v: 2 }, { n: 'probe_unit', t: 2, v: 1.5 }]), 'senml');
-  t.daemon.flush(false);
+  t.publishRaw('rig/hx7/senml', JSON.stringify([{ bn: 'hx7.', bt: RIG_START_SECONDS + 31, bu: '<img src=x onerror=alert(1)>', n: 'probe_unit', v: 1 }, { n: 'probe_unit', t: 1, v: 2 }, { n: 'probe_unit', t: 2, v: 1.5 }]));
+  t.daemon.commitNow();
 });
 
 afterAll(async () => t.close());

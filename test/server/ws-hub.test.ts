@@ -17,8 +17,8 @@ let t: TestDaemon;
 const servers: { server: Server; hub: WsHub }[] = [];
 const sockets: WebSocket[] = [];
 
-beforeAll(() => {
-  t = makeTestDaemon();
+beforeAll(async () => {
+  t = await makeTestDaemon();
   t.feedRig(60);
 });
 

@@ -7,7 +7,7 @@ import { SqliteStore } from '../../src/store/sqlite-store.js';
 import { MIGRATIONS } from '../../src/store/migrations.js';
 
 function emptyBatch() {
-  return { chunks: [], events: [], checkpoints: [], marks: [], testPoints: [], records: [], counters: {} };
+  return { channels: [], chunks: [], events: [], checkpoints: [], marks: [], testPoints: [], records: [], counters: {}, positions: [] };
 }
 
 describe('SqliteStore', () => {
@@ -24,26 +24,26 @@ describe('SqliteStore', () => {
 
   it('stores samples in chunks and reads them back exactly, from any sample on', () => {
     const store = new SqliteStore(':memory:');
-    const id = store.addChannel('bath_degC', 'degC', 0);
+    const id = 'bath_degC';
     const times = Float64Array.from({ length: 10 }, (_, i) => 1.7e12 + i * 100.5);
     const values = Float64Array.from({ length: 10 }, (_, i) => 60 + Math.sin(i) * 1e-3);
-    store.commit({ ...emptyBatch(), chunks: [{ channelId: id, firstSeq: 0, times: times.subarray(0, 6), values: values.subarray(0, 6) }] }, 0);
-    store.commit({ ...emptyBatch(), chunks: [{ channelId: id, firstSeq: 6, times: times.subarray(6), values: values.subarray(6) }] }, 0);
+    store.commit({ ...emptyBatch(), channels: [{ name: id, unit: 'degC' }], chunks: [{ channel: id, firstSeq: 0, times: times.subarray(0, 6), values: values.subarray(0, 6), unstamped: null }] }, 0);
+    store.commit({ ...emptyBatch(), chunks: [{ channel: id, firstSeq: 6, times: times.subarray(6), values: values.subarray(6), unstamped: null }] }, 0);
     const back: number[] = [];
     for (const chunk of store.samplesFrom(id, 4)) back.push(...Array.from(chunk.values).slice(Math.max(0, 4 - chunk.firstSeq)));
     expect(back).toEqual(Array.from(values.subarray(4)));
-    expect(store.sampleCount(id)).toBe(10);
+    expect(store.channels()).toEqual([{ name: id, unit: 'degC' }]);
     store.close();
   });
 
   it('retention deletes old samples and events, but never samples a channel still needs to rebuild its state', () => {
     const store = new SqliteStore(':memory:');
-    const id = store.addChannel('flow', null, 0);
-    const chunk = (first: number, t0: number) => ({ channelId: id, firstSeq: first, times: Float64Array.from({ length: 100 }, (_, i) => t0 + i), values: new Float64Array(100) });
+    const id = 'flow';
+    const chunk = (first: number, t0: number) => ({ channel: id, firstSeq: first, times: Float64Array.from({ length: 100 }, (_, i) => t0 + i), values: new Float64Array(100), unstamped: null });
     store.commit({ ...emptyBatch(), chunks: [chunk(0, 1000), chunk(100, 2000), chunk(200, 3000)], events: [{ timeMs: 1500, source: 'flow', kind: 'steady', at: 5, body: {} }, { timeMs: 3500, source: 'flow', kind: 'stale', at: 250, body: {} }] }, 0);
     // No checkpoint yet: every sample is still needed for a replay; old events go.
     expect(store.prune(2500)).toEqual({ chunks: 0, events: 1 });
-    store.commit({ ...emptyBatch(), checkpoints: [{ channelId: id, seq: 200, state: { any: 'state' } }] }, 0);
+    store.commit({ ...emptyBatch(), checkpoints: [{ channel: id, seq: 200, state: { any: 'state' } }] }, 0);
     const removed = store.prune(2500);
     expect(removed.chunks).toBe(2); // the chunks before the checkpoint and older than the horizon
     expect(store.eventsAfter(0, 10).map((e) => e.kind)).toEqual(['stale']);
