@@ -1,7 +1,8 @@
 import pino, { type Logger } from 'pino';
 import type { PlateauConfig, SubscriptionConfig } from '../config/plateau-config.js';
 import { settingsFor } from '../config/load-config.js';
-import { ChannelRegistry, RECENT_TIMES, type RegisteredChannel } from '../engine/channel-registry.js';
+import { ChannelRegistry } from '../engine/channel-registry.js';
+import { RECENT_TIMES, type Channel } from '../engine/channel.js';
 import type { ChannelOptions } from '../engine/channel-options.js';
 import type { ChannelEvent } from '../engine/channel-events.js';
 import { TestPoints, type TestPoint, type TestPointChange } from '../engine/test-points.js';
@@ -16,7 +17,7 @@ import type { ChannelPipelineState } from '../engine/channel-pipeline.js';
 import type { Clock } from '../ports/clock.js';
 import type { Publisher, VolatileEvent } from '../ports/publisher.js';
 import type { SampleSource, SourceBatch, SourceStatus } from '../ports/sample-source.js';
-import { isUnstamped, type Store, type StoredEvent } from '../ports/store.js';
+import type { Store, StoredEvent } from '../ports/store.js';
 import { DerivedResults } from './derived-results.js';
 import { CommitCycle, type CommitHealth } from './commit-cycle.js';
 import { ListenerPublisher } from './listener-publisher.js';
@@ -88,6 +89,12 @@ export class Daemon {
   readonly commits: CommitCycle;
   private timers: NodeJS.Timeout[] = [];
   private lastCheckpoint = new Map<string, number>();
+  /** Channels the store has, or the pending batch introduces. */
+  private readonly introduced = new Set<string>();
+  /** Channels that took samples since the last commit (the only ones a checkpoint can fall due for). */
+  private readonly active = new Set<Channel>();
+  /** Wall-clock ms of each channel's last sample (staleness). */
+  private readonly lastArrival = new Map<string, number>();
   private publishedId = 0;
   private lastRejectLog = new Map<string, number>();
   private lagWarned = false;
@@ -255,9 +262,10 @@ export class Daemon {
       if (result.late) this.counters.late++;
       if (sample.stamped && sample.timeMs > latestStamp) latestStamp = sample.timeMs;
       const channel = result.channel;
-      channel.lastArrivalMs = arrival;
+      this.lastArrival.set(channel.name, arrival);
       this.introduce(channel);
       this.commits.batch.addSample(channel.name, result.seq, result.timeMs, sample.value, sample.stamped);
+      this.active.add(channel);
       for (const event of result.events) this.queueChannelEvent(channel, event);
       this.derived.onSample(channel.name, sample.value, result.timeMs);
     }
@@ -265,9 +273,9 @@ export class Daemon {
   }
 
   /** A channel the store has not seen joins the pending batch (its first commit creates it). */
-  private introduce(channel: RegisteredChannel): void {
-    if (channel.stored) return;
-    channel.stored = true;
+  private introduce(channel: Channel): void {
+    if (this.introduced.has(channel.name)) return;
+    this.introduced.add(channel.name);
     this.commits.batch.addChannel(channel.name, channel.unit);
   }
 
@@ -351,11 +359,10 @@ export class Daemon {
         if (change.point.channels.includes(name)) continue;
         const channel = this.registry.ensure(name, this.configuredUnit(name));
         if (channel.pipeline.options.window.kind !== 'growing') continue;
-        marks.push({ channel: name, seq: channel.pipeline.totalReceived });
-        channel.pipeline.restartWindow();
+        marks.push({ channel: name, seq: channel.restartWindow().seq });
       }
       for (const mark of marks) {
-        const channel = this.registry.get(mark.channel) as RegisteredChannel;
+        const channel = this.registry.get(mark.channel) as Channel;
         this.introduce(channel);
         this.commits.batch.addMark({ channel: channel.name, seq: mark.seq, kind: 'restart-window' });
       }
@@ -395,7 +402,7 @@ export class Daemon {
 
   // ---- events and flushing ------------------------------------------------------------------
 
-  private queueChannelEvent(channel: RegisteredChannel, event: ChannelEvent): void {
+  private queueChannelEvent(channel: Channel, event: ChannelEvent): void {
     const { kind, at, ...rest } = event;
     this.queueEvent(channel.name, kind, at, { channel: channel.name, ...rest });
   }
@@ -410,8 +417,10 @@ export class Daemon {
     const now = this.now();
     for (const change of this.testPoints.evaluate(now)) this.applyTestPointChange(change);
     for (const event of this.derived.drainEvents()) batch.addEvent({ timeMs: now, source: event.source, kind: event.kind, at: event.at, body: event.body });
-    for (const channel of this.registry.all()) {
-      if (!channel.stored) continue;
+    const candidates = final ? this.registry.all() : [...this.active];
+    this.active.clear();
+    for (const channel of candidates) {
+      if (!this.introduced.has(channel.name)) continue;
       const received = channel.pipeline.totalReceived;
       const last = this.lastCheckpoint.get(channel.name) ?? 0;
       const due = Math.max(this.config.store.checkpointSamples, 2 * channel.pipeline.count);
@@ -463,8 +472,12 @@ export class Daemon {
     let any = false;
     for (const channel of this.registry.all()) {
       // A channel restored from the store counts its silence from the daemon's start.
-      if (Number.isNaN(channel.lastArrivalMs)) channel.lastArrivalMs = now;
-      const event = channel.pipeline.checkStale((now - channel.lastArrivalMs) / 1000);
+      let last = this.lastArrival.get(channel.name);
+      if (last === undefined) {
+        last = now;
+        this.lastArrival.set(channel.name, now);
+      }
+      const event = channel.pipeline.checkStale((now - last) / 1000);
       if (event) {
         this.queueChannelEvent(channel, event);
         any = true;
@@ -489,8 +502,10 @@ export class Daemon {
   private restore(): void {
     const started = performance.now();
     let replayed = 0;
+    let forced = 0;
     for (const stored of this.store.channels()) {
-      const channel = this.registry.ensure(stored.name, stored.unit, true);
+      const channel = this.registry.ensure(stored.name, stored.unit);
+      this.introduced.add(stored.name);
       const checkpoint = this.store.checkpoint(stored.name);
       let from = 0;
       if (checkpoint) {
@@ -498,38 +513,14 @@ export class Daemon {
         from = checkpoint.seq;
         this.lastCheckpoint.set(stored.name, from);
       }
-      const marks = this.store.marksFrom(stored.name, from);
-      let markIndex = 0;
-      let lastTime = Number.NEGATIVE_INFINITY;
-      // The times of the samples just before the checkpoint are needed too: a message redelivered
-      // after the restart must still be recognised as a repeat.
-      for (const chunk of this.store.samplesFrom(stored.name, Math.max(0, from - RECENT_TIMES))) {
-        for (let i = 0; i < chunk.values.length; i++) {
-          const seq = chunk.firstSeq + i;
-          const time = chunk.times[i] as number;
-          lastTime = time;
-          const stamped = !isUnstamped(chunk.unstamped, i);
-          if (seq < from) {
-            if (stamped) this.registry.rememberTime(channel, time);
-            continue;
-          }
-          while (markIndex < marks.length && (marks[markIndex] as { seq: number }).seq <= seq) {
-            if ((marks[markIndex] as { seq: number; kind: string }).seq === seq) channel.pipeline.restartWindow();
-            markIndex++;
-          }
-          channel.pipeline.push(chunk.values[i] as number, time / 1000);
-          if (stamped) this.registry.rememberTime(channel, time);
-          this.derived.onSample(channel.name, chunk.values[i] as number, time, true);
-          replayed++;
-        }
-      }
-      // A mark at the very next sample (a test point started after the last sample).
-      while (markIndex < marks.length) {
-        if ((marks[markIndex] as { seq: number }).seq === channel.pipeline.totalReceived) channel.pipeline.restartWindow();
-        markIndex++;
-      }
-      if (lastTime > channel.lastTimeMs) channel.lastTimeMs = lastTime;
+      // The samples just before the checkpoint refill the time policy's memory (a message
+      // redelivered after the restart must still be recognised as a repeat); those after it go
+      // through the channel's accept path, with the window marks at their sample index.
+      const result = channel.replay(this.store.samplesFrom(stored.name, Math.max(0, from - RECENT_TIMES)), this.store.marksFrom(stored.name, from), from);
+      replayed += result.replayed;
+      forced += result.forced;
     }
+    if (forced > 0) this.log.warn({ samples: forced }, 'restore: stored samples the time policy would refuse now (the samples their lateness was judged against were removed by retention) were taken as they were the first time');
     this.testPoints.load(this.store.testPoints() as TestPoint[]);
     this.publishedId = this.store.lastEventId();
     const counters = this.store.counters();

@@ -96,12 +96,8 @@ export class TestPoints {
     const startSeq: Record<string, number> = {};
     for (const name of channels) {
       const channel = this.registry.ensure(name, null);
-      const seq = channel.pipeline.totalReceived;
-      startSeq[name] = seq;
-      if (channel.pipeline.options.window.kind === 'growing') {
-        channel.pipeline.restartWindow();
-        marks.push({ channel: name, seq });
-      }
+      startSeq[name] = channel.nextSeq;
+      if (channel.pipeline.options.window.kind === 'growing') marks.push({ channel: name, seq: channel.restartWindow().seq });
     }
     const point: TestPoint = {
       id,

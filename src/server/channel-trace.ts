@@ -1,5 +1,5 @@
 import type { Daemon } from '../daemon/daemon.js';
-import type { RegisteredChannel } from '../engine/channel-registry.js';
+import type { Channel } from '../engine/channel.js';
 
 /**
  * The recent samples of a channel for its chart, with the indices that mark where the averaging
@@ -29,7 +29,7 @@ export interface ChannelTrace {
   beforeWindow: number;
 }
 
-export function channelTrace(daemon: Daemon, channel: RegisteredChannel, count: number): ChannelTrace {
+export function channelTrace(daemon: Daemon, channel: Channel, count: number): ChannelTrace {
   const pipeline = channel.pipeline;
   const window = pipeline.recentTrace(count);
   const windowStartIndex = window.values.length > 0 ? window.firstIndex : pipeline.totalReceived;
@@ -39,7 +39,7 @@ export function channelTrace(daemon: Daemon, channel: RegisteredChannel, count: 
   const times: (number | null)[] = [];
   const values: number[] = [];
   let firstIndex = window.firstIndex;
-  if (missing > 0 && windowStartIndex > 0 && channel.stored && daemon.store) {
+  if (missing > 0 && windowStartIndex > 0 && daemon.store) {
     const from = Math.max(0, windowStartIndex - missing);
     firstIndex = from;
     let expected = from;
