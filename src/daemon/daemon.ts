@@ -2,7 +2,7 @@ import pino, { type Logger } from 'pino';
 import type { PlateauConfig, SubscriptionConfig } from '../config/plateau-config.js';
 import { settingsFor } from '../config/load-config.js';
 import { ChannelRegistry } from '../engine/channel-registry.js';
-import { RECENT_TIMES, type Channel } from '../engine/channel.js';
+import type { Channel } from '../engine/channel.js';
 import type { ChannelOptions } from '../engine/channel-options.js';
 import type { ChannelEvent } from '../engine/channel-events.js';
 import { TestPoints, type TestPoint, type TestPointChange } from '../engine/test-points.js';
@@ -13,7 +13,6 @@ import { MqttSampleSource } from '../ingest/mqtt-sample-source.js';
 import { MqttPublisher } from '../ingest/mqtt-publisher.js';
 import { SqliteStore } from '../store/sqlite-store.js';
 import { SystemClock } from '../clock/system-clock.js';
-import type { ChannelPipelineState } from '../engine/channel-pipeline.js';
 import type { Clock } from '../ports/clock.js';
 import type { Publisher, VolatileEvent } from '../ports/publisher.js';
 import type { SampleSource, SourceBatch, SourceStatus } from '../ports/sample-source.js';
@@ -421,12 +420,12 @@ export class Daemon {
     this.active.clear();
     for (const channel of candidates) {
       if (!this.introduced.has(channel.name)) continue;
-      const received = channel.pipeline.totalReceived;
+      const next = channel.nextSeq;
       const last = this.lastCheckpoint.get(channel.name) ?? 0;
       const due = Math.max(this.config.store.checkpointSamples, 2 * channel.pipeline.count);
-      if ((final && received > last) || received - last >= due) {
-        batch.setCheckpoint({ channel: channel.name, seq: received, state: channel.pipeline.saveState() });
-        this.lastCheckpoint.set(channel.name, received);
+      if ((final && next > last) || next - last >= due) {
+        batch.setCheckpoint({ channel: channel.name, ...channel.checkpoint() });
+        this.lastCheckpoint.set(channel.name, next);
       }
     }
     return this.counterSnapshot();
@@ -503,22 +502,23 @@ export class Daemon {
     const started = performance.now();
     let replayed = 0;
     let forced = 0;
+    const outcomes: Record<string, number> = { fresh: 0, loaded: 0, migrated: 0, replayed: 0 };
     for (const stored of this.store.channels()) {
       const channel = this.registry.ensure(stored.name, stored.unit);
       this.introduced.add(stored.name);
-      const checkpoint = this.store.checkpoint(stored.name);
-      let from = 0;
-      if (checkpoint) {
-        channel.pipeline.loadState(checkpoint.state as ChannelPipelineState);
-        from = checkpoint.seq;
-        this.lastCheckpoint.set(stored.name, from);
+      const report = channel.restore(this.store.checkpoint(stored.name), {
+        samplesFrom: (seq) => this.store.samplesFrom(stored.name, seq),
+        marksFrom: (seq) => this.store.marksFrom(stored.name, seq),
+      });
+      outcomes[report.outcome] = (outcomes[report.outcome] ?? 0) + 1;
+      if (report.outcome === 'migrated' || report.outcome === 'replayed' || report.detail !== null) {
+        this.log.info({ channel: stored.name, checkpoint: report.outcome, replayedSamples: report.replayed }, `restore ${stored.name}: checkpoint ${report.outcome}${report.detail ? `: ${report.detail}` : ''}`);
       }
-      // The samples just before the checkpoint refill the time policy's memory (a message
-      // redelivered after the restart must still be recognised as a repeat); those after it go
-      // through the channel's accept path, with the window marks at their sample index.
-      const result = channel.replay(this.store.samplesFrom(stored.name, Math.max(0, from - RECENT_TIMES)), this.store.marksFrom(stored.name, from), from);
-      replayed += result.replayed;
-      forced += result.forced;
+      // A channel loaded from its checkpoint has it at that index; one rebuilt otherwise gets a new one at the first commit.
+      if (report.outcome === 'loaded' || report.outcome === 'migrated') this.lastCheckpoint.set(stored.name, channel.nextSeq - report.replayed);
+      else if (report.replayed > 0) this.active.add(channel);
+      replayed += report.replayed;
+      forced += report.forced;
     }
     if (forced > 0) this.log.warn({ samples: forced }, 'restore: stored samples the time policy would refuse now (the samples their lateness was judged against were removed by retention) were taken as they were the first time');
     this.testPoints.load(this.store.testPoints() as TestPoint[]);
@@ -529,7 +529,7 @@ export class Daemon {
     for (const reason of REJECT_REASONS) this.counters.rejected[reason] = counters[`rejected.${reason}`] ?? 0;
     this.counters.restoredSamples = replayed;
     this.counters.restoreMs = performance.now() - started;
-    this.log.info({ channels: this.registry.size, replayedSamples: replayed, ms: Math.round(this.counters.restoreMs) }, 'state rebuilt from the store');
+    this.log.info({ channels: this.registry.size, checkpoints: outcomes, replayedSamples: replayed, ms: Math.round(this.counters.restoreMs) }, 'state rebuilt from the store');
   }
 
   private counterSnapshot(): Record<string, number> {

@@ -11,6 +11,7 @@ import { detectWarmup } from './warmup-detector.js';
 import type { ChannelEvent, ChannelState } from './channel-events.js';
 import { stationarityReport, allanReport, type StationarityReport, type AllanReport } from './stationarity-report.js';
 import type { WindowedSeriesState } from '../core/window/windowed-series.js';
+import { expectRecord, type StateRecord } from '../core/state/record.js';
 
 /** One estimator's result as reported in a snapshot. */
 export interface EstimatorReport {
@@ -117,11 +118,31 @@ const PRECISION_REARM = 1.1;
 
 type Phase = 'warming' | 'steady' | 'unsteady';
 
-export interface ChannelPipelineState {
+/** The pipeline's checkpoint: a named record (version 1 was a positional layout, migrated by src/engine/channel-state.ts). */
+export interface ChannelPipelineState extends StateRecord<'channel-pipeline', 2> {
   series: WindowedSeriesState;
-  numbers: number[];
+  received: number;
+  lastValue: number;
+  lastTime: number;
+  warmupEnd: number | null;
+  excluded: number;
+  windowOrigin: number;
+  nextWarmupCheck: number;
+  nextPrecisionCheck: number;
+  nextAllanCheck: number;
+  indicatorBlock: number;
+  indicatorSum: number;
+  indicatorCount: number;
+  eventCount: number;
+  lastBreakAt: number;
+  breakNoise: number;
+  lossStreak: number;
+  regainedAt: number;
   phase: Phase;
-  flags: boolean[];
+  precise: boolean;
+  stale: boolean;
+  lostBefore: boolean;
+  averagingLimitSeen: boolean;
   monitor: MonitorState | null;
   indicator: CaoRhinehartState;
   lastBreak: StationarityBreak | null;
@@ -322,10 +343,31 @@ export class ChannelPipeline {
   /** Plain-data state: restoring it into a pipeline with the same name and options continues bit for bit. */
   saveState(): ChannelPipelineState {
     return {
+      record: 'channel-pipeline',
+      version: 2,
       series: this.series.saveState(),
-      numbers: [this.received, this.lastValue, this.lastTime, this.warmupEnd ?? -1, this.excluded, this.windowOrigin, this.nextWarmupCheck, this.nextPrecisionCheck, this.nextAllanCheck, this.indicatorBlock, this.indicatorSum, this.indicatorCount, this.eventCount, this.lastBreakAt, this.breakNoise, this.lossStreak, this.regainedAt],
+      received: this.received,
+      lastValue: this.lastValue,
+      lastTime: this.lastTime,
+      warmupEnd: this.warmupEnd,
+      excluded: this.excluded,
+      windowOrigin: this.windowOrigin,
+      nextWarmupCheck: this.nextWarmupCheck,
+      nextPrecisionCheck: this.nextPrecisionCheck,
+      nextAllanCheck: this.nextAllanCheck,
+      indicatorBlock: this.indicatorBlock,
+      indicatorSum: this.indicatorSum,
+      indicatorCount: this.indicatorCount,
+      eventCount: this.eventCount,
+      lastBreakAt: this.lastBreakAt,
+      breakNoise: this.breakNoise,
+      lossStreak: this.lossStreak,
+      regainedAt: this.regainedAt,
       phase: this.phase,
-      flags: [this.precise, this.stale, this.lostBefore, this.averagingLimitSeen],
+      precise: this.precise,
+      stale: this.stale,
+      lostBefore: this.lostBefore,
+      averagingLimitSeen: this.averagingLimitSeen,
       monitor: this.monitor ? this.monitor.saveState() : null,
       indicator: this.indicator.state(),
       lastBreak: this.lastBreak ? { ...this.lastBreak } : null,
@@ -333,13 +375,34 @@ export class ChannelPipeline {
     };
   }
 
+  /** @throws RangeError for a record of another name or version (the caller migrates or replays). */
   loadState(state: ChannelPipelineState): void {
+    expectRecord(state, 'channel-pipeline', 2);
     this.series.loadState(state.series);
-    let warmupEnd: number;
-    [this.received, this.lastValue, this.lastTime, warmupEnd, this.excluded, this.windowOrigin, this.nextWarmupCheck, this.nextPrecisionCheck, this.nextAllanCheck, this.indicatorBlock, this.indicatorSum, this.indicatorCount, this.eventCount, this.lastBreakAt, this.breakNoise, this.lossStreak, this.regainedAt] = state.numbers as number[] as [number, number, number, number, number, number, number, number, number, number, number, number, number, number, number, number, number];
-    this.warmupEnd = warmupEnd >= 0 ? warmupEnd : null;
-    this.phase = state.phase;
-    [this.precise, this.stale, this.lostBefore, this.averagingLimitSeen] = state.flags as [boolean, boolean, boolean, boolean];
+    ({
+      received: this.received,
+      lastValue: this.lastValue,
+      lastTime: this.lastTime,
+      warmupEnd: this.warmupEnd,
+      excluded: this.excluded,
+      windowOrigin: this.windowOrigin,
+      nextWarmupCheck: this.nextWarmupCheck,
+      nextPrecisionCheck: this.nextPrecisionCheck,
+      nextAllanCheck: this.nextAllanCheck,
+      indicatorBlock: this.indicatorBlock,
+      indicatorSum: this.indicatorSum,
+      indicatorCount: this.indicatorCount,
+      eventCount: this.eventCount,
+      lastBreakAt: this.lastBreakAt,
+      breakNoise: this.breakNoise,
+      lossStreak: this.lossStreak,
+      regainedAt: this.regainedAt,
+      phase: this.phase,
+      precise: this.precise,
+      stale: this.stale,
+      lostBefore: this.lostBefore,
+      averagingLimitSeen: this.averagingLimitSeen,
+    } = state);
     this.monitor = state.monitor ? StationarityMonitor.fromState(state.monitor) : null;
     this.indicator = CaoRhinehartFilter.fromState(state.indicator);
     this.lastBreak = state.lastBreak;

@@ -1,6 +1,7 @@
 import { ChannelPipeline } from './channel-pipeline.js';
 import type { ChannelOptions } from './channel-options.js';
 import type { ChannelEvent } from './channel-events.js';
+import { channelRecord, decideCheckpoint, type ChannelRecord } from './channel-state.js';
 
 /**
  * One channel of the daemon: its pipeline, the time policy that decides which samples enter, its
@@ -19,12 +20,17 @@ import type { ChannelEvent } from './channel-events.js';
  * at or after the channel's last time (so a repeat cannot be recognised: use payload times when
  * delivery is at least once).
  *
- * Replay (`replay`): the stored samples before the checkpoint's index only refill the remembered
- * times (up to RECENT_TIMES of them); from the index on each goes through `accept` with the stamp
- * flag it was stored with, and the window marks restart the window at their sample index. The
- * verdict is the live one by construction; should a stored sample be refused all the same
- * (retention removed the samples its lateness was judged against), it is taken anyway, since it was
- * accepted once, and counted in `ReplayResult.forced`.
+ * Restore (`restore`): the checkpoint is loaded, migrated or set aside as src/engine/channel-state.ts
+ * decides (a named, versioned record with the fingerprint of the options it was built under); then
+ * the stored samples before the checkpoint's index only refill the remembered times (up to
+ * RECENT_TIMES of them), and from the index on each goes through the same classify-then-admit path
+ * as a live sample, with the stamp flag it was stored with, while the window marks restart the
+ * window at their sample index. The verdict is the live one by construction; should a stored sample
+ * be refused all the same (retention removed the samples its lateness was judged against), it is
+ * taken anyway, since it was accepted once, and counted in `RestoreReport.forced`. A checkpoint set
+ * aside means a replay of every stored sample; when retention has removed the oldest, the channel
+ * starts again at the first one kept (`seqOffset`: its sample indices still match the store's,
+ * while the indices in its events count from there).
  *
  * No clock, no I/O: times come in as arguments.
  */
@@ -57,7 +63,18 @@ export interface StoredSamples {
   unstamped: Uint8Array | null;
 }
 
-export interface ReplayResult {
+/** What a channel reads from the store at restart. */
+export interface ChannelHistory {
+  /** Stored samples from `fromSeq` on (a run may start before it), in order. */
+  samplesFrom(fromSeq: number): Iterable<StoredSamples>;
+  marksFrom(fromSeq: number): readonly { seq: number; kind: string }[];
+}
+
+export interface RestoreReport {
+  /** fresh: no checkpoint; loaded / migrated: from the checkpoint; replayed: the checkpoint was set aside. */
+  outcome: 'fresh' | 'loaded' | 'migrated' | 'replayed';
+  /** Why, for the log (migrations, options carried over, why a checkpoint was set aside, a shortened history). */
+  detail: string | null;
   /** Samples fed through the pipeline. */
   replayed: number;
   /** Stored samples the time policy would refuse now, taken all the same (see the class comment). */
@@ -67,7 +84,10 @@ export interface ReplayResult {
 export class Channel {
   readonly name: string;
   unit: string | null;
-  readonly pipeline: ChannelPipeline;
+  private readonly options: ChannelOptions;
+  private current: ChannelPipeline;
+  /** Store index of the pipeline's sample 0 (see the class comment). */
+  private offset = 0;
   private lastStampMs = Number.NEGATIVE_INFINITY;
   /** The last RECENT_TIMES accepted payload times (a ring), for duplicate and lateness checks. */
   private readonly recentTimes = new Float64Array(RECENT_TIMES);
@@ -76,7 +96,17 @@ export class Channel {
   constructor(name: string, unit: string | null, options: ChannelOptions) {
     this.name = name;
     this.unit = unit;
-    this.pipeline = new ChannelPipeline(name, options);
+    this.options = options;
+    this.current = new ChannelPipeline(name, options);
+  }
+
+  get pipeline(): ChannelPipeline {
+    return this.current;
+  }
+
+  /** Store index of the pipeline's sample 0 (0 unless rebuilt from a history retention had shortened). */
+  get seqOffset(): number {
+    return this.offset;
   }
 
   /** Epoch milliseconds of the newest accepted sample (its own time stamp, or its held arrival time). */
@@ -84,9 +114,9 @@ export class Channel {
     return this.lastStampMs;
   }
 
-  /** Samples accepted so far: the index the next one gets. */
+  /** The store index the next accepted sample gets. */
   get nextSeq(): number {
-    return this.pipeline.totalReceived;
+    return this.offset + this.current.totalReceived;
   }
 
   /** Applies the time policy and, when it admits the sample, feeds the pipeline. */
@@ -98,24 +128,72 @@ export class Channel {
 
   /** Starts a new growing window at the next sample (a test point starts); returns the mark to store. */
   restartWindow(): WindowMark {
-    const mark: WindowMark = { seq: this.pipeline.totalReceived, kind: 'restart-window' };
-    this.pipeline.restartWindow();
+    const mark: WindowMark = { seq: this.nextSeq, kind: 'restart-window' };
+    this.current.restartWindow();
     return mark;
   }
 
+  /** The checkpoint to store: the channel record and the index of the next sample. */
+  checkpoint(): { seq: number; state: ChannelRecord } {
+    return { seq: this.nextSeq, state: channelRecord(this.options, this.offset, this.current.saveState()) };
+  }
+
+  /** Rebuilds a new channel from its checkpoint (or none) and its stored samples and marks. */
+  restore(checkpoint: { seq: number; state: unknown } | null, history: ChannelHistory): RestoreReport {
+    let outcome: RestoreReport['outcome'] = 'fresh';
+    let detail: string | null = null;
+    let from = 0;
+    if (checkpoint !== null) {
+      const decision = decideCheckpoint(checkpoint.state, this.options);
+      if (decision.action === 'load') {
+        try {
+          this.current.loadState(decision.pipeline);
+          this.offset = decision.seqOffset;
+          from = checkpoint.seq;
+          outcome = decision.migrated === null ? 'loaded' : 'migrated';
+          const notes: string[] = [];
+          if (decision.migrated !== null) notes.push(`migrated: ${decision.migrated}`);
+          if (decision.carriedOver.length > 0) notes.push(`carried over to the changed options ${decision.carriedOver.join(', ')}`);
+          detail = notes.length > 0 ? notes.join('; ') : null;
+        } catch (error) {
+          this.current = new ChannelPipeline(this.name, this.options);
+          outcome = 'replayed';
+          detail = `the checkpoint could not be read (${(error as Error).message})`;
+        }
+      } else {
+        outcome = 'replayed';
+        detail = decision.reason;
+      }
+    }
+    if (outcome === 'replayed' || outcome === 'fresh') {
+      // Every stored sample, from the first one kept.
+      const runs = history.samplesFrom(0)[Symbol.iterator]();
+      const first = runs.next();
+      if (first.done) return { outcome, detail, replayed: 0, forced: 0 };
+      this.offset = first.value.firstSeq;
+      if (this.offset > 0) detail = `${detail ?? 'no checkpoint'}; rebuilt from stored sample ${this.offset} on (retention removed the earlier ones): the statistics start there, and event indices count from there`;
+      const all = (function* () {
+        yield first.value;
+        for (let next = runs.next(); !next.done; next = runs.next()) yield next.value;
+      })();
+      return { outcome, detail, ...this.replay(all, history.marksFrom(this.offset), this.offset) };
+    }
+    return { outcome, detail, ...this.replay(history.samplesFrom(Math.max(this.offset, from - RECENT_TIMES)), history.marksFrom(from), from) };
+  }
+
   /**
-   * Restores from stored samples: `fromSeq` is the index of the first sample the pipeline has not
-   * seen (the checkpoint's, 0 without one); `samples` must start at or before max(0, fromSeq -
-   * RECENT_TIMES) when they still exist; `marks` are the window marks at or after fromSeq.
+   * `fromSeq` is the store index of the first sample the pipeline has not seen; `samples` start at
+   * or before max(offset, fromSeq - RECENT_TIMES) when they still exist; `marks` are the window
+   * marks at or after fromSeq.
    */
-  replay(samples: Iterable<StoredSamples>, marks: readonly { seq: number; kind: string }[], fromSeq: number): ReplayResult {
+  private replay(samples: Iterable<StoredSamples>, marks: readonly { seq: number; kind: string }[], fromSeq: number): { replayed: number; forced: number } {
     let markIndex = 0;
     let replayed = 0;
     let forced = 0;
     const applyMarks = (seq: number) => {
       while (markIndex < marks.length && (marks[markIndex] as { seq: number }).seq <= seq) {
         const mark = marks[markIndex] as { seq: number; kind: string };
-        if (mark.seq === seq && mark.kind === 'restart-window') this.pipeline.restartWindow();
+        if (mark.seq === seq && mark.kind === 'restart-window') this.current.restartWindow();
         markIndex++;
       }
     };
@@ -138,7 +216,7 @@ export class Channel {
       }
     }
     // A mark at the very next sample (a test point started after the last stored sample).
-    applyMarks(this.pipeline.totalReceived);
+    applyMarks(this.nextSeq);
     return { replayed, forced };
   }
 
@@ -160,8 +238,8 @@ export class Channel {
     if (stamped) this.remember(timeMs);
     else if (time < this.lastStampMs) time = this.lastStampMs;
     if (time > this.lastStampMs) this.lastStampMs = time;
-    const seq = this.pipeline.totalReceived;
-    const events = this.pipeline.push(value, time / 1000);
+    const seq = this.nextSeq;
+    const events = this.current.push(value, time / 1000);
     return { accepted: true, seq, timeMs: time, late, events };
   }
 

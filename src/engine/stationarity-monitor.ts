@@ -1,4 +1,5 @@
 import { TwoSidedCusum, decisionIntervalForArl, type CusumState } from '../core/stationarity/cusum.js';
+import { expectRecord, type StateRecord } from '../core/state/record.js';
 import { varianceChangeTest } from '../core/stationarity/variance-change.js';
 import normalQuantile from '@stdlib/stats-base-dists-normal-quantile';
 
@@ -56,12 +57,18 @@ export interface MonitorSettings {
   falseAlarmSamples: number;
 }
 
-export interface MonitorState {
+export interface MonitorState extends StateRecord<'stationarity-monitor', 1> {
   settings: MonitorSettings;
   cusum: CusumState;
-  numbers: number[];
-  history: Float64Array;
+  blockSum: number;
+  blockCount: number;
+  blockStart: number;
+  historyLength: number;
   historyStart: number;
+  blocks: number;
+  referenceMean: number;
+  origin: number;
+  history: Float64Array;
   trace: Float32Array;
   traceCount: number;
 }
@@ -155,20 +162,29 @@ export class StationarityMonitor {
 
   saveState(): MonitorState {
     return {
+      record: 'stationarity-monitor',
+      version: 1,
       settings: { ...this.settings },
       cusum: this.cusum.state(),
-      numbers: [this.blockSum, this.blockCount, this.blockStart, this.historyLength, this.historyStart, this.blocks, this.referenceMean, this.origin],
-      history: this.history.slice(),
+      blockSum: this.blockSum,
+      blockCount: this.blockCount,
+      blockStart: this.blockStart,
+      historyLength: this.historyLength,
       historyStart: this.historyStart,
+      blocks: this.blocks,
+      referenceMean: this.referenceMean,
+      origin: this.origin,
+      history: this.history.slice(),
       trace: this.trace.slice(),
       traceCount: this.traceCount,
     };
   }
 
   static fromState(state: MonitorState): StationarityMonitor {
+    expectRecord(state, 'stationarity-monitor', 1);
     const monitor = new StationarityMonitor(state.settings, 0, 0);
     monitor.cusum = TwoSidedCusum.restore(state.cusum);
-    [monitor.blockSum, monitor.blockCount, monitor.blockStart, monitor.historyLength, monitor.historyStart, monitor.blocks, monitor.referenceMean, monitor.origin] = state.numbers as [number, number, number, number, number, number, number, number];
+    ({ blockSum: monitor.blockSum, blockCount: monitor.blockCount, blockStart: monitor.blockStart, historyLength: monitor.historyLength, historyStart: monitor.historyStart, blocks: monitor.blocks, referenceMean: monitor.referenceMean, origin: monitor.origin } = state);
     monitor.history.set(state.history);
     monitor.trace.set(state.trace);
     monitor.traceCount = state.traceCount;

@@ -43,10 +43,12 @@ export function channelTrace(daemon: Daemon, channel: Channel, count: number): C
     const from = Math.max(0, windowStartIndex - missing);
     firstIndex = from;
     let expected = from;
-    for (const chunk of daemon.store.samplesFrom(channel.name, from)) {
-      if (chunk.firstSeq >= windowStartIndex) break;
+    // Store indices are the pipeline's plus the channel's offset (not 0 only after a rebuild from a shortened history).
+    const offset = channel.seqOffset;
+    for (const chunk of daemon.store.samplesFrom(channel.name, from + offset)) {
+      if (chunk.firstSeq - offset >= windowStartIndex) break;
       for (let i = 0; i < chunk.values.length; i++) {
-        const seq = chunk.firstSeq + i;
+        const seq = chunk.firstSeq - offset + i;
         if (seq < from) continue;
         if (seq >= windowStartIndex) break;
         // Retention may have removed samples: keep the indices honest by starting after the gap.

@@ -59,6 +59,14 @@ function stored(log: Log, from = 0, run = 97): StoredSamples[] {
   return out;
 }
 
+/** The store as a channel reads it at restart. */
+function history(log: Log): { samplesFrom(seq: number): StoredSamples[]; marksFrom(seq: number): { seq: number; kind: string }[] } {
+  return {
+    samplesFrom: (seq) => stored(log).filter((run) => run.firstSeq + run.values.length > seq),
+    marksFrom: (seq) => log.marks.filter((m) => m.seq >= seq),
+  };
+}
+
 /** Both channels give the same verdict and index to every one of the same further samples. */
 function expectSameDecisions(a: Channel, b: Channel): void {
   const probe = [a.lastTimeMs, a.lastTimeMs - 100, a.lastTimeMs - 1e9, a.lastTimeMs + 100, a.lastTimeMs + 50, a.lastTimeMs - 50];
@@ -80,8 +88,8 @@ describe('Channel', () => {
   it('replayed from every stored sample, it ends where the live channel is and decides as it does', () => {
     const { channel, log } = live(30_000);
     const restored = new Channel(channel.name, channel.unit, OPTIONS);
-    const result = restored.replay(stored(log), log.marks, 0);
-    expect(result).toEqual({ replayed: log.samples.length, forced: 0 });
+    const result = restored.restore(null, history(log));
+    expect(result).toEqual({ outcome: 'fresh', detail: null, replayed: log.samples.length, forced: 0 });
     expect(restored.nextSeq).toBe(channel.nextSeq);
     expect(restored.lastTimeMs).toBe(channel.lastTimeMs);
     expect(restored.pipeline.snapshot()).toEqual(channel.pipeline.snapshot());
@@ -93,13 +101,13 @@ describe('Channel', () => {
     // A checkpoint taken mid-stream, by a channel fed the same samples up to there.
     const cut = 17_000;
     const before = new Channel(channel.name, channel.unit, OPTIONS);
-    before.replay(stored({ samples: log.samples.filter((s) => s.seq < cut), marks: log.marks }), log.marks, 0);
-    const checkpoint = before.pipeline.saveState();
+    before.restore(null, history({ samples: log.samples.filter((s) => s.seq < cut), marks: log.marks.filter((m) => m.seq < cut) }));
+    const checkpoint = before.checkpoint();
+    expect(checkpoint.seq).toBe(cut);
     const restored = new Channel(channel.name, channel.unit, OPTIONS);
-    restored.pipeline.loadState(checkpoint);
-    const result = restored.replay(stored(log, cut - RECENT_TIMES), log.marks.filter((m) => m.seq >= cut), cut);
-    expect(result.replayed).toBe(log.samples.length - cut);
-    expect(result.forced).toBe(0);
+    // The store keeps only the samples from cut - RECENT_TIMES on (retention), which is enough.
+    const result = restored.restore(checkpoint, history({ samples: log.samples.filter((s) => s.seq >= cut - RECENT_TIMES), marks: log.marks }));
+    expect(result).toEqual({ outcome: 'loaded', detail: null, replayed: log.samples.length - cut, forced: 0 });
     expect(restored.pipeline.snapshot()).toEqual(channel.pipeline.snapshot());
     expectSameDecisions(channel, restored);
   });
@@ -114,10 +122,13 @@ describe('Channel', () => {
     const late = channel.accept(99, T0 + 500, true);
     expect(late).toMatchObject({ accepted: true, late: true });
     if (late.accepted) samples.push({ seq: late.seq, timeMs: late.timeMs, value: 99, stamped: true });
-    // Replay without the first nine samples: the late one now looks out of order.
+    // A replay without the first nine samples (retention took them): the late one now looks out of order.
     const restored = new Channel('probe', null, OPTIONS);
-    const result = restored.replay(stored({ samples: samples.slice(9), marks: [] }), [], 0);
-    expect(result).toEqual({ replayed: 2, forced: 1 });
+    const result = restored.restore(null, history({ samples: samples.slice(9), marks: [] }));
+    expect(result).toMatchObject({ outcome: 'fresh', replayed: 2, forced: 1 });
+    expect(result.detail).toMatch(/rebuilt from stored sample 9 on \(retention removed the earlier ones\)/);
+    expect(restored.seqOffset).toBe(9);
+    expect(restored.nextSeq).toBe(channel.nextSeq);
   });
 
   it('a window mark at the next sample (a test point started after the last stored sample) is applied at the end of the replay', () => {
@@ -126,7 +137,8 @@ describe('Channel', () => {
     const mark = channel.restartWindow();
     expect(mark).toEqual({ seq: 200, kind: 'restart-window' });
     const restored = new Channel('probe', null, OPTIONS);
-    restored.replay([{ firstSeq: 0, times: Array.from({ length: 200 }, (_, i) => T0 + 100 * i), values: Array.from({ length: 200 }, (_, i) => Math.sin(i)), unstamped: null }], [mark], 0);
+    const samples = Array.from({ length: 200 }, (_, i) => ({ seq: i, timeMs: T0 + 100 * i, value: Math.sin(i), stamped: true }));
+    restored.restore(null, history({ samples, marks: [mark] }));
     expect(restored.pipeline.count).toBe(0);
     expect(restored.pipeline.snapshot()).toEqual(channel.pipeline.snapshot());
   });
