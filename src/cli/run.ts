@@ -26,7 +26,7 @@ export async function runDaemonCommand(argv: string[]): Promise<number> {
   if (config.broker.url === 'embedded') broker = await startEmbeddedBroker({ port: 1883 });
   const daemon = new Daemon(config, broker ? { brokerUrl: broker.url } : {});
   await daemon.start();
-  const server = await startServer(daemon, { host: config.http.host, port: config.http.port, token: config.http.token, maxBodyBytes: config.http.maxBodyBytes });
+  const server = await startServer(daemon, { host: config.http.host, port: config.http.port, token: config.http.token, maxBodyBytes: config.http.maxBodyBytes, log: daemon.log });
   daemon.log.info({ url: server.url, broker: broker?.url ?? config.broker.url }, 'plateau is running');
   process.stderr.write(`plateau: dashboard at ${server.url}  (broker ${broker?.url ?? config.broker.url})\n${CAUTION}\n`);
   return waitForSignal(async () => {

@@ -8,6 +8,8 @@ import { derivedReportEntry, derivedVerdict, STEADY_STATES, type DerivedReportEn
 import { DerivedTracker, type ChannelWindowView, type DerivedWindowSource } from '../engine/derived/derived-tracker.js';
 import type { ChannelDeclaration, DerivedDefinition } from '../engine/derived/expression-model.js';
 import type { DerivedStatus } from '../engine/test-points.js';
+import { gumStatement } from '../engine/test-point-record.js';
+import type { DerivedView } from '../ports/daemon-api.js';
 
 /**
  * Derived results of the daemon: quantities computed from several channels (configured under
@@ -23,8 +25,7 @@ import type { DerivedStatus } from '../engine/test-points.js';
  *
  * Live: one DerivedTracker per derived result, on the windows of its input channels (see
  * derived-tracker.ts: the windows are the truth, so a restart of the daemon rebuilds the results
- * from the channel windows it restores; nothing of their own needs saving and the replayed samples
- * that onSample sees with replay = true need no handling). onSample only marks the results that use
+ * from the channel windows it restores; nothing of their own needs saving). onSample only marks the results that use
  * the channel; they are brought up to date on the next query: drainEvents (every flush), atTarget,
  * recordEntries, snapshots.
  * At target: the result has a target, its expanded (or standard) uncertainty meets it, and every
@@ -46,8 +47,8 @@ export interface DerivedEvent {
   body: Record<string, unknown>;
 }
 
-/** What the API and the dashboard show for a derived result: the engine's snapshot and the verdict. */
-export type DerivedView = DerivedSnapshot & DerivedVerdict;
+/** A derived result's snapshot and verdict (the API adds its statement: `views`). */
+export type DerivedState = DerivedSnapshot & DerivedVerdict;
 
 /** Trials at most for the Monte Carlo check of a record (about 0.1 s with a 3-4 input model). */
 export const RECORD_MONTE_CARLO_TRIALS = 200_000;
@@ -127,7 +128,7 @@ export class DerivedResults implements DerivedStatus {
   }
 
   /** Marks the results that use the channel; the windows are read on the next query. */
-  onSample(channel: string, _value: number, _timeMs: number, _replay = false): void {
+  onSample(channel: string): void {
     const users = this.byChannel.get(channel);
     if (users === undefined) return;
     for (const entry of users) entry.dirty = true;
@@ -161,7 +162,7 @@ export class DerivedResults implements DerivedStatus {
   }
 
   /** Every derived result as the API and the dashboard show it (the budget chart reads `budget`); always up to date. */
-  snapshots(): DerivedView[] {
+  snapshots(): DerivedState[] {
     const entries = [...this.entries.values()];
     for (const entry of entries) this.refresh(entry, true);
     const correlations = this.liveCorrelations(entries);
@@ -170,6 +171,16 @@ export class DerivedResults implements DerivedStatus {
       const correlation = correlations.get(entry.spec.compiled.name);
       return correlation ? { ...view, correlation } : view;
     });
+  }
+
+  /**
+   * Every derived result as the API, the WebSocket and the report show it: snapshot, verdict and
+   * its statement in the wording of JCGM 100:2008 7.2.4 (gumStatement, as records and `plateau
+   * analyze` state it). The record-only checks (Monte Carlo, bootstrap) are left out: they cost
+   * about 0.1-0.4 s per result and are computed when a test point writes its record.
+   */
+  views(): DerivedView[] {
+    return this.snapshots().map((state) => ({ ...state, statement: gumStatement(state.name, state.value, state.standardUncertainty, state.expandedUncertainty, state.coverageFactor, state.dof, state.confidence, state.unit) }));
   }
 
   /**
@@ -260,7 +271,7 @@ export class DerivedResults implements DerivedStatus {
     }
   }
 
-  private view(entry: Entry): DerivedView {
+  private view(entry: Entry): DerivedState {
     const snapshot = entry.snapshot as DerivedSnapshot;
     return { ...snapshot, ...derivedVerdict(snapshot, entry.spec.target !== null, this.inputStates(entry), entry.precise) };
   }

@@ -2,15 +2,13 @@ import Fastify, { type FastifyInstance, type FastifyReply, type FastifyRequest, 
 import { existsSync, readFileSync, realpathSync, statSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { dirname, join, normalize, sep } from 'node:path';
-import type { Daemon } from '../daemon/daemon.js';
-import { TestPointError, type TestPoint } from '../engine/test-points.js';
+import pino, { type Logger } from 'pino';
+import type { DaemonApi } from '../ports/daemon-api.js';
 import { PlateauError } from '../errors/catalogue.js';
 import { recordCsv, RECORD_CAUTION, type TestPointRecord } from '../engine/test-point-record.js';
 import { renderReport } from './report.js';
 import { openApiDocument, type DocumentedRoute } from './openapi.js';
-import { eventLogFor, ALERT_KINDS, ACKNOWLEDGED_KIND } from './event-log.js';
-import { channelTrace } from './channel-trace.js';
-import { liveDerived, liveDerivedByName, recordDerivedEntries } from './derived-live.js';
+import { recordDerivedEntries } from './record-derived.js';
 import { derivedRecordCsv } from '../engine/derived/derived-record.js';
 import { sameOrigin } from './origin.js';
 import {
@@ -60,6 +58,8 @@ declare module 'fastify' {
 export interface HttpAppOptions {
   token: string | null;
   maxBodyBytes: number;
+  /** Where a handler's fault (a 500) is logged, with its stack (default: errors to standard output). */
+  log?: Logger;
   /** Where dashboard/ lives (defaults to the package's own). */
   dashboardDir?: string;
 }
@@ -86,7 +86,8 @@ const MAX_PARAM_LENGTH = 1024;
 
 const errors = (...codes: number[]) => Object.fromEntries(codes.map((code) => [code, errorReply]));
 
-export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyInstance {
+export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): FastifyInstance {
+  const log = options.log ?? pino({ level: 'error', base: { service: 'plateau' } });
   const routes: DocumentedRoute[] = [];
   const app = Fastify({
     logger: false,
@@ -103,7 +104,6 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     },
   });
   const dashboardDir = options.dashboardDir ?? join(root, 'dashboard');
-  const events = eventLogFor(daemon);
   // Bodies are JSON only (a plain-text body is a 415, not a string that fails validation).
   app.removeContentTypeParser('text/plain');
   app.addHook('onRoute', (route: RouteOptions) => {
@@ -112,14 +112,13 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
   });
 
   app.setErrorHandler((error: Error & { statusCode?: number; code?: string; validation?: unknown; validationContext?: string }, request, reply) => {
-    if (error instanceof TestPointError && error.status >= 400 && error.status < 500) return reply.code(error.status).send({ error: error.code, message: error.message });
     if (error instanceof PlateauError && error.status !== 500) return reply.code(error.status).send({ error: error.code, message: error.message });
     if (error.validation) return reply.code(400).send({ error: 'ERR_REQUEST_INVALID', message: `request ${error.message}` });
     const known = FRAMEWORK_ERRORS[error.code ?? ''];
     if (known) return reply.code(known.status).send({ error: known.error, message: known.message(options.maxBodyBytes) });
     const status = error.statusCode && error.statusCode >= 400 && error.statusCode < 500 ? error.statusCode : 500;
     if (status === 500) {
-      daemon.log.error({ err: error.message, url: request.url.slice(0, 200) }, 'http handler failed');
+      log.error({ err: error, url: request.url.slice(0, 200) }, 'http handler failed');
       return reply.code(500).send({ error: 'ERR_INTERNAL', message: 'internal error (see the daemon log)' });
     }
     return reply.code(status).send({ error: 'ERR_REQUEST', message: error.message });
@@ -150,7 +149,6 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
 
   const fail = (reply: FastifyReply, status: number, code: string, message: string) => (reply as FastifyReply).code(status).send({ error: code, message });
   const notFound = (reply: FastifyReply, code: string, message: string) => fail(reply, 404, code, message);
-  const withVerdict = (point: TestPoint) => ({ ...point, verdict: daemon.testPoints.verdict(point) });
   const testPointParams = { type: 'object', properties: { id: { type: 'string', pattern: TEST_POINT_ID_PATTERN } }, required: ['id'] } as const;
   const unknownTestPoint = (reply: FastifyReply, id: string) => notFound(reply, 'ERR_TEST_POINT_UNKNOWN', `no test point ${id}`);
 
@@ -181,7 +179,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
         status: health.status,
         broker: health.broker,
         store: health.store.failing ? 'failing' : 'ok',
-        channels: daemon.registry.size,
+        channels: daemon.channels().length,
         ...(health.store.since !== null ? { failingSinceMs: health.store.since } : {}),
         ...(health.store.lastError !== null ? { error: health.store.lastError } : {}),
       };
@@ -219,9 +217,9 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
       serverTimeMs: Date.now(),
       writesNeedToken: options.token !== null,
       limits: { maxBodyBytes: options.maxBodyBytes, maxWebSocketMessageBytes: WS_LIMITS.maxPayloadBytes, channelUpdateIntervalMs: WS_LIMITS.updateIntervalMs, maxTraceSamples: 20_000 },
-      derived: daemon.derived.names(),
-      alertKinds: [...ALERT_KINDS],
-      lastEventId: events.lastId,
+      derived: daemon.derivedNames(),
+      alertKinds: [...daemon.alertKinds()],
+      lastEventId: daemon.lastEventId,
       caution: RECORD_CAUTION,
     }),
   );
@@ -241,7 +239,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     },
     async (request) => {
       const view = (request.query as { view?: string }).view ?? 'full';
-      const channels = daemon.registry.all().map((channel) => (view === 'summary' ? { ...channel.pipeline.summary(), unit: channel.unit } : { ...channel.pipeline.snapshot(), unit: channel.unit }));
+      const channels = daemon.channels().map((channel) => (view === 'summary' ? { ...channel.summary(), unit: channel.unit } : { ...channel.snapshot(), unit: channel.unit }));
       return { channels };
     },
   );
@@ -271,16 +269,16 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     },
     async (request, reply) => {
       const { name } = request.params as { name: string };
-      const channel = daemon.registry.get(name);
+      const channel = daemon.channel(name);
       if (!channel) return notFound(reply, 'ERR_CHANNEL_UNKNOWN', `no channel named "${name.slice(0, 80)}"`);
       const query = request.query as { trace?: number; events?: number };
-      const snapshot = channel.pipeline.snapshot();
+      const snapshot = channel.snapshot();
       return {
         ...snapshot,
         unit: channel.unit,
-        trace: channelTrace(daemon, channel, query.trace ?? 2000),
-        cusumTrace: channel.pipeline.cusumTrace(),
-        storedEvents: daemon.store.eventsFor(name, query.events ?? 200),
+        trace: channel.trace(query.trace ?? 2000),
+        cusumTrace: channel.cusumTrace(),
+        storedEvents: channel.storedEvents(query.events ?? 200),
       };
     },
   );
@@ -294,7 +292,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
         response: { 200: { type: 'object', required: ['derived'], properties: { derived: { type: 'array', items: derivedResult } }, additionalProperties: false }, ...errors(400) },
       },
     },
-    async () => ({ derived: liveDerived(daemon) }),
+    async () => ({ derived: daemon.derivedResults() }),
   );
 
   app.get(
@@ -310,10 +308,10 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     },
     async (request, reply) => {
       const { name } = request.params as { name: string };
-      const view = liveDerivedByName(daemon, name);
-      if (!view) return notFound(reply, 'ERR_DERIVED_UNKNOWN', `no derived result named "${name.slice(0, 80)}" (known: ${daemon.derived.names().join(', ') || 'none'})`);
+      const view = daemon.derivedResult(name);
+      if (!view) return notFound(reply, 'ERR_DERIVED_UNKNOWN', `no derived result named "${name.slice(0, 80)}" (known: ${daemon.derivedNames().join(', ') || 'none'})`);
       const events = (request.query as { events?: number }).events ?? 200;
-      return { ...view, storedEvents: daemon.store.eventsFor(name, events) };
+      return { ...view, storedEvents: daemon.eventsFor(name, events) };
     },
   );
 
@@ -340,9 +338,9 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     async (request, reply) => {
       const { after, limit, latest } = request.query as { after?: number; limit?: number; latest?: number };
       if (latest !== undefined && (after !== undefined || limit !== undefined)) return fail(reply, 400, 'ERR_REQUEST_INVALID', 'request querystring: use either latest, or after and limit');
-      const list = latest !== undefined ? events.latest(latest) : daemon.events(after ?? 0, limit ?? 200);
-      const first = list[0]?.id ?? events.lastId;
-      return { events: list, lastEventId: events.lastId, acknowledgements: events.acknowledgementsAfter(first - 1) };
+      const list = latest !== undefined ? daemon.latestEvents(latest) : daemon.events(after ?? 0, limit ?? 200);
+      const first = list[0]?.id ?? daemon.lastEventId;
+      return { events: list, lastEventId: daemon.lastEventId, acknowledgements: daemon.acknowledgementsAfter(first - 1) };
     },
   );
 
@@ -361,10 +359,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     async (request, reply) => {
       const { id } = request.params as { id: number };
       const note = (request.body as { note?: string } | null | undefined)?.note ?? null;
-      const event = events.find(id);
-      if (!event) return notFound(reply, 'ERR_EVENT_UNKNOWN', `no stored event ${id}`);
-      if (event.kind === ACKNOWLEDGED_KIND) return fail(reply, 409, 'ERR_EVENT_ACKNOWLEDGEMENT', `event ${id} is itself an acknowledgement`);
-      const result = events.acknowledge(event, note);
+      const result = daemon.acknowledgeEvent(id, note);
       return { acknowledgement: result.acknowledgement, alreadyAcknowledged: result.already };
     },
   );
@@ -372,7 +367,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
   app.get(
     '/api/test-points',
     { schema: { summary: 'test points with their verdicts, in order of creation', response: { 200: { type: 'object', properties: { testPoints: { type: 'array', items: testPointSchema } }, additionalProperties: false } } } },
-    async () => ({ testPoints: daemon.testPoints.list().map(withVerdict) }),
+    async () => ({ testPoints: daemon.testPointViews() }),
   );
 
   app.post(
@@ -398,8 +393,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     },
     async (request, reply) => {
       const body = request.body as { id?: string; name?: string; channels: string[]; derived?: string[] };
-      const point = daemon.startTestPoint(body);
-      return reply.code(201).send({ testPoint: withVerdict(point) });
+      return reply.code(201).send({ testPoint: daemon.startTestPoint(body) });
     },
   );
 
@@ -408,9 +402,9 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     { schema: { summary: 'one test point and its records', params: testPointParams, response: { 200: { type: 'object', properties: { testPoint: testPointSchema, records: { type: 'array', items: recordRow } }, additionalProperties: false }, ...errors(400, 404) } } },
     async (request, reply) => {
       const { id } = request.params as { id: string };
-      const point = daemon.testPoints.get(id);
+      const point = daemon.testPoint(id);
       if (!point) return unknownTestPoint(reply, id);
-      return { testPoint: withVerdict(point), records: daemon.store.records(id) };
+      return { testPoint: point, records: daemon.records(id) };
     },
   );
 
@@ -422,7 +416,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     },
     async (request) => {
       const { id } = request.params as { id: string };
-      return { testPoint: withVerdict(daemon.stopTestPoint(id)) };
+      return { testPoint: daemon.stopTestPoint(id) };
     },
   );
 
@@ -442,8 +436,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
       const { id } = request.params as { id: string };
       const { text } = request.body as { text: string };
       if (text.trim() === '') return fail(reply, 400, 'ERR_REQUEST_INVALID', 'request body/text is blank');
-      const point = daemon.annotateTestPoint(id, text);
-      return reply.code(201).send({ testPoint: withVerdict(point) });
+      return reply.code(201).send({ testPoint: daemon.annotateTestPoint(id, text) });
     },
   );
 
@@ -452,13 +445,13 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     { schema: { summary: 'every record of a test point, oldest first', params: testPointParams, response: { 200: { type: 'object', properties: { records: { type: 'array', items: recordRow } }, additionalProperties: false }, ...errors(400, 404) } } },
     async (request, reply) => {
       const { id } = request.params as { id: string };
-      if (!daemon.testPoints.get(id)) return unknownTestPoint(reply, id);
-      return { records: daemon.store.records(id) };
+      if (!daemon.testPoint(id)) return unknownTestPoint(reply, id);
+      return { records: daemon.records(id) };
     },
   );
 
   const latestRecord = (id: string): TestPointRecord | null => {
-    const records = daemon.store.records(id);
+    const records = daemon.records(id);
     return records.length > 0 ? ((records.at(-1) as { body: unknown }).body as TestPointRecord) : null;
   };
   const noRecord = (reply: FastifyReply, id: string) => notFound(reply, 'ERR_RECORD_NONE', `test point ${id} has no record yet (one is written when it is ready or stopped)`);
@@ -468,7 +461,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     { schema: { summary: 'the latest record as CSV (RFC 4180), one row per channel', params: testPointParams, response: { ...errors(400, 404) } } },
     async (request, reply) => {
       const { id } = request.params as { id: string };
-      if (!daemon.testPoints.get(id)) return unknownTestPoint(reply, id);
+      if (!daemon.testPoint(id)) return unknownTestPoint(reply, id);
       const record = latestRecord(id);
       if (!record) return noRecord(reply, id);
       return reply.header('content-type', 'text/csv; charset=utf-8').header('content-disposition', `attachment; filename="${id}.csv"`).send(recordCsv(record));
@@ -487,7 +480,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     },
     async (request, reply) => {
       const { id } = request.params as { id: string };
-      if (!daemon.testPoints.get(id)) return unknownTestPoint(reply, id);
+      if (!daemon.testPoint(id)) return unknownTestPoint(reply, id);
       const record = latestRecord(id);
       if (!record) return noRecord(reply, id);
       const entries = recordDerivedEntries(record.derived);
@@ -501,7 +494,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     { schema: { summary: 'the latest record', params: testPointParams, response: { 200: testPointRecord, ...errors(400, 404) } } },
     async (request, reply) => {
       const { id } = request.params as { id: string };
-      if (!daemon.testPoints.get(id)) return unknownTestPoint(reply, id);
+      if (!daemon.testPoint(id)) return unknownTestPoint(reply, id);
       const record = latestRecord(id);
       if (!record) return noRecord(reply, id);
       return reply.header('content-disposition', `inline; filename="${id}.json"`).send(record);
@@ -513,17 +506,17 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     { schema: { summary: 'printable report (HTML, print to PDF): results in GUM wording, evidence, charts, cautions', params: testPointParams, response: { ...errors(400, 404) } } },
     async (request, reply) => {
       const { id } = request.params as { id: string };
-      const point = daemon.testPoints.get(id);
+      const point = daemon.testPoint(id);
       if (!point) return unknownTestPoint(reply, id);
       const record = latestRecord(id);
-      const channels = point.channels.map((name) => daemon.registry.get(name)).filter((c) => c !== undefined);
+      const channels = point.channels.map((name) => daemon.channel(name)).filter((c) => c !== null);
       const html = renderReport({
         point,
         record,
         generatedMs: Date.now(),
         version: VERSION,
-        channels: channels.map((c) => ({ name: c.name, unit: c.unit, snapshot: c.pipeline.snapshot(), trace: channelTrace(daemon, c, 4000), cusum: c.pipeline.cusumTrace() })),
-        derived: point.derived.length > 0 ? liveDerived(daemon).filter((d) => point.derived.includes(d.name)) : [],
+        channels: channels.map((c) => ({ name: c.name, unit: c.unit, snapshot: c.snapshot(), trace: c.trace(4000), cusum: c.cusumTrace() })),
+        derived: point.derived.length > 0 ? daemon.derivedResults().filter((d) => point.derived.includes(d.name)) : [],
       });
       return reply.header('content-type', 'text/html; charset=utf-8').header('content-security-policy', REPORT_POLICY).send(html);
     },

@@ -172,8 +172,10 @@ describe('a commit that fails', () => {
       if (inject && random.uniform() < 0.35) throw new Error('injected fault');
     } });
     let failures = 0;
+    let previous = 'ok';
     r.daemon.onHealth((health) => {
-      if (health.status === 'failing') failures++;
+      if (health.status === 'failing' && previous !== 'failing') failures++;
+      previous = health.status;
     });
     for (let burst = 0; burst < 400; burst++) {
       publish(r, 1 + Math.floor(random.uniform() * 20));

@@ -1,6 +1,5 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { renderReport } from '../../src/server/report.js';
-import { channelTrace } from '../../src/server/channel-trace.js';
 import { svgChart } from '../../src/server/svg-chart.js';
 import { gumStatement } from '../../src/engine/test-point-record.js';
 import { makeTestDaemon, RIG_START_SECONDS, type TestDaemon } from './harness.js';
@@ -31,7 +30,7 @@ function reportFor(id: string): string {
     record,
     generatedMs: RIG_START_SECONDS * 1000,
     version: '0.1.0',
-    channels: channels.map((c) => ({ name: c.name, unit: c.unit, snapshot: c.pipeline.snapshot(), trace: channelTrace(t.daemon, c, 4000), cusum: c.pipeline.cusumTrace() })),
+    channels: channels.map((c) => ({ name: c.name, unit: c.unit, snapshot: c.pipeline.snapshot(), trace: (t.daemon.channel(c.name) as NonNullable<ReturnType<typeof t.daemon.channel>>).trace(4000), cusum: c.pipeline.cusumTrace() })),
   });
 }
 
