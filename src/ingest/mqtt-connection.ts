@@ -27,6 +27,8 @@ export interface MqttDelivery {
   qos: number;
   /** The PUBACK mqtt.js would have sent (QoS 1), filled in right after the message handler returns. */
   puback: unknown;
+  /** Acknowledged (its PUBACK sent, or sent the moment it is taken aside when acknowledged from within the handler). */
+  acknowledged: boolean;
 }
 
 export interface MqttConnectionHandlers {
@@ -35,9 +37,12 @@ export interface MqttConnectionHandlers {
   error(error: Error): void;
 }
 
+/** Connection generations, unique in the process (a delivery of one connection never matches another's). */
+let generations = 0;
+
 /** A graceful end waits this long for the broker to acknowledge what was published. */
 const STOP_GRACE_MS = 2000;
-/** start() resolves after this long when the broker does not answer (the client keeps trying). */
+/** start() resolves once subscribed, or after this long when the broker does not answer (the client keeps trying). */
 const START_WAIT_MS = 3000;
 
 export class MqttConnection {
@@ -87,21 +92,24 @@ export class MqttConnection {
     this.client = client;
     this.interceptAcknowledgements(client);
     client.on('connect', (connack) => {
-      this.generation++;
+      this.generation = ++generations;
       this.connected = true;
       handlers.connection(true, connack.sessionPresent ? 'connected, session resumed' : 'connected, new session');
       // With a resumed session the broker keeps the subscriptions; subscribing again is harmless
       // and covers a broker that lost them.
+      let waiting = this.filters.length;
+      if (waiting === 0) client.emit('plateau-subscribed' as 'connect', connack);
       for (const filter of this.filters) {
         client.subscribe(filter, { qos: b.qos }, (error) => {
           if (error) handlers.error(new Error(`subscribe ${filter}: ${error.message}`));
+          if (--waiting === 0) client.emit('plateau-subscribed' as 'connect', connack);
         });
       }
     });
     client.on('close', () => {
       if (this.connected) handlers.connection(false, 'connection closed');
       this.connected = false;
-      this.generation++;
+      this.generation = ++generations;
       this.awaitingPuback.clear();
     });
     client.on('reconnect', () => {
@@ -109,14 +117,15 @@ export class MqttConnection {
     });
     client.on('error', (error) => handlers.error(error));
     client.on('message', (topic, payload, packet: IPublishPacket) => {
-      const delivery: MqttDelivery = { generation: this.generation, topic, payload, qos: packet.qos, puback: null };
+      const delivery: MqttDelivery = { generation: this.generation, topic, payload, qos: packet.qos, puback: null, acknowledged: false };
       // mqtt.js sends the PUBACK right after this handler returns; interceptAcknowledgements takes it.
       if (packet.qos === 1 && packet.messageId !== undefined) this.awaitingPuback.set(packet.messageId, delivery);
       handlers.message(delivery);
     });
     return new Promise((resolve) => {
       const done = () => resolve();
-      client.once('connect', done);
+      // Once the broker has acknowledged the subscriptions (nothing published after that is missed).
+      client.once('plateau-subscribed' as 'connect', done);
       // Do not block start-up on an absent broker: the client keeps trying in the background.
       setTimeout(done, START_WAIT_MS).unref();
     });
@@ -133,9 +142,12 @@ export class MqttConnection {
     stream?.cork?.();
     let sent = 0;
     for (const delivery of deliveries) {
-      if (delivery.generation !== this.generation || delivery.puback === null) continue;
-      write(delivery.puback);
-      delivery.puback = null;
+      if (delivery.generation !== this.generation || delivery.qos !== 1 || delivery.acknowledged) continue;
+      delivery.acknowledged = true;
+      if (delivery.puback !== null) {
+        write(delivery.puback);
+        delivery.puback = null;
+      }
       sent++;
     }
     if (stream?.uncork) process.nextTick(() => stream.uncork?.());
@@ -179,8 +191,9 @@ export class MqttConnection {
       if (packet.cmd === 'puback') {
         const delivery = packet.messageId === undefined ? undefined : this.awaitingPuback.get(packet.messageId);
         if (delivery !== undefined) {
-          delivery.puback = packet;
           this.awaitingPuback.delete(packet.messageId as number);
+          if (delivery.acknowledged) return original(packet, cb, ...rest);
+          delivery.puback = packet;
         }
         // Let mqtt.js move on to the next packet now; the PUBACK itself waits for the commit.
         if (cb) cb();

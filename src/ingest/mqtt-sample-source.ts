@@ -48,7 +48,7 @@ export class MqttSampleSource implements SampleSource {
     for (const token of tokens) {
       if (token.source !== this.name) continue;
       const delivery = (token as MqttToken).delivery;
-      if (delivery.qos === 1 && delivery.generation === this.connection.currentGeneration && delivery.puback !== null) deliveries.push(delivery);
+      if (delivery.qos === 1 && delivery.generation === this.connection.currentGeneration && !delivery.acknowledged) deliveries.push(delivery);
     }
     const sent = this.connection.acknowledge(deliveries);
     this.outstanding = Math.max(0, this.outstanding - sent);

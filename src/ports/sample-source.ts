@@ -14,9 +14,12 @@ import type { SubscriptionConfig } from '../config/plateau-config.js';
  * - `acknowledge(tokens)` releases exactly those batches (a token twice, or a token from before a
  *   reconnect, is ignored: the source redelivers what the old connection held);
  * - a batch that is never acknowledged is delivered again by a new connection or a new instance
- *   with the same identity (at least once);
- * - `start` resolves once connected, or after a bounded wait when the far end is down (the source
- *   then keeps trying in the background); `stop` resolves once disconnected and never acknowledges.
+ *   with the same identity; delivery is at least once: an acknowledgement still on its way when
+ *   the connection drops is lost with it, and that batch comes again too (the daemon's duplicate
+ *   rule recognises it);
+ * - `start` resolves once connected and subscribed, or after a bounded wait when the far end is
+ *   down (the source then keeps trying in the background); `stop` resolves once disconnected and
+ *   never acknowledges.
  */
 export interface SourcePosition {
   /** The source's name (stable across restarts: what a durable position is stored under). */
@@ -68,7 +71,7 @@ export interface SampleSource {
   readonly name: string;
   /** `resumeAfter`: the last committed position, for a durable source (others ignore it). */
   start(handlers: SourceHandlers, resumeAfter: SourcePosition | null): Promise<void>;
-  /** Acknowledges the batches of these tokens; returns how many reached the far end. */
+  /** Acknowledges the batches of these tokens; returns how many acknowledgements were sent. */
   acknowledge(tokens: readonly AckToken[]): number;
   status(): SourceStatus;
   stop(): Promise<void>;
