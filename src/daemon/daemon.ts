@@ -198,6 +198,7 @@ export class Daemon implements DaemonApi {
     const summary = restoreChannels(store, this.registry, this.ingestion, this.log);
     for (const [channel, seq] of summary.checkpointAt) this.checkpoints.stored(channel, seq);
     restoreTestPoints(store, this.testPoints);
+    this.derived.restored();
     this.publishing.lastEventId = store.lastEventId();
     const counters = store.counters();
     const ingest = this.ingestion.counters;

@@ -2,6 +2,7 @@ import type { StateRecord } from '../core/state/record.js';
 import type { ChannelOptions } from './channel-options.js';
 import type { ChannelPipelineState } from './channel-pipeline.js';
 import { canonicalJson, differingKeys, fingerprint } from './state-record.js';
+import type { SteadinessState } from './steadiness.js';
 
 /**
  * A channel's checkpoint: a named, versioned record holding the pipeline's record, the options the
@@ -27,6 +28,8 @@ export interface ChannelRecord extends StateRecord<'channel', 1> {
   /** Store index of the pipeline's sample 0 (not 0 only after a rebuild from a history that retention had shortened). */
   seqOffset: number;
   pipeline: ChannelPipelineState;
+  /** When the channel was steady (src/engine/steadiness.ts), for derived results. */
+  steadiness: SteadinessState;
 }
 
 export const SHAPING_OPTIONS = ['window', 'maxLag', 'estimator', 'falseAlarmSamples', 'detectors'] as const;
@@ -41,8 +44,8 @@ export function shapingFingerprint(options: ChannelOptions): string {
   return fingerprint(Object.fromEntries(SHAPING_OPTIONS.map((key) => [key, plain[key]])));
 }
 
-export function channelRecord(options: ChannelOptions, seqOffset: number, pipeline: ChannelPipelineState): ChannelRecord {
-  return { record: 'channel', version: 1, options: plainOptions(options), fingerprint: shapingFingerprint(options), seqOffset, pipeline };
+export function channelRecord(options: ChannelOptions, seqOffset: number, pipeline: ChannelPipelineState, steadiness: SteadinessState): ChannelRecord {
+  return { record: 'channel', version: 1, options: plainOptions(options), fingerprint: shapingFingerprint(options), seqOffset, pipeline, steadiness };
 }
 
 export type CheckpointDecision =
@@ -50,6 +53,8 @@ export type CheckpointDecision =
       action: 'load';
       pipeline: ChannelPipelineState;
       seqOffset: number;
+      /** Null for a layout that did not keep it (rebuilt from the pipeline's recent events). */
+      steadiness: SteadinessState | null;
       /** The record versions migrated through, when the layout was older. */
       migrated: string | null;
       /** Options that changed without changing the state's shape, when any did. */
@@ -61,7 +66,7 @@ export type CheckpointDecision =
 export function decideCheckpoint(raw: unknown, options: ChannelOptions): CheckpointDecision {
   if (isLegacyPipeline(raw)) {
     // Version 1 of the pipeline's record, from before channel records: positional arrays, no options.
-    return { action: 'load', pipeline: migratePipelineV1(raw, options), seqOffset: 0, migrated: 'channel-pipeline version 1 (positional, options not recorded: taken as the current ones) to version 2', carriedOver: [] };
+    return { action: 'load', pipeline: migratePipelineV1(raw, options), seqOffset: 0, steadiness: null, migrated: 'channel-pipeline version 1 (positional, options not recorded: taken as the current ones) to version 2', carriedOver: [] };
   }
   const record = raw as Partial<ChannelRecord> | null;
   if (record === null || typeof record !== 'object' || record.record !== 'channel') return { action: 'replay', reason: 'the checkpoint is not a channel record' };
@@ -76,7 +81,7 @@ export function decideCheckpoint(raw: unknown, options: ChannelOptions): Checkpo
     pipeline = migratePipelineV1(pipeline, options);
     migrated = 'channel-pipeline version 1 to version 2';
   }
-  return { action: 'load', pipeline: pipeline as ChannelPipelineState, seqOffset: typeof record.seqOffset === 'number' ? record.seqOffset : 0, migrated, carriedOver: differingKeys(record.options ?? {}, plainOptions(options)) };
+  return { action: 'load', pipeline: pipeline as ChannelPipelineState, seqOffset: typeof record.seqOffset === 'number' ? record.seqOffset : 0, steadiness: record.steadiness ?? null, migrated, carriedOver: differingKeys(record.options ?? {}, plainOptions(options)) };
 }
 
 function pick(from: Record<string, unknown>, keys: readonly string[]): Record<string, unknown> {

@@ -2,6 +2,7 @@ import { ChannelPipeline } from './channel-pipeline.js';
 import type { ChannelOptions } from './channel-options.js';
 import type { ChannelEvent } from './channel-events.js';
 import { channelRecord, decideCheckpoint, type ChannelRecord } from './channel-state.js';
+import { SteadyHistory } from './steadiness.js';
 
 /**
  * One channel of the daemon: its pipeline, the time policy that decides which samples enter, its
@@ -88,6 +89,8 @@ export class Channel {
   private current: ChannelPipeline;
   /** Store index of the pipeline's sample 0 (see the class comment). */
   private offset = 0;
+  /** When the channel was steady, by pipeline sample index (for derived results). */
+  private readonly steadiness = new SteadyHistory();
   private lastStampMs = Number.NEGATIVE_INFINITY;
   /** The last RECENT_TIMES accepted payload times (a ring), for duplicate and lateness checks. */
   private readonly recentTimes = new Float64Array(RECENT_TIMES);
@@ -129,13 +132,19 @@ export class Channel {
   /** Starts a new growing window at the next sample (a test point starts); returns the mark to store. */
   restartWindow(): WindowMark {
     const mark: WindowMark = { seq: this.nextSeq, kind: 'restart-window' };
+    this.steadiness.restart(this.current.totalReceived);
     this.current.restartWindow();
     return mark;
   }
 
+  /** Whether the channel was steady when it took its sample of pipeline index `index` (see src/engine/steadiness.ts). */
+  steadyAt(index: number): boolean {
+    return this.steadiness.steadyAt(index);
+  }
+
   /** The checkpoint to store: the channel record and the index of the next sample. */
   checkpoint(): { seq: number; state: ChannelRecord } {
-    return { seq: this.nextSeq, state: channelRecord(this.options, this.offset, this.current.saveState()) };
+    return { seq: this.nextSeq, state: channelRecord(this.options, this.offset, this.current.saveState(), this.steadiness.state()) };
   }
 
   /** Rebuilds a new channel from its checkpoint (or none) and its stored samples and marks. */
@@ -148,6 +157,8 @@ export class Channel {
       if (decision.action === 'load') {
         try {
           this.current.loadState(decision.pipeline);
+          if (decision.steadiness !== null) this.steadiness.load(decision.steadiness);
+          else this.steadiness.noteEvents(decision.pipeline.recentEvents);
           this.offset = decision.seqOffset;
           from = checkpoint.seq;
           outcome = decision.migrated === null ? 'loaded' : 'migrated';
@@ -193,7 +204,10 @@ export class Channel {
     const applyMarks = (seq: number) => {
       while (markIndex < marks.length && (marks[markIndex] as { seq: number }).seq <= seq) {
         const mark = marks[markIndex] as { seq: number; kind: string };
-        if (mark.seq === seq && mark.kind === 'restart-window') this.current.restartWindow();
+        if (mark.seq === seq && mark.kind === 'restart-window') {
+          this.steadiness.restart(this.current.totalReceived);
+          this.current.restartWindow();
+        }
         markIndex++;
       }
     };
@@ -240,6 +254,7 @@ export class Channel {
     if (time > this.lastStampMs) this.lastStampMs = time;
     const seq = this.nextSeq;
     const events = this.current.push(value, time / 1000);
+    if (events.length > 0) this.steadiness.noteEvents(events);
     return { accepted: true, seq, timeMs: time, late, events };
   }
 

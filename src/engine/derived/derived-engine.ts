@@ -258,6 +258,12 @@ export class DerivedEngine {
     return this.rowCount;
   }
 
+  /** End (seconds) of the newest row's bucket; null without rows. */
+  get lastRowEndSeconds(): number | null {
+    if (this.rowCount === 0 || this.width === null) return null;
+    return ((this.rowBuckets[this.rowCount - 1] as number) + 1) * this.width;
+  }
+
   /** The bucket width in use (null until it is decided). */
   get bucketSeconds(): number | null {
     return this.width;
