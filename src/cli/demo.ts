@@ -110,5 +110,5 @@ export async function runDemoCommand(argv: string[]): Promise<number> {
     await demo.stop();
     return 0;
   }
-  return waitForSignal(() => demo.stop());
+  return waitForSignal(() => demo.stop(), demo.daemon.log);
 }

@@ -1,4 +1,5 @@
 import { parseArgs } from 'node:util';
+import type { Logger } from 'pino';
 import { loadConfigFile } from '../config/load-config.js';
 import { Daemon } from '../daemon/daemon.js';
 import { startServer } from '../server/server.js';
@@ -33,10 +34,10 @@ export async function runDaemonCommand(argv: string[]): Promise<number> {
     await server.close();
     await daemon.stop();
     await broker?.close();
-  });
+  }, daemon.log);
 }
 
-export function waitForSignal(shutdown: () => Promise<void>): Promise<number> {
+export function waitForSignal(shutdown: () => Promise<void>, log?: Logger): Promise<number> {
   return new Promise((resolve) => {
     let stopping = false;
     const stop = (signal: string) => {
@@ -46,6 +47,7 @@ export function waitForSignal(shutdown: () => Promise<void>): Promise<number> {
       shutdown().then(
         () => resolve(0),
         (error: Error) => {
+          log?.error({ err: error }, 'error while stopping');
           process.stderr.write(`plateau: error while stopping: ${error.message}\n`);
           resolve(1);
         },

@@ -5,7 +5,7 @@ import type { Clock } from '../ports/clock.js';
  * that fall due, in order of their due time (then of setting), each at its own due time.
  */
 export class ManualClock implements Clock {
-  private wallMs: number;
+  private readonly wallMs: number;
   private elapsedMs = 0;
   private timers: { dueMs: number; order: number; callback: () => void }[] = [];
   private order = 0;
@@ -30,11 +30,6 @@ export class ManualClock implements Clock {
     };
   }
 
-  /** Timers set and not yet fired or cancelled. */
-  get pendingTimers(): number {
-    return this.timers.length;
-  }
-
   /** Moves time forward by `ms`, firing what falls due (timers set by a callback fire too when due). */
   advance(ms: number): void {
     const end = this.elapsedMs + Math.max(0, ms);
@@ -49,8 +44,4 @@ export class ManualClock implements Clock {
     this.elapsedMs = end;
   }
 
-  /** Sets the wall clock (the monotonic time does not move). */
-  setWall(ms: number): void {
-    this.wallMs = ms - this.elapsedMs;
-  }
 }

@@ -17,5 +17,3 @@ export type ChannelEvent =
   | { kind: 'fresh'; at: number };
 
 export type EventKind = ChannelEvent['kind'];
-
-export const EVENT_KINDS: EventKind[] = ['steady', 'precision-reached', 'stationarity-lost', 'stationarity-regained', 'averaging-limit', 'stale', 'fresh'];

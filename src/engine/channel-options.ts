@@ -36,10 +36,11 @@ export interface ChannelOptions {
 }
 
 /**
- * The default estimator, chosen by the coverage benchmark (bench/coverage.js; figures in
- * DEVELOPERS.md): blocking with Jonsson's automatic level keeps the 95 % interval's coverage
- * within 0.93-0.97 for AR(1) up to phi = 0.9 at n_eff near 100 and needs only O(levels) work per
- * snapshot.
+ * The default estimator, chosen by the coverage Monte Carlo (test/core/coverage.test.ts; the table
+ * is in DEVELOPERS.md, "The default estimator"): Geyer's initial monotone sequence keeps the 95 %
+ * interval's coverage within 0.94-0.96 for AR(1) up to phi = 0.9 at n_eff near 100, where blocking
+ * and batch means undercover (0.89 at phi = 0.9), and needs only the maintained lags unless tau_int
+ * is long.
  */
 export const DEFAULT_ESTIMATOR: EstimatorName = 'geyer';
 

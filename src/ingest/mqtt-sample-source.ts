@@ -26,6 +26,7 @@ export class MqttSampleSource implements SampleSource {
     this.name = name;
   }
 
+  /** MQTT has no durable positions to resume after (the broker's persistent session does that): `resumeAfter` is not read. */
   start(handlers: SourceHandlers, _resumeAfter: SourcePosition | null = null): Promise<void> {
     return this.connection.start({
       message: (delivery) => {

@@ -115,7 +115,3 @@ export interface Store {
   close(): void;
 }
 
-/** Bit i of an unstamped bitmap. */
-export function isUnstamped(bitmap: Uint8Array | null, i: number): boolean {
-  return bitmap !== null && ((bitmap[i >> 3] as number) & (1 << (i & 7))) !== 0;
-}

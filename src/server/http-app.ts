@@ -4,7 +4,7 @@ import { fileURLToPath } from 'node:url';
 import { dirname, join, normalize, sep } from 'node:path';
 import pino, { type Logger } from 'pino';
 import type { DaemonApi } from '../ports/daemon-api.js';
-import { PlateauError } from '../errors/catalogue.js';
+import { PlateauError, type ErrorCode, type ErrorDetails } from '../errors/catalogue.js';
 import { recordCsv, RECORD_CAUTION, type TestPointRecord } from '../engine/test-point-record.js';
 import { renderReport } from './report.js';
 import { openApiDocument, type DocumentedRoute } from './openapi.js';
@@ -97,10 +97,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
     ajv: { customOptions: { allErrors: false, coerceTypes: 'array', removeAdditional: false } },
     frameworkErrors: (error, _request, reply) => {
       const tooLong = (error as { code?: string }).code === 'FST_ERR_MAX_PARAM_LENGTH';
-      void (reply as FastifyReply).code(tooLong ? 414 : 400).send({
-        error: tooLong ? 'ERR_REQUEST_URL_TOO_LONG' : 'ERR_REQUEST_URL',
-        message: tooLong ? `a path parameter is longer than ${MAX_PARAM_LENGTH} characters` : 'the request URL is not valid (a malformed percent-encoding?)',
-      });
+      void send(reply as FastifyReply, tooLong ? 'ERR_REQUEST_URL_TOO_LONG' : 'ERR_REQUEST_URL', { max: MAX_PARAM_LENGTH });
     },
   });
   const dashboardDir = options.dashboardDir ?? join(root, 'dashboard');
@@ -113,17 +110,14 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
 
   app.setErrorHandler((error: Error & { statusCode?: number; code?: string; validation?: unknown; validationContext?: string }, request, reply) => {
     if (error instanceof PlateauError && error.status !== 500) return reply.code(error.status).send({ error: error.code, message: error.message });
-    if (error.validation) return reply.code(400).send({ error: 'ERR_REQUEST_INVALID', message: `request ${error.message}` });
-    const known = FRAMEWORK_ERRORS[error.code ?? ''];
-    if (known) return reply.code(known.status).send({ error: known.error, message: known.message(options.maxBodyBytes) });
-    const status = error.statusCode && error.statusCode >= 400 && error.statusCode < 500 ? error.statusCode : 500;
-    if (status === 500) {
-      log.error({ err: error, url: request.url.slice(0, 200) }, 'http handler failed');
-      return reply.code(500).send({ error: 'ERR_INTERNAL', message: 'internal error (see the daemon log)' });
-    }
-    return reply.code(status).send({ error: 'ERR_REQUEST', message: error.message });
+    if (error.validation) return send(reply, 'ERR_REQUEST_INVALID', { detail: error.message });
+    const framework = FRAMEWORK_ERRORS[error.code ?? ''];
+    if (framework) return send(reply, framework, { max: options.maxBodyBytes });
+    if (error.statusCode && error.statusCode >= 400 && error.statusCode < 500) return reply.code(error.statusCode).send({ error: 'ERR_REQUEST', message: error.message });
+    log.error({ err: error, url: request.url.slice(0, 200) }, 'http handler failed');
+    return send(reply, 'ERR_INTERNAL');
   });
-  app.setNotFoundHandler((request, reply) => reply.code(404).send({ error: 'ERR_NOT_FOUND', message: `no route ${request.method} ${request.url.split('?')[0]?.slice(0, 200)}` }));
+  app.setNotFoundHandler((request, reply) => send(reply, 'ERR_NOT_FOUND', { detail: `no route ${request.method} ${request.url.split('?')[0]?.slice(0, 200)}` }));
 
   app.addHook('onSend', async (request, reply, payload) => {
     reply.header('x-content-type-options', 'nosniff');
@@ -137,20 +131,18 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
   const requireWriteAccess = async (request: FastifyRequest, reply: FastifyReply) => {
     const origin = request.headers.origin;
     if (origin !== undefined && !sameOrigin(origin, request.headers.host)) {
-      return reply.code(403).send({ error: 'ERR_ORIGIN', message: `writes from another site are refused (origin ${origin.slice(0, 100)})` });
+      return send(reply, 'ERR_ORIGIN', { origin: origin.slice(0, 100) });
     }
     if (options.token === null) return;
     const header = request.headers.authorization ?? '';
     const given = header.startsWith('Bearer ') ? header.slice(7) : ((request.headers['x-plateau-token'] as string | undefined) ?? '');
     if (!timingSafeEqual(given, options.token)) {
-      return reply.code(401).send({ error: 'ERR_TOKEN', message: given === '' ? 'this write needs the token from the configuration (Authorization: Bearer <token>)' : 'the token does not match the configured one' });
+      return send(reply, 'ERR_TOKEN', { detail: given === '' ? 'this write needs the token from the configuration (Authorization: Bearer <token>)' : 'the token does not match the configured one' });
     }
   };
 
-  const fail = (reply: FastifyReply, status: number, code: string, message: string) => (reply as FastifyReply).code(status).send({ error: code, message });
-  const notFound = (reply: FastifyReply, code: string, message: string) => fail(reply, 404, code, message);
   const testPointParams = { type: 'object', properties: { id: { type: 'string', pattern: TEST_POINT_ID_PATTERN } }, required: ['id'] } as const;
-  const unknownTestPoint = (reply: FastifyReply, id: string) => notFound(reply, 'ERR_TEST_POINT_UNKNOWN', `no test point ${id}`);
+  const unknownTestPoint = (reply: FastifyReply, id: string) => send(reply, 'ERR_TEST_POINT_UNKNOWN', { id });
 
   const healthReply = {
     type: 'object',
@@ -270,7 +262,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
     async (request, reply) => {
       const { name } = request.params as { name: string };
       const channel = daemon.channel(name);
-      if (!channel) return notFound(reply, 'ERR_CHANNEL_UNKNOWN', `no channel named "${name.slice(0, 80)}"`);
+      if (!channel) return send(reply, 'ERR_CHANNEL_UNKNOWN', { name: name.slice(0, 80) });
       const query = request.query as { trace?: number; events?: number };
       const snapshot = channel.snapshot();
       return {
@@ -309,7 +301,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
     async (request, reply) => {
       const { name } = request.params as { name: string };
       const view = daemon.derivedResult(name);
-      if (!view) return notFound(reply, 'ERR_DERIVED_UNKNOWN', `no derived result named "${name.slice(0, 80)}" (known: ${daemon.derivedNames().join(', ') || 'none'})`);
+      if (!view) return send(reply, 'ERR_DERIVED_UNKNOWN', { name: name.slice(0, 80), known: daemon.derivedNames().join(', ') || 'none' });
       const events = (request.query as { events?: number }).events ?? 200;
       return { ...view, storedEvents: daemon.eventsFor(name, events) };
     },
@@ -337,7 +329,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
     },
     async (request, reply) => {
       const { after, limit, latest } = request.query as { after?: number; limit?: number; latest?: number };
-      if (latest !== undefined && (after !== undefined || limit !== undefined)) return fail(reply, 400, 'ERR_REQUEST_INVALID', 'request querystring: use either latest, or after and limit');
+      if (latest !== undefined && (after !== undefined || limit !== undefined)) return send(reply, 'ERR_REQUEST_INVALID', { detail: 'querystring: use either latest, or after and limit' });
       const list = latest !== undefined ? daemon.latestEvents(latest) : daemon.events(after ?? 0, limit ?? 200);
       const first = list[0]?.id ?? daemon.lastEventId;
       return { events: list, lastEventId: daemon.lastEventId, acknowledgements: daemon.acknowledgementsAfter(first - 1) };
@@ -435,7 +427,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
     async (request, reply) => {
       const { id } = request.params as { id: string };
       const { text } = request.body as { text: string };
-      if (text.trim() === '') return fail(reply, 400, 'ERR_REQUEST_INVALID', 'request body/text is blank');
+      if (text.trim() === '') return send(reply, 'ERR_REQUEST_INVALID', { detail: 'body/text is blank' });
       return reply.code(201).send({ testPoint: daemon.annotateTestPoint(id, text) });
     },
   );
@@ -454,7 +446,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
     const records = daemon.records(id);
     return records.length > 0 ? ((records.at(-1) as { body: unknown }).body as TestPointRecord) : null;
   };
-  const noRecord = (reply: FastifyReply, id: string) => notFound(reply, 'ERR_RECORD_NONE', `test point ${id} has no record yet (one is written when it is ready or stopped)`);
+  const noRecord = (reply: FastifyReply, id: string) => send(reply, 'ERR_RECORD_NONE', { id });
 
   app.get(
     '/api/test-points/:id/record.csv',
@@ -484,7 +476,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
       const record = latestRecord(id);
       if (!record) return noRecord(reply, id);
       const entries = recordDerivedEntries(record.derived);
-      if (entries.length === 0) return notFound(reply, 'ERR_RECORD_NO_DERIVED', `the record of test point ${id} holds no derived result (start the test point with "derived" to record them)`);
+      if (entries.length === 0) return send(reply, 'ERR_RECORD_NO_DERIVED', { id });
       return reply.header('content-type', 'text/csv; charset=utf-8').header('content-disposition', `attachment; filename="${id}-derived.csv"`).send(derivedRecordCsv(entries));
     },
   );
@@ -531,30 +523,37 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
   app.get('/vendor/:file', { schema: { summary: 'the chart library (uPlot), served from the installed package', params: fileParams, response: { ...errors(400, 404) } } }, async (request, reply) => {
     const { file } = request.params as { file: string };
     const path = Object.hasOwn(vendor, file) ? vendor[file] : undefined;
-    if (!path || !existsSync(path)) return notFound(reply, 'ERR_NOT_FOUND', `no vendor file ${file.slice(0, 80)}`);
+    if (!path || !existsSync(path)) return send(reply, 'ERR_NOT_FOUND', { detail: `no vendor file ${file.slice(0, 80)}` });
     return sendFile(reply, path);
   });
   app.get('/', { schema: { summary: 'the dashboard page' } }, async (_request, reply) => {
     const path = join(dashboardDir, 'index.html');
-    if (!existsSync(path)) return notFound(reply, 'ERR_NOT_FOUND', 'the dashboard is not installed (dashboard/index.html is missing)');
+    if (!existsSync(path)) return send(reply, 'ERR_NOT_FOUND', { detail: 'the dashboard is not installed (dashboard/index.html is missing)' });
     return sendFile(reply, path);
   });
   app.get('/dashboard/*', { schema: { summary: "the dashboard's scripts and styles", response: { ...errors(404) } } }, async (request, reply) => {
     const relative = (request.params as { '*': string })['*'];
     const path = normalize(join(dashboardDir, relative));
-    if (!path.startsWith(dashboardDir + sep) || !existsSync(path) || !insideDirectory(path, dashboardDir)) return notFound(reply, 'ERR_NOT_FOUND', `no dashboard file ${relative.slice(0, 80)}`);
+    if (!path.startsWith(dashboardDir + sep) || !existsSync(path) || !insideDirectory(path, dashboardDir)) return send(reply, 'ERR_NOT_FOUND', { detail: `no dashboard file ${relative.slice(0, 80)}` });
     return sendFile(reply, path);
   });
   return app;
 }
 
-const FRAMEWORK_ERRORS: Record<string, { status: number; error: string; message: (maxBodyBytes: number) => string }> = {
-  FST_ERR_CTP_INVALID_MEDIA_TYPE: { status: 415, error: 'ERR_MEDIA_TYPE', message: () => 'send the body as JSON with content-type: application/json' },
-  FST_ERR_CTP_BODY_TOO_LARGE: { status: 413, error: 'ERR_BODY_TOO_LARGE', message: (max) => `the body is larger than the ${max} bytes allowed (http.maxBodyBytes)` },
-  FST_ERR_CTP_INVALID_CONTENT_LENGTH: { status: 400, error: 'ERR_BODY_LENGTH', message: () => 'the body length does not match the content-length header' },
-  FST_ERR_CTP_EMPTY_JSON_BODY: { status: 400, error: 'ERR_BODY_EMPTY', message: () => 'the content-type is application/json but the body is empty: send a JSON object' },
-  FST_ERR_CTP_INVALID_JSON_BODY: { status: 400, error: 'ERR_BODY_JSON', message: () => 'the body is not valid JSON' },
+/** fastify's own request errors, as codes of the catalogue. */
+const FRAMEWORK_ERRORS: Record<string, ErrorCode> = {
+  FST_ERR_CTP_INVALID_MEDIA_TYPE: 'ERR_MEDIA_TYPE',
+  FST_ERR_CTP_BODY_TOO_LARGE: 'ERR_BODY_TOO_LARGE',
+  FST_ERR_CTP_INVALID_CONTENT_LENGTH: 'ERR_BODY_LENGTH',
+  FST_ERR_CTP_EMPTY_JSON_BODY: 'ERR_BODY_EMPTY',
+  FST_ERR_CTP_INVALID_JSON_BODY: 'ERR_BODY_JSON',
 };
+
+/** Every error reply: `{ error: CODE, message }` with the status and message of the catalogue. */
+function send(reply: FastifyReply, code: ErrorCode, details: ErrorDetails = {}): FastifyReply {
+  const error = new PlateauError(code, details);
+  return reply.code(error.status).send({ error: error.code, message: error.message });
+}
 
 /**
  * Static files are small (the dashboard, uPlot): kept in memory and re-read when their size or

@@ -32,7 +32,7 @@ export const RULES: Record<string, LayerRule> = {
   server: { layers: ['core', 'engine', 'ports', 'errors', 'net'], packages: ['fastify', 'ws', 'pino', 'node:*'] },
   daemon: { layers: ['core', 'engine', 'config', 'ports', 'errors', 'clock', 'ingest', 'store'], packages: ['pino', 'node:*'] },
   sim: { layers: ['core'], packages: ['mqtt'] },
-  cli: { layers: ['core', 'engine', 'config', 'ports', 'errors', 'clock', 'net', 'ingest', 'store', 'server', 'daemon', 'sim'], packages: ['node:*'] },
+  cli: { layers: ['core', 'engine', 'config', 'ports', 'errors', 'clock', 'net', 'ingest', 'store', 'server', 'daemon', 'sim'], packages: ['pino', 'node:*'] },
 };
 
 export interface SourceFile {

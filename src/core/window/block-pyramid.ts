@@ -175,12 +175,6 @@ export class BlockPyramid {
     this.preallocate = preallocate;
   }
 
-  /** Number of levels that currently hold at least one block. */
-  get levelCount(): number {
-    let used = 0;
-    for (const level of this.levels) if (level.count > 0) used = level.level;
-    return used;
-  }
 
   /** Adds the sample with absolute index `index` (shifted value). */
   add(index: number, shifted: number): void {

@@ -77,11 +77,6 @@ export class SampleRing {
     return this.timeSlots[slot] as number;
   }
 
-  /** Value of the i-th newest sample (0 = newest). */
-  fromBack(i: number): number {
-    return this.at(this.count - 1 - i);
-  }
-
   /** Copies the values, oldest first, into a new array (or `out` when given and large enough). */
   copyValues(out?: Float64Array): Float64Array {
     const target = out && out.length >= this.count ? out : new Float64Array(this.count);

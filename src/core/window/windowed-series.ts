@@ -162,11 +162,6 @@ export class WindowedSeries {
     return this.moments.variance;
   }
 
-  /** Shifted value of the i-th oldest sample. */
-  shiftedAt(i: number): number {
-    return this.ring.at(i) - this.anchor;
-  }
-
   /** Biased autocovariance at lags 0..min(maxLag, n - 1) from the maintained products. Cost O(maxLag). */
   autocovariance(out?: Float64Array): Float64Array {
     const ring = this.ring;

@@ -314,12 +314,6 @@ export class DerivedEngine {
     return this.place(channel, timeSeconds, value);
   }
 
-  /** Adds a sample by channel name; samples of channels that are not inputs are ignored (false). */
-  addNamed(channel: string, timeSeconds: number, value: number): boolean {
-    const index = this.channelIndex.get(channel);
-    return index === undefined ? false : this.add(index, timeSeconds, value);
-  }
-
   // ---- buckets ------------------------------------------------------------------------------
 
   private maybeDecideWidth(): void {
