@@ -132,6 +132,7 @@ export class Daemon implements DaemonApi {
       configuredUnit: (name) => this.configuredUnit(name),
       command: (action, payload) => this.commands.handle(action, payload),
       raise,
+      isDerivedInput: (channel) => this.derived.usesChannel(channel),
       sampled: (channel) => this.derived.onSample(channel),
       requestCommit: () => this.commits.request(),
     });

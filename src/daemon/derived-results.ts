@@ -118,6 +118,11 @@ export class DerivedResults implements DerivedStatus {
     return out;
   }
 
+  /** Whether some result uses the channel. */
+  usesChannel(channel: string): boolean {
+    return this.byChannel.has(channel);
+  }
+
   /** Marks the results that use the channel; the windows are read on the next query. */
   onSample(channel: string): void {
     const users = this.byChannel.get(channel);

@@ -1,7 +1,7 @@
 import type { Logger } from 'pino';
 import type { SubscriptionConfig } from '../config/plateau-config.js';
 import type { ChannelRegistry } from '../engine/channel-registry.js';
-import type { Channel } from '../engine/channel.js';
+import type { AcceptResult, Channel } from '../engine/channel.js';
 import type { ChannelEvent } from '../engine/channel-events.js';
 import { decodePayload } from '../ingest/payload-decoder.js';
 import { REJECT_REASONS, type RejectReason } from '../ingest/sample.js';
@@ -36,7 +36,9 @@ export interface IngestOptions {
   command(action: string, payload: Uint8Array): void;
   /** An event of the daemon's own (ingest lag). */
   raise(source: string, kind: string, at: number | null, body: Record<string, unknown>): void;
-  /** A channel took a sample (derived results that use it are brought up to date later). */
+  /** Whether a derived result uses the channel (asked once per channel). */
+  isDerivedInput(channel: string): boolean;
+  /** A channel that derived results use took a sample (they are brought up to date later). */
   sampled(channel: string): void;
   /** Asks for a commit. */
   requestCommit(): void;
@@ -55,14 +57,24 @@ const REJECT_LOG_INTERVAL_MS = 10_000;
 /** Seconds over which the usual difference between arrival and time stamp is taken. */
 const LAG_BASELINE_SECONDS = 60;
 
+/** What ingest keeps per channel: one look-up per sample. */
+interface Tracked {
+  channel: Channel;
+  /** The store has the channel, or the pending batch introduces it. */
+  introduced: boolean;
+  /** Took samples since the last commit (a checkpoint candidate). */
+  active: boolean;
+  /** Wall-clock ms of the last sample (NaN: none since the start). */
+  lastArrival: number;
+  derivedInput: boolean;
+}
+
 export class Ingest {
   readonly counters: IngestCounters = { messages: 0, accepted: 0, late: 0, rejected: Object.fromEntries(REJECT_REASONS.map((r) => [r, 0])) as Record<RejectReason, number>, ingestLagMs: 0 };
   private readonly options: IngestOptions;
   private readonly commandPrefix: string;
-  /** Channels the store has, or the pending batch introduces. */
-  private readonly introduced = new Set<string>();
-  private active = new Set<Channel>();
-  private readonly lastArrival = new Map<string, number>();
+  private readonly tracked = new Map<string, Tracked>();
+  private active: Tracked[] = [];
   private readonly lastRejectLog = new Map<string, number>();
   private readonly lagSeconds = new Float64Array(LAG_BASELINE_SECONDS).fill(-Infinity);
   private readonly lagMinima = new Float64Array(LAG_BASELINE_SECONDS);
@@ -74,26 +86,47 @@ export class Ingest {
   }
 
   /** A channel the store already has (restored at start). */
-  known(name: string): void {
-    this.introduced.add(name);
+  known(channel: Channel): void {
+    this.track(channel.name, null).introduced = true;
   }
 
   /** The channels that took samples since the last call (a restored channel rebuilt by a replay counts too). */
-  takeActive(): Set<Channel> {
-    const active = this.active;
-    this.active = new Set();
-    return active;
+  takeActive(): Channel[] {
+    const out = this.active.map((t) => {
+      t.active = false;
+      return t.channel;
+    });
+    this.active = [];
+    return out;
   }
 
   touch(channel: Channel): void {
-    this.active.add(channel);
+    this.activate(this.track(channel.name, null));
   }
 
   /** Makes sure the store gets the channel: a new one joins the pending batch (its first commit creates it). */
   introduce(channel: Channel): void {
-    if (this.introduced.has(channel.name)) return;
-    this.introduced.add(channel.name);
+    const tracked = this.track(channel.name, null);
+    if (tracked.introduced) return;
+    tracked.introduced = true;
     this.options.batch.addChannel(channel.name, channel.unit);
+  }
+
+  /** The channel's record, the channel created (with its configured unit) when new. */
+  private track(name: string, unit: string | null): Tracked {
+    let tracked = this.tracked.get(name);
+    if (tracked === undefined) {
+      const channel = this.options.registry.ensure(name, unit ?? this.options.configuredUnit(name));
+      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name) };
+      this.tracked.set(name, tracked);
+    } else if (unit !== null && tracked.channel.unit === null) tracked.channel.unit = unit;
+    return tracked;
+  }
+
+  private activate(tracked: Tracked): void {
+    if (tracked.active) return;
+    tracked.active = true;
+    this.active.push(tracked);
   }
 
   batch(batch: SourceBatch): void {
@@ -107,7 +140,7 @@ export class Ingest {
   }
 
   private message(topic: string, payload: Uint8Array, subscription: SubscriptionConfig | null): void {
-    const { registry, batch, clock } = this.options;
+    const { batch, clock } = this.options;
     const arrival = clock.now();
     this.counters.messages++;
     if (topic.startsWith(this.commandPrefix)) return this.options.command(topic.slice(this.commandPrefix.length), payload);
@@ -116,9 +149,11 @@ export class Ingest {
     for (const rejection of decoded.rejections) this.rejected(rejection.reason, rejection.detail);
     let latestStamp = 0;
     for (const sample of decoded.samples) {
-      let result: ReturnType<ChannelRegistry['accept']>;
+      let tracked: Tracked;
+      let result: AcceptResult;
       try {
-        result = registry.accept(sample.channel, sample.value, sample.timeMs, sample.stamped, sample.unit ?? this.options.configuredUnit(sample.channel));
+        tracked = this.track(sample.channel, sample.unit ?? null);
+        result = tracked.channel.accept(sample.value, sample.timeMs, sample.stamped);
       } catch (error) {
         // A defect in the engine must not take the daemon down: the sample is counted and logged (with the stack).
         this.rejected('engine-error', `channel ${sample.channel}: ${(error as Error).message}`, error);
@@ -131,13 +166,13 @@ export class Ingest {
       this.counters.accepted++;
       if (result.late) this.counters.late++;
       if (sample.stamped && sample.timeMs > latestStamp) latestStamp = sample.timeMs;
-      const channel = result.channel;
-      this.lastArrival.set(channel.name, arrival);
-      this.introduce(channel);
+      const channel = tracked.channel;
+      tracked.lastArrival = arrival;
+      if (!tracked.introduced) this.introduce(channel);
       batch.addSample(channel.name, result.seq, result.timeMs, sample.value, sample.stamped);
-      this.active.add(channel);
+      if (!tracked.active) this.activate(tracked);
       for (const event of result.events) this.channelEvent(channel, event);
-      this.options.sampled(channel.name);
+      if (tracked.derivedInput) this.options.sampled(channel.name);
     }
     if (latestStamp > 0) this.noteLag(arrival, arrival - latestStamp);
   }
@@ -165,13 +200,10 @@ export class Ingest {
     const now = this.options.clock.now();
     let any = false;
     for (const channel of this.options.registry.all()) {
-      // A channel restored from the store counts its silence from the daemon's start.
-      let last = this.lastArrival.get(channel.name);
-      if (last === undefined) {
-        last = now;
-        this.lastArrival.set(channel.name, now);
-      }
-      const event = channel.pipeline.checkStale((now - last) / 1000);
+      // A channel restored from the store (or created by a test point) counts its silence from the daemon's start.
+      const tracked = this.track(channel.name, null);
+      if (Number.isNaN(tracked.lastArrival)) tracked.lastArrival = now;
+      const event = channel.pipeline.checkStale((now - tracked.lastArrival) / 1000);
       if (event) {
         this.channelEvent(channel, event);
         any = true;

@@ -26,7 +26,7 @@ export function restoreChannels(store: Store, registry: ChannelRegistry, ingest:
   const summary: RestoreSummary = { channels: 0, outcomes: { fresh: 0, loaded: 0, migrated: 0, replayed: 0 }, replayed: 0, forced: 0, ms: 0, checkpointAt: new Map() };
   for (const stored of store.channels()) {
     const channel = registry.ensure(stored.name, stored.unit);
-    ingest.known(stored.name);
+    ingest.known(channel);
     const report = channel.restore(store.checkpoint(stored.name), {
       samplesFrom: (seq) => store.samplesFrom(stored.name, seq),
       marksFrom: (seq) => store.marksFrom(stored.name, seq),

@@ -126,7 +126,9 @@ export class Channel {
   accept(value: number, timeMs: number, stamped: boolean): AcceptResult {
     const verdict = this.classify(timeMs, stamped);
     if (verdict === 'duplicate' || verdict === 'out-of-order') return { accepted: false, reason: verdict };
-    return this.admit(value, timeMs, stamped, verdict === 'late');
+    const seq = this.nextSeq;
+    const events = this.admit(value, timeMs, stamped);
+    return { accepted: true, seq, timeMs: this.admitted, late: verdict === 'late', events };
   }
 
   /** Starts a new growing window at the next sample (a test point starts); returns the mark to store. */
@@ -225,7 +227,7 @@ export class Channel {
         applyMarks(seq);
         const verdict = this.classify(timeMs, stamped);
         if (verdict === 'duplicate' || verdict === 'out-of-order') forced++;
-        this.admit(run.values[i] as number, timeMs, stamped, verdict !== 'on-time');
+        this.admit(run.values[i] as number, timeMs, stamped);
         replayed++;
       }
     }
@@ -247,15 +249,19 @@ export class Channel {
     return timeMs > oldest ? 'late' : 'out-of-order';
   }
 
-  private admit(value: number, timeMs: number, stamped: boolean, late: boolean): AcceptResult & { accepted: true } {
+  /** The time the last admitted sample was taken at (its own, or its arrival time held at the last time). */
+  private admitted = Number.NaN;
+
+  /** The one way a sample enters the pipeline, live or replayed; returns the events it raised. */
+  private admit(value: number, timeMs: number, stamped: boolean): readonly ChannelEvent[] {
     let time = timeMs;
     if (stamped) this.remember(timeMs);
     else if (time < this.lastStampMs) time = this.lastStampMs;
     if (time > this.lastStampMs) this.lastStampMs = time;
-    const seq = this.nextSeq;
+    this.admitted = time;
     const events = this.current.push(value, time / 1000);
     if (events.length > 0) this.steadiness.noteEvents(events);
-    return { accepted: true, seq, timeMs: time, late, events };
+    return events;
   }
 
   private remember(timeMs: number): void {
