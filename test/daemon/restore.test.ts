@@ -51,4 +51,27 @@ describe('restore', () => {
     expect(again.daemon.registry.get('press.line_bar')?.pipeline.snapshot()).toEqual(pipeline.snapshot());
     await again.daemon.stop();
   });
+
+  it('a source with durable positions resumes after the position committed with the samples', async () => {
+    const path = join(mkdtempSync(join(tmpdir(), 'plateau-restore-')), 'state.sqlite');
+    const config = testConfig({ url: 'mqtt://127.0.0.1:9', prefix: 'rig', clientId: 'position-test', store: path });
+    const stream = (count: number) => {
+      const source = new MemorySampleSource(daemonSubscriptions(config), 'stream');
+      for (let i = 0; i < count; i++) source.publish('rig/press.line_bar', JSON.stringify({ v: VALUES[i], t: T0 + i * 0.1 }));
+      return source;
+    };
+    const first = new Daemon(config, { source: stream(100), logger: pino({ level: 'silent' }) });
+    await first.start();
+    first.commitNow();
+    expect(first.store.position('stream')).toEqual({ source: 'stream', sequence: 100, durable: true });
+    await first.stop();
+    // A new consumer of the same stream (nothing acknowledged is shared with it): it starts after the stored position.
+    const second = new Daemon(config, { source: stream(150), logger: pino({ level: 'silent' }) });
+    await second.start();
+    second.commitNow();
+    expect(second.registry.get('press.line_bar')?.nextSeq).toBe(150);
+    expect(second.counters.rejected.duplicate).toBe(0);
+    expect(second.store.position('stream')?.sequence).toBe(150);
+    await second.stop();
+  });
 });

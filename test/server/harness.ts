@@ -6,6 +6,7 @@ import { SqliteStore } from '../../src/store/sqlite-store.js';
 import { MemorySampleSource } from '../../src/ingest/memory-sample-source.js';
 import { RigSimulator } from '../../src/sim/rig-simulator.js';
 import type { Clock } from '../../src/ports/clock.js';
+import type { Store } from '../../src/ports/store.js';
 import { SystemClock } from '../../src/clock/system-clock.js';
 import { ROOT } from '../helpers/reference.js';
 
@@ -31,14 +32,14 @@ export interface TestDaemon {
 
 export const RIG_START_SECONDS = 1_790_000_000;
 
-export async function makeTestDaemon(options: { seed?: number } = {}): Promise<TestDaemon> {
+export async function makeTestDaemon(options: { seed?: number; store?: Store } = {}): Promise<TestDaemon> {
   const config = loadConfigFile(join(ROOT, 'config', 'hx7-heat-exchanger.yaml'));
   const time = { nowMs: RIG_START_SECONDS * 1000 };
   const system = new SystemClock();
   const clock: Clock = { now: () => time.nowMs, monotonicMs: () => system.monotonicMs(), setTimer: (ms, callback) => system.setTimer(ms, callback) };
   const testConfig = { ...config, store: { ...config.store, path: ':memory:' }, log: { level: 'silent' as const } };
   const source = new MemorySampleSource(daemonSubscriptions(testConfig));
-  const daemon = new Daemon(testConfig, { logger: pino({ level: 'silent' }), clock, store: new SqliteStore(':memory:'), source });
+  const daemon = new Daemon(testConfig, { logger: pino({ level: 'silent' }), clock, store: options.store ?? new SqliteStore(':memory:'), source });
   await daemon.start();
   const simulator = new RigSimulator({ seed: options.seed ?? 7, rate: 10, startSeconds: RIG_START_SECONDS });
   const publishRaw = (topic: string, payload: string) => {
