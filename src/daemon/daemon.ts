@@ -225,7 +225,8 @@ export class Daemon implements DaemonApi {
         connection: (connected, detail) => {
           this.log.info({ broker: this.brokerUrl, connected }, `broker ${detail}`);
           this.queueEvent('daemon', connected ? 'broker-connected' : 'broker-disconnected', null, { broker: this.brokerUrl, detail });
-          this.publishing.healthChanged(this.health());
+          // Not while stopping: a publish on a connection that is closing only holds up its end.
+          if (!this.stopped) this.publishing.healthChanged(this.health());
         },
         error: (err) => this.log.warn({ err }, 'sample source'),
       },

@@ -44,8 +44,18 @@ export function shapingFingerprint(options: ChannelOptions): string {
   return fingerprint(Object.fromEntries(SHAPING_OPTIONS.map((key) => [key, plain[key]])));
 }
 
-export function channelRecord(options: ChannelOptions, seqOffset: number, pipeline: ChannelPipelineState, steadiness: SteadinessState): ChannelRecord {
-  return { record: 'channel', version: 1, options: plainOptions(options), fingerprint: shapingFingerprint(options), seqOffset, pipeline, steadiness };
+/** A channel's options as its records carry them: plain, and the fingerprint of the shaping ones (computed once per channel). */
+export interface OptionsIdentity {
+  plain: Record<string, unknown>;
+  fingerprint: string;
+}
+
+export function optionsIdentity(options: ChannelOptions): OptionsIdentity {
+  return { plain: plainOptions(options), fingerprint: shapingFingerprint(options) };
+}
+
+export function channelRecord(identity: OptionsIdentity, seqOffset: number, pipeline: ChannelPipelineState, steadiness: SteadinessState): ChannelRecord {
+  return { record: 'channel', version: 1, options: identity.plain, fingerprint: identity.fingerprint, seqOffset, pipeline, steadiness };
 }
 
 export type CheckpointDecision =
@@ -63,7 +73,7 @@ export type CheckpointDecision =
   | { action: 'replay'; reason: string };
 
 /** What to do with a stored checkpoint under the channel's current options (see the module comment). */
-export function decideCheckpoint(raw: unknown, options: ChannelOptions): CheckpointDecision {
+export function decideCheckpoint(raw: unknown, options: ChannelOptions, identity: OptionsIdentity = optionsIdentity(options)): CheckpointDecision {
   if (isLegacyPipeline(raw)) {
     // Version 1 of the pipeline's record, from before channel records: positional arrays, no options.
     return { action: 'load', pipeline: migratePipelineV1(raw, options), seqOffset: 0, steadiness: null, migrated: 'channel-pipeline version 1 (positional, options not recorded: taken as the current ones) to version 2', carriedOver: [] };
@@ -71,8 +81,8 @@ export function decideCheckpoint(raw: unknown, options: ChannelOptions): Checkpo
   const record = raw as Partial<ChannelRecord> | null;
   if (record === null || typeof record !== 'object' || record.record !== 'channel') return { action: 'replay', reason: 'the checkpoint is not a channel record' };
   if (record.version !== 1) return { action: 'replay', reason: `the checkpoint is a channel record of version ${String(record.version)}, which this plateau does not know (it knows version 1)` };
-  if (record.fingerprint !== shapingFingerprint(options)) {
-    const changed = differingKeys(pick(record.options ?? {}, SHAPING_OPTIONS), pick(plainOptions(options), SHAPING_OPTIONS));
+  if (record.fingerprint !== identity.fingerprint) {
+    const changed = differingKeys(pick(record.options ?? {}, SHAPING_OPTIONS), pick(identity.plain, SHAPING_OPTIONS));
     return { action: 'replay', reason: `the checkpoint was made under other options (${changed.join(', ') || 'fingerprint'})` };
   }
   let pipeline = record.pipeline as unknown;
@@ -81,7 +91,7 @@ export function decideCheckpoint(raw: unknown, options: ChannelOptions): Checkpo
     pipeline = migratePipelineV1(pipeline, options);
     migrated = 'channel-pipeline version 1 to version 2';
   }
-  return { action: 'load', pipeline: pipeline as ChannelPipelineState, seqOffset: typeof record.seqOffset === 'number' ? record.seqOffset : 0, steadiness: record.steadiness ?? null, migrated, carriedOver: differingKeys(record.options ?? {}, plainOptions(options)) };
+  return { action: 'load', pipeline: pipeline as ChannelPipelineState, seqOffset: typeof record.seqOffset === 'number' ? record.seqOffset : 0, steadiness: record.steadiness ?? null, migrated, carriedOver: differingKeys(record.options ?? {}, identity.plain) };
 }
 
 function pick(from: Record<string, unknown>, keys: readonly string[]): Record<string, unknown> {

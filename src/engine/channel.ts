@@ -1,7 +1,7 @@
 import { ChannelPipeline } from './channel-pipeline.js';
 import type { ChannelOptions } from './channel-options.js';
 import type { ChannelEvent } from './channel-events.js';
-import { channelRecord, decideCheckpoint, type ChannelRecord } from './channel-state.js';
+import { channelRecord, decideCheckpoint, optionsIdentity, type ChannelRecord, type OptionsIdentity } from './channel-state.js';
 import { SteadyHistory } from './steadiness.js';
 
 /**
@@ -86,6 +86,8 @@ export class Channel {
   readonly name: string;
   unit: string | null;
   private readonly options: ChannelOptions;
+  /** The options as the checkpoints carry them (computed once: a checkpoint of every channel is written at each stop). */
+  private readonly identity: OptionsIdentity;
   private current: ChannelPipeline;
   /** Store index of the pipeline's sample 0 (see the class comment). */
   private offset = 0;
@@ -100,6 +102,7 @@ export class Channel {
     this.name = name;
     this.unit = unit;
     this.options = options;
+    this.identity = optionsIdentity(options);
     this.current = new ChannelPipeline(name, options);
   }
 
@@ -146,7 +149,7 @@ export class Channel {
 
   /** The checkpoint to store: the channel record and the index of the next sample. */
   checkpoint(): { seq: number; state: ChannelRecord } {
-    return { seq: this.nextSeq, state: channelRecord(this.options, this.offset, this.current.saveState(), this.steadiness.state()) };
+    return { seq: this.nextSeq, state: channelRecord(this.identity, this.offset, this.current.saveState(), this.steadiness.state()) };
   }
 
   /** Rebuilds a new channel from its checkpoint (or none) and its stored samples and marks. */
@@ -155,7 +158,7 @@ export class Channel {
     let detail: string | null = null;
     let from = 0;
     if (checkpoint !== null) {
-      const decision = decideCheckpoint(checkpoint.state, this.options);
+      const decision = decideCheckpoint(checkpoint.state, this.options, this.identity);
       if (decision.action === 'load') {
         try {
           this.current.loadState(decision.pipeline);
