@@ -18,5 +18,5 @@ await new Promise((r) => setTimeout(r, 300));
 const t0 = Date.now();
 const pub = spawn(process.execPath, [join(here, 'e2e-publisher.js'), url, String(qos), String(count), String(pack), 'p', '8'], { stdio: 'ignore' });
 while (daemon.counters.accepted < count * pack && Date.now() - t0 < 30000) await new Promise((r) => setTimeout(r, 20));
-console.log('accepted', daemon.counters.accepted, 'in', Date.now() - t0, 'ms', 'flushes', daemon.counters.flushes);
+console.log('accepted', daemon.counters.accepted, 'in', Date.now() - t0, 'ms', 'commits', daemon.health().store.commits);
 pub.kill(); broker.kill(); await daemon.stop(); process.exit(0);

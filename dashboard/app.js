@@ -102,6 +102,7 @@ class App {
         this.catchUp(seenBefore, message.events?.[0]?.id ?? Infinity);
         for (const ack of message.acknowledgements ?? []) this.state.acknowledgements.set(ack.eventId, ack);
         this.state.lastEventId = Math.max(this.state.lastEventId, message.lastEventId ?? 0);
+        this.showHealth(message.health);
         this.lastUpdateMs = Date.now();
         this.overview.update();
         this.overview.updateDerived();
@@ -148,6 +149,9 @@ class App {
           const body = message.event.body ?? {};
           this.noteAcknowledgement({ eventId: body.eventId, recordId: message.event.id, timeMs: message.event.timeMs, note: body.note ?? null });
         } else this.feed.render();
+        break;
+      case 'health':
+        this.showHealth(message.health);
         break;
       case 'testPoints':
         this.state.testPoints = message.testPoints;
@@ -202,6 +206,17 @@ class App {
   }
 
   // ---- connection indicator -----------------------------------------------------------------
+
+  /** The daemon's own health: a banner while its commits to the store fail. */
+  showHealth(health) {
+    const failing = health?.status === 'failing';
+    byId('store-banner').hidden = !failing;
+    if (!failing) return;
+    const store = health.store ?? {};
+    const error = store.lastError ? ` (${store.lastError.code}: ${store.lastError.message})` : '';
+    const since = typeof store.since === 'number' ? ` since ${clockTime(store.since)}` : '';
+    setText(byId('store-banner-text'), `The daemon cannot store samples${since}${error}. Nothing is acknowledged to the broker meanwhile; it retries by itself and stores everything once it can.`);
+  }
 
   setupConnectionIndicator() {
     this.pill = byId('connection');

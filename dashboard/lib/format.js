@@ -164,6 +164,7 @@ const EVENT_TEXT = {
   'broker-disconnected': ['alert', 'Broker connection lost'],
   'ingest-lag': ['alert', 'Daemon falling behind'],
   'command-refused': ['alert', 'Command refused'],
+  'store-recovered': ['alert', 'Samples could not be stored for a while'],
   'alert-acknowledged': ['info', 'Alert acknowledged'],
 };
 
@@ -211,6 +212,8 @@ function eventDetail(event) {
       return `${body.detail ?? ''}`;
     case 'command-refused':
       return `${body.command ?? ''}: ${body.reason ?? ''}`;
+    case 'store-recovered':
+      return `commits failed for ${formatDuration((body.failedMs ?? 0) / 1000)} (${body.error?.code ?? 'error'}), ${formatCount(body.failedAttempts ?? 0)} attempts; nothing was lost`;
     default:
       return '';
   }

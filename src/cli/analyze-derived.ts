@@ -4,6 +4,8 @@ import { compileDefinitions } from '../engine/derived/derived-definitions.js';
 import type { DerivedEstimator, DerivedResultSpec } from '../engine/derived/derived-engine.js';
 import { derivedReportEntry, derivedVerdict, type DerivedReportEntry } from '../engine/derived/derived-record.js';
 import { DerivedTracker, type ChannelWindowView, type DerivedWindowSource } from '../engine/derived/derived-tracker.js';
+import { DerivedMonitor, type DerivedEvent } from '../engine/derived/derived-monitor.js';
+import type { SteadyHistory } from '../engine/steadiness.js';
 import { DEFAULT_MONTE_CARLO_TRIALS } from '../engine/derived/derived-monte-carlo.js';
 import { UsageError } from './cli-error.js';
 import { formatSignificant, roundWithUncertainty, textTable } from './format.js';
@@ -20,7 +22,9 @@ export type { DerivedReportEntry } from '../engine/derived/derived-record.js';
  * estimator names choose the channels' tau estimator, and the derived results use multivariate
  * batch means (falling back to independent rows, with a note, when there are too few). A
  * relative target (--target-rel) applies to the derived results as well; --target, in the
- * channels' units, does not.
+ * channels' units, does not. With a target, each result's `events` are those the daemon raises on
+ * the same samples (src/engine/derived/derived-monitor.ts: the results are brought up to date after
+ * every row, and their checks fall on the same rows as the daemon's).
  */
 export const DERIVE_HELP = `  --derive NAME=EXPR     a derived result over the channel columns (repeatable), e.g.
                          --derive "Q=flow * 4.18 * (t_out - t_in)"; u from the covariance of
@@ -54,18 +58,23 @@ export function parseDeriveFlags(values: string[], monteCarloTrials?: number): D
   return { requests, monteCarloTrials };
 }
 
+/** A derived result of `plateau analyze`: the record entry, and the events raised while the rows were read. */
+export type AnalyzedDerived = DerivedReportEntry & { events: { kind: string; at: number | null; [field: string]: unknown }[] };
+
 export interface DerivedRecorder {
   /** Called for every accepted cell, before it is pushed into its channel's pipeline. */
   record(column: number, timeSeconds: number, rowIndex: number): void;
+  /** Called after each row: the results are brought up to date (their checks may raise events). */
+  afterRow(): void;
   /** The derived results from the final channel windows. */
-  finish(pipelines: ChannelPipeline[], snapshots: ChannelSnapshot[]): DerivedReportEntry[];
+  finish(snapshots: ChannelSnapshot[]): AnalyzedDerived[];
 }
 
 /**
  * Compiles the --derive requests against the columns.
  * @throws UsageError (one line, exit status 2) for the first rejected request.
  */
-export function prepareDerived(derive: DeriveOptions, columns: string[], options: ChannelOptions, hasTimeColumn: boolean): DerivedRecorder {
+export function prepareDerived(derive: DeriveOptions, columns: string[], options: ChannelOptions, hasTimeColumn: boolean, pipelines: ChannelPipeline[], steadiness: SteadyHistory[]): DerivedRecorder {
   const requests = derive.requests;
   const monteCarloTrials = derive.monteCarloTrials ?? DEFAULT_MONTE_CARLO_TRIALS;
   const compiled = compileDefinitions(
@@ -84,10 +93,32 @@ export function prepareDerived(derive: DeriveOptions, columns: string[], options
   const specs: DerivedResultSpec[] = compiled.result.compiled.map((c) => ({ compiled: c, target, confidence: options.confidence }));
   const estimator: DerivedEstimator = options.estimator === 'iid' ? 'iid' : 'batch-means';
   const tracker = new DerivedTracker(specs, { estimator });
+  // One monitor per result, as the daemon keeps them (each on its own inputs' windows).
+  const monitors = specs.map((spec) => new DerivedMonitor(spec, { estimator }));
+  const events = new Map<string, DerivedEvent[]>(specs.map((spec) => [spec.compiled.name, []]));
   const columnOf = new Map(columns.map((name, i) => [name, i]));
   // Times of the input columns' samples, by absolute sample index.
   const times = new Map<number, { values: Float64Array; length: number }>();
   for (const name of tracker.channels) times.set(columnOf.get(name) as number, { values: new Float64Array(1024), length: 0 });
+  const source: DerivedWindowSource = {
+    window(name): ChannelWindowView | null {
+      const column = columnOf.get(name);
+      const pipeline = column === undefined ? undefined : pipelines[column];
+      const store = column === undefined ? undefined : times.get(column);
+      if (column === undefined || pipeline === undefined || store === undefined || pipeline.count === 0) return null;
+      const series = pipeline.series;
+      const first = series.firstIndex;
+      const history = steadiness[column] as SteadyHistory;
+      return {
+        firstIndex: first,
+        nextIndex: first + series.length,
+        valueAt: (index) => series.ring.at(index - first),
+        timeAt: (index) => store.values[index] as number,
+        sliding: pipeline.options.window.kind === 'sliding' || series.length >= series.maxSamples,
+        steadyAt: (index) => history.steadyAt(index),
+      };
+    },
+  };
   return {
     record(column, timeSeconds, rowIndex) {
       const store = times.get(column);
@@ -99,24 +130,14 @@ export function prepareDerived(derive: DeriveOptions, columns: string[], options
       }
       store.values[store.length++] = hasTimeColumn ? timeSeconds : rowIndex;
     },
-    finish(pipelines, snapshots) {
-      const source: DerivedWindowSource = {
-        window(name): ChannelWindowView | null {
-          const column = columnOf.get(name);
-          const pipeline = column === undefined ? undefined : pipelines[column];
-          const store = column === undefined ? undefined : times.get(column);
-          if (pipeline === undefined || store === undefined) return null;
-          const series = pipeline.series;
-          const first = series.firstIndex;
-          return {
-            firstIndex: first,
-            nextIndex: first + series.length,
-            valueAt: (index) => series.ring.at(index - first),
-            timeAt: (index) => store.values[index] as number,
-            sliding: pipeline.options.window.kind === 'sliding' || series.length >= series.maxSamples,
-          };
-        },
-      };
+    afterRow() {
+      if (target === null) return;
+      for (const monitor of monitors) {
+        monitor.sync(source);
+        for (const event of monitor.takeEvents()) events.get(event.source)?.push(event);
+      }
+    },
+    finish(snapshots) {
       tracker.sync(source);
       const states = new Map(snapshots.map((s) => [s.name, s.state as string]));
       return tracker.evaluate(source).map((evaluated) => {
@@ -125,7 +146,11 @@ export function prepareDerived(derive: DeriveOptions, columns: string[], options
         const inputStates: Record<string, string> = {};
         for (const input of snapshot.inputs) inputStates[input] = states.get(input) ?? 'no data';
         const verdict = derivedVerdict(snapshot, target !== null, inputStates, snapshot.target?.reached === true);
-        return derivedReportEntry(tracker.current, snapshot, verdict, { monteCarloTrials });
+        const raised = (events.get(snapshot.name) ?? []).map(({ kind, at, body }) => {
+          const { derived: _name, ...fields } = body;
+          return { kind, at, ...fields };
+        });
+        return { ...derivedReportEntry(tracker.current, snapshot, verdict, { monteCarloTrials }), events: raised };
       });
     },
   };

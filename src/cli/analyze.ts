@@ -9,7 +9,8 @@ import { formatDuration, formatSignificant, roundWithUncertainty, textTable } fr
 import { CAUTION } from './caution.js';
 import type { ChannelEvent } from '../engine/channel-events.js';
 import type { WarmupSetting } from '../engine/warmup-detector.js';
-import { prepareDerived, DERIVE_HELP, parseDeriveFlags, renderDerived, type DeriveOptions, type DerivedRecorder, type DerivedReportEntry } from './analyze-derived.js';
+import { prepareDerived, DERIVE_HELP, parseDeriveFlags, renderDerived, type AnalyzedDerived, type DeriveOptions, type DerivedRecorder } from './analyze-derived.js';
+import { SteadyHistory } from '../engine/steadiness.js';
 
 const MAX_EVENTS = 10_000;
 
@@ -46,7 +47,7 @@ export interface AnalyzeReport {
   notes: string[];
   channels: ChannelSnapshot[];
   /** Derived results (--derive), empty without any. */
-  derived: DerivedReportEntry[];
+  derived: AnalyzedDerived[];
 }
 
 interface Io {
@@ -154,9 +155,11 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
     throw new UsageError(`--window-seconds needs a time column, and ${file} has none (name one with --time-column)`);
   }
   const pipelines = layout.channels.map((column) => new ChannelPipeline(column.name, options));
+  // When each channel was steady (derived results judge their inputs by it).
+  const steadiness = pipelines.map(() => new SteadyHistory());
   // Derived results: compiled against the columns before the rows are read (a bad --derive stops
   // here); the recorder keeps each input sample's time (the time column, else the row index).
-  const recorder: DerivedRecorder | null = derive.requests.length > 0 ? prepareDerived(derive, layout.channels.map((c) => c.name), options, layout.timeColumn !== null && layout.timeColumn !== undefined) : null;
+  const recorder: DerivedRecorder | null = derive.requests.length > 0 ? prepareDerived(derive, layout.channels.map((c) => c.name), options, layout.timeColumn !== null && layout.timeColumn !== undefined, pipelines, steadiness) : null;
   let rowIndex = 0;
   // Every event in order (a snapshot keeps only the most recent); capped so a pathological file
   // cannot exhaust memory, with a note when the cap is reached.
@@ -177,10 +180,12 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
         recorder?.record(c, time, rowIndex);
         const raised = (pipelines[c] as ChannelPipeline).push(value, time);
         if (raised.length > 0) {
+          (steadiness[c] as SteadyHistory).noteEvents(raised);
           const list = events[c] as ChannelEvent[];
           for (const event of raised) if (list.length < MAX_EVENTS) list.push(event);
         }
       }
+      recorder?.afterRow();
       rowIndex++;
     },
     (line, text) => {
@@ -205,7 +210,7 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
     ignoredColumns: layout.ignored,
     notes,
     channels,
-    derived: recorder === null ? [] : recorder.finish(pipelines, channels),
+    derived: recorder === null ? [] : recorder.finish(channels),
   };
 }
 

@@ -43,7 +43,7 @@ export async function startDemo(options: { speed: number; brokerPort: number; ht
   const demoConfig = { ...config, broker: { ...config.broker, url: broker.url, clientId: `plateau-demo-${process.pid}` }, store: { ...config.store, path: store }, log: { level: (options.logLevel ?? 'warn') as 'warn' } };
   const daemon = new Daemon(demoConfig, {});
   await daemon.start();
-  const server = await startServer(daemon, { host: '127.0.0.1', port: options.httpPort, token: null, maxBodyBytes: config.http.maxBodyBytes, fallbackPort: true });
+  const server = await startServer(daemon, { host: '127.0.0.1', port: options.httpPort, token: null, maxBodyBytes: config.http.maxBodyBytes, fallbackPort: true, log: daemon.log });
   const publisher = new RigPublisher({ url: broker.url, speed: options.speed });
   await publisher.start();
   return {
@@ -110,5 +110,5 @@ export async function runDemoCommand(argv: string[]): Promise<number> {
     await demo.stop();
     return 0;
   }
-  return waitForSignal(() => demo.stop());
+  return waitForSignal(() => demo.stop(), demo.daemon.log);
 }

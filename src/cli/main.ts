@@ -1,5 +1,6 @@
 import { readFileSync } from 'node:fs';
 import { UsageError } from './cli-error.js';
+import { errorEntry } from '../errors/catalogue.js';
 import { runAnalyze, ANALYZE_HELP } from './analyze.js';
 import { runDaemonCommand } from './run.js';
 import { runDemoCommand } from './demo.js';
@@ -52,14 +53,22 @@ export async function main(argv: string[], extra: Commands = {}): Promise<number
   }
 }
 
+/**
+ * The exit status of an error and how it is printed: a catalogue error (src/errors/catalogue.ts)
+ * has its exit status there (2 for what the user can fix, 70 for the rest); node's own argument
+ * errors (ERR_PARSE_ARGS_*) and a port that is taken or not allowed (EADDRINUSE, EACCES) are the
+ * user's too; anything else is an internal error (its stack with PLATEAU_DEBUG=1).
+ */
 export function reportError(error: unknown): number {
   const err = error as { code?: string; message?: string };
-  const known = err && typeof err.code === 'string' && (err.code.startsWith('ERR_USAGE') || err.code.startsWith('ERR_INPUT') || err.code.startsWith('ERR_CONFIG') || err.code.startsWith('ERR_PARSE_ARGS') || err.code === 'EADDRINUSE' || err.code === 'EACCES');
+  const code = typeof err?.code === 'string' ? err.code : '';
+  const entry = errorEntry(code);
+  const user = entry !== undefined ? entry.exit === 2 : code.startsWith('ERR_PARSE_ARGS') || code === 'EADDRINUSE' || code === 'EACCES';
   // A configuration error carries one line per problem; everything else is one line.
-  const lines = err?.code?.startsWith('ERR_CONFIG') ? (err.message ?? '').split('\n') : [(err?.message ?? String(error)).split('\n')[0]];
-  for (const line of lines) process.stderr.write(`plateau: ${known ? '' : 'internal error: '}${line}\n`);
-  if (!known && process.env.PLATEAU_DEBUG) process.stderr.write(`${(error as Error).stack}\n`);
-  return known ? 2 : 70;
+  const lines = code.startsWith('ERR_CONFIG') ? (err.message ?? '').split('\n') : [(err?.message ?? String(error)).split('\n')[0]];
+  for (const line of lines) process.stderr.write(`plateau: ${user ? '' : 'internal error: '}${line}\n`);
+  if (!user && process.env.PLATEAU_DEBUG) process.stderr.write(`${(error as Error).stack}\n`);
+  return user ? 2 : 70;
 }
 
 function version(): string {

@@ -1,4 +1,5 @@
 import { parseArgs } from 'node:util';
+import type { Logger } from 'pino';
 import { loadConfigFile } from '../config/load-config.js';
 import { Daemon } from '../daemon/daemon.js';
 import { startServer } from '../server/server.js';
@@ -26,17 +27,17 @@ export async function runDaemonCommand(argv: string[]): Promise<number> {
   if (config.broker.url === 'embedded') broker = await startEmbeddedBroker({ port: 1883 });
   const daemon = new Daemon(config, broker ? { brokerUrl: broker.url } : {});
   await daemon.start();
-  const server = await startServer(daemon, { host: config.http.host, port: config.http.port, token: config.http.token, maxBodyBytes: config.http.maxBodyBytes });
+  const server = await startServer(daemon, { host: config.http.host, port: config.http.port, token: config.http.token, maxBodyBytes: config.http.maxBodyBytes, log: daemon.log });
   daemon.log.info({ url: server.url, broker: broker?.url ?? config.broker.url }, 'plateau is running');
   process.stderr.write(`plateau: dashboard at ${server.url}  (broker ${broker?.url ?? config.broker.url})\n${CAUTION}\n`);
   return waitForSignal(async () => {
     await server.close();
     await daemon.stop();
     await broker?.close();
-  });
+  }, daemon.log);
 }
 
-export function waitForSignal(shutdown: () => Promise<void>): Promise<number> {
+export function waitForSignal(shutdown: () => Promise<void>, log?: Logger): Promise<number> {
   return new Promise((resolve) => {
     let stopping = false;
     const stop = (signal: string) => {
@@ -46,6 +47,7 @@ export function waitForSignal(shutdown: () => Promise<void>): Promise<number> {
       shutdown().then(
         () => resolve(0),
         (error: Error) => {
+          log?.error({ err: error }, 'error while stopping');
           process.stderr.write(`plateau: error while stopping: ${error.message}\n`);
           resolve(1);
         },

@@ -1,13 +1,15 @@
+import { PlateauError } from '../errors/catalogue.js';
+
 /**
  * A small reader for configuration objects that collects one clear line per problem, naming the
  * key path and what was expected ("channels.defaults.confidence: expected a number between 0 and 1,
  * got 1.5"), instead of stopping at the first.
  */
-export class ConfigError extends Error {
-  readonly code = 'ERR_CONFIG';
+export class ConfigError extends PlateauError {
   readonly problems: string[];
   constructor(problems: string[]) {
-    super(problems.join('\n'));
+    super('ERR_CONFIG', { detail: problems.join('\n') });
+    this.name = 'ConfigError';
     this.problems = problems;
   }
 }

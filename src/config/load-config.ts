@@ -2,7 +2,7 @@ import { readFileSync } from 'node:fs';
 import { parse as parseYaml } from 'yaml';
 import { ConfigError, ConfigReader, describe, join, type Plain } from './config-reader.js';
 import type { ChannelGroup, ChannelSettings, DerivedConfig, PlateauConfig, SubscriptionConfig } from './plateau-config.js';
-import { DECODER_DEFAULTS } from '../ingest/payload-decoder.js';
+import { DECODER_DEFAULTS } from './decoder-spec.js';
 import { ESTIMATOR_NAMES } from '../core/tau/tau-estimate.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
 import { DEFAULT_CHANNEL_OPTIONS, DEFAULT_MAX_SAMPLES, type WindowSpec } from '../engine/channel-options.js';

@@ -1,4 +1,4 @@
-import type { DecoderSpec } from '../ingest/payload-decoder.js';
+import type { DecoderSpec } from './decoder-spec.js';
 import type { EstimatorName } from '../core/tau/tau-estimate.js';
 import type { WarmupSetting } from '../engine/warmup-detector.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';

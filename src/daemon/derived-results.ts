@@ -4,10 +4,13 @@ import type { DerivedConfig, PlateauConfig } from '../config/plateau-config.js';
 import type { ChannelRegistry } from '../engine/channel-registry.js';
 import { compileDefinitions, referencedChannels } from '../engine/derived/derived-definitions.js';
 import type { DerivedResultSpec, DerivedSnapshot } from '../engine/derived/derived-engine.js';
-import { derivedReportEntry, derivedVerdict, STEADY_STATES, type DerivedReportEntry, type DerivedVerdict } from '../engine/derived/derived-record.js';
+import { derivedReportEntry, derivedVerdict, type DerivedReportEntry, type DerivedVerdict } from '../engine/derived/derived-record.js';
+import { DerivedMonitor, type DerivedEvent } from '../engine/derived/derived-monitor.js';
 import { DerivedTracker, type ChannelWindowView, type DerivedWindowSource } from '../engine/derived/derived-tracker.js';
 import type { ChannelDeclaration, DerivedDefinition } from '../engine/derived/expression-model.js';
 import type { DerivedStatus } from '../engine/test-points.js';
+import { gumStatement } from '../engine/test-point-record.js';
+import type { DerivedView } from '../ports/daemon-api.js';
 
 /**
  * Derived results of the daemon: quantities computed from several channels (configured under
@@ -23,46 +26,36 @@ import type { DerivedStatus } from '../engine/test-points.js';
  *
  * Live: one DerivedTracker per derived result, on the windows of its input channels (see
  * derived-tracker.ts: the windows are the truth, so a restart of the daemon rebuilds the results
- * from the channel windows it restores; nothing of their own needs saving and the replayed samples
- * that onSample sees with replay = true need no handling). onSample only marks the results that use
+ * from the channel windows it restores; nothing of their own needs saving). onSample only marks the results that use
  * the channel; they are brought up to date on the next query: drainEvents (every flush), atTarget,
  * recordEntries, snapshots.
  * At target: the result has a target, its expanded (or standard) uncertainty meets it, and every
  * input channel is steady (state steady or precise): a result over a warming, unsteady or stale
- * channel is not ready whatever its uncertainty. Edge-triggered with the channels' hysteresis: the
- * event `precision-reached` is raised once, and re-armed when the achieved uncertainty climbs 10 %
- * above the bound. The first evaluation after the daemon starts sets the flag without an event, so
- * that a restart does not repeat one (the channels keep theirs in their checkpoints).
+ * channel is not ready whatever its uncertainty. The `precision-reached` event and its hysteresis
+ * are the engine's (src/engine/derived/derived-monitor.ts: checked on a schedule of rows, with the
+ * inputs' steadiness at the row's samples), so `plateau analyze` raises the same ones; after a
+ * restart the checks run again over the restored rows and their events are dropped (`restored`).
  * Records: the result with its GUM statement (JCGM 100:2008, 7.2.4 wording of
  * src/engine/test-point-record.ts), budget, the correlations with the other derived results of the
  * record (over the common part of their windows), the Monte Carlo check (JCGM 101, adaptive, n_dig
  * 2, at most RECORD_MONTE_CARLO_TRIALS trials so that a record costs at most about 0.1 s of the
  * flush) and the bootstrap check of the linearised series.
  */
-export interface DerivedEvent {
-  source: string;
-  kind: string;
-  at: number | null;
-  body: Record<string, unknown>;
-}
+export type { DerivedEvent } from '../engine/derived/derived-monitor.js';
 
-/** What the API and the dashboard show for a derived result: the engine's snapshot and the verdict. */
-export type DerivedView = DerivedSnapshot & DerivedVerdict;
+/** A derived result's snapshot and verdict (the API adds its statement: `views`). */
+export type DerivedState = DerivedSnapshot & DerivedVerdict;
 
 /** Trials at most for the Monte Carlo check of a record (about 0.1 s with a 3-4 input model). */
 export const RECORD_MONTE_CARLO_TRIALS = 200_000;
-/** precision-reached re-arms when the achieved uncertainty climbs this far above the bound. */
-const PRECISION_REARM = 1.1;
 
 interface Entry {
   config: DerivedConfig;
   spec: DerivedResultSpec;
-  tracker: DerivedTracker;
+  /** The tracker over the inputs' windows, the precision verdict and its events (the engine's, as analyze's). */
+  monitor: DerivedMonitor;
   dirty: boolean;
   snapshot: DerivedSnapshot | null;
-  precise: boolean;
-  /** False until the first evaluation, which sets `precise` without an event (a restarted daemon does not repeat it). */
-  primed: boolean;
   /** Rows and engine rebuilds at the last evaluation (throttling). */
   rowsSeen: number;
   rebuildsSeen: number;
@@ -73,7 +66,6 @@ interface Entry {
 export class DerivedResults implements DerivedStatus {
   private readonly config: PlateauConfig;
   private readonly registry: ChannelRegistry;
-  private events: DerivedEvent[] = [];
   private readonly entries = new Map<string, Entry>();
   private readonly byChannel = new Map<string, Entry[]>();
   private readonly source: DerivedWindowSource;
@@ -105,7 +97,7 @@ export class DerivedResults implements DerivedStatus {
     compiled.result.compiled.forEach((c, i) => {
       const derivedConfig = config.derived[i] as DerivedConfig;
       const spec: DerivedResultSpec = { compiled: c, target: derivedConfig.target, confidence: derivedConfig.confidence };
-      const entry: Entry = { config: derivedConfig, spec, tracker: new DerivedTracker([spec]), dirty: true, snapshot: null, precise: false, primed: false, rowsSeen: 0, rebuildsSeen: -1, stale: true };
+      const entry: Entry = { config: derivedConfig, spec, monitor: new DerivedMonitor(spec), dirty: true, snapshot: null, rowsSeen: 0, rebuildsSeen: -1, stale: true };
       this.entries.set(c.name, entry);
       for (const input of c.inputs) {
         const list = this.byChannel.get(input) ?? [];
@@ -126,8 +118,13 @@ export class DerivedResults implements DerivedStatus {
     return out;
   }
 
+  /** Whether some result uses the channel. */
+  usesChannel(channel: string): boolean {
+    return this.byChannel.has(channel);
+  }
+
   /** Marks the results that use the channel; the windows are read on the next query. */
-  onSample(channel: string, _value: number, _timeMs: number, _replay = false): void {
+  onSample(channel: string): void {
     const users = this.byChannel.get(channel);
     if (users === undefined) return;
     for (const entry of users) entry.dirty = true;
@@ -138,19 +135,30 @@ export class DerivedResults implements DerivedStatus {
     for (const name of names) {
       const entry = this.entries.get(name);
       if (entry === undefined) continue;
-      entry.tracker.restart(this.source);
+      entry.monitor.restart(this.source);
       entry.snapshot = null;
       entry.stale = true;
-      entry.precise = false;
       entry.dirty = true;
     }
   }
 
+  /** The events of the checks that fell due since the last call (the results are brought up to date first). */
   drainEvents(): DerivedEvent[] {
-    for (const entry of this.entries.values()) if (entry.dirty || entry.snapshot === null) this.refresh(entry);
-    const out = this.events;
-    this.events = [];
+    const out: DerivedEvent[] = [];
+    for (const entry of this.entries.values()) {
+      if (entry.dirty || entry.snapshot === null) this.refresh(entry);
+      out.push(...entry.monitor.takeEvents());
+    }
     return out;
+  }
+
+  /**
+   * After a restart: the results are rebuilt from the restored windows, their checks run again over
+   * the rows, and the events those raise are dropped (they were raised, and stored, before the
+   * restart), as a channel's replay drops the events it raised the first time.
+   */
+  restored(): void {
+    this.drainEvents();
   }
 
   atTarget(name: string): boolean | null {
@@ -161,7 +169,7 @@ export class DerivedResults implements DerivedStatus {
   }
 
   /** Every derived result as the API and the dashboard show it (the budget chart reads `budget`); always up to date. */
-  snapshots(): DerivedView[] {
+  snapshots(): DerivedState[] {
     const entries = [...this.entries.values()];
     for (const entry of entries) this.refresh(entry, true);
     const correlations = this.liveCorrelations(entries);
@@ -173,13 +181,23 @@ export class DerivedResults implements DerivedStatus {
   }
 
   /**
+   * Every derived result as the API, the WebSocket and the report show it: snapshot, verdict and
+   * its statement in the wording of JCGM 100:2008 7.2.4 (gumStatement, as records and `plateau
+   * analyze` state it). The record-only checks (Monte Carlo, bootstrap) are left out: they cost
+   * about 0.1-0.4 s per result and are computed when a test point writes its record.
+   */
+  views(): DerivedView[] {
+    return this.snapshots().map((state) => ({ ...state, statement: gumStatement(state.name, state.value, state.standardUncertainty, state.expandedUncertainty, state.coverageFactor, state.dof, state.confidence, state.unit) }));
+  }
+
+  /**
    * Correlations between the live results, recomputed (over the common part of their windows, which
    * costs a pass over it) only when their rows have grown by 1/64 since the last time, like the
    * results themselves.
    */
   private liveCorrelations(entries: Entry[]): Map<string, Record<string, number>> {
     if (entries.length < 2) return new Map();
-    const rows = entries.reduce((sum, entry) => sum + (entry.tracker.current?.rows ?? 0), 0);
+    const rows = entries.reduce((sum, entry) => sum + (entry.monitor.tracker.current?.rows ?? 0), 0);
     const cache = this.correlationCache;
     if (cache && rows >= cache.rows && rows - cache.rows < Math.max(1, Math.floor(cache.rows / 64))) return cache.value;
     const value = this.jointCorrelations(entries);
@@ -197,7 +215,7 @@ export class DerivedResults implements DerivedStatus {
       const view = this.view(entry);
       const snapshot = { ...(entry.snapshot as DerivedSnapshot), correlation: correlations.get(entry.spec.compiled.name) ?? {} };
       const { atTarget, inputStates, waitingFor } = view;
-      return derivedReportEntry(entry.tracker.current, snapshot, { atTarget, inputStates, waitingFor }, { monteCarloTrials: RECORD_MONTE_CARLO_TRIALS });
+      return derivedReportEntry(entry.monitor.tracker.current, snapshot, { atTarget, inputStates, waitingFor }, { monteCarloTrials: RECORD_MONTE_CARLO_TRIALS });
     });
   }
 
@@ -210,21 +228,21 @@ export class DerivedResults implements DerivedStatus {
    * costs O(1) amortised per row; the verdict can lag the rows by that much (1.6 %).
    */
   private refresh(entry: Entry, fresh = false): void {
+    const tracker = entry.monitor.tracker;
     if (entry.dirty) {
       entry.dirty = false;
-      entry.stale = entry.tracker.sync(this.source) || entry.stale;
+      entry.stale = entry.monitor.sync(this.source) || entry.stale;
     }
-    const engine = entry.tracker.current;
+    const engine = tracker.current;
     const rows = engine?.rows ?? 0;
-    const rebuilt = entry.tracker.rebuildCount !== entry.rebuildsSeen;
+    const rebuilt = tracker.rebuildCount !== entry.rebuildsSeen;
     const due = entry.snapshot === null || rebuilt || rows < entry.rowsSeen || rows - entry.rowsSeen >= Math.max(1, Math.floor(entry.rowsSeen / 64));
     if (entry.snapshot === null || (entry.stale && (due || fresh))) {
-      entry.snapshot = entry.tracker.evaluate(this.source)[0] as DerivedSnapshot;
+      entry.snapshot = tracker.evaluate(this.source)[0] as DerivedSnapshot;
       entry.stale = false;
       entry.rowsSeen = rows;
-      entry.rebuildsSeen = entry.tracker.rebuildCount;
+      entry.rebuildsSeen = tracker.rebuildCount;
     }
-    this.checkPrecision(entry);
   }
 
   private inputStates(entry: Entry): Record<string, string> {
@@ -233,36 +251,9 @@ export class DerivedResults implements DerivedStatus {
     return states;
   }
 
-  /** Edge-triggered precision-reached with re-arm hysteresis. */
-  private checkPrecision(entry: Entry): void {
-    const snapshot = entry.snapshot;
-    const target = snapshot?.target ?? null;
-    if (snapshot === null || target === null || target.bound === null || entry.spec.target === null) return;
-    const steady = Object.values(this.inputStates(entry)).every((s) => STEADY_STATES.has(s));
-    if (!entry.primed) {
-      // First evaluation since the daemon started: the state the windows were restored to, not a
-      // change (the event, if any, was raised before the restart).
-      entry.primed = true;
-      entry.precise = target.reached && steady;
-      return;
-    }
-    if (!entry.precise && target.reached && steady) {
-      entry.precise = true;
-      this.events.push({
-        source: snapshot.name,
-        kind: 'precision-reached',
-        at: null,
-        body: { derived: snapshot.name, value: snapshot.value, standardUncertainty: snapshot.standardUncertainty, expandedUncertainty: snapshot.expandedUncertainty, bound: target.bound, rows: snapshot.rows, unit: snapshot.unit },
-      });
-    } else if (entry.precise) {
-      const achieved = entry.spec.target.on === 'u' ? snapshot.standardUncertainty : snapshot.expandedUncertainty;
-      if (achieved === null || achieved > PRECISION_REARM * target.bound) entry.precise = false;
-    }
-  }
-
-  private view(entry: Entry): DerivedView {
+  private view(entry: Entry): DerivedState {
     const snapshot = entry.snapshot as DerivedSnapshot;
-    return { ...snapshot, ...derivedVerdict(snapshot, entry.spec.target !== null, this.inputStates(entry), entry.precise) };
+    return { ...snapshot, ...derivedVerdict(snapshot, entry.spec.target !== null, this.inputStates(entry), entry.monitor.atTarget) };
   }
 
   /** Correlations between the results of one record, over the common part of their windows. */
@@ -273,8 +264,8 @@ export class DerivedResults implements DerivedStatus {
     const barriers = joint.channels.map((channel) => {
       let barrier = 0;
       for (const entry of entries) {
-        const i = entry.tracker.channels.indexOf(channel);
-        if (i >= 0) barrier = Math.max(barrier, entry.tracker.barriers()[i] as number);
+        const i = entry.monitor.tracker.channels.indexOf(channel);
+        if (i >= 0) barrier = Math.max(barrier, entry.monitor.tracker.barriers()[i] as number);
       }
       return barrier;
     });
@@ -301,6 +292,7 @@ function registrySource(registry: ChannelRegistry): DerivedWindowSource {
         valueAt: (index) => ring.at(index - first),
         timeAt: (index) => ring.timeAt(index - first),
         sliding: pipeline.options.window.kind === 'sliding' || series.length >= series.maxSamples,
+        steadyAt: (index) => channel.steadyAt(index),
       };
     },
   };

@@ -20,5 +20,3 @@ export type ChannelEvent =
   | { kind: 'fresh'; at: number };
 
 export type EventKind = ChannelEvent['kind'];
-
-export const EVENT_KINDS: EventKind[] = ['steady', 'precision-reached', 'stationarity-lost', 'stationarity-regained', 'break-revised', 'warmup-extended', 'steady-withdrawn', 'averaging-limit', 'stale', 'fresh'];

@@ -40,7 +40,7 @@ export interface ChannelOptions {
 
 /**
  * The default estimator: the `auto` rule (core/tau/estimator-set.ts), chosen by the coverage
- * benchmark (bench/coverage.js; figures in DEVELOPERS.md): the autoregressive spectral estimate
+ * benchmark (test/core/coverage.test.ts; the table is in DEVELOPERS.md): the autoregressive spectral estimate
  * with spectral lines removed, and Beran's law under long memory, keeps the 95 % interval's coverage
  * within 0.93-0.97 on AR(1) up to phi = 0.99, heavy-tailed innovations, ARMA(1,1) and damped
  * oscillations at n_eff near 100, and reads only the maintained lags.

@@ -17,6 +17,7 @@ import type { ChannelEvent, ChannelState } from './channel-events.js';
 import { stationarityReport, allanReport, type StationarityReport, type AllanReport } from './stationarity-report.js';
 import type { WindowedSeriesState } from '../core/window/windowed-series.js';
 import { channelVerdict, type ChannelVerdict } from './channel-verdict.js';
+import { expectRecord, type StateRecord } from '../core/state/record.js';
 
 /** One estimator's result as reported in a snapshot. */
 export interface EstimatorReport {
@@ -155,12 +156,16 @@ const DIAGNOSIS_SEGMENT = 512;
 /** The diagnosis is refreshed after this many segments of new samples (or when the segment grows). */
 const DIAGNOSIS_REFRESH_SEGMENTS = 4;
 /** Version of the saved state below; a checkpoint of another version is replayed from samples. */
-export const PIPELINE_STATE_VERSION = 2;
+export const PIPELINE_STATE_VERSION = 3;
 
 type Phase = 'warming' | 'steady' | 'unsteady';
 
-export interface ChannelPipelineState {
-  version: number;
+/**
+ * The pipeline's checkpoint: a named record. Versions 1 (positional) and 2 (named) were written by
+ * the engine before the verdict's warm-up, spectral and break-revision state: their decisions are
+ * not this engine's, so src/engine/channel-state.ts replays such a channel from its samples.
+ */
+export interface ChannelPipelineState extends StateRecord<'channel-pipeline', typeof PIPELINE_STATE_VERSION> {
   series: WindowedSeriesState;
   history: BlockHistoryState;
   phase: Phase;
@@ -438,6 +443,7 @@ export class ChannelPipeline {
   /** Plain-data state: restoring it into a pipeline with the same name and options continues bit for bit. */
   saveState(): ChannelPipelineState {
     return {
+      record: 'channel-pipeline',
       version: PIPELINE_STATE_VERSION,
       series: this.series.saveState(),
       history: this.history.saveState(),
@@ -479,9 +485,9 @@ export class ChannelPipeline {
     };
   }
 
-  /** Restores a saved state; throws when the state is of another version (the caller replays from samples). */
+  /** @throws RangeError for a record of another name or version (the caller replays from samples). */
   loadState(state: ChannelPipelineState): void {
-    if (state.version !== PIPELINE_STATE_VERSION) throw new RangeError(`channel state version ${String(state.version)} is not ${PIPELINE_STATE_VERSION}`);
+    expectRecord(state, 'channel-pipeline', PIPELINE_STATE_VERSION);
     this.series.loadState(state.series);
     this.history.loadState(state.history);
     this.phase = state.phase;

@@ -1,4 +1,5 @@
 import { TwoSidedCusum, decisionIntervalForArl, type CusumState } from '../core/stationarity/cusum.js';
+import { expectRecord, type StateRecord } from '../core/state/record.js';
 import { varianceChangeTest } from '../core/stationarity/variance-change.js';
 import normalQuantile from '@stdlib/stats-base-dists-normal-quantile';
 import { changeFits } from '../core/stationarity/change-point-fits.js';
@@ -61,12 +62,18 @@ export interface MonitorSettings {
   falseAlarmSamples: number;
 }
 
-export interface MonitorState {
+export interface MonitorState extends StateRecord<'stationarity-monitor', 1> {
   settings: MonitorSettings;
   cusum: CusumState;
-  numbers: number[];
-  history: Float64Array;
+  blockSum: number;
+  blockCount: number;
+  blockStart: number;
+  historyLength: number;
   historyStart: number;
+  blocks: number;
+  referenceMean: number;
+  origin: number;
+  history: Float64Array;
   trace: Float32Array;
   traceCount: number;
 }
@@ -199,20 +206,29 @@ export class StationarityMonitor {
 
   saveState(): MonitorState {
     return {
+      record: 'stationarity-monitor',
+      version: 1,
       settings: { ...this.settings },
       cusum: this.cusum.state(),
-      numbers: [this.blockSum, this.blockCount, this.blockStart, this.historyLength, this.historyStart, this.blocks, this.referenceMean, this.origin],
-      history: this.history.slice(),
+      blockSum: this.blockSum,
+      blockCount: this.blockCount,
+      blockStart: this.blockStart,
+      historyLength: this.historyLength,
       historyStart: this.historyStart,
+      blocks: this.blocks,
+      referenceMean: this.referenceMean,
+      origin: this.origin,
+      history: this.history.slice(),
       trace: this.trace.slice(),
       traceCount: this.traceCount,
     };
   }
 
   static fromState(state: MonitorState): StationarityMonitor {
+    expectRecord(state, 'stationarity-monitor', 1);
     const monitor = new StationarityMonitor(state.settings, 0, 0);
     monitor.cusum = TwoSidedCusum.restore(state.cusum);
-    [monitor.blockSum, monitor.blockCount, monitor.blockStart, monitor.historyLength, monitor.historyStart, monitor.blocks, monitor.referenceMean, monitor.origin] = state.numbers as [number, number, number, number, number, number, number, number];
+    ({ blockSum: monitor.blockSum, blockCount: monitor.blockCount, blockStart: monitor.blockStart, historyLength: monitor.historyLength, historyStart: monitor.historyStart, blocks: monitor.blocks, referenceMean: monitor.referenceMean, origin: monitor.origin } = state);
     monitor.history.set(state.history);
     monitor.trace.set(state.trace);
     monitor.traceCount = state.traceCount;
@@ -290,16 +306,15 @@ export class StationarityMonitor {
     for (let i = 0; i < k; i++) mean += this.history[i] as number;
     mean /= k;
     let m2 = 0;
-    let m4 = 0;
-    for (let i = 0; i < k; i++) {
-      const d = (this.history[i] as number) - mean;
-      m2 += d * d;
-      m4 += d * d * d * d;
-    }
+    for (let i = 0; i < k; i++) m2 += ((this.history[i] as number) - mean) ** 2;
     m2 /= k;
-    m4 /= k;
-    if (!(m2 > 0)) return 0;
-    return Math.max(0, Math.min(20, m4 / (m2 * m2) - 3));
+    if (!(m2 > 0) || !Number.isFinite(m2)) return 0;
+    // Fourth moment of the standardised deviations: no overflow however large the values.
+    const sd = Math.sqrt(m2);
+    let m4 = 0;
+    for (let i = 0; i < k; i++) m4 += (((this.history[i] as number) - mean) / sd) ** 4;
+    const excess = m4 / k - 3;
+    return Number.isFinite(excess) ? Math.max(0, Math.min(20, excess)) : 20;
   }
 
   /**

@@ -1,5 +1,6 @@
 import type { ChannelPipeline } from './channel-pipeline.js';
 import type { ChannelRegistry } from './channel-registry.js';
+import { PlateauError } from '../errors/catalogue.js';
 import { recordEntry, RECORD_CAUTION, type TestPointRecord } from './test-point-record.js';
 import { channelBootstrapCheck } from './derived/bootstrap-cross-check.js';
 
@@ -51,15 +52,8 @@ export interface DerivedStatus {
 
 const ID_PATTERN = /^[A-Za-z0-9][A-Za-z0-9_.\-]{0,63}$/;
 
-export class TestPointError extends Error {
-  readonly code: string;
-  readonly status: number;
-  constructor(code: string, status: number, message: string) {
-    super(message);
-    this.code = code;
-    this.status = status;
-  }
-}
+/** Most annotations a test point keeps. */
+const MAX_ANNOTATIONS = 200;
 
 export class TestPoints {
   private readonly points = new Map<string, TestPoint>();
@@ -94,27 +88,23 @@ export class TestPoints {
 
   start(request: { id?: string; name?: string; channels: string[]; derived?: string[] }, nowMs: number, knownDerived: string[] = []): TestPointChange {
     const channels = [...new Set(request.channels)];
-    if (channels.length === 0 && (request.derived ?? []).length === 0) throw new TestPointError('ERR_TEST_POINT_EMPTY', 400, 'a test point needs at least one channel or derived result');
+    if (channels.length === 0 && (request.derived ?? []).length === 0) throw new PlateauError('ERR_TEST_POINT_EMPTY');
     for (const name of channels) {
-      if (typeof name !== 'string' || !/^[\p{L}\p{N}_.:\-/]{1,128}$/u.test(name)) throw new TestPointError('ERR_TEST_POINT_CHANNEL', 400, `"${String(name).slice(0, 80)}" is not a valid channel name`);
+      if (typeof name !== 'string' || !/^[\p{L}\p{N}_.:\-/]{1,128}$/u.test(name)) throw new PlateauError('ERR_TEST_POINT_CHANNEL', { name: String(name).slice(0, 80) });
     }
     for (const name of request.derived ?? []) {
-      if (!knownDerived.includes(name)) throw new TestPointError('ERR_TEST_POINT_DERIVED', 400, `no derived result named "${String(name).slice(0, 80)}" (known: ${knownDerived.join(', ') || 'none'})`);
+      if (!knownDerived.includes(name)) throw new PlateauError('ERR_TEST_POINT_DERIVED', { name: String(name).slice(0, 80), known: knownDerived.join(', ') || 'none' });
     }
     const id = request.id ?? `tp-${++this.sequence}`;
-    if (!ID_PATTERN.test(id)) throw new TestPointError('ERR_TEST_POINT_ID', 400, `test point id "${id.slice(0, 80)}": letters, digits, _ . - only, up to 64 characters`);
+    if (!ID_PATTERN.test(id)) throw new PlateauError('ERR_TEST_POINT_ID', { id: id.slice(0, 80) });
     const existing = this.points.get(id);
-    if (existing && existing.state !== 'stopped') throw new TestPointError('ERR_TEST_POINT_RUNNING', 409, `test point ${id} is already running`);
+    if (existing && existing.state !== 'stopped') throw new PlateauError('ERR_TEST_POINT_RUNNING', { id });
     const marks: { channel: string; seq: number }[] = [];
     const startSeq: Record<string, number> = {};
     for (const name of channels) {
       const channel = this.registry.ensure(name, null);
-      const seq = channel.pipeline.totalReceived;
-      startSeq[name] = seq;
-      if (channel.pipeline.options.window.kind === 'growing') {
-        channel.pipeline.restartWindow();
-        marks.push({ channel: name, seq });
-      }
+      startSeq[name] = channel.nextSeq;
+      if (channel.pipeline.options.window.kind === 'growing') marks.push({ channel: name, seq: channel.restartWindow().seq });
     }
     const point: TestPoint = {
       id,
@@ -141,8 +131,8 @@ export class TestPoints {
 
   annotate(id: string, text: string, nowMs: number): TestPoint {
     const point = this.points.get(id);
-    if (!point) throw new TestPointError('ERR_TEST_POINT_UNKNOWN', 404, `no test point ${id}`);
-    if (point.annotations.length >= 200) throw new TestPointError('ERR_TEST_POINT_ANNOTATIONS', 409, `test point ${id} has 200 annotations, the most it keeps`);
+    if (!point) throw new PlateauError('ERR_TEST_POINT_UNKNOWN', { id });
+    if (point.annotations.length >= MAX_ANNOTATIONS) throw new PlateauError('ERR_TEST_POINT_ANNOTATIONS', { id, max: MAX_ANNOTATIONS });
     point.annotations.push({ timeMs: nowMs, text: text.slice(0, 2000) });
     return point;
   }
@@ -180,7 +170,7 @@ export class TestPoints {
       createdAt: new Date(nowMs).toISOString(),
       entries: point.channels.map((name) => {
         const channel = this.registry.get(name);
-        if (!channel) throw new TestPointError('ERR_TEST_POINT_CHANNEL', 500, `channel ${name} vanished`);
+        if (!channel) throw new Error(`test point ${point.id}: channel ${name} is not in the registry`);
         const snapshot = channel.pipeline.snapshot();
         // The stationary bootstrap's standard error beside the analytic one (a cross-check).
         return { ...recordEntry(snapshot, channel.unit), bootstrap: channelBootstrapCheck(channel.pipeline.series.values(), snapshot) };
@@ -192,8 +182,8 @@ export class TestPoints {
 
   private requireRunning(id: string): TestPoint {
     const point = this.points.get(id);
-    if (!point) throw new TestPointError('ERR_TEST_POINT_UNKNOWN', 404, `no test point ${id}`);
-    if (point.state === 'stopped') throw new TestPointError('ERR_TEST_POINT_STOPPED', 409, `test point ${id} is already stopped`);
+    if (!point) throw new PlateauError('ERR_TEST_POINT_UNKNOWN', { id });
+    if (point.state === 'stopped') throw new PlateauError('ERR_TEST_POINT_STOPPED', { id });
     return point;
   }
 }

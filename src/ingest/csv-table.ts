@@ -2,6 +2,7 @@ import { access } from 'node:fs/promises';
 import { guessDelimiter, readDelimitedLines, readLineBatches, splitFields } from './csv-lines.js';
 import { parseDecimalSpan, parseMeasurement, PROBLEM_TEXT, type ValueProblem } from './cell-value.js';
 import { createReadStream } from 'node:fs';
+import { PlateauError } from '../errors/catalogue.js';
 
 /**
  * A logged CSV file read as measurement channels: a header row, every numeric column a channel,
@@ -11,8 +12,11 @@ import { createReadStream } from 'node:fs';
  * of its non-empty cells there are numbers. Later cells that are not finite numbers are skipped,
  * counted per channel with the row of the first few, and never reach a statistic.
  */
-export class CsvInputError extends Error {
-  readonly code = 'ERR_INPUT_CSV';
+export class CsvInputError extends PlateauError {
+  constructor(message: string) {
+    super('ERR_INPUT_CSV', { detail: message });
+    this.name = 'CsvInputError';
+  }
 }
 
 export interface CsvColumnIssue {

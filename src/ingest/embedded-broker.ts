@@ -1,4 +1,5 @@
-import { createServer, type Server, type Socket } from 'node:net';
+import { createServer, type Socket } from 'node:net';
+import { listen } from '../net/listen.js';
 import { Aedes } from 'aedes';
 
 /**
@@ -31,7 +32,7 @@ export async function startEmbeddedBroker(options: { host?: string; port?: numbe
     return created;
   };
   let server = makeServer();
-  const port = await listen(server, host, options.port ?? 0);
+  const port = await listen(server, host, options.port ?? 0, true);
   return {
     port,
     host,
@@ -43,7 +44,7 @@ export async function startEmbeddedBroker(options: { host?: string; port?: numbe
       });
       await new Promise((resolve) => setTimeout(resolve, downMs));
       server = makeServer();
-      await listen(server, host, port);
+      await listen(server, host, port, false);
     },
     close: () =>
       new Promise<void>((resolve) => {
@@ -53,26 +54,4 @@ export async function startEmbeddedBroker(options: { host?: string; port?: numbe
         setTimeout(() => resolve(), 2000).unref();
       }),
   };
-}
-
-/** Listens on `port`, or on a free port when it is taken; resolves with the port in use. */
-export function listen(server: Server, host: string, port: number): Promise<number> {
-  return new Promise((resolve, reject) => {
-    const tryPort = (p: number, fallback: boolean) => {
-      const onError = (error: NodeJS.ErrnoException) => {
-        server.off('listening', onListening);
-        if (fallback && error.code === 'EADDRINUSE') tryPort(0, false);
-        else reject(error);
-      };
-      const onListening = () => {
-        server.off('error', onError);
-        const address = server.address();
-        resolve(typeof address === 'object' && address ? address.port : p);
-      };
-      server.once('error', onError);
-      server.once('listening', onListening);
-      server.listen(p, host);
-    };
-    tryPort(port, port !== 0);
-  });
 }

@@ -1,4 +1,5 @@
 import { MAX_MAGNITUDE, MAX_TIME_MS, type DecodeResult, type Rejection, type RejectReason, type Sample } from './sample.js';
+import type { DecoderSpec } from '../config/decoder-spec.js';
 
 /**
  * Payload decoding: (topic, bytes, subscription, arrival time) -> samples and rejections.
@@ -19,38 +20,7 @@ import { MAX_MAGNITUDE, MAX_TIME_MS, type DecodeResult, type Rejection, type Rej
  * text), else the arrival time. SenML times below 2^28 are relative to the arrival time
  * (RFC 8428, section 4.5.3).
  */
-export interface DecoderSpec {
-  format: 'number' | 'json' | 'senml';
-  /** Channel name: a template over topic levels ({1} is the first level, {topic} the whole topic) and, for SenML, {name}. */
-  channel: string;
-  /** Dot path of the value in a JSON object. */
-  valueField: string;
-  /** Dot path of the time in a JSON object (absent: arrival time). */
-  timeField: string | null;
-  /** Unit of numeric times in JSON payloads. */
-  timeUnit: 's' | 'ms';
-  /** Dot path of an array of sample objects inside a JSON object (many samples per message). */
-  samplesField: string | null;
-  /** Dot path of a per-sample channel suffix or name in JSON objects ({field} in the template). */
-  channelField: string | null;
-  /** Fixed unit, or null to take it from SenML. */
-  unit: string | null;
-  maxBytes: number;
-  maxDepth: number;
-  maxSamples: number;
-}
-
-export const DECODER_DEFAULTS: Omit<DecoderSpec, 'format' | 'channel'> = {
-  valueField: 'v',
-  timeField: 't',
-  timeUnit: 's',
-  samplesField: null,
-  channelField: null,
-  unit: null,
-  maxBytes: 262_144, // bytes
-  maxDepth: 8,
-  maxSamples: 10_000,
-};
+export { DECODER_DEFAULTS, type DecoderSpec } from '../config/decoder-spec.js';
 
 const SENML_RELATIVE_LIMIT = 2 ** 28; // seconds: RFC 8428 4.5.3
 const CHANNEL_PATTERN = /^[\p{L}\p{N}_.:\-/]{1,128}$/u;

@@ -2,14 +2,13 @@ import Fastify, { type FastifyInstance, type FastifyReply, type FastifyRequest, 
 import { existsSync, readFileSync, realpathSync, statSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { dirname, join, normalize, sep } from 'node:path';
-import type { Daemon } from '../daemon/daemon.js';
-import { TestPointError, type TestPoint } from '../engine/test-points.js';
+import pino, { type Logger } from 'pino';
+import type { DaemonApi } from '../ports/daemon-api.js';
+import { PlateauError, type ErrorCode, type ErrorDetails } from '../errors/catalogue.js';
 import { recordCsv, RECORD_CAUTION, type TestPointRecord } from '../engine/test-point-record.js';
 import { renderReport } from './report.js';
 import { openApiDocument, type DocumentedRoute } from './openapi.js';
-import { eventLogFor, ALERT_KINDS, ACKNOWLEDGED_KIND } from './event-log.js';
-import { channelTrace } from './channel-trace.js';
-import { liveDerived, liveDerivedByName, recordDerivedEntries } from './derived-live.js';
+import { recordDerivedEntries } from './record-derived.js';
 import { derivedRecordCsv } from '../engine/derived/derived-record.js';
 import { sameOrigin } from './origin.js';
 import {
@@ -59,6 +58,8 @@ declare module 'fastify' {
 export interface HttpAppOptions {
   token: string | null;
   maxBodyBytes: number;
+  /** Where a handler's fault (a 500) is logged, with its stack (default: errors to standard output). */
+  log?: Logger;
   /** Where dashboard/ lives (defaults to the package's own). */
   dashboardDir?: string;
 }
@@ -85,7 +86,8 @@ const MAX_PARAM_LENGTH = 1024;
 
 const errors = (...codes: number[]) => Object.fromEntries(codes.map((code) => [code, errorReply]));
 
-export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyInstance {
+export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): FastifyInstance {
+  const log = options.log ?? pino({ level: 'error', base: { service: 'plateau' } });
   const routes: DocumentedRoute[] = [];
   const app = Fastify({
     logger: false,
@@ -95,14 +97,10 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     ajv: { customOptions: { allErrors: false, coerceTypes: 'array', removeAdditional: false } },
     frameworkErrors: (error, _request, reply) => {
       const tooLong = (error as { code?: string }).code === 'FST_ERR_MAX_PARAM_LENGTH';
-      void (reply as FastifyReply).code(tooLong ? 414 : 400).send({
-        error: tooLong ? 'ERR_REQUEST_URL_TOO_LONG' : 'ERR_REQUEST_URL',
-        message: tooLong ? `a path parameter is longer than ${MAX_PARAM_LENGTH} characters` : 'the request URL is not valid (a malformed percent-encoding?)',
-      });
+      void send(reply as FastifyReply, tooLong ? 'ERR_REQUEST_URL_TOO_LONG' : 'ERR_REQUEST_URL', { max: MAX_PARAM_LENGTH });
     },
   });
   const dashboardDir = options.dashboardDir ?? join(root, 'dashboard');
-  const events = eventLogFor(daemon);
   // Bodies are JSON only (a plain-text body is a 415, not a string that fails validation).
   app.removeContentTypeParser('text/plain');
   app.addHook('onRoute', (route: RouteOptions) => {
@@ -111,18 +109,15 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
   });
 
   app.setErrorHandler((error: Error & { statusCode?: number; code?: string; validation?: unknown; validationContext?: string }, request, reply) => {
-    if (error instanceof TestPointError && error.status >= 400 && error.status < 500) return reply.code(error.status).send({ error: error.code, message: error.message });
-    if (error.validation) return reply.code(400).send({ error: 'ERR_REQUEST_INVALID', message: `request ${error.message}` });
-    const known = FRAMEWORK_ERRORS[error.code ?? ''];
-    if (known) return reply.code(known.status).send({ error: known.error, message: known.message(options.maxBodyBytes) });
-    const status = error.statusCode && error.statusCode >= 400 && error.statusCode < 500 ? error.statusCode : 500;
-    if (status === 500) {
-      daemon.log.error({ err: error.message, url: request.url.slice(0, 200) }, 'http handler failed');
-      return reply.code(500).send({ error: 'ERR_INTERNAL', message: 'internal error (see the daemon log)' });
-    }
-    return reply.code(status).send({ error: 'ERR_REQUEST', message: error.message });
+    if (error instanceof PlateauError && error.status !== 500) return reply.code(error.status).send({ error: error.code, message: error.message });
+    if (error.validation) return send(reply, 'ERR_REQUEST_INVALID', { detail: error.message });
+    const framework = FRAMEWORK_ERRORS[error.code ?? ''];
+    if (framework) return send(reply, framework, { max: options.maxBodyBytes });
+    if (error.statusCode && error.statusCode >= 400 && error.statusCode < 500) return reply.code(error.statusCode).send({ error: 'ERR_REQUEST', message: error.message });
+    log.error({ err: error, url: request.url.slice(0, 200) }, 'http handler failed');
+    return send(reply, 'ERR_INTERNAL');
   });
-  app.setNotFoundHandler((request, reply) => reply.code(404).send({ error: 'ERR_NOT_FOUND', message: `no route ${request.method} ${request.url.split('?')[0]?.slice(0, 200)}` }));
+  app.setNotFoundHandler((request, reply) => send(reply, 'ERR_NOT_FOUND', { detail: `no route ${request.method} ${request.url.split('?')[0]?.slice(0, 200)}` }));
 
   app.addHook('onSend', async (request, reply, payload) => {
     reply.header('x-content-type-options', 'nosniff');
@@ -136,35 +131,52 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
   const requireWriteAccess = async (request: FastifyRequest, reply: FastifyReply) => {
     const origin = request.headers.origin;
     if (origin !== undefined && !sameOrigin(origin, request.headers.host)) {
-      return reply.code(403).send({ error: 'ERR_ORIGIN', message: `writes from another site are refused (origin ${origin.slice(0, 100)})` });
+      return send(reply, 'ERR_ORIGIN', { origin: origin.slice(0, 100) });
     }
     if (options.token === null) return;
     const header = request.headers.authorization ?? '';
     const given = header.startsWith('Bearer ') ? header.slice(7) : ((request.headers['x-plateau-token'] as string | undefined) ?? '');
     if (!timingSafeEqual(given, options.token)) {
-      return reply.code(401).send({ error: 'ERR_TOKEN', message: given === '' ? 'this write needs the token from the configuration (Authorization: Bearer <token>)' : 'the token does not match the configured one' });
+      return send(reply, 'ERR_TOKEN', { detail: given === '' ? 'this write needs the token from the configuration (Authorization: Bearer <token>)' : 'the token does not match the configured one' });
     }
   };
 
-  const fail = (reply: FastifyReply, status: number, code: string, message: string) => (reply as FastifyReply).code(status).send({ error: code, message });
-  const notFound = (reply: FastifyReply, code: string, message: string) => fail(reply, 404, code, message);
-  const withVerdict = (point: TestPoint) => ({ ...point, verdict: daemon.testPoints.verdict(point) });
   const testPointParams = { type: 'object', properties: { id: { type: 'string', pattern: TEST_POINT_ID_PATTERN } }, required: ['id'] } as const;
-  const unknownTestPoint = (reply: FastifyReply, id: string) => notFound(reply, 'ERR_TEST_POINT_UNKNOWN', `no test point ${id}`);
+  const unknownTestPoint = (reply: FastifyReply, id: string) => send(reply, 'ERR_TEST_POINT_UNKNOWN', { id });
 
+  const healthReply = {
+    type: 'object',
+    required: ['status', 'broker', 'store', 'channels'],
+    properties: {
+      status: { type: 'string', enum: ['ok', 'degraded', 'failing'] },
+      broker: { type: 'string', enum: ['connected', 'disconnected'] },
+      store: { type: 'string', enum: ['ok', 'failing'] },
+      channels: { type: 'integer' },
+      failingSinceMs: { type: 'number' },
+      error: { type: 'object', properties: { code: { type: 'string' }, message: { type: 'string' } }, additionalProperties: false },
+    },
+    additionalProperties: false,
+  } as const;
   app.get(
     '/healthz',
     {
       schema: {
-        summary: 'liveness and the broker connection',
-        response: { 200: { type: 'object', properties: { status: { type: 'string', enum: ['ok', 'degraded'] }, broker: { type: 'string' }, channels: { type: 'integer' } }, additionalProperties: false } },
+        summary: 'liveness: 200 while commits succeed (status degraded while the broker is disconnected), 503 while commits to the store fail (nothing is acknowledged then)',
+        response: { 200: healthReply, 503: healthReply },
       },
     },
-    async () => ({
-      status: daemon.ingest?.connected ? 'ok' : 'degraded',
-      broker: daemon.ingest?.connected ? 'connected' : 'disconnected',
-      channels: daemon.registry.size,
-    }),
+    async (_request, reply) => {
+      const health = daemon.health();
+      const body = {
+        status: health.status,
+        broker: health.broker,
+        store: health.store.failing ? 'failing' : 'ok',
+        channels: daemon.channels().length,
+        ...(health.store.since !== null ? { failingSinceMs: health.store.since } : {}),
+        ...(health.store.lastError !== null ? { error: health.store.lastError } : {}),
+      };
+      return reply.code(health.store.failing ? 503 : 200).send(body);
+    },
   );
 
   app.get(
@@ -197,9 +209,9 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
       serverTimeMs: Date.now(),
       writesNeedToken: options.token !== null,
       limits: { maxBodyBytes: options.maxBodyBytes, maxWebSocketMessageBytes: WS_LIMITS.maxPayloadBytes, channelUpdateIntervalMs: WS_LIMITS.updateIntervalMs, maxTraceSamples: 20_000 },
-      derived: daemon.derived.names(),
-      alertKinds: [...ALERT_KINDS],
-      lastEventId: events.lastId,
+      derived: daemon.derivedNames(),
+      alertKinds: [...daemon.alertKinds()],
+      lastEventId: daemon.lastEventId,
       caution: RECORD_CAUTION,
     }),
   );
@@ -219,7 +231,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     },
     async (request) => {
       const view = (request.query as { view?: string }).view ?? 'full';
-      const channels = daemon.registry.all().map((channel) => (view === 'summary' ? { ...channel.pipeline.summary(), unit: channel.unit } : { ...channel.pipeline.snapshot(), unit: channel.unit }));
+      const channels = daemon.channels().map((channel) => (view === 'summary' ? { ...channel.summary(), unit: channel.unit } : { ...channel.snapshot(), unit: channel.unit }));
       return { channels };
     },
   );
@@ -249,16 +261,16 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     },
     async (request, reply) => {
       const { name } = request.params as { name: string };
-      const channel = daemon.registry.get(name);
-      if (!channel) return notFound(reply, 'ERR_CHANNEL_UNKNOWN', `no channel named "${name.slice(0, 80)}"`);
+      const channel = daemon.channel(name);
+      if (!channel) return send(reply, 'ERR_CHANNEL_UNKNOWN', { name: name.slice(0, 80) });
       const query = request.query as { trace?: number; events?: number };
-      const snapshot = channel.pipeline.snapshot();
+      const snapshot = channel.snapshot();
       return {
         ...snapshot,
         unit: channel.unit,
-        trace: channelTrace(daemon, channel, query.trace ?? 2000),
-        cusumTrace: channel.pipeline.cusumTrace(),
-        storedEvents: daemon.store.eventsFor(name, query.events ?? 200),
+        trace: channel.trace(query.trace ?? 2000),
+        cusumTrace: channel.cusumTrace(),
+        storedEvents: channel.storedEvents(query.events ?? 200),
       };
     },
   );
@@ -272,7 +284,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
         response: { 200: { type: 'object', required: ['derived'], properties: { derived: { type: 'array', items: derivedResult } }, additionalProperties: false }, ...errors(400) },
       },
     },
-    async () => ({ derived: liveDerived(daemon) }),
+    async () => ({ derived: daemon.derivedResults() }),
   );
 
   app.get(
@@ -288,10 +300,10 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     },
     async (request, reply) => {
       const { name } = request.params as { name: string };
-      const view = liveDerivedByName(daemon, name);
-      if (!view) return notFound(reply, 'ERR_DERIVED_UNKNOWN', `no derived result named "${name.slice(0, 80)}" (known: ${daemon.derived.names().join(', ') || 'none'})`);
+      const view = daemon.derivedResult(name);
+      if (!view) return send(reply, 'ERR_DERIVED_UNKNOWN', { name: name.slice(0, 80), known: daemon.derivedNames().join(', ') || 'none' });
       const events = (request.query as { events?: number }).events ?? 200;
-      return { ...view, storedEvents: daemon.store.eventsFor(name, events) };
+      return { ...view, storedEvents: daemon.eventsFor(name, events) };
     },
   );
 
@@ -317,10 +329,10 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     },
     async (request, reply) => {
       const { after, limit, latest } = request.query as { after?: number; limit?: number; latest?: number };
-      if (latest !== undefined && (after !== undefined || limit !== undefined)) return fail(reply, 400, 'ERR_REQUEST_INVALID', 'request querystring: use either latest, or after and limit');
-      const list = latest !== undefined ? events.latest(latest) : daemon.events(after ?? 0, limit ?? 200);
-      const first = list[0]?.id ?? events.lastId;
-      return { events: list, lastEventId: events.lastId, acknowledgements: events.acknowledgementsAfter(first - 1) };
+      if (latest !== undefined && (after !== undefined || limit !== undefined)) return send(reply, 'ERR_REQUEST_INVALID', { detail: 'querystring: use either latest, or after and limit' });
+      const list = latest !== undefined ? daemon.latestEvents(latest) : daemon.events(after ?? 0, limit ?? 200);
+      const first = list[0]?.id ?? daemon.lastEventId;
+      return { events: list, lastEventId: daemon.lastEventId, acknowledgements: daemon.acknowledgementsAfter(first - 1) };
     },
   );
 
@@ -339,10 +351,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     async (request, reply) => {
       const { id } = request.params as { id: number };
       const note = (request.body as { note?: string } | null | undefined)?.note ?? null;
-      const event = events.find(id);
-      if (!event) return notFound(reply, 'ERR_EVENT_UNKNOWN', `no stored event ${id}`);
-      if (event.kind === ACKNOWLEDGED_KIND) return fail(reply, 409, 'ERR_EVENT_ACKNOWLEDGEMENT', `event ${id} is itself an acknowledgement`);
-      const result = events.acknowledge(event, note);
+      const result = daemon.acknowledgeEvent(id, note);
       return { acknowledgement: result.acknowledgement, alreadyAcknowledged: result.already };
     },
   );
@@ -350,7 +359,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
   app.get(
     '/api/test-points',
     { schema: { summary: 'test points with their verdicts, in order of creation', response: { 200: { type: 'object', properties: { testPoints: { type: 'array', items: testPointSchema } }, additionalProperties: false } } } },
-    async () => ({ testPoints: daemon.testPoints.list().map(withVerdict) }),
+    async () => ({ testPoints: daemon.testPointViews() }),
   );
 
   app.post(
@@ -376,8 +385,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     },
     async (request, reply) => {
       const body = request.body as { id?: string; name?: string; channels: string[]; derived?: string[] };
-      const point = daemon.startTestPoint(body);
-      return reply.code(201).send({ testPoint: withVerdict(point) });
+      return reply.code(201).send({ testPoint: daemon.startTestPoint(body) });
     },
   );
 
@@ -386,9 +394,9 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     { schema: { summary: 'one test point and its records', params: testPointParams, response: { 200: { type: 'object', properties: { testPoint: testPointSchema, records: { type: 'array', items: recordRow } }, additionalProperties: false }, ...errors(400, 404) } } },
     async (request, reply) => {
       const { id } = request.params as { id: string };
-      const point = daemon.testPoints.get(id);
+      const point = daemon.testPoint(id);
       if (!point) return unknownTestPoint(reply, id);
-      return { testPoint: withVerdict(point), records: daemon.store.records(id) };
+      return { testPoint: point, records: daemon.records(id) };
     },
   );
 
@@ -400,7 +408,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     },
     async (request) => {
       const { id } = request.params as { id: string };
-      return { testPoint: withVerdict(daemon.stopTestPoint(id)) };
+      return { testPoint: daemon.stopTestPoint(id) };
     },
   );
 
@@ -419,9 +427,8 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     async (request, reply) => {
       const { id } = request.params as { id: string };
       const { text } = request.body as { text: string };
-      if (text.trim() === '') return fail(reply, 400, 'ERR_REQUEST_INVALID', 'request body/text is blank');
-      const point = daemon.annotateTestPoint(id, text);
-      return reply.code(201).send({ testPoint: withVerdict(point) });
+      if (text.trim() === '') return send(reply, 'ERR_REQUEST_INVALID', { detail: 'body/text is blank' });
+      return reply.code(201).send({ testPoint: daemon.annotateTestPoint(id, text) });
     },
   );
 
@@ -430,23 +437,23 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     { schema: { summary: 'every record of a test point, oldest first', params: testPointParams, response: { 200: { type: 'object', properties: { records: { type: 'array', items: recordRow } }, additionalProperties: false }, ...errors(400, 404) } } },
     async (request, reply) => {
       const { id } = request.params as { id: string };
-      if (!daemon.testPoints.get(id)) return unknownTestPoint(reply, id);
-      return { records: daemon.store.records(id) };
+      if (!daemon.testPoint(id)) return unknownTestPoint(reply, id);
+      return { records: daemon.records(id) };
     },
   );
 
   const latestRecord = (id: string): TestPointRecord | null => {
-    const records = daemon.store.records(id);
+    const records = daemon.records(id);
     return records.length > 0 ? ((records.at(-1) as { body: unknown }).body as TestPointRecord) : null;
   };
-  const noRecord = (reply: FastifyReply, id: string) => notFound(reply, 'ERR_RECORD_NONE', `test point ${id} has no record yet (one is written when it is ready or stopped)`);
+  const noRecord = (reply: FastifyReply, id: string) => send(reply, 'ERR_RECORD_NONE', { id });
 
   app.get(
     '/api/test-points/:id/record.csv',
     { schema: { summary: 'the latest record as CSV (RFC 4180), one row per channel', params: testPointParams, response: { ...errors(400, 404) } } },
     async (request, reply) => {
       const { id } = request.params as { id: string };
-      if (!daemon.testPoints.get(id)) return unknownTestPoint(reply, id);
+      if (!daemon.testPoint(id)) return unknownTestPoint(reply, id);
       const record = latestRecord(id);
       if (!record) return noRecord(reply, id);
       return reply.header('content-type', 'text/csv; charset=utf-8').header('content-disposition', `attachment; filename="${id}.csv"`).send(recordCsv(record));
@@ -465,11 +472,11 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     },
     async (request, reply) => {
       const { id } = request.params as { id: string };
-      if (!daemon.testPoints.get(id)) return unknownTestPoint(reply, id);
+      if (!daemon.testPoint(id)) return unknownTestPoint(reply, id);
       const record = latestRecord(id);
       if (!record) return noRecord(reply, id);
       const entries = recordDerivedEntries(record.derived);
-      if (entries.length === 0) return notFound(reply, 'ERR_RECORD_NO_DERIVED', `the record of test point ${id} holds no derived result (start the test point with "derived" to record them)`);
+      if (entries.length === 0) return send(reply, 'ERR_RECORD_NO_DERIVED', { id });
       return reply.header('content-type', 'text/csv; charset=utf-8').header('content-disposition', `attachment; filename="${id}-derived.csv"`).send(derivedRecordCsv(entries));
     },
   );
@@ -479,7 +486,7 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     { schema: { summary: 'the latest record', params: testPointParams, response: { 200: testPointRecord, ...errors(400, 404) } } },
     async (request, reply) => {
       const { id } = request.params as { id: string };
-      if (!daemon.testPoints.get(id)) return unknownTestPoint(reply, id);
+      if (!daemon.testPoint(id)) return unknownTestPoint(reply, id);
       const record = latestRecord(id);
       if (!record) return noRecord(reply, id);
       return reply.header('content-disposition', `inline; filename="${id}.json"`).send(record);
@@ -491,17 +498,17 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
     { schema: { summary: 'printable report (HTML, print to PDF): results in GUM wording, evidence, charts, cautions', params: testPointParams, response: { ...errors(400, 404) } } },
     async (request, reply) => {
       const { id } = request.params as { id: string };
-      const point = daemon.testPoints.get(id);
+      const point = daemon.testPoint(id);
       if (!point) return unknownTestPoint(reply, id);
       const record = latestRecord(id);
-      const channels = point.channels.map((name) => daemon.registry.get(name)).filter((c) => c !== undefined);
+      const channels = point.channels.map((name) => daemon.channel(name)).filter((c) => c !== null);
       const html = renderReport({
         point,
         record,
         generatedMs: Date.now(),
         version: VERSION,
-        channels: channels.map((c) => ({ name: c.name, unit: c.unit, snapshot: c.pipeline.snapshot(), trace: channelTrace(daemon, c, 4000), cusum: c.pipeline.cusumTrace() })),
-        derived: point.derived.length > 0 ? liveDerived(daemon).filter((d) => point.derived.includes(d.name)) : [],
+        channels: channels.map((c) => ({ name: c.name, unit: c.unit, snapshot: c.snapshot(), trace: c.trace(4000), cusum: c.cusumTrace() })),
+        derived: point.derived.length > 0 ? daemon.derivedResults().filter((d) => point.derived.includes(d.name)) : [],
       });
       return reply.header('content-type', 'text/html; charset=utf-8').header('content-security-policy', REPORT_POLICY).send(html);
     },
@@ -516,30 +523,37 @@ export function buildHttpApp(daemon: Daemon, options: HttpAppOptions): FastifyIn
   app.get('/vendor/:file', { schema: { summary: 'the chart library (uPlot), served from the installed package', params: fileParams, response: { ...errors(400, 404) } } }, async (request, reply) => {
     const { file } = request.params as { file: string };
     const path = Object.hasOwn(vendor, file) ? vendor[file] : undefined;
-    if (!path || !existsSync(path)) return notFound(reply, 'ERR_NOT_FOUND', `no vendor file ${file.slice(0, 80)}`);
+    if (!path || !existsSync(path)) return send(reply, 'ERR_NOT_FOUND', { detail: `no vendor file ${file.slice(0, 80)}` });
     return sendFile(reply, path);
   });
   app.get('/', { schema: { summary: 'the dashboard page' } }, async (_request, reply) => {
     const path = join(dashboardDir, 'index.html');
-    if (!existsSync(path)) return notFound(reply, 'ERR_NOT_FOUND', 'the dashboard is not installed (dashboard/index.html is missing)');
+    if (!existsSync(path)) return send(reply, 'ERR_NOT_FOUND', { detail: 'the dashboard is not installed (dashboard/index.html is missing)' });
     return sendFile(reply, path);
   });
   app.get('/dashboard/*', { schema: { summary: "the dashboard's scripts and styles", response: { ...errors(404) } } }, async (request, reply) => {
     const relative = (request.params as { '*': string })['*'];
     const path = normalize(join(dashboardDir, relative));
-    if (!path.startsWith(dashboardDir + sep) || !existsSync(path) || !insideDirectory(path, dashboardDir)) return notFound(reply, 'ERR_NOT_FOUND', `no dashboard file ${relative.slice(0, 80)}`);
+    if (!path.startsWith(dashboardDir + sep) || !existsSync(path) || !insideDirectory(path, dashboardDir)) return send(reply, 'ERR_NOT_FOUND', { detail: `no dashboard file ${relative.slice(0, 80)}` });
     return sendFile(reply, path);
   });
   return app;
 }
 
-const FRAMEWORK_ERRORS: Record<string, { status: number; error: string; message: (maxBodyBytes: number) => string }> = {
-  FST_ERR_CTP_INVALID_MEDIA_TYPE: { status: 415, error: 'ERR_MEDIA_TYPE', message: () => 'send the body as JSON with content-type: application/json' },
-  FST_ERR_CTP_BODY_TOO_LARGE: { status: 413, error: 'ERR_BODY_TOO_LARGE', message: (max) => `the body is larger than the ${max} bytes allowed (http.maxBodyBytes)` },
-  FST_ERR_CTP_INVALID_CONTENT_LENGTH: { status: 400, error: 'ERR_BODY_LENGTH', message: () => 'the body length does not match the content-length header' },
-  FST_ERR_CTP_EMPTY_JSON_BODY: { status: 400, error: 'ERR_BODY_EMPTY', message: () => 'the content-type is application/json but the body is empty: send a JSON object' },
-  FST_ERR_CTP_INVALID_JSON_BODY: { status: 400, error: 'ERR_BODY_JSON', message: () => 'the body is not valid JSON' },
+/** fastify's own request errors, as codes of the catalogue. */
+const FRAMEWORK_ERRORS: Record<string, ErrorCode> = {
+  FST_ERR_CTP_INVALID_MEDIA_TYPE: 'ERR_MEDIA_TYPE',
+  FST_ERR_CTP_BODY_TOO_LARGE: 'ERR_BODY_TOO_LARGE',
+  FST_ERR_CTP_INVALID_CONTENT_LENGTH: 'ERR_BODY_LENGTH',
+  FST_ERR_CTP_EMPTY_JSON_BODY: 'ERR_BODY_EMPTY',
+  FST_ERR_CTP_INVALID_JSON_BODY: 'ERR_BODY_JSON',
 };
+
+/** Every error reply: `{ error: CODE, message }` with the status and message of the catalogue. */
+function send(reply: FastifyReply, code: ErrorCode, details: ErrorDetails = {}): FastifyReply {
+  const error = new PlateauError(code, details);
+  return reply.code(error.status).send({ error: error.code, message: error.message });
+}
 
 /**
  * Static files are small (the dashboard, uPlot): kept in memory and re-read when their size or

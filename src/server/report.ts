@@ -2,11 +2,11 @@ import type { TestPoint } from '../engine/test-points.js';
 import type { RecordEntry, TestPointRecord } from '../engine/test-point-record.js';
 import { RECORD_CAUTION, gumStatement } from '../engine/test-point-record.js';
 import type { ChannelSnapshot } from '../engine/channel-pipeline.js';
-import type { ChannelTrace } from './channel-trace.js';
 import type { DerivedReportEntry } from '../engine/derived/derived-record.js';
 import { escapeHtml } from './html-text.js';
 import { svgBarChart, svgChart, type SvgBar } from './svg-chart.js';
-import { recordDerivedEntries, type LiveDerived } from './derived-live.js';
+import { recordDerivedEntries } from './record-derived.js';
+import type { ChannelTrace, CusumTrace, DerivedView } from '../ports/daemon-api.js';
 
 /**
  * The printable test-point report (HTML, for print to PDF): per channel the result in the wording
@@ -33,7 +33,7 @@ export interface ReportChannel {
   unit: string | null;
   snapshot: ChannelSnapshot;
   trace: ChannelTrace;
-  cusum: { blockSize: number; decisionInterval: number; upper: number[]; lower: number[] } | null;
+  cusum: CusumTrace | null;
 }
 
 export interface ReportInput {
@@ -41,7 +41,7 @@ export interface ReportInput {
   record: TestPointRecord | null;
   channels: ReportChannel[];
   /** The current view of the test point's derived results (shown where the record has none). */
-  derived?: LiveDerived[];
+  derived?: DerivedView[];
   generatedMs: number;
   version: string;
 }
@@ -215,7 +215,7 @@ function derivedStateText(d: Pick<DerivedReportEntry, 'ready' | 'atTarget' | 'in
   return d.atTarget ? 'at target' : 'inputs steady, not yet at target';
 }
 
-function derivedSections(point: TestPoint, record: TestPointRecord | null, live: LiveDerived[]): string {
+function derivedSections(point: TestPoint, record: TestPointRecord | null, live: DerivedView[]): string {
   const recorded = recordDerivedEntries(record?.derived);
   const names = [...(point.derived ?? [])];
   for (const entry of recorded) if (!names.includes(entry.name)) names.push(entry.name);
@@ -229,8 +229,8 @@ function derivedSections(point: TestPoint, record: TestPointRecord | null, live:
     .join('\n');
 }
 
-function derivedSection(name: string, entry: DerivedReportEntry | null, current: LiveDerived | null, record: TestPointRecord | null): string {
-  const d: (DerivedReportEntry | LiveDerived) | null = entry ?? current;
+function derivedSection(name: string, entry: DerivedReportEntry | null, current: DerivedView | null, record: TestPointRecord | null): string {
+  const d: (DerivedReportEntry | DerivedView) | null = entry ?? current;
   if (d === null) return `<section><h2>${escapeHtml(name)} (derived)</h2><p class="statement none">${escapeHtml(`${name}: no value (the derived result is not known to this daemon and not in the record)`)}</p></section>`;
   const unit = d.unit ? ` ${d.unit}` : '';
   const source = entry ? `Recorded ${record?.createdAt ?? ''}.` : 'Current value (no record of this derived result yet).';
@@ -278,7 +278,7 @@ ${otherNotes(d).length ? `<p class="note">Notes: ${escapeHtml(otherNotes(d).join
 }
 
 /** The notes not already shown with the Monte Carlo and bootstrap checks (a record repeats theirs in notes). */
-function otherNotes(d: DerivedReportEntry | LiveDerived): string[] {
+function otherNotes(d: DerivedReportEntry | DerivedView): string[] {
   const shown = new Set<string>();
   if ('monteCarlo' in d && d.monteCarlo) shown.add('error' in d.monteCarlo ? d.monteCarlo.error : d.monteCarlo.note);
   if ('bootstrap' in d && d.bootstrap) shown.add(d.bootstrap.note);
@@ -296,7 +296,7 @@ function percentText(share: number | null | undefined): string {
 }
 
 /** In words: what the covariance terms do to u_c, against the uncorrelated interval. */
-function covarianceText(d: DerivedReportEntry | LiveDerived): string {
+function covarianceText(d: DerivedReportEntry | DerivedView): string {
   if (d.covarianceShare === null || d.standardUncertainty === null) return 'No budget: the combined standard uncertainty is zero or not known yet.';
   const share = d.covarianceShare;
   const unit = d.unit ? ` ${d.unit}` : '';
@@ -308,7 +308,7 @@ function covarianceText(d: DerivedReportEntry | LiveDerived): string {
 }
 
 /** The budget as bars in % of u_c^2: variances, covariance terms (negative ones left of zero) and the total. */
-function budgetChart(d: DerivedReportEntry | LiveDerived): string {
+function budgetChart(d: DerivedReportEntry | DerivedView): string {
   const u = d.standardUncertainty;
   if (u === null || !(u > 0)) return '';
   const u2 = u * u;

@@ -1,8 +1,9 @@
 import type { FastifyInstance } from 'fastify';
 import { buildHttpApp } from './http-app.js';
 import { WsHub } from './ws-hub.js';
-import { listen } from '../ingest/embedded-broker.js';
-import type { Daemon } from '../daemon/daemon.js';
+import type { Logger } from 'pino';
+import { listen } from '../net/listen.js';
+import type { DaemonApi } from '../ports/daemon-api.js';
 
 /** The daemon's HTTP server: the API, the dashboard and the WebSocket hub on /ws. */
 export interface RunningServer {
@@ -13,8 +14,8 @@ export interface RunningServer {
   close(): Promise<void>;
 }
 
-export async function startServer(daemon: Daemon, options: { host: string; port: number; token: string | null; maxBodyBytes: number; fallbackPort?: boolean }): Promise<RunningServer> {
-  const app = buildHttpApp(daemon, { token: options.token, maxBodyBytes: options.maxBodyBytes });
+export async function startServer(daemon: DaemonApi, options: { host: string; port: number; token: string | null; maxBodyBytes: number; fallbackPort?: boolean; log?: Logger }): Promise<RunningServer> {
+  const app = buildHttpApp(daemon, { token: options.token, maxBodyBytes: options.maxBodyBytes, ...(options.log ? { log: options.log } : {}) });
   const hub = new WsHub(daemon);
   app.server.on('upgrade', (request, socket, head) => {
     const path = (request.url ?? '').split('?')[0];
@@ -22,8 +23,7 @@ export async function startServer(daemon: Daemon, options: { host: string; port:
     else socket.destroy();
   });
   await app.ready();
-  const port = await listen(app.server, options.host, options.fallbackPort ? options.port : options.port);
-  if (!options.fallbackPort && port !== options.port && options.port !== 0) throw new Error(`port ${options.port} is taken`);
+  const port = await listen(app.server, options.host, options.port, options.fallbackPort === true);
   const host = options.host.includes(':') ? `[${options.host}]` : options.host;
   return {
     app,

@@ -1,11 +1,10 @@
 import { WebSocketServer, type WebSocket } from 'ws';
 import type { IncomingMessage } from 'node:http';
 import type { Duplex } from 'node:stream';
-import type { Daemon, PublishedEvent } from '../daemon/daemon.js';
 import type { ChannelSummary } from '../engine/channel-pipeline.js';
-import { eventLogFor, type ServerEventLog } from './event-log.js';
+import type { DaemonApi, DaemonHealth } from '../ports/daemon-api.js';
+import type { StoredEvent } from '../ports/store.js';
 import { sameOrigin } from './origin.js';
-import { liveDerived } from './derived-live.js';
 
 /**
  * The WebSocket hub (ws) on /ws: events go to every client at once; channel updates go at most
@@ -24,8 +23,10 @@ import { liveDerived } from './derived-live.js';
  *
  * Messages (JSON text frames):
  *   { type: "hello", protocol: 1, serverTimeMs, channels: [summary...], derived: [result...],
- *     testPoints: [...], lastEventId, events: [the latest, oldest first], acknowledgements: [...] }
+ *     testPoints: [...], lastEventId, events: [the latest, oldest first], acknowledgements: [...],
+ *     health: { status, broker, store } }
  *   { type: "event", event: { id, timeMs, source, kind, at, body } }
+ *   { type: "health", health: { status, broker, store } }   at once when it changes (a failing store)
  *   { type: "channels", serverTimeMs, channels: [summary...] }
  *   { type: "derived", serverTimeMs, derived: [result...] }
  *   { type: "testPoints", testPoints: [...] }
@@ -88,17 +89,16 @@ export interface HubCounters {
 export class WsHub {
   private readonly server: WebSocketServer;
   private readonly clients = new Set<Client>();
-  private readonly daemon: Daemon;
-  private readonly events: ServerEventLog;
+  private readonly daemon: DaemonApi;
   private readonly settings: Required<WsHubOptions>;
   private readonly timers: NodeJS.Timeout[] = [];
   private readonly summaries = new Map<string, { version: number; summary: ChannelSummary & { unit: string | null } }>();
-  private readonly unsubscribe: () => void;
+  private readonly unsubscribe: (() => void)[];
   private testPointsChanged = false;
   private closed = false;
   readonly counters = { connected: 0, refused: 0, skipped: 0, dropped: 0, messages: 0 };
 
-  constructor(daemon: Daemon, options: WsHubOptions = {}) {
+  constructor(daemon: DaemonApi, options: WsHubOptions = {}) {
     this.daemon = daemon;
     this.settings = {
       updateIntervalMs: options.updateIntervalMs ?? WS_LIMITS.updateIntervalMs,
@@ -109,10 +109,8 @@ export class WsHub {
       maxClients: options.maxClients ?? WS_LIMITS.maxClients,
       helloEvents: options.helloEvents ?? WS_LIMITS.helloEvents,
     };
-    // The event log first: its listener must see each event before the hub's.
-    this.events = eventLogFor(daemon);
     this.server = new WebSocketServer({ noServer: true, maxPayload: WS_LIMITS.maxPayloadBytes, perMessageDeflate: false });
-    this.unsubscribe = daemon.onEvent((event) => this.broadcastEvent(event));
+    this.unsubscribe = [daemon.onEvent((event) => this.broadcastEvent(event)), daemon.onHealth((health) => this.broadcastHealth(health))];
     this.timers.push(setInterval(() => this.tick(), this.settings.updateIntervalMs));
     this.timers.push(setInterval(() => this.heartbeat(), this.settings.heartbeatMs));
     for (const timer of this.timers) timer.unref();
@@ -148,7 +146,7 @@ export class WsHub {
   close(): void {
     this.closed = true;
     for (const timer of this.timers) clearInterval(timer);
-    this.unsubscribe();
+    for (const unsubscribe of this.unsubscribe) unsubscribe();
     this.disconnectAll();
     this.server.close();
   }
@@ -173,8 +171,8 @@ export class WsHub {
     }
     const derived = this.derivedTexts();
     for (const [name, text] of derived) client.derivedSent.set(name, text);
-    const lastEventId = this.events.lastId;
-    const recent = this.events.latest(this.settings.helloEvents);
+    const lastEventId = this.daemon.lastEventId;
+    const recent = this.daemon.latestEvents(this.settings.helloEvents);
     this.send(client, {
       type: 'hello',
       protocol: 1,
@@ -184,7 +182,8 @@ export class WsHub {
       lastEventId,
       events: recent,
       testPoints: this.testPoints(),
-      acknowledgements: this.events.acknowledgementsAfter((recent[0]?.id ?? lastEventId + 1) - 1),
+      acknowledgements: this.daemon.acknowledgementsAfter((recent[0]?.id ?? lastEventId + 1) - 1),
+      health: this.daemon.health(),
       updateIntervalMs: this.settings.updateIntervalMs,
     }, true);
   }
@@ -192,16 +191,20 @@ export class WsHub {
   /** Each derived result as JSON text (the text tells whether it changed since a client's last one). */
   private derivedTexts(): Map<string, string> {
     const out = new Map<string, string>();
-    if (this.daemon.derived.names().length === 0) return out;
-    for (const view of liveDerived(this.daemon)) out.set(view.name, JSON.stringify(view, finite));
+    for (const view of this.daemon.derivedResults()) out.set(view.name, JSON.stringify(view, finite));
     return out;
   }
 
   private testPoints(): unknown[] {
-    return this.daemon.testPoints.list().map((point) => ({ ...point, verdict: this.daemon.testPoints.verdict(point) }));
+    return this.daemon.testPointViews();
   }
 
-  private broadcastEvent(event: PublishedEvent): void {
+  private broadcastHealth(health: DaemonHealth): void {
+    const text = JSON.stringify({ type: 'health', health }, finite);
+    for (const client of this.clients) this.sendText(client, text, true);
+  }
+
+  private broadcastEvent(event: StoredEvent): void {
     // Channel events change channel states, hence test-point verdicts.
     this.testPointsChanged = true;
     const text = JSON.stringify({ type: 'event', event }, finite);
@@ -210,11 +213,11 @@ export class WsHub {
 
   /** Recomputes the summary of every channel with new samples or events. */
   private refreshSummaries(): void {
-    for (const channel of this.daemon.registry.all()) {
-      const version = channel.pipeline.totalReceived + channel.pipeline.snapshotKeyEvents * 2 ** 40;
+    for (const channel of this.daemon.channels()) {
+      const version = channel.version;
       const entry = this.summaries.get(channel.name);
       if (entry && entry.version === version && entry.summary.unit === channel.unit) continue;
-      this.summaries.set(channel.name, { version, summary: { ...channel.pipeline.summary(), unit: channel.unit } });
+      this.summaries.set(channel.name, { version, summary: { ...channel.summary(), unit: channel.unit } });
     }
   }
 

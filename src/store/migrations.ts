@@ -63,4 +63,14 @@ export const MIGRATIONS: string[] = [
     value REAL NOT NULL
   );
   `,
+  // 2: which samples carried no time of their own (a bitmap per chunk, NULL when all did), so a
+  // restart replays them through the same time policy; the committed position of durable sources.
+  `
+  ALTER TABLE sample_chunks ADD COLUMN unstamped BLOB;
+  CREATE TABLE source_positions (
+    source TEXT PRIMARY KEY,
+    sequence INTEGER NOT NULL,
+    updated_ms REAL NOT NULL
+  );
+  `,
 ];

@@ -2,77 +2,64 @@ import Database from 'better-sqlite3';
 import { serialize, deserialize } from 'node:v8';
 import { statSync } from 'node:fs';
 import { MIGRATIONS } from './migrations.js';
+import { PlateauError, type ErrorCode } from '../errors/catalogue.js';
+import type { CommitBatch, CommitResult, SampleChunk, Store, StoredChannel, StoredEvent, StoredRecord } from '../ports/store.js';
+import type { SourcePosition } from '../ports/sample-source.js';
 
 /**
- * Durable state on SQLite (better-sqlite3, WAL journal): samples in per-flush chunks, pipeline
- * checkpoints, window marks, events, test points and their records, counters.
+ * The store port on SQLite (better-sqlite3, WAL journal): samples in per-commit chunks, checkpoints,
+ * window marks, events, test points and their records, counters, source positions.
  *
- * Every flush is one transaction: the samples accepted since the last flush, the events they
- * raised, any checkpoints due and the counters. The daemon acknowledges MQTT messages only after
- * that transaction commits. synchronous = NORMAL in WAL mode makes a commit survive a killed
- * process (the WAL is in the operating system's hands); a power cut may lose the last commits
- * after their acknowledgements left, so use synchronous = FULL (option `durable`, an fsync per
- * flush) where power cuts matter more than throughput.
+ * Every commit is one transaction; the daemon acknowledges MQTT messages only after it returns.
+ * synchronous = NORMAL in WAL mode makes a commit survive a killed process (the WAL is in the
+ * operating system's hands); a power cut may lose the last commits after their acknowledgements
+ * left, so use synchronous = FULL (option `durable`, an fsync per commit) where power cuts matter
+ * more than throughput.
  *
- * Chunked samples (float64 blobs per channel and flush) cost far less per sample than one row per
+ * Failures: a commit that fails (the disk or max_page_count full, the file locked by another
+ * writer, an I/O error) is rolled back whole and thrown as a PlateauError with code ERR_STORE_FULL,
+ * ERR_STORE_BUSY, ERR_STORE_IO or ERR_STORE_FAILED, the SqliteError as its cause. A locked file is
+ * waited for at most `busyTimeoutMs` (default 100 ms): better-sqlite3 is synchronous, so a longer
+ * wait would stall the daemon; the commit cycle retries with backoff instead.
+ *
+ * Channels are addressed by name; their row ids stay inside this class (cached from the channels
+ * table, and extended only once the transaction that inserted them has committed).
+ *
+ * Chunked samples (float64 blobs per channel and commit) cost far less per sample than one row per
  * sample (bench/e2e.js measures both).
  */
-export interface ChunkToWrite {
-  channelId: number;
-  firstSeq: number;
-  times: Float64Array;
-  values: Float64Array;
+export interface SqliteStoreOptions {
+  /** synchronous = FULL: an fsync per commit. */
+  durable?: boolean;
+  /** Longest wait for a lock held by another connection (ms). */
+  busyTimeoutMs?: number;
+  /**
+   * Called inside every commit's transaction after its rows are written, before COMMIT: throwing
+   * from it rolls the real transaction back (fault injection in tests).
+   */
+  inTransaction?: () => void;
 }
 
-export interface EventToWrite {
-  timeMs: number;
-  source: string;
-  kind: string;
-  at: number | null;
-  body: unknown;
-}
-
-export interface CheckpointToWrite {
-  channelId: number;
-  seq: number;
-  state: unknown;
-}
-
-export interface FlushBatch {
-  chunks: ChunkToWrite[];
-  events: EventToWrite[];
-  checkpoints: CheckpointToWrite[];
-  marks: { channelId: number; seq: number; kind: string }[];
-  testPoints: { id: string; body: unknown }[];
-  records: { testPointId: string; body: unknown }[];
-  counters: Record<string, number>;
-}
-
-export interface StoredChannel {
-  id: number;
-  name: string;
-  unit: string | null;
-}
-
-export class SqliteStore {
-  readonly path: string;
+export class SqliteStore implements Store {
+  readonly location: string;
   private readonly db: Database.Database;
   private readonly statements;
+  private readonly ids = new Map<string, number>();
+  private readonly inTransaction: (() => void) | null;
 
-  constructor(path: string, options: { durable?: boolean } = {}) {
-    this.path = path;
-    this.db = new Database(path);
+  constructor(path: string, options: SqliteStoreOptions = {}) {
+    this.location = path;
+    this.inTransaction = options.inTransaction ?? null;
+    this.db = new Database(path, { timeout: options.busyTimeoutMs ?? 100 });
     this.db.pragma('journal_mode = WAL');
     this.db.pragma(`synchronous = ${options.durable ? 'FULL' : 'NORMAL'}`);
     this.db.pragma('foreign_keys = ON');
     this.migrate();
     this.statements = {
       insertChannel: this.db.prepare('INSERT INTO channels (name, unit, created_ms) VALUES (?, ?, ?)'),
-      setUnit: this.db.prepare('UPDATE channels SET unit = ? WHERE id = ?'),
       channels: this.db.prepare('SELECT id, name, unit FROM channels ORDER BY id'),
-      insertChunk: this.db.prepare('INSERT INTO sample_chunks (channel_id, first_seq, count, first_ms, last_ms, times, vals) VALUES (?, ?, ?, ?, ?, ?, ?)'),
-      chunksFrom: this.db.prepare('SELECT first_seq, count, times, vals FROM sample_chunks WHERE channel_id = ? AND first_seq + count > ? ORDER BY first_seq'),
-      sampleCount: this.db.prepare('SELECT COALESCE(MAX(first_seq + count), 0) AS n FROM sample_chunks WHERE channel_id = ?'),
+      insertChunk: this.db.prepare('INSERT INTO sample_chunks (channel_id, first_seq, count, first_ms, last_ms, times, vals, unstamped) VALUES (?, ?, ?, ?, ?, ?, ?, ?)'),
+      chunksFrom: this.db.prepare('SELECT first_seq, count, times, vals, unstamped FROM sample_chunks WHERE channel_id = ? AND first_seq + count > ? ORDER BY first_seq'),
       putCheckpoint: this.db.prepare('INSERT INTO checkpoints (channel_id, seq, created_ms, state) VALUES (?, ?, ?, ?) ON CONFLICT(channel_id) DO UPDATE SET seq = excluded.seq, created_ms = excluded.created_ms, state = excluded.state'),
       checkpoint: this.db.prepare('SELECT seq, state FROM checkpoints WHERE channel_id = ?'),
       insertMark: this.db.prepare('INSERT OR IGNORE INTO marks (channel_id, seq, kind) VALUES (?, ?, ?)'),
@@ -88,16 +75,17 @@ export class SqliteStore {
       records: this.db.prepare('SELECT id, created_ms, body FROM records WHERE test_point_id = ? ORDER BY id'),
       putCounter: this.db.prepare('INSERT INTO counters (key, value) VALUES (?, ?) ON CONFLICT(key) DO UPDATE SET value = excluded.value'),
       counters: this.db.prepare('SELECT key, value FROM counters'),
+      putPosition: this.db.prepare('INSERT INTO source_positions (source, sequence, updated_ms) VALUES (?, ?, ?) ON CONFLICT(source) DO UPDATE SET sequence = excluded.sequence, updated_ms = excluded.updated_ms'),
+      position: this.db.prepare('SELECT sequence FROM source_positions WHERE source = ?'),
       pruneChunks: this.db.prepare(`DELETE FROM sample_chunks WHERE last_ms < ? AND first_seq + count <= COALESCE((SELECT seq FROM checkpoints WHERE checkpoints.channel_id = sample_chunks.channel_id), 0)`),
       pruneEvents: this.db.prepare('DELETE FROM events WHERE time_ms < ?'),
     };
+    for (const row of this.statements.channels.all() as { id: number; name: string }[]) this.ids.set(row.name, row.id);
   }
 
   private migrate(): void {
     const version = this.db.pragma('user_version', { simple: true }) as number;
-    if (version > MIGRATIONS.length) {
-      throw Object.assign(new Error(`${this.path}: database schema version ${version} is newer than this plateau knows (${MIGRATIONS.length})`), { code: 'ERR_STORE_SCHEMA_VERSION' });
-    }
+    if (version > MIGRATIONS.length) throw new PlateauError('ERR_STORE_SCHEMA_VERSION', { location: this.location, version, known: MIGRATIONS.length });
     for (let v = version; v < MIGRATIONS.length; v++) {
       this.db.transaction(() => {
         this.db.exec(MIGRATIONS[v] as string);
@@ -106,54 +94,72 @@ export class SqliteStore {
     }
   }
 
+  /** Runs a PRAGMA on the store's own connection (operators and tests: max_page_count, cache_size). */
+  pragma(statement: string): unknown {
+    return this.db.pragma(statement, { simple: true });
+  }
+
   channels(): StoredChannel[] {
-    return this.statements.channels.all() as StoredChannel[];
+    return (this.statements.channels.all() as { name: string; unit: string | null }[]).map((row) => ({ name: row.name, unit: row.unit }));
   }
 
-  addChannel(name: string, unit: string | null, nowMs: number): number {
-    return Number(this.statements.insertChannel.run(name, unit, nowMs).lastInsertRowid);
-  }
-
-  setUnit(channelId: number, unit: string): void {
-    this.statements.setUnit.run(unit, channelId);
-  }
-
-  /** Writes one flush atomically. */
-  commit(batch: FlushBatch, nowMs: number): void {
+  /** Writes one batch atomically; see the port's contract. */
+  commit(batch: CommitBatch, nowMs: number): CommitResult {
     const s = this.statements;
-    this.db.transaction(() => {
-      for (const chunk of batch.chunks) {
-        const n = chunk.values.length;
-        if (n === 0) continue;
-        s.insertChunk.run(chunk.channelId, chunk.firstSeq, n, chunk.times[0], chunk.times[n - 1], toBlob(chunk.times), toBlob(chunk.values));
-      }
-      for (const mark of batch.marks) s.insertMark.run(mark.channelId, mark.seq, mark.kind);
-      for (const event of batch.events) s.insertEvent.run(event.timeMs, event.source, event.kind, event.at, JSON.stringify(event.body));
-      for (const checkpoint of batch.checkpoints) s.putCheckpoint.run(checkpoint.channelId, checkpoint.seq, nowMs, serialize(checkpoint.state));
-      for (const point of batch.testPoints) s.putTestPoint.run(point.id, JSON.stringify(point.body), nowMs);
-      for (const record of batch.records) s.insertRecord.run(record.testPointId, nowMs, JSON.stringify(record.body));
-      for (const [key, value] of Object.entries(batch.counters)) s.putCounter.run(key, value);
-    })();
+    const created = new Map<string, number>();
+    const idOf = (name: string, unit: string | null = null): number => {
+      const known = this.ids.get(name) ?? created.get(name);
+      if (known !== undefined) return known;
+      const id = Number(s.insertChannel.run(name, unit, nowMs).lastInsertRowid);
+      created.set(name, id);
+      return id;
+    };
+    const events: StoredEvent[] = [];
+    try {
+      this.db.transaction(() => {
+        for (const channel of batch.channels) idOf(channel.name, channel.unit);
+        for (const chunk of batch.chunks) {
+          const n = chunk.values.length;
+          if (n === 0) continue;
+          s.insertChunk.run(idOf(chunk.channel), chunk.firstSeq, n, chunk.times[0], chunk.times[n - 1], toBlob(chunk.times), toBlob(chunk.values), chunk.unstamped === null ? null : Buffer.from(chunk.unstamped.buffer, chunk.unstamped.byteOffset, chunk.unstamped.byteLength));
+        }
+        for (const mark of batch.marks) s.insertMark.run(idOf(mark.channel), mark.seq, mark.kind);
+        for (const event of batch.events) {
+          const id = Number(s.insertEvent.run(event.timeMs, event.source, event.kind, event.at, JSON.stringify(event.body)).lastInsertRowid);
+          events.push({ id, ...event });
+        }
+        for (const checkpoint of batch.checkpoints) s.putCheckpoint.run(idOf(checkpoint.channel), checkpoint.seq, nowMs, serialize(checkpoint.state));
+        for (const point of batch.testPoints) s.putTestPoint.run(point.id, JSON.stringify(point.body), nowMs);
+        for (const record of batch.records) s.insertRecord.run(record.testPointId, nowMs, JSON.stringify(record.body));
+        for (const [key, value] of Object.entries(batch.counters)) s.putCounter.run(key, value);
+        for (const position of batch.positions) if (position.durable) s.putPosition.run(position.source, position.sequence, nowMs);
+        this.inTransaction?.();
+      })();
+    } catch (error) {
+      throw this.translate(error);
+    }
+    for (const [name, id] of created) this.ids.set(name, id);
+    return { events };
   }
 
-  checkpoint(channelId: number): { seq: number; state: unknown } | null {
-    const row = this.statements.checkpoint.get(channelId) as { seq: number; state: Buffer } | undefined;
+  checkpoint(channel: string): { seq: number; state: unknown } | null {
+    const id = this.ids.get(channel);
+    if (id === undefined) return null;
+    const row = this.statements.checkpoint.get(id) as { seq: number; state: Buffer } | undefined;
     return row ? { seq: row.seq, state: deserialize(row.state) } : null;
   }
 
-  /** Samples of a channel from `fromSeq` on, in order, chunk by chunk. */
-  *samplesFrom(channelId: number, fromSeq: number): Generator<{ firstSeq: number; times: Float64Array; values: Float64Array }> {
-    for (const row of this.statements.chunksFrom.iterate(channelId, fromSeq) as Iterable<{ first_seq: number; count: number; times: Buffer; vals: Buffer }>) {
-      yield { firstSeq: row.first_seq, times: fromBlob(row.times), values: fromBlob(row.vals) };
+  *samplesFrom(channel: string, fromSeq: number): Generator<SampleChunk> {
+    const id = this.ids.get(channel);
+    if (id === undefined) return;
+    for (const row of this.statements.chunksFrom.iterate(id, fromSeq) as Iterable<{ first_seq: number; times: Buffer; vals: Buffer; unstamped: Buffer | null }>) {
+      yield { channel, firstSeq: row.first_seq, times: fromBlob(row.times), values: fromBlob(row.vals), unstamped: row.unstamped === null ? null : new Uint8Array(row.unstamped) };
     }
   }
 
-  sampleCount(channelId: number): number {
-    return (this.statements.sampleCount.get(channelId) as { n: number }).n;
-  }
-
-  marksFrom(channelId: number, fromSeq: number): { seq: number; kind: string }[] {
-    return this.statements.marksFrom.all(channelId, fromSeq) as { seq: number; kind: string }[];
+  marksFrom(channel: string, fromSeq: number): { seq: number; kind: string }[] {
+    const id = this.ids.get(channel);
+    return id === undefined ? [] : (this.statements.marksFrom.all(id, fromSeq) as { seq: number; kind: string }[]);
   }
 
   eventsAfter(id: number, limit: number): StoredEvent[] {
@@ -177,7 +183,7 @@ export class SqliteStore {
     return (this.statements.testPoints.all() as { body: string }[]).map((row) => JSON.parse(row.body));
   }
 
-  records(testPointId: string): { id: number; createdMs: number; body: unknown }[] {
+  records(testPointId: string): StoredRecord[] {
     return (this.statements.records.all(testPointId) as { id: number; created_ms: number; body: string }[]).map((row) => ({ id: row.id, createdMs: row.created_ms, body: JSON.parse(row.body) }));
   }
 
@@ -187,20 +193,28 @@ export class SqliteStore {
     return out;
   }
 
-  /** Deletes samples and events older than `beforeMs`, except samples a checkpoint still needs. */
+  position(source: string): SourcePosition | null {
+    const row = this.statements.position.get(source) as { sequence: number } | undefined;
+    return row ? { source, sequence: row.sequence, durable: true } : null;
+  }
+
   prune(beforeMs: number): { chunks: number; events: number } {
-    const chunks = this.statements.pruneChunks.run(beforeMs).changes;
-    const events = this.statements.pruneEvents.run(beforeMs).changes;
-    return { chunks, events };
+    try {
+      const chunks = this.statements.pruneChunks.run(beforeMs).changes;
+      const events = this.statements.pruneEvents.run(beforeMs).changes;
+      return { chunks, events };
+    } catch (error) {
+      throw this.translate(error);
+    }
   }
 
   /** Bytes on disk: the database and its WAL. */
   sizeBytes(): number {
-    if (this.path === ':memory:') return 0;
+    if (this.location === ':memory:') return 0;
     let total = 0;
     for (const suffix of ['', '-wal', '-shm']) {
       try {
-        total += statSync(this.path + suffix).size;
+        total += statSync(this.location + suffix).size;
       } catch {
         // not there
       }
@@ -211,15 +225,18 @@ export class SqliteStore {
   close(): void {
     this.db.close();
   }
-}
 
-export interface StoredEvent {
-  id: number;
-  timeMs: number;
-  source: string;
-  kind: string;
-  at: number | null;
-  body: Record<string, unknown>;
+  /** A SqliteError (or anything thrown inside a transaction) as a catalogue error, the original as its cause. */
+  private translate(error: unknown): PlateauError {
+    if (error instanceof PlateauError) return error;
+    const sqliteCode = typeof (error as { code?: unknown }).code === 'string' ? ((error as { code: string }).code) : '';
+    let code: ErrorCode = 'ERR_STORE_FAILED';
+    if (sqliteCode === 'SQLITE_FULL') code = 'ERR_STORE_FULL';
+    else if (sqliteCode.startsWith('SQLITE_BUSY') || sqliteCode.startsWith('SQLITE_LOCKED')) code = 'ERR_STORE_BUSY';
+    else if (sqliteCode.startsWith('SQLITE_IOERR') || sqliteCode.startsWith('SQLITE_READONLY') || sqliteCode.startsWith('SQLITE_CANTOPEN') || sqliteCode.startsWith('SQLITE_CORRUPT')) code = 'ERR_STORE_IO';
+    const message = (error as Error).message ?? String(error);
+    return new PlateauError(code, { location: this.location, detail: sqliteCode ? `${sqliteCode}: ${message}` : message }, { cause: error });
+  }
 }
 
 interface RawEvent {

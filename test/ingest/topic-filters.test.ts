@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { brokerFilters, filterCovers, topicMatches } from '../../src/ingest/mqtt-ingest.js';
+import { brokerFilters, filterCovers, topicMatches } from '../../src/ingest/topic-filters.js';
 
 // MQTT topic filter semantics (OASIS MQTT 3.1.1, section 4.7: + matches one level, # the rest,
 // wildcards do not match topics starting with $).

@@ -1,10 +1,10 @@
-import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { describe, expect, it } from 'vitest';
 import { mkdtempSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { startEmbeddedBroker, type EmbeddedBroker } from '../../src/ingest/embedded-broker.js';
-import { Daemon, type PublishedEvent } from '../../src/daemon/daemon.js';
-import type { PlateauConfig, SubscriptionConfig } from '../../src/config/plateau-config.js';
+import { Daemon, daemonSubscriptions, type PublishedEvent } from '../../src/daemon/daemon.js';
+import { MemorySampleSource } from '../../src/ingest/memory-sample-source.js';
+import type { PlateauConfig } from '../../src/config/plateau-config.js';
 import { SeededRandom } from '../../src/core/random/seeded-random.js';
 import type { DerivedReportEntry } from '../../src/engine/derived/derived-record.js';
 import type { TestPointRecord } from '../../src/engine/test-point-record.js';
@@ -12,26 +12,18 @@ import { testConfig } from '../helpers/daemon-config.js';
 import { unique } from '../helpers/brokers.js';
 import { correlatedRows } from '../engine/derived/correlated-channels.js';
 
-// The daemon end to end with a derived result: samples go in through Daemon.onMessage (the path of
-// an MQTT message after the broker), test points, records, events and a restart on the same SQLite
-// file. The embedded broker only lets start() connect.
+// The daemon end to end with a derived result: samples go in through an in-memory sample source
+// (the path of an MQTT message after the broker), test points, records, events and a restart on
+// the same SQLite file.
 
 const T0 = 1_764_000_000;
 const NAMES = ['rig.a', 'rig.b', 'rig.c'];
 const STEPS = 4000;
 const COLUMNS = correlatedRows(new SeededRandom(5), STEPS);
 
-let broker: EmbeddedBroker;
-beforeAll(async () => {
-  broker = await startEmbeddedBroker({ port: 0 });
-});
-afterAll(async () => {
-  await broker.close();
-});
-
 function makeConfig(store: string, prefix: string): PlateauConfig {
   return testConfig({
-    url: broker.url,
+    url: 'mqtt://127.0.0.1:9',
     prefix,
     clientId: unique('plateau'),
     store,
@@ -41,18 +33,23 @@ function makeConfig(store: string, prefix: string): PlateauConfig {
   });
 }
 
-/** Feeds steps [from, to) of the three channels, one message per sample, and flushes every 50 steps. */
-function feed(daemon: Daemon, prefix: string, from: number, to: number, onFlush: (step: number) => void = () => {}): void {
-  const subscription = daemon.config.subscriptions[0] as SubscriptionConfig;
+/** A daemon fed from memory: returns it with its source. */
+function makeDaemon(config: PlateauConfig): { daemon: Daemon; source: MemorySampleSource } {
+  const source = new MemorySampleSource(daemonSubscriptions(config));
+  return { daemon: new Daemon(config, { source }), source };
+}
+
+/** Feeds steps [from, to) of the three channels, one message per sample, and commits every 50 steps. */
+function feed(daemon: Daemon, source: MemorySampleSource, prefix: string, from: number, to: number, onCommit: (step: number) => void = () => {}): void {
   for (let i = from; i < to; i++) {
     const t = T0 + i * 0.1;
-    NAMES.forEach((name, c) => daemon.onMessage(`${prefix}/${name}`, Buffer.from(JSON.stringify({ v: (COLUMNS[c] as Float64Array)[i], t })), subscription));
+    NAMES.forEach((name, c) => source.publish(`${prefix}/${name}`, JSON.stringify({ v: (COLUMNS[c] as Float64Array)[i], t })));
     if (i % 50 === 49) {
-      daemon.flush(false);
-      onFlush(i);
+      daemon.commitNow();
+      onCommit(i);
     }
   }
-  daemon.flush(false);
+  daemon.commitNow();
 }
 
 describe('derived results in the daemon', () => {
@@ -60,7 +57,7 @@ describe('derived results in the daemon', () => {
     const prefix = unique('derived');
     const store = join(mkdtempSync(join(tmpdir(), 'plateau-derived-')), 'state.sqlite');
     const config = makeConfig(store, prefix);
-    const daemon = new Daemon(config, {});
+    const { daemon, source } = makeDaemon(config);
     await daemon.start();
     const events: PublishedEvent[] = [];
     daemon.onEvent((e) => events.push(e));
@@ -68,7 +65,7 @@ describe('derived results in the daemon', () => {
     let channelsPrecise = -1;
     let derivedAtTarget = -1;
     let ready = -1;
-    feed(daemon, prefix, 0, STEPS, (step) => {
+    feed(daemon, source, prefix, 0, STEPS, (step) => {
       if (channelsPrecise < 0 && NAMES.every((n) => daemon.registry.get(n)?.pipeline.state === 'precise')) channelsPrecise = step;
       if (derivedAtTarget < 0 && daemon.derived.atTarget('rig.q') === true) derivedAtTarget = step;
       if (ready < 0 && daemon.testPoints.get('tp-q')?.state === 'ready') ready = step;
@@ -100,12 +97,12 @@ describe('derived results in the daemon', () => {
     // the derived result from them, identical.
     const before = daemon.derived.snapshots();
     await daemon.stop();
-    const again = new Daemon(makeConfig(store, prefix), {});
+    const { daemon: again } = makeDaemon(makeConfig(store, prefix));
     await again.start();
     const republished: PublishedEvent[] = [];
     again.onEvent((e) => republished.push(e));
     expect(again.derived.snapshots()).toEqual(before);
-    again.flush(false);
+    again.commitNow();
     expect(republished.filter((e) => e.kind === 'precision-reached')).toHaveLength(0);
     await again.stop();
   }, 60_000);
@@ -113,17 +110,17 @@ describe('derived results in the daemon', () => {
   it('after a crash (no final checkpoint), the replay of the stored samples rebuilds the same derived result', async () => {
     const prefix = unique('derived-crash');
     const store = join(mkdtempSync(join(tmpdir(), 'plateau-derived-')), 'state.sqlite');
-    const daemon = new Daemon(makeConfig(store, prefix), {});
+    const { daemon, source } = makeDaemon(makeConfig(store, prefix));
     await daemon.start();
-    feed(daemon, prefix, 0, 300);
+    feed(daemon, source, prefix, 0, 300);
     daemon.startTestPoint({ id: 'tp-crash', channels: NAMES, derived: ['rig.q'] });
-    feed(daemon, prefix, 300, 2300);
+    feed(daemon, source, prefix, 300, 2300);
     const before = daemon.derived.snapshots();
     expect(before[0]?.ready).toBe(true);
-    // Crash: the last commit is durable, nothing else happens (no final flush, no checkpoints).
-    await daemon.ingest?.stop();
+    // Crash: the last commit is durable, nothing else happens (no final commit, no checkpoints).
+    await source.stop();
     daemon.store.close();
-    const again = new Daemon(makeConfig(store, prefix), {});
+    const { daemon: again } = makeDaemon(makeConfig(store, prefix));
     await again.start();
     expect(again.counters.restoredSamples).toBe(3 * 2300);
     expect(again.derived.snapshots()).toEqual(before);

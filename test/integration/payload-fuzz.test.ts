@@ -2,7 +2,8 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import fc from 'fast-check';
 import { startEmbeddedBroker, type EmbeddedBroker } from '../../src/ingest/embedded-broker.js';
 import { decodePayload, DECODER_DEFAULTS } from '../../src/ingest/payload-decoder.js';
-import { Daemon } from '../../src/daemon/daemon.js';
+import { Daemon, daemonSubscriptions } from '../../src/daemon/daemon.js';
+import { MemorySampleSource } from '../../src/ingest/memory-sample-source.js';
 import { assertNoNonFinite } from '../helpers/cli.js';
 import { mqttClient, publishAsync, unique, waitFor } from '../helpers/brokers.js';
 import { testConfig } from '../helpers/daemon-config.js';
@@ -54,10 +55,11 @@ describe('fuzzing the decoder and the daemon', () => {
 
   it('100,000 mixed payloads through a running daemon: valid samples counted once, no NaN anywhere', async () => {
     const prefix = unique('fuzz');
-    const daemon = new Daemon(testConfig({ url: broker.url, prefix, clientId: unique('plateau-fuzz') }));
-    await daemon.start();
-    await waitFor(() => daemon.ingest?.connected === true, 5000, 'the daemon to connect');
-    const subscription = daemon.config.subscriptions[0] as (typeof daemon.config.subscriptions)[number];
+    // First in the same process, through an in-memory source (as MQTT would deliver them).
+    const config = testConfig({ url: broker.url, prefix, clientId: unique('plateau-fuzz') });
+    const source = new MemorySampleSource(daemonSubscriptions(config));
+    const local = new Daemon(config, { source });
+    await local.start();
     const payloads = fc.sample(hostile, { numRuns: 90_000, seed: 7 });
     let valid = 0;
     let t = 1_764_400_000;
@@ -65,29 +67,36 @@ describe('fuzzing the decoder and the daemon', () => {
       if (i % 10 === 0) {
         // A valid sample on its own channel, time strictly increasing: each must be counted once.
         t += 0.01;
-        daemon.onMessage(`${prefix}/good_${i % 3}`, Buffer.from(JSON.stringify({ v: 5 + Math.sin(i), t })), subscription);
+        source.publish(`${prefix}/good_${i % 3}`, JSON.stringify({ v: 5 + Math.sin(i), t }));
         valid++;
         // And the same message again, as a redelivery: a duplicate, not a second sample.
-        if (i % 30 === 0) daemon.onMessage(`${prefix}/good_${i % 3}`, Buffer.from(JSON.stringify({ v: 5 + Math.sin(i), t })), subscription);
+        if (i % 30 === 0) source.publish(`${prefix}/good_${i % 3}`, JSON.stringify({ v: 5 + Math.sin(i), t }));
       } else {
-        daemon.onMessage(`${prefix}/noise_${i % 7}`, payloads[i - Math.floor(i / 10) - 1] as Buffer, subscription);
+        source.publish(`${prefix}/noise_${i % 7}`, payloads[i - Math.floor(i / 10) - 1] as Buffer);
       }
+      if (i % 1000 === 999) local.commitNow();
     }
-    daemon.flush(false);
+    local.commitNow();
     let good = 0;
-    for (let c = 0; c < 3; c++) good += daemon.registry.get(`good_${c}`)?.pipeline.totalReceived ?? 0;
+    for (let c = 0; c < 3; c++) good += local.registry.get(`good_${c}`)?.pipeline.totalReceived ?? 0;
     expect(good).toBe(valid);
-    expect(daemon.counters.rejected.duplicate).toBeGreaterThanOrEqual(Math.floor(valid / 3));
-    for (const channel of daemon.registry.all()) {
+    expect(local.counters.rejected.duplicate).toBeGreaterThanOrEqual(Math.floor(valid / 3));
+    for (const channel of local.registry.all()) {
       const snapshot = JSON.parse(JSON.stringify(channel.pipeline.snapshot()));
       assertNoNonFinite(snapshot, channel.name);
       expect(Number.isFinite(channel.pipeline.series.mean) || channel.pipeline.count === 0).toBe(true);
     }
+    expect(source.unacknowledgedMessages).toBe(0);
+    await local.stop();
     // And over MQTT for real: 5000 of them through the broker.
+    const daemon = new Daemon(testConfig({ url: broker.url, prefix: `${prefix}-wire`, clientId: unique('plateau-fuzz') }));
+    await daemon.start();
+    await waitFor(() => daemon.ingest?.connected === true, 5000, 'the daemon to connect');
+    await new Promise((resolve) => setTimeout(resolve, 200));
     const publisher = await mqttClient(broker.url, unique('fuzz-pub'));
     const before = daemon.counters.messages;
     for (let i = 0; i < 5000; i++) {
-      void publishAsync(publisher, `${prefix}/wire_${i % 5}`, payloads[i] as Buffer, 1);
+      void publishAsync(publisher, `${prefix}-wire/wire_${i % 5}`, payloads[i] as Buffer, 1);
       if (i % 500 === 499) await waitFor(() => daemon.counters.messages - before >= i - 600, 10_000, 'the daemon to keep up');
     }
     await waitFor(() => daemon.counters.messages - before >= 5000, 20_000, 'every message over MQTT');

@@ -47,16 +47,16 @@ function feedSteady(target: TestDaemon, fromSeconds: number, seconds: number, ra
     target.publishRaw('rig/hx7/glycol_flow_kg_s', JSON.stringify({ v: 0.82 + 0.002 * random.normal(), t: time }));
     target.publishRaw('rig/hx7/glycol_in_degC', JSON.stringify({ v: 40 + common + 0.01 * random.normal(), t: time }));
     target.publishRaw('rig/hx7/glycol_out_degC', JSON.stringify({ v: 35 + common + 0.01 * random.normal(), t: time }));
-    if (i % 50 === 49) target.daemon.flush(false);
+    if (i % 50 === 49) target.daemon.commitNow();
   }
-  target.daemon.flush(false);
+  target.daemon.commitNow();
 }
 
-beforeAll(() => {
-  rig = makeTestDaemon();
+beforeAll(async () => {
+  rig = await makeTestDaemon();
   rig.feedRig(60);
   rigApp = buildHttpApp(rig.daemon, { token: null, maxBodyBytes: 4096 });
-  steady = makeTestDaemon();
+  steady = await makeTestDaemon();
   feedSteady(steady, 0, 30, new SeededRandom(3));
   steadyApp = buildHttpApp(steady.daemon, { token: null, maxBodyBytes: 4096 });
 });

@@ -32,8 +32,8 @@ function expectRefusal(result: { status: number; body: Record<string, unknown> |
   if (code) expect(result.body?.error).toBe(code);
 }
 
-beforeAll(() => {
-  t = makeTestDaemon();
+beforeAll(async () => {
+  t = await makeTestDaemon();
   t.feedRig(60);
   app = buildHttpApp(t.daemon, { token: null, maxBodyBytes: 4096 });
 });
@@ -44,10 +44,10 @@ afterAll(async () => {
 });
 
 describe('GET /healthz, /api/server, /api/counters', () => {
-  it('health says degraded without a broker and counts the channels', async () => {
+  it('health says ok while the source is connected and commits succeed, and counts the channels', async () => {
     const r = await call({ method: 'GET', url: '/healthz' });
     expect(r.status).toBe(200);
-    expect(r.body).toEqual({ status: 'degraded', broker: 'disconnected', channels: 6 });
+    expect(r.body).toEqual({ status: 'ok', broker: 'connected', store: 'ok', channels: 6 });
     expect(r.headers['cache-control']).toBe('no-store');
     expect(r.headers['x-content-type-options']).toBe('nosniff');
   });
@@ -124,7 +124,7 @@ describe('GET /api/channels/:name', () => {
   });
 
   it('a young window is completed from the store, with the warm-up cut marked', async () => {
-    const local = makeTestDaemon({ seed: 11 });
+    const local = await makeTestDaemon({ seed: 11 });
     try {
       local.feedRig(30);
       const localApp = buildHttpApp(local.daemon, { token: null, maxBodyBytes: 4096 });

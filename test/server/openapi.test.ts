@@ -12,7 +12,7 @@ let t: TestDaemon;
 let app: FastifyInstance;
 
 beforeAll(async () => {
-  t = makeTestDaemon();
+  t = await makeTestDaemon();
   app = buildHttpApp(t.daemon, { token: 'openapi-test-token-000', maxBodyBytes: 4096 });
   await app.ready();
 });

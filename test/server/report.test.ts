@@ -1,6 +1,5 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { renderReport } from '../../src/server/report.js';
-import { channelTrace } from '../../src/server/channel-trace.js';
 import { svgChart } from '../../src/server/svg-chart.js';
 import { gumStatement } from '../../src/engine/test-point-record.js';
 import { makeTestDaemon, RIG_START_SECONDS, type TestDaemon } from './harness.js';
@@ -10,12 +9,12 @@ import { makeTestDaemon, RIG_START_SECONDS, type TestDaemon } from './harness.js
 
 let t: TestDaemon;
 
-beforeAll(() => {
-  t = makeTestDaemon();
+beforeAll(async () => {
+  t = await makeTestDaemon();
   t.feedRig(30);
   // A unit with markup, as a SenML pack may carry one.
-  t.publishRaw('rig/hx7/senml', JSON.stringify([{ bn: 'hx7.', bt: RIG_START_SECONDS + 31, bu: '<img src=x onerror=alert(1)>', n: 'probe_unit', v: 1 }, { n: 'probe_unit', t: 1, v: 2 }, { n: 'probe_unit', t: 2, v: 1.5 }]), 'senml');
-  t.daemon.flush(false);
+  t.publishRaw('rig/hx7/senml', JSON.stringify([{ bn: 'hx7.', bt: RIG_START_SECONDS + 31, bu: '<img src=x onerror=alert(1)>', n: 'probe_unit', v: 1 }, { n: 'probe_unit', t: 1, v: 2 }, { n: 'probe_unit', t: 2, v: 1.5 }]));
+  t.daemon.commitNow();
 });
 
 afterAll(async () => t.close());
@@ -31,7 +30,7 @@ function reportFor(id: string): string {
     record,
     generatedMs: RIG_START_SECONDS * 1000,
     version: '0.1.0',
-    channels: channels.map((c) => ({ name: c.name, unit: c.unit, snapshot: c.pipeline.snapshot(), trace: channelTrace(t.daemon, c, 4000), cusum: c.pipeline.cusumTrace() })),
+    channels: channels.map((c) => ({ name: c.name, unit: c.unit, snapshot: c.pipeline.snapshot(), trace: (t.daemon.channel(c.name) as NonNullable<ReturnType<typeof t.daemon.channel>>).trace(4000), cusum: c.pipeline.cusumTrace() })),
   });
 }
 

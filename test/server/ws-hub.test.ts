@@ -2,7 +2,6 @@ import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import { createServer, type Server } from 'node:http';
 import { WebSocket } from 'ws';
 import { WsHub, type HubSocket, type WsHubOptions } from '../../src/server/ws-hub.js';
-import { liveDerived } from '../../src/server/derived-live.js';
 import { makeTestDaemon, RIG_START_SECONDS, type TestDaemon } from './harness.js';
 
 // The WebSocket hub with real ws clients on loopback, and with stand-in sockets whose send buffer
@@ -17,8 +16,8 @@ let t: TestDaemon;
 const servers: { server: Server; hub: WsHub }[] = [];
 const sockets: WebSocket[] = [];
 
-beforeAll(() => {
-  t = makeTestDaemon();
+beforeAll(async () => {
+  t = await makeTestDaemon();
   t.feedRig(60);
 });
 
@@ -175,7 +174,7 @@ describe('WsHub with ws clients', () => {
     expect(duty.budget.map((b) => b.channel)).toEqual(duty.inputs);
     expect(duty.statement).toMatch(/^hx7\.heat_duty_kW = \(/);
     // Nothing was fed since the hello: the same result as the HTTP API's.
-    expect(hello.derived).toEqual(JSON.parse(JSON.stringify(liveDerived(t.daemon))));
+    expect(hello.derived).toEqual(JSON.parse(JSON.stringify(t.daemon.derivedResults())));
   });
 
   it('derived results are updated in their own message, throttled like the channels, only when they changed', async () => {

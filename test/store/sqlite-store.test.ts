@@ -5,10 +5,12 @@ import { join } from 'node:path';
 import Database from 'better-sqlite3';
 import { SqliteStore } from '../../src/store/sqlite-store.js';
 import { MIGRATIONS } from '../../src/store/migrations.js';
+import { emptyBatch } from '../contract/store.contract.js';
 
-function emptyBatch() {
-  return { chunks: [], events: [], checkpoints: [], marks: [], testPoints: [], records: [], counters: {} };
-}
+// What only the SQLite store has: schema migrations, and SQLite's failures as catalogue errors.
+// The port's contract is in test/contract/store.test.ts.
+
+const sampleChunk = (firstSeq: number, count: number) => ({ channel: 'c', firstSeq, times: Float64Array.from({ length: count }, (_, i) => 1.79e12 + firstSeq + i), values: new Float64Array(count).fill(1), unstamped: null });
 
 describe('SqliteStore', () => {
   it('migrates a new file to the current schema version and refuses a newer one', () => {
@@ -19,53 +21,49 @@ describe('SqliteStore', () => {
     expect(db.pragma('journal_mode', { simple: true })).toBe('wal');
     db.pragma(`user_version = ${MIGRATIONS.length + 1}`);
     db.close();
-    expect(() => new SqliteStore(path)).toThrow(/schema version \d+ is newer than this plateau knows/);
+    expect(() => new SqliteStore(path)).toThrow(expect.objectContaining({ code: 'ERR_STORE_SCHEMA_VERSION', message: expect.stringMatching(/schema version \d+ is newer than this plateau knows/) }));
   });
 
-  it('stores samples in chunks and reads them back exactly, from any sample on', () => {
-    const store = new SqliteStore(':memory:');
-    const id = store.addChannel('bath_degC', 'degC', 0);
-    const times = Float64Array.from({ length: 10 }, (_, i) => 1.7e12 + i * 100.5);
-    const values = Float64Array.from({ length: 10 }, (_, i) => 60 + Math.sin(i) * 1e-3);
-    store.commit({ ...emptyBatch(), chunks: [{ channelId: id, firstSeq: 0, times: times.subarray(0, 6), values: values.subarray(0, 6) }] }, 0);
-    store.commit({ ...emptyBatch(), chunks: [{ channelId: id, firstSeq: 6, times: times.subarray(6), values: values.subarray(6) }] }, 0);
-    const back: number[] = [];
-    for (const chunk of store.samplesFrom(id, 4)) back.push(...Array.from(chunk.values).slice(Math.max(0, 4 - chunk.firstSeq)));
-    expect(back).toEqual(Array.from(values.subarray(4)));
-    expect(store.sampleCount(id)).toBe(10);
+  it('a file of schema version 1 gains the columns and table of version 2 and keeps its samples', () => {
+    const path = join(mkdtempSync(join(tmpdir(), 'plateau-store-')), 's.sqlite');
+    const db = new Database(path);
+    db.exec(MIGRATIONS[0] as string);
+    db.pragma('user_version = 1');
+    db.prepare('INSERT INTO channels (name, unit, created_ms) VALUES (?, ?, ?)').run('c', 'bar', 0);
+    const times = Float64Array.of(1, 2);
+    const values = Float64Array.of(5, 6);
+    db.prepare('INSERT INTO sample_chunks (channel_id, first_seq, count, first_ms, last_ms, times, vals) VALUES (1, 0, 2, 1, 2, ?, ?)').run(Buffer.from(times.buffer), Buffer.from(values.buffer));
+    db.close();
+    const store = new SqliteStore(path);
+    expect([...store.samplesFrom('c', 0)]).toEqual([{ channel: 'c', firstSeq: 0, times, values, unstamped: null }]);
+    expect(store.position('any')).toBeNull();
     store.close();
   });
 
-  it('retention deletes old samples and events, but never samples a channel still needs to rebuild its state', () => {
-    const store = new SqliteStore(':memory:');
-    const id = store.addChannel('flow', null, 0);
-    const chunk = (first: number, t0: number) => ({ channelId: id, firstSeq: first, times: Float64Array.from({ length: 100 }, (_, i) => t0 + i), values: new Float64Array(100) });
-    store.commit({ ...emptyBatch(), chunks: [chunk(0, 1000), chunk(100, 2000), chunk(200, 3000)], events: [{ timeMs: 1500, source: 'flow', kind: 'steady', at: 5, body: {} }, { timeMs: 3500, source: 'flow', kind: 'stale', at: 250, body: {} }] }, 0);
-    // No checkpoint yet: every sample is still needed for a replay; old events go.
-    expect(store.prune(2500)).toEqual({ chunks: 0, events: 1 });
-    store.commit({ ...emptyBatch(), checkpoints: [{ channelId: id, seq: 200, state: { any: 'state' } }] }, 0);
-    const removed = store.prune(2500);
-    expect(removed.chunks).toBe(2); // the chunks before the checkpoint and older than the horizon
-    expect(store.eventsAfter(0, 10).map((e) => e.kind)).toEqual(['stale']);
-    expect([...store.samplesFrom(id, 0)].map((c) => c.firstSeq)).toEqual([200]);
-    expect(store.checkpoint(id)).toEqual({ seq: 200, state: { any: 'state' } });
-    store.close();
-  });
-
-  it('the newest event id in one look-up, and the events of one kind in id order', () => {
-    const store = new SqliteStore(':memory:');
-    expect(store.lastEventId()).toBe(0);
-    const event = (timeMs: number, kind: string) => ({ timeMs, source: 'flow', kind, at: null, body: { n: timeMs } });
-    store.commit({ ...emptyBatch(), events: [event(1, 'steady'), event(2, 'alert-acknowledged'), event(3, 'stale'), event(4, 'alert-acknowledged')] }, 0);
-    expect(store.lastEventId()).toBe(4);
-    expect(store.eventsOfKind('alert-acknowledged', 0, 10).map((e) => [e.id, e.body.n])).toEqual([[2, 2], [4, 4]]);
-    expect(store.eventsOfKind('alert-acknowledged', 2, 10).map((e) => e.id)).toEqual([4]);
-    expect(store.eventsOfKind('alert-acknowledged', 0, 1).map((e) => e.id)).toEqual([2]);
-    // Retention may empty the table; the ids still never repeat (AUTOINCREMENT).
-    store.prune(10);
-    expect(store.lastEventId()).toBe(0);
-    store.commit({ ...emptyBatch(), events: [event(20, 'steady')] }, 0);
-    expect(store.lastEventId()).toBe(5);
+  it("SQLite's failures are catalogue errors with the SQLite error as their cause: a full file, a locked one", () => {
+    const path = join(mkdtempSync(join(tmpdir(), 'plateau-store-')), 's.sqlite');
+    const store = new SqliteStore(path, { busyTimeoutMs: 10 });
+    store.commit({ ...emptyBatch(), chunks: [sampleChunk(0, 10)] }, 0);
+    store.pragma(`max_page_count = ${store.pragma('page_count') as number}`);
+    const full = (() => {
+      try {
+        store.commit({ ...emptyBatch(), chunks: [sampleChunk(10, 50_000)] }, 0);
+      } catch (error) {
+        return error as Error & { code: string; cause: { code: string } };
+      }
+      return null;
+    })();
+    expect(full?.code).toBe('ERR_STORE_FULL');
+    expect(full?.cause.code).toBe('SQLITE_FULL');
+    expect(full?.message).toMatch(/the database or its disk is full \(SQLITE_FULL: /);
+    store.pragma('max_page_count = 1073741823');
+    const other = new Database(path);
+    other.exec('BEGIN IMMEDIATE');
+    expect(() => store.commit({ ...emptyBatch(), chunks: [sampleChunk(10, 5)] }, 0)).toThrow(expect.objectContaining({ code: 'ERR_STORE_BUSY' }));
+    other.exec('ROLLBACK');
+    other.close();
+    store.commit({ ...emptyBatch(), chunks: [sampleChunk(10, 5)] }, 0);
+    expect([...store.samplesFrom('c', 0)].reduce((n, c) => n + c.values.length, 0)).toBe(15);
     store.close();
   });
 });

@@ -1,3 +1,4 @@
+import { expectRecord, type StateRecord } from '../state/record.js';
 /**
  * Lagged cross-products of a window, for its autocovariance at lags 0..maxLag.
  *
@@ -19,11 +20,14 @@
  */
 export type FrontReader = (i: number) => number;
 
-export interface LaggedProductsState {
+export interface LaggedProductsState extends StateRecord<'lagged-products', 1> {
   committed: Float64Array;
   addBuffer: Float64Array;
   removeBuffer: Float64Array;
-  counters: number[];
+  history: number;
+  pendingAdds: number;
+  pendingRemoves: number;
+  windowLength: number;
 }
 
 export class LaggedProducts {
@@ -95,21 +99,27 @@ export class LaggedProducts {
 
   saveState(): LaggedProductsState {
     return {
+      record: 'lagged-products',
+      version: 1,
       committed: this.committed.slice(),
       addBuffer: this.addBuffer.slice(),
       removeBuffer: this.removeBuffer.slice(),
-      counters: [this.history, this.pendingAdds, this.pendingRemoves, this.windowLength],
+      history: this.history,
+      pendingAdds: this.pendingAdds,
+      pendingRemoves: this.pendingRemoves,
+      windowLength: this.windowLength,
     };
   }
 
   loadState(state: LaggedProductsState): void {
+    expectRecord(state, 'lagged-products', 1);
     if (state.committed.length !== this.committed.length || state.addBuffer.length !== this.addBuffer.length) {
       throw new RangeError('lagged products state was saved with another maxLag or chunk');
     }
     this.committed.set(state.committed);
     this.addBuffer.set(state.addBuffer);
     this.removeBuffer.set(state.removeBuffer);
-    [this.history, this.pendingAdds, this.pendingRemoves, this.windowLength] = state.counters as [number, number, number, number];
+    ({ history: this.history, pendingAdds: this.pendingAdds, pendingRemoves: this.pendingRemoves, windowLength: this.windowLength } = state);
   }
 
   /** Values in the window whose products are committed (excludes pending adds). */

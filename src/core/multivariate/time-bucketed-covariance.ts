@@ -1,5 +1,5 @@
-import { correlationFromCovariance } from './cholesky.js';
-import { assembleBatchMeansResult, chooseLugsail, multivariateEss, type MultivariateBatchMeansResult } from './multivariate-batch-means.js';
+import { BatchMeansStream, type BatchMeansSnapshot, type BatchMeansStreamState } from './batch-means-stream.js';
+import { expectRecord, type StateRecord } from '../state/record.js';
 
 /**
  * Covariance of the means of several channels sampled at different rates: multivariate batch means
@@ -31,33 +31,16 @@ import { assembleBatchMeansResult, chooseLugsail, multivariateEss, type Multivar
  * - A non-finite time or value is dropped and counted (`rejectedSamples`).
  * - Rows older than the last `maxBuckets` complete buckets leave the window (`evictedBuckets`).
  *
- * Accumulators: a dyadic pyramid of batch means. Level j holds the means of aligned blocks of 2^j
- * consecutive rows (block k covers rows k 2^j ... (k + 1) 2^j - 1, counted since the start), a ring
- * of the complete blocks that lie inside the window, and the running sum S1_j and cross-product
- * matrix S2_j of those block means. With Ybar the mean of the m rows in the window and a_j blocks,
- *   sum_k (Ybar_k - Ybar)(Ybar_k - Ybar)^T = S2_j - S1_j Ybar^T - Ybar S1_j^T + a_j Ybar Ybar^T,
- * so Sigma_b = b / (a - 1) * that, for b = 2^j, costs O(p^2) per snapshot. Level 0 (b = 1) gives the
- * sample covariance Lambda of the rows (divisor m - 1) for mESS. In a growing window the blocks start
- * at the first row, exactly mcmcse's "batches over the first a * b rows, mean over all rows"; in a
- * sliding window the partial block at the front is left out of the batch sums in the same way as
- * mcmcse leaves out the rows past a * b.
- * Numerics: values enter shifted by per-channel anchors (the channel's first value). Whenever as many
- * rows have been added since the last time as the window holds (at least 64), the anchors move to the
- * window's means, every stored block mean and open bucket sum is shifted to match, and S1, S2 are
- * recomputed exactly from the rings, so that neither a drifting level nor many additions and
- * removals can build up cancellation or round-off (amortised O(p^2) per bucket).
- * Batch size: by default b = 2^j with j = round(log2(sqrt(m))), the dyadic size nearest sqrt(m) on a
- * log scale (as the project's univariate batch means in src/core/tau/blocking.ts), lowered while the
- * level has fewer than p + 1 batches. `snapshot(b)` takes any b: a power of two reads the pyramid,
- * any other b recomputes aligned blocks from the stored rows in O(m p + a p^2). Lugsail, on request,
- * uses r = 2 (the level below, b / 2), whose first-order bias is zero; mcmcse's r = 3 is not dyadic.
+ * Rows: each complete bucket's row goes to a BatchMeansStream (src/core/multivariate/
+ * batch-means-stream.ts: the dyadic pyramid of batch means, the window of maxBuckets rows, the
+ * batch size, lugsail, the periodic exact recomputation). The open buckets' sums are kept as
+ * offsets from that accumulator's anchors (each channel's first sample until the first row), and
+ * follow them when it re-anchors, so no absolute value is formed on the way.
  *
- * Cost: O(1) per sample; per completed bucket O(p) to form the row plus amortised O(p^2) for the
- * pyramid (summed over the levels there are two blocks per row, and each block's outer product,
- * p (p + 1) / 2 multiply-adds, is added once and removed once: about 2 p^2 per bucket) and for the
- * periodic recomputation (about as much again); snapshot O(p^3) (the Cholesky tests). Memory:
- * about 2 maxBuckets p doubles for the rings, p^2 per level (log2(maxBuckets) levels), 2 p per open
- * bucket; `state()` carries all of it (about 4.4 MB of JSON for p = 30, maxBuckets = 3600).
+ * Cost: O(1) per sample; per completed bucket O(p) to form the row plus the accumulator's amortised
+ * O(p^2); snapshot O(p^3) (the Cholesky tests). Memory: the accumulator's (about 2 maxBuckets p
+ * doubles and p^2 per level), 2 p per open bucket; `state()` carries all of it (about 4.4 MB of JSON
+ * for p = 30, maxBuckets = 3600).
  * Measured (Node 20, 2-core machine under load, maxBuckets = 3600, one sample per channel per
  * bucket): about 2, 4 and 16 microseconds per completed bucket for p = 3, 10 and 30, i.e. 0.6, 0.4
  * and 0.5 microseconds per sample; with 10 samples per channel per bucket about 0.1 microseconds per
@@ -102,113 +85,28 @@ export interface TimeBucketedNotReady {
   note: string;
 }
 
-export interface TimeBucketedSnapshot extends MultivariateBatchMeansResult {
-  ready: true;
+/** The accumulator's snapshot, in buckets (`rows` is `buckets`), with the bucket counts. */
+export type TimeBucketedSnapshot = Omit<BatchMeansSnapshot, 'rows'> & {
   /** Rows (complete buckets) in the window: the n of the batch-means computation. */
   buckets: number;
-  /** Correlation matrix of the channel means; null when a channel's variance is not positive. */
-  correlation: Float64Array | null;
-  /** sqrt of the diagonal of meanCovariance: standard uncertainty of each channel's mean. */
-  standardUncertainties: Float64Array;
-  /** Sample covariance of the bucket means (divisor m - 1), Lambda in mESS. */
-  sampleCovariance: Float64Array;
-  /** Multivariate effective sample size, in buckets; null when a matrix is not positive definite. */
-  multivariateEss: number | null;
   counts: BucketCounts;
-}
+};
 
-/** Plain-data state for persistence (JSON-safe). */
-export interface TimeBucketedCovarianceState {
-  version: 1;
+/** Plain-data state for persistence (JSON-safe): a named, versioned record. */
+export interface TimeBucketedCovarianceState extends StateRecord<'time-bucketed-covariance', 2> {
   channelCount: number;
   bucketSeconds: number;
   maxBuckets: number;
   openBuckets: number;
+  /** Offsets of open buckets are from these (the accumulator's anchors once it has a row). */
   anchors: number[];
   anchored: boolean[];
   newestBucket: number | null;
   closedThrough: number | null;
   lastClosedWithData: number | null;
   slots: { index: number | null; sums: number[]; counts: number[] }[];
-  totalRows: number;
-  rowsSinceRecompute: number;
-  levels: { blocks: number[]; firstBlock: number; partialSums: number[]; partialCount: number; sum: number[]; crossProducts: number[] }[];
+  rows: BatchMeansStreamState;
   counts: BucketCounts;
-}
-
-/** Fewest rows added between two exact recomputations of the sums. */
-const RECOMPUTE_MINIMUM = 64;
-
-class PyramidLevel {
-  readonly capacity: number;
-  readonly ring: Float64Array;
-  head = 0;
-  count = 0;
-  /** Absolute block index of the oldest block in the ring. */
-  firstBlock = 0;
-  /** Sum of the level-below block means that will make the next block (unused at level 0). */
-  readonly partialSums: Float64Array;
-  partialCount = 0;
-  /** Sum of the block means in the ring. */
-  readonly sum: Float64Array;
-  /** Sum of their outer products; lower triangle kept, row-major p x p. */
-  readonly crossProducts: Float64Array;
-
-  constructor(
-    readonly p: number,
-    capacity: number,
-  ) {
-    this.capacity = capacity;
-    this.ring = new Float64Array(capacity * p);
-    this.partialSums = new Float64Array(p);
-    this.sum = new Float64Array(p);
-    this.crossProducts = new Float64Array(p * p);
-  }
-
-  /** Row offset in `ring` of the i-th oldest block. */
-  offset(i: number): number {
-    return ((this.head + i) % this.capacity) * this.p;
-  }
-
-  push(block: ArrayLike<number>): void {
-    const p = this.p;
-    const at = this.offset(this.count);
-    for (let i = 0; i < p; i++) this.ring[at + i] = block[i] as number;
-    this.count++;
-    this.accumulate(at, 1);
-  }
-
-  /** Removes the oldest block. */
-  shift(): void {
-    this.accumulate(this.offset(0), -1);
-    this.head = (this.head + 1) % this.capacity;
-    this.count--;
-    this.firstBlock++;
-  }
-
-  private accumulate(at: number, sign: number): void {
-    const p = this.p;
-    const ring = this.ring;
-    for (let i = 0; i < p; i++) {
-      const vi = ring[at + i] as number;
-      this.sum[i] = (this.sum[i] as number) + sign * vi;
-      const row = i * p;
-      const scaled = sign * vi;
-      for (let j = 0; j <= i; j++) this.crossProducts[row + j] = (this.crossProducts[row + j] as number) + scaled * (ring[at + j] as number);
-    }
-  }
-
-  /** Exact recomputation of the sums from the ring. */
-  recompute(): void {
-    this.sum.fill(0);
-    this.crossProducts.fill(0);
-    const saved = this.count;
-    this.count = 0;
-    for (let k = 0; k < saved; k++) {
-      this.count++;
-      this.accumulate(this.offset(k), 1);
-    }
-  }
 }
 
 export class TimeBucketedCovariance {
@@ -227,12 +125,9 @@ export class TimeBucketedCovariance {
   private readonly slotUsed: Uint8Array;
   private readonly slotSums: Float64Array;
   private readonly slotCounts: Float64Array;
-  private totalRows = 0;
-  private rowsSinceRecompute = 0;
-  private readonly levels: PyramidLevel[];
-  private readonly counts: BucketCounts = { completedBuckets: 0, incompleteBuckets: 0, emptyBuckets: 0, lateSamples: 0, rejectedSamples: 0, evictedBuckets: 0 };
+  private rows: BatchMeansStream;
+  private readonly counts: Omit<BucketCounts, 'evictedBuckets'> = { completedBuckets: 0, incompleteBuckets: 0, emptyBuckets: 0, lateSamples: 0, rejectedSamples: 0 };
   private readonly row: Float64Array;
-  private readonly carry: Float64Array;
 
   constructor(channelCount: number, options: TimeBucketedCovarianceOptions) {
     if (!Number.isInteger(channelCount) || channelCount < 1) throw new RangeError('TimeBucketedCovariance requires at least one channel');
@@ -251,10 +146,8 @@ export class TimeBucketedCovariance {
     this.slotUsed = new Uint8Array(openBuckets);
     this.slotSums = new Float64Array(openBuckets * p);
     this.slotCounts = new Float64Array(openBuckets * p);
-    this.levels = [];
-    for (let j = 0; Math.floor(options.maxBuckets / 2 ** j) >= 2; j++) this.levels.push(new PyramidLevel(p, Math.floor(options.maxBuckets / 2 ** j)));
+    this.rows = new BatchMeansStream(p, { maxRows: options.maxBuckets });
     this.row = new Float64Array(p);
-    this.carry = new Float64Array(p);
   }
 
   /**
@@ -304,61 +197,31 @@ export class TimeBucketedCovariance {
 
   /** Rows (complete buckets) currently in the window. */
   get buckets(): number {
-    return (this.levels[0] as PyramidLevel).count;
+    return this.rows.rows;
   }
 
   /**
    * Covariance of the channel means over the window. `batchSize` defaults to the dyadic size nearest
-   * sqrt(buckets) (see the module comment). O(p^3) for a power of two, O(m p + a p^2 + p^3) else.
+   * sqrt(buckets) (see BatchMeansStream). O(p^3) for a power of two, O(m p + a p^2 + p^3) else.
    */
   snapshot(batchSize?: number, options: TimeBucketedSnapshotOptions = {}): TimeBucketedSnapshot | TimeBucketedNotReady {
-    const p = this.channelCount;
-    const level0 = this.levels[0] as PyramidLevel;
-    const m = level0.count;
-    const counts = { ...this.counts };
-    if (m < 2) return { ready: false, buckets: m, counts, note: `${m} complete bucket${m === 1 ? '' : 's'}: at least 2 are needed` };
-    if (batchSize !== undefined && (!Number.isInteger(batchSize) || batchSize < 1)) throw new RangeError('snapshot requires a positive integer batch size');
-    const shiftedMean = new Float64Array(p);
-    for (let i = 0; i < p; i++) shiftedMean[i] = (level0.sum[i] as number) / m;
-    const b = batchSize ?? this.automaticBatchSize(m);
-    const notes: string[] = [];
-    const plain = this.batchCovariance(b, shiftedMean);
-    if (plain === null) {
-      return { ready: false, buckets: m, counts, note: `batch size ${b} leaves fewer than 2 batches in ${m} buckets` };
+    const counts: BucketCounts = { ...this.counts, evictedBuckets: this.rows.evictedRows };
+    const snapshot = this.rows.snapshot(batchSize, options);
+    if (!snapshot.ready) {
+      const m = snapshot.rows;
+      const note = m < 2 ? `${m} complete bucket${m === 1 ? '' : 's'}: at least 2 are needed` : snapshot.note.replace(/rows$/, 'buckets');
+      return { ready: false, buckets: m, counts, note };
     }
-    let covariance = plain.covariance;
-    let lugsailUsed = false;
-    if (options.lugsail) {
-      if (b < 4) {
-        notes.push(`batch size ${b} below 2r = 4: lugsail not applied`);
-      } else {
-        const small = this.batchCovariance(Math.floor(b / 2), shiftedMean);
-        if (small !== null) ({ covariance, lugsailUsed } = chooseLugsail(plain.covariance, small.covariance, p, notes));
-      }
-    }
-    const lambda = this.batchCovariance(1, shiftedMean) as { covariance: Float64Array; batches: number };
-    const means = new Float64Array(p);
-    for (let i = 0; i < p; i++) means[i] = (this.anchors[i] as number) + (shiftedMean[i] as number);
-    const result = assembleBatchMeansResult(covariance, m, p, b, plain.batches, means, lugsailUsed, notes);
-    const standardUncertainties = new Float64Array(p);
-    for (let i = 0; i < p; i++) standardUncertainties[i] = Math.sqrt(Math.max(0, result.meanCovariance[i * p + i] as number));
-    return {
-      ...result,
-      ready: true,
-      buckets: m,
-      correlation: correlationFromCovariance(result.covariance, p),
-      standardUncertainties,
-      sampleCovariance: lambda.covariance,
-      multivariateEss: result.positiveDefinite ? multivariateEss(m, lambda.covariance, result.covariance, p) : null,
-      counts,
-    };
+    const { rows, ...rest } = snapshot;
+    return { ...rest, buckets: rows, counts };
   }
 
   /** Plain-data copy of the whole state (JSON-safe). */
   state(): TimeBucketedCovarianceState {
     const p = this.channelCount;
     return {
-      version: 1,
+      record: 'time-bucketed-covariance',
+      version: 2,
       channelCount: p,
       bucketSeconds: this.bucketSeconds,
       maxBuckets: this.maxBuckets,
@@ -373,33 +236,17 @@ export class TimeBucketedCovariance {
         sums: Array.from(this.slotSums.subarray(s * p, (s + 1) * p)),
         counts: Array.from(this.slotCounts.subarray(s * p, (s + 1) * p)),
       })),
-      totalRows: this.totalRows,
-      rowsSinceRecompute: this.rowsSinceRecompute,
-      levels: this.levels.map((level) => {
-        const blocks: number[] = [];
-        for (let k = 0; k < level.count; k++) {
-          const at = level.offset(k);
-          for (let i = 0; i < p; i++) blocks.push(level.ring[at + i] as number);
-        }
-        return {
-          blocks,
-          firstBlock: level.firstBlock,
-          partialSums: Array.from(level.partialSums),
-          partialCount: level.partialCount,
-          sum: Array.from(level.sum),
-          crossProducts: Array.from(level.crossProducts),
-        };
-      }),
-      counts: { ...this.counts },
+      rows: this.rows.state(),
+      counts: { ...this.counts, evictedBuckets: this.rows.evictedRows },
     };
   }
 
   /**
    * Rebuilds an accumulator from `state()`; it continues exactly as the original would.
-   * @throws RangeError when the state does not fit its own configuration
+   * @throws RangeError for a record of another name or version, or one that does not fit its own configuration
    */
   static restore(state: TimeBucketedCovarianceState): TimeBucketedCovariance {
-    if (state.version !== 1) throw new RangeError(`unknown TimeBucketedCovariance state version ${String(state.version)}`);
+    expectRecord(state, 'time-bucketed-covariance', 2);
     const out = new TimeBucketedCovariance(state.channelCount, { bucketSeconds: state.bucketSeconds, maxBuckets: state.maxBuckets, openBuckets: state.openBuckets });
     const p = state.channelCount;
     const check = (ok: boolean, what: string) => {
@@ -407,7 +254,7 @@ export class TimeBucketedCovariance {
     };
     check(state.anchors.length === p && state.anchored.length === p, 'anchors');
     check(state.slots.length === state.openBuckets, 'open buckets');
-    check(state.levels.length === out.levels.length, 'levels');
+    check(state.rows.channelCount === p && state.rows.maxRows === state.maxBuckets, 'rows');
     out.anchors.set(state.anchors);
     state.anchored.forEach((v, i) => (out.anchored[i] = v ? 1 : 0));
     out.newestBucket = state.newestBucket;
@@ -420,90 +267,10 @@ export class TimeBucketedCovariance {
       out.slotSums.set(slot.sums, s * p);
       out.slotCounts.set(slot.counts, s * p);
     });
-    out.totalRows = state.totalRows;
-    out.rowsSinceRecompute = state.rowsSinceRecompute;
-    state.levels.forEach((saved, j) => {
-      const level = out.levels[j] as PyramidLevel;
-      const blockCount = saved.blocks.length / p;
-      check(Number.isInteger(blockCount) && blockCount <= level.capacity, `level ${j} blocks`);
-      check(saved.partialSums.length === p && saved.sum.length === p && saved.crossProducts.length === p * p, `level ${j} sums`);
-      level.ring.set(saved.blocks);
-      level.head = 0;
-      level.count = blockCount;
-      level.firstBlock = saved.firstBlock;
-      level.partialSums.set(saved.partialSums);
-      level.partialCount = saved.partialCount;
-      level.sum.set(saved.sum);
-      level.crossProducts.set(saved.crossProducts);
-    });
-    Object.assign(out.counts, state.counts);
+    out.rows = BatchMeansStream.restore(state.rows);
+    const { evictedBuckets: _evicted, ...counts } = state.counts;
+    Object.assign(out.counts, counts);
     return out;
-  }
-
-  /** Dyadic batch size nearest sqrt(m) on a log scale, lowered while there are fewer than p + 1 batches. */
-  private automaticBatchSize(m: number): number {
-    let j = Math.min(Math.round(0.5 * Math.log2(m)), this.levels.length - 1);
-    while (j > 0 && (this.levels[j] as PyramidLevel).count < this.channelCount + 1) j--;
-    return 2 ** j;
-  }
-
-  /**
-   * b / (a - 1) sum_k (Ybar_k - Ybar)(Ybar_k - Ybar)^T over the aligned complete blocks of b rows in
-   * the window, in shifted units; null when there are fewer than 2 such blocks.
-   */
-  private batchCovariance(b: number, shiftedMean: Float64Array): { covariance: Float64Array; batches: number } | null {
-    const p = this.channelCount;
-    const j = Math.log2(b);
-    if (Number.isInteger(j) && j < this.levels.length) {
-      const level = this.levels[j] as PyramidLevel;
-      const a = level.count;
-      if (a < 2) return null;
-      const out = new Float64Array(p * p);
-      for (let i = 0; i < p; i++) {
-        const si = level.sum[i] as number;
-        const mi = shiftedMean[i] as number;
-        for (let k = 0; k <= i; k++) {
-          const deviations = (level.crossProducts[i * p + k] as number) - si * (shiftedMean[k] as number) - mi * (level.sum[k] as number) + a * mi * (shiftedMean[k] as number);
-          const v = (deviations * b) / (a - 1);
-          out[i * p + k] = v;
-          out[k * p + i] = v;
-        }
-      }
-      return { covariance: out, batches: a };
-    }
-    return this.batchCovarianceFromRows(b, shiftedMean);
-  }
-
-  /** Aligned blocks of b rows recomputed from the stored rows: O(m p + a p^2). */
-  private batchCovarianceFromRows(b: number, shiftedMean: Float64Array): { covariance: Float64Array; batches: number } | null {
-    const p = this.channelCount;
-    const level0 = this.levels[0] as PyramidLevel;
-    const firstRow = level0.firstBlock;
-    const endRow = firstRow + level0.count;
-    const firstBatch = Math.ceil(firstRow / b);
-    const endBatch = Math.floor(endRow / b);
-    const a = endBatch - firstBatch;
-    if (a < 2) return null;
-    const out = new Float64Array(p * p);
-    const deviation = new Float64Array(p);
-    for (let k = firstBatch; k < endBatch; k++) {
-      deviation.fill(0);
-      for (let t = k * b; t < (k + 1) * b; t++) {
-        const at = level0.offset(t - firstRow);
-        for (let i = 0; i < p; i++) deviation[i] = (deviation[i] as number) + ((level0.ring[at + i] as number) - (shiftedMean[i] as number));
-      }
-      for (let i = 0; i < p; i++) deviation[i] = (deviation[i] as number) / b;
-      for (let i = 0; i < p; i++) for (let k2 = 0; k2 <= i; k2++) out[i * p + k2] = (out[i * p + k2] as number) + (deviation[i] as number) * (deviation[k2] as number);
-    }
-    const scale = b / (a - 1);
-    for (let i = 0; i < p; i++) {
-      for (let k2 = 0; k2 <= i; k2++) {
-        const v = (out[i * p + k2] as number) * scale;
-        out[i * p + k2] = v;
-        out[k2 * p + i] = v;
-      }
-    }
-    return { covariance: out, batches: a };
   }
 
   /** A sample arrived for bucket `index` > newest: close what falls out of the open range. */
@@ -541,71 +308,19 @@ export class TimeBucketedCovariance {
       return;
     }
     for (let i = 0; i < p; i++) this.row[i] = (this.slotSums[slot * p + i] as number) / (this.slotCounts[slot * p + i] as number);
-    this.addRow(this.row);
-  }
-
-  /** One complete bucket: evict what leaves the window, then push through the pyramid. */
-  private addRow(row: Float64Array): void {
-    const p = this.channelCount;
-    this.totalRows++;
     this.counts.completedBuckets++;
-    const windowStart = Math.max(0, this.totalRows - this.maxBuckets);
-    for (let j = 0; j < this.levels.length; j++) {
-      const level = this.levels[j] as PyramidLevel;
-      while (level.count > 0 && level.firstBlock * 2 ** j < windowStart) {
-        level.shift();
-        if (j === 0) this.counts.evictedBuckets++;
+    if (this.rows.rowsAdded === 0) this.rows.setAnchors(this.anchors);
+    const moved = this.rows.pushShifted(this.row);
+    if (moved !== null) {
+      // The accumulator re-anchored: the open buckets' offsets follow.
+      for (let i = 0; i < p; i++) this.anchors[i] = this.rows.anchor(i);
+      for (let s = 0; s < this.openBuckets; s++) {
+        for (let i = 0; i < p; i++) {
+          const at = s * p + i;
+          this.slotSums[at] = (this.slotSums[at] as number) - (this.slotCounts[at] as number) * (moved[i] as number);
+        }
       }
     }
-    const carry = this.carry;
-    carry.set(row);
-    for (let j = 0; j < this.levels.length; j++) {
-      const level = this.levels[j] as PyramidLevel;
-      if (j > 0) {
-        for (let i = 0; i < p; i++) level.partialSums[i] = (level.partialSums[i] as number) + (carry[i] as number);
-        level.partialCount++;
-        if (level.partialCount < 2) break;
-        for (let i = 0; i < p; i++) carry[i] = (level.partialSums[i] as number) / 2;
-        level.partialSums.fill(0);
-        level.partialCount = 0;
-      }
-      if (level.count === 0) level.firstBlock = Math.floor((this.totalRows - 1) / 2 ** j);
-      level.push(carry);
-    }
-    this.rowsSinceRecompute++;
-    if (this.rowsSinceRecompute >= Math.max(RECOMPUTE_MINIMUM, (this.levels[0] as PyramidLevel).count)) this.reanchor();
-  }
-
-  /** Moves the anchors to the window means, shifts everything stored, recomputes the sums exactly. */
-  private reanchor(): void {
-    const p = this.channelCount;
-    const level0 = this.levels[0] as PyramidLevel;
-    const m = level0.count;
-    const delta = new Float64Array(p);
-    for (let i = 0; i < p; i++) {
-      if (m === 0) break;
-      // Shift by what the anchor really moved (Fast2Sum: fl(a + d) - a is exact for |a| >= |d|), so
-      // that the stored values and the new anchor stay consistent to the last bit of the anchor.
-      const old = this.anchors[i] as number;
-      const moved = old + (level0.sum[i] as number) / m;
-      delta[i] = moved - old;
-      this.anchors[i] = moved;
-    }
-    for (const level of this.levels) {
-      for (let k = 0; k < level.count; k++) {
-        const at = level.offset(k);
-        for (let i = 0; i < p; i++) level.ring[at + i] = (level.ring[at + i] as number) - (delta[i] as number);
-      }
-      for (let i = 0; i < p; i++) level.partialSums[i] = (level.partialSums[i] as number) - level.partialCount * (delta[i] as number);
-      level.recompute();
-    }
-    for (let s = 0; s < this.openBuckets; s++) {
-      for (let i = 0; i < p; i++) {
-        const at = s * p + i;
-        this.slotSums[at] = (this.slotSums[at] as number) - (this.slotCounts[at] as number) * (delta[i] as number);
-      }
-    }
-    this.rowsSinceRecompute = 0;
   }
 }
 

@@ -1,3 +1,5 @@
+import { expectRecord, type StateRecord } from '../state/record.js';
+
 /**
  * Block history: the means of equal blocks of every sample since a start index, at a resolution
  * that halves whenever the record outgrows the capacity (neighbouring blocks are merged in pairs).
@@ -10,7 +12,7 @@
  * Cost: O(1) amortised per sample (a merge touches every block, once per doubling of the record).
  * Memory: `capacity` doubles (4 KiB at the default 512).
  */
-export interface BlockHistoryState {
+export interface BlockHistoryState extends StateRecord<'block-history', 1> {
   start: number;
   shift: number;
   blockSize: number;
@@ -83,10 +85,12 @@ export class BlockHistory {
   }
 
   saveState(): BlockHistoryState {
-    return { start: this.start, shift: this.shift, blockSize: this.blockSize, count: this.count, sums: this.sums.slice(0, this.count), partialSum: this.partialSum, partialCount: this.partialCount };
+    return { record: 'block-history', version: 1, start: this.start, shift: this.shift, blockSize: this.blockSize, count: this.count, sums: this.sums.slice(0, this.count), partialSum: this.partialSum, partialCount: this.partialCount };
   }
 
+  /** @throws RangeError for a record of another name or version. */
   loadState(state: BlockHistoryState): void {
+    expectRecord(state, 'block-history', 1);
     this.start = state.start;
     this.shift = state.shift;
     this.blockSize = state.blockSize;

@@ -1,3 +1,4 @@
+import { expectRecord, type StateRecord } from '../state/record.js';
 /**
  * Multi-resolution block pyramid: the sums of aligned blocks of 2, 4, 8, ... samples of a window.
  *
@@ -35,12 +36,19 @@ export interface PyramidLevelStats {
 
 export interface PyramidLevelState {
   sums: Float64Array;
-  numbers: number[];
+  frontBlock: number;
+  total: number;
+  totalSquares: number;
+  neighbourProducts: number;
+  carrySum: number;
+  carryBlock: number;
 }
 
-export interface BlockPyramidState {
+export interface BlockPyramidState extends StateRecord<'block-pyramid', 1> {
   levels: (PyramidLevelState | null)[];
-  numbers: number[];
+  rawCarry: number;
+  rawCarryIndex: number;
+  windowStart: number;
 }
 
 class PyramidLevel {
@@ -128,7 +136,7 @@ class PyramidLevel {
   saveState(): PyramidLevelState {
     const sums = new Float64Array(this.count);
     for (let i = 0; i < this.count; i++) sums[i] = this.at(i);
-    return { sums, numbers: [this.frontBlock, this.total, this.totalSquares, this.neighbourProducts, this.carrySum, this.carryBlock] };
+    return { sums, frontBlock: this.frontBlock, total: this.total, totalSquares: this.totalSquares, neighbourProducts: this.neighbourProducts, carrySum: this.carrySum, carryBlock: this.carryBlock };
   }
 
   loadState(state: PyramidLevelState): void {
@@ -137,7 +145,7 @@ class PyramidLevel {
     this.sums.set(state.sums);
     this.head = 0;
     this.count = count;
-    [this.frontBlock, this.total, this.totalSquares, this.neighbourProducts, this.carrySum, this.carryBlock] = state.numbers as [number, number, number, number, number, number];
+    ({ frontBlock: this.frontBlock, total: this.total, totalSquares: this.totalSquares, neighbourProducts: this.neighbourProducts, carrySum: this.carrySum, carryBlock: this.carryBlock } = state);
     this.lastSum = count > 0 ? (state.sums[count - 1] as number) : 0;
   }
 
@@ -167,12 +175,6 @@ export class BlockPyramid {
     this.preallocate = preallocate;
   }
 
-  /** Number of levels that currently hold at least one block. */
-  get levelCount(): number {
-    let used = 0;
-    for (const level of this.levels) if (level.count > 0) used = level.level;
-    return used;
-  }
 
   /** Adds the sample with absolute index `index` (shifted value). */
   add(index: number, shifted: number): void {
@@ -249,10 +251,11 @@ export class BlockPyramid {
   saveState(): BlockPyramidState {
     const levels: (PyramidLevelState | null)[] = [];
     for (let i = 0; i < this.levels.length; i++) levels.push(this.levels[i] ? (this.levels[i] as PyramidLevel).saveState() : null);
-    return { levels, numbers: [this.rawCarry, this.rawCarryIndex, this.windowStart] };
+    return { record: 'block-pyramid', version: 1, levels, rawCarry: this.rawCarry, rawCarryIndex: this.rawCarryIndex, windowStart: this.windowStart };
   }
 
   loadState(state: BlockPyramidState): void {
+    expectRecord(state, 'block-pyramid', 1);
     this.levels.length = 0;
     state.levels.forEach((levelState, i) => {
       if (!levelState) return;
@@ -260,7 +263,7 @@ export class BlockPyramid {
       level.loadState(levelState);
       this.levels[i] = level;
     });
-    [this.rawCarry, this.rawCarryIndex, this.windowStart] = state.numbers as [number, number, number];
+    ({ rawCarry: this.rawCarry, rawCarryIndex: this.rawCarryIndex, windowStart: this.windowStart } = state);
   }
 
   private createLevel(j: number, atLeast: number): PyramidLevel {

@@ -1,3 +1,5 @@
+import { expectRecord, type StateRecord } from '../state/record.js';
+
 /**
  * Sample ring: the samples of one channel's averaging window, oldest first, with their times.
  *
@@ -9,7 +11,7 @@
  * Cost: push and shift are O(1) (amortised O(1) while growing); `at(i)` is O(1).
  * Memory: 16 bytes per slot (8 for the value, 8 for the time).
  */
-export interface SampleRingState {
+export interface SampleRingState extends StateRecord<'sample-ring', 1> {
   values: Float64Array;
   times: Float64Array;
 }
@@ -75,11 +77,6 @@ export class SampleRing {
     return this.timeSlots[slot] as number;
   }
 
-  /** Value of the i-th newest sample (0 = newest). */
-  fromBack(i: number): number {
-    return this.at(this.count - 1 - i);
-  }
-
   /** Copies the values, oldest first, into a new array (or `out` when given and large enough). */
   copyValues(out?: Float64Array): Float64Array {
     const target = out && out.length >= this.count ? out : new Float64Array(this.count);
@@ -112,11 +109,12 @@ export class SampleRing {
 
   /** Plain-data state (live samples only), for persistence. */
   saveState(): SampleRingState {
-    return { values: this.copyValues(), times: this.copyTimes() };
+    return { record: 'sample-ring', version: 1, values: this.copyValues(), times: this.copyTimes() };
   }
 
   /** Restores a saved state; the ring then holds exactly those samples, oldest first. */
   loadState(state: SampleRingState): void {
+    expectRecord(state, 'sample-ring', 1);
     const count = state.values.length;
     if (count > this.maxCapacity) throw new RangeError('sample ring state holds more samples than the ring can');
     const size = Math.max(this.valueSlots.length, Math.min(this.maxCapacity, Math.max(1, count)));

@@ -1,3 +1,5 @@
+import { expectRecord, type StateRecord } from '../state/record.js';
+
 /**
  * Running mean and variance of a window, from sums of shifted values.
  *
@@ -14,6 +16,14 @@
  *
  * Cost: O(1) per added or removed value. Memory: a few numbers.
  */
+export interface ShiftedMomentsState extends StateRecord<'shifted-moments', 1> {
+  count: number;
+  sum: number;
+  sumCompensation: number;
+  sumSquares: number;
+  sumSquaresCompensation: number;
+}
+
 export class ShiftedMoments {
   count = 0;
   private sum = 0;
@@ -67,12 +77,13 @@ export class ShiftedMoments {
     return this.count > 1 ? this.squaredDeviations / (this.count - 1) : 0;
   }
 
-  saveState(): number[] {
-    return [this.count, this.sum, this.sumCompensation, this.sumSquares, this.sumSquaresCompensation];
+  saveState(): ShiftedMomentsState {
+    return { record: 'shifted-moments', version: 1, count: this.count, sum: this.sum, sumCompensation: this.sumCompensation, sumSquares: this.sumSquares, sumSquaresCompensation: this.sumSquaresCompensation };
   }
 
-  loadState(state: number[]): void {
-    [this.count, this.sum, this.sumCompensation, this.sumSquares, this.sumSquaresCompensation] = state as [number, number, number, number, number];
+  loadState(state: ShiftedMomentsState): void {
+    expectRecord(state, 'shifted-moments', 1);
+    ({ count: this.count, sum: this.sum, sumCompensation: this.sumCompensation, sumSquares: this.sumSquares, sumSquaresCompensation: this.sumSquaresCompensation } = state);
   }
 
   private accumulate(value: number, square: number): void {

@@ -1,5 +1,6 @@
 import { SampleRing, type SampleRingState } from './sample-ring.js';
-import { ShiftedMoments } from './shifted-moments.js';
+import { ShiftedMoments, type ShiftedMomentsState } from './shifted-moments.js';
+import { expectRecord, type StateRecord } from '../state/record.js';
 import { LaggedProducts, autocovarianceFromProducts, type LaggedProductsState } from '../acf/lagged-products.js';
 import { BlockPyramid, type BlockPyramidState } from './block-pyramid.js';
 
@@ -20,12 +21,20 @@ import { BlockPyramid, type BlockPyramidState } from './block-pyramid.js';
  *   O(n * maxLag) and happens at most once per `recomputeEvery` removals.
  * Memory: 16 bytes per windowed sample (value and time) plus about 8 for the pyramid.
  */
-export interface WindowedSeriesState {
+export interface WindowedSeriesState extends StateRecord<'windowed-series', 1> {
   ring: SampleRingState;
-  moments: number[];
+  moments: ShiftedMomentsState;
   lags: LaggedProductsState;
   pyramid: BlockPyramidState;
-  numbers: number[];
+  anchor: number;
+  firstIndex: number;
+  nextIndex: number;
+  removalsSinceRebuild: number;
+  nextAnchorCheck: number;
+  pollution: number;
+  lastLargeIndex: number;
+  /** Lags maintained when the state was saved (grown beyond the configured ones when needed). */
+  maxLag: number;
 }
 
 export interface WindowedSeriesOptions {
@@ -212,17 +221,27 @@ export class WindowedSeries {
   /** Plain-data state: restoring it continues the series bit for bit (typed arrays are copies). */
   saveState(): WindowedSeriesState {
     return {
+      record: 'windowed-series',
+      version: 1,
       ring: this.ring.saveState(),
       moments: this.moments.saveState(),
       lags: this.lags.saveState(),
       pyramid: this.pyramid.saveState(),
-      numbers: [this.anchor, this.firstIndex, this.nextIndex, this.removalsSinceRebuild, this.nextAnchorCheck, this.pollution, this.lastLargeIndex, this.maxLag],
+      anchor: this.anchor,
+      firstIndex: this.firstIndex,
+      nextIndex: this.nextIndex,
+      removalsSinceRebuild: this.removalsSinceRebuild,
+      nextAnchorCheck: this.nextAnchorCheck,
+      pollution: this.pollution,
+      lastLargeIndex: this.lastLargeIndex,
+      maxLag: this.maxLag,
     };
   }
 
   loadState(state: WindowedSeriesState): void {
+    expectRecord(state, 'windowed-series', 1);
     this.cachedAcf = null;
-    const maxLag = state.numbers[7] ?? this.maxLag;
+    const maxLag = state.maxLag;
     if (maxLag !== this.maxLag) {
       this.maxLag = maxLag;
       this.lags = new LaggedProducts(maxLag, (i) => this.ring.at(i) - this.anchor);
@@ -231,7 +250,7 @@ export class WindowedSeries {
     this.moments.loadState(state.moments);
     this.lags.loadState(state.lags);
     this.pyramid.loadState(state.pyramid);
-    [this.anchor, this.firstIndex, this.nextIndex, this.removalsSinceRebuild, this.nextAnchorCheck, this.pollution, this.lastLargeIndex] = state.numbers as [number, number, number, number, number, number, number];
+    ({ anchor: this.anchor, firstIndex: this.firstIndex, nextIndex: this.nextIndex, removalsSinceRebuild: this.removalsSinceRebuild, nextAnchorCheck: this.nextAnchorCheck, pollution: this.pollution, lastLargeIndex: this.lastLargeIndex } = state);
   }
 
   /**

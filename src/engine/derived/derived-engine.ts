@@ -1,4 +1,4 @@
-import { TimeBucketedCovariance, type TimeBucketedSnapshot } from '../../core/multivariate/time-bucketed-covariance.js';
+import { BatchMeansStream, type BatchMeansSnapshot } from '../../core/multivariate/batch-means-stream.js';
 import { MIN_BATCHES } from '../../core/multivariate/multivariate-batch-means.js';
 import { propagateJointly, propagateUncertainty, type PropagationResult } from '../../core/propagation/gum-propagation.js';
 import { coverageFactor } from '../../core/uncertainty/coverage-factor.js';
@@ -39,7 +39,7 @@ import type { CompiledDerived } from './expression-model.js';
  * doubles and the open buckets follow, so that a growing window of any length is kept whole at a
  * coarser time resolution (the batch means of rows are batch means of samples either way).
  *
- * Covariance of the means. The rows feed a TimeBucketedCovariance (src/core/multivariate): the
+ * Covariance of the means. The rows feed a BatchMeansStream (src/core/multivariate, fed rows: the samples are bucketed once, here): the
  * multivariate batch-means estimate of the long-run covariance Sigma (D. Vats, J. M. Flegal &
  * G. L. Jones (2019), "Multivariate output analysis for Markov chain Monte Carlo", Biometrika
  * 106(2), 321-337), with dyadic batches of size b nearest sqrt(m) for m rows and a batches; the
@@ -69,10 +69,10 @@ import type { CompiledDerived } from './expression-model.js';
  * as sqrt(n), so an ETA for a target on U is slightly optimistic.
  *
  * Cost: per sample O(p) (the finality check) plus, per row, O(p) to form it and amortised O(p^2)
- * in the TimeBucketedCovariance; a merge of rows O(maxBuckets p^2), once per doubling of the
+ * in the BatchMeansStream; a merge of rows O(maxBuckets p^2), once per doubling of the
  * window. `evaluate()` O(p^3 + q p^2 + q^2 p) for q results, plus the mathjs evaluations; cached
  * until a row is added. Memory: room for 2 maxBuckets rows (2 maxBuckets p doubles) plus the
- * TimeBucketedCovariance's rings for as many (about 4 maxBuckets p doubles; 0.6 MB for p = 3 at
+ * BatchMeansStream's rings for as many (about 4 maxBuckets p doubles; 0.6 MB for p = 3 at
  * the default 8192), open buckets 2 p doubles each.
  */
 export type DerivedEstimator = 'batch-means' | 'iid';
@@ -217,8 +217,7 @@ export class DerivedEngine {
   private rowValues: Float64Array;
   private rowBuckets: Float64Array;
   private rowCount = 0;
-  private covariance: TimeBucketedCovariance;
-  private rowNumber = 0;
+  private covariance: BatchMeansStream;
   private readonly counts: DerivedCounts = { incompleteBuckets: 0, lateSamples: 0, rejectedSamples: 0, merges: 0 };
   private version = 0;
   private cache: { version: number; snapshots: DerivedSnapshot[]; distributions: Map<string, DerivedInputDistribution> } | null = null;
@@ -257,6 +256,12 @@ export class DerivedEngine {
   /** Complete rows in the window. */
   get rows(): number {
     return this.rowCount;
+  }
+
+  /** End (seconds) of the newest row's bucket; null without rows. */
+  get lastRowEndSeconds(): number | null {
+    if (this.rowCount === 0 || this.width === null) return null;
+    return ((this.rowBuckets[this.rowCount - 1] as number) + 1) * this.width;
   }
 
   /** The bucket width in use (null until it is decided). */
@@ -307,12 +312,6 @@ export class DerivedEngine {
       return true;
     }
     return this.place(channel, timeSeconds, value);
-  }
-
-  /** Adds a sample by channel name; samples of channels that are not inputs are ignored (false). */
-  addNamed(channel: string, timeSeconds: number, value: number): boolean {
-    const index = this.channelIndex.get(channel);
-    return index === undefined ? false : this.add(index, timeSeconds, value);
   }
 
   // ---- buckets ------------------------------------------------------------------------------
@@ -469,16 +468,12 @@ export class DerivedEngine {
     this.version++;
   }
 
-  private newCovariance(): TimeBucketedCovariance {
-    this.rowNumber = 0;
-    return new TimeBucketedCovariance(this.p, { bucketSeconds: 1, maxBuckets: 2 * this.maxBuckets + 2, openBuckets: 1 });
+  private newCovariance(): BatchMeansStream {
+    return new BatchMeansStream(this.p, { maxRows: 2 * this.maxBuckets + 2 });
   }
 
   private pushRow(at: number): void {
-    const time = this.rowNumber + 0.5;
-    for (let c = 0; c < this.p; c++) this.covariance.add(c, time, this.rowValues[at + c] as number);
-    this.covariance.flush();
-    this.rowNumber++;
+    this.covariance.push(this.rowValues.subarray(at, at + this.p));
   }
 
   /**
@@ -592,7 +587,7 @@ export class DerivedEngine {
       const note = this.width === null ? `waiting for samples of every input channel to decide the bucket width (${WIDTH_SAMPLES} each)` : `${m} complete row(s): at least 2 are needed`;
       return this.specs.map((spec) => empty(spec, note));
     }
-    const ready = snapshot as TimeBucketedSnapshot;
+    const ready = snapshot as BatchMeansSnapshot;
     let estimator = this.estimator;
     const notes = [...baseNotes];
     if (estimator === 'batch-means' && ready.batches < MIN_BATCHES) {

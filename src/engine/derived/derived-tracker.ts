@@ -30,6 +30,8 @@ export interface ChannelWindowView {
   timeAt(index: number): number;
   /** The window's start moves with each sample (sliding, or a growing window at its cap). */
   sliding: boolean;
+  /** Whether the channel was steady when it took the sample of this absolute index (src/engine/steadiness.ts). */
+  steadyAt(index: number): boolean;
 }
 
 export interface DerivedWindowSource {
@@ -88,8 +90,13 @@ export class DerivedTracker {
     this.engine = null;
   }
 
-  /** Brings the engine up to date with the windows. Returns true when its rows may have changed. */
-  sync(source: DerivedWindowSource): boolean {
+  /**
+   * Brings the engine up to date with the windows. Returns true when its rows may have changed.
+   * `onRows` is called whenever the engine's row count changes while it is fed (a new row, a
+   * merge, a rebuild), with the engine and the windows read: the precision check runs there
+   * (src/engine/derived/derived-monitor.ts), at the same row counts however often sync is called.
+   */
+  sync(source: DerivedWindowSource, onRows?: (engine: DerivedEngine, views: readonly ChannelWindowView[]) => void): boolean {
     const p = this.channels.length;
     const views: ChannelWindowView[] = [];
     const from = new Float64Array(p);
@@ -122,6 +129,7 @@ export class DerivedTracker {
       this.engine = engine;
       this.fed.set(from);
       this.rebuilds++;
+      onRows?.(engine, views);
     }
     const active = engine as DerivedEngine;
     // Feed what the windows gained, oldest first across the channels.
@@ -146,9 +154,11 @@ export class DerivedTracker {
       if (best < 0) break;
       const view = views[best] as ChannelWindowView;
       const index = cursor[best] as number;
+      const rowsBefore = active.rows;
       active.add(best, view.timeAt(index), view.valueAt(index));
       cursor[best] = index + 1;
       fedAny = true;
+      if (onRows !== undefined && active.rows !== rowsBefore) onRows(active, views);
     }
     this.fed.set(end);
     const changed = rebuild || (fedAny && active.rowsVersion !== this.lastVersion);

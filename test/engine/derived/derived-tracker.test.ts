@@ -27,7 +27,7 @@ class FakeWindows implements DerivedWindowSource {
     const values = this.values.get(name);
     const times = this.times.get(name) as number[];
     if (values === undefined) return null;
-    return { firstIndex: this.first.get(name) as number, nextIndex: values.length, valueAt: (i) => values[i] as number, timeAt: (i) => times[i] as number, sliding: this.sliding };
+    return { firstIndex: this.first.get(name) as number, nextIndex: values.length, valueAt: (i) => values[i] as number, timeAt: (i) => times[i] as number, sliding: this.sliding, steadyAt: () => true };
   }
 }
 

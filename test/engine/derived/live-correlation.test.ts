@@ -30,7 +30,7 @@ describe('live correlation between derived results', () => {
       const t = 1_764_700_000_000 + i * 100;
       for (const [name, value] of [['a', 10 + random.normal()], ['b', 5 + random.normal()]] as const) {
         registry.accept(name, value, t, true);
-        derived.onSample(name, value, t);
+        derived.onSample(name);
       }
     }
     const views = derived.snapshots();

@@ -1,5 +1,6 @@
-import type { Daemon } from '../daemon/daemon.js';
-import type { RegisteredChannel } from '../engine/channel-registry.js';
+import type { Channel } from '../engine/channel.js';
+import type { ChannelTrace } from '../ports/daemon-api.js';
+import type { Store } from '../ports/store.js';
 
 /**
  * The recent samples of a channel for its chart, with the indices that mark where the averaging
@@ -18,18 +19,7 @@ import type { RegisteredChannel } from '../engine/channel-registry.js';
  * Cost: O(count) from the window; reading the store scans the channel's chunk keys (SQLite), so it
  * happens only when the window holds fewer than `count` samples.
  */
-export interface ChannelTrace {
-  firstIndex: number;
-  /** Seconds since the epoch (null when the sample carried no time and none was known). */
-  times: (number | null)[];
-  values: number[];
-  windowStartIndex: number;
-  originIndex: number;
-  /** How many of the leading samples came from the store (before the window). */
-  beforeWindow: number;
-}
-
-export function channelTrace(daemon: Daemon, channel: RegisteredChannel, count: number): ChannelTrace {
+export function channelTrace(store: Store | null, channel: Channel, count: number): ChannelTrace {
   const pipeline = channel.pipeline;
   const window = pipeline.recentTrace(count);
   const windowStartIndex = window.values.length > 0 ? window.firstIndex : pipeline.totalReceived;
@@ -39,14 +29,16 @@ export function channelTrace(daemon: Daemon, channel: RegisteredChannel, count: 
   const times: (number | null)[] = [];
   const values: number[] = [];
   let firstIndex = window.firstIndex;
-  if (missing > 0 && windowStartIndex > 0 && channel.id >= 0 && daemon.store) {
+  if (missing > 0 && windowStartIndex > 0 && store !== null) {
     const from = Math.max(0, windowStartIndex - missing);
     firstIndex = from;
     let expected = from;
-    for (const chunk of daemon.store.samplesFrom(channel.id, from)) {
-      if (chunk.firstSeq >= windowStartIndex) break;
+    // Store indices are the pipeline's plus the channel's offset (not 0 only after a rebuild from a shortened history).
+    const offset = channel.seqOffset;
+    for (const chunk of store.samplesFrom(channel.name, from + offset)) {
+      if (chunk.firstSeq - offset >= windowStartIndex) break;
       for (let i = 0; i < chunk.values.length; i++) {
-        const seq = chunk.firstSeq + i;
+        const seq = chunk.firstSeq - offset + i;
         if (seq < from) continue;
         if (seq >= windowStartIndex) break;
         // Retention may have removed samples: keep the indices honest by starting after the gap.

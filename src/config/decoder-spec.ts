@@ -1,0 +1,37 @@
+/**
+ * How a subscription's payloads are read: part of the configuration (src/ingest/payload-decoder.ts
+ * reads payloads by it). Kept here so that the configuration depends on nothing in ingest.
+ */
+export interface DecoderSpec {
+  format: 'number' | 'json' | 'senml';
+  /** Channel name: a template over topic levels ({1} is the first level, {topic} the whole topic) and, for SenML, {name}. */
+  channel: string;
+  /** Dot path of the value in a JSON object. */
+  valueField: string;
+  /** Dot path of the time in a JSON object (absent: arrival time). */
+  timeField: string | null;
+  /** Unit of numeric times in JSON payloads. */
+  timeUnit: 's' | 'ms';
+  /** Dot path of an array of sample objects inside a JSON object (many samples per message). */
+  samplesField: string | null;
+  /** Dot path of a per-sample channel suffix or name in JSON objects ({field} in the template). */
+  channelField: string | null;
+  /** Fixed unit, or null to take it from SenML. */
+  unit: string | null;
+  maxBytes: number;
+  maxDepth: number;
+  maxSamples: number;
+}
+
+export const DECODER_DEFAULTS: Omit<DecoderSpec, 'format' | 'channel'> = {
+  valueField: 'v',
+  timeField: 't',
+  timeUnit: 's',
+  samplesField: null,
+  channelField: null,
+  unit: null,
+  maxBytes: 262_144, // bytes
+  maxDepth: 8,
+  maxSamples: 10_000,
+};
+

@@ -1,0 +1,243 @@
+import type { Logger } from 'pino';
+import type { SubscriptionConfig } from '../config/plateau-config.js';
+import type { ChannelRegistry } from '../engine/channel-registry.js';
+import type { AcceptResult, Channel } from '../engine/channel.js';
+import type { ChannelEvent } from '../engine/channel-events.js';
+import { decodePayload } from '../ingest/payload-decoder.js';
+import { REJECT_REASONS, type RejectReason } from '../ingest/sample.js';
+import type { Clock } from '../ports/clock.js';
+import type { SourceBatch } from '../ports/sample-source.js';
+import type { PendingBatch } from './pending-batch.js';
+
+/**
+ * Ingest: a source batch in, samples out to their channels and into the pending batch.
+ *
+ * Each delivery is decoded (the only place bad input stops: every refusal is counted by reason and
+ * logged at most once per REJECT_LOG_INTERVAL_MS per reason), each sample goes to its channel's
+ * accept path (the channel's time policy decides), and what the channel accepts, with the events it
+ * raised, joins the pending batch with the batch's acknowledgement token and source position. A
+ * defect in the engine for one sample is caught, counted as `engine-error` and logged: it cannot
+ * take the daemon down, and a sample the channel took before the engine failed is stored all the same. Deliveries on the command topic go to the commands handler.
+ *
+ * Also kept here: which channels the store has (or the pending batch introduces), which took
+ * samples since the last commit (the checkpoint candidates), each channel's last arrival (staleness,
+ * by the daemon's clock), and the ingest lag (see noteLag).
+ */
+export interface IngestOptions {
+  registry: ChannelRegistry;
+  batch: PendingBatch;
+  clock: Clock;
+  log: Logger;
+  commandTopic: string;
+  lagWarningMs: number;
+  /** The unit the configuration gives a channel (for channels whose payload names none). */
+  configuredUnit(name: string): string | null;
+  /** A command message (topic below the command topic, payload). */
+  command(action: string, payload: Uint8Array): void;
+  /** An event of the daemon's own (ingest lag). */
+  raise(source: string, kind: string, at: number | null, body: Record<string, unknown>): void;
+  /** Whether a derived result uses the channel (asked once per channel). */
+  isDerivedInput(channel: string): boolean;
+  /** A channel that derived results use took a sample (they are brought up to date later). */
+  sampled(channel: string): void;
+  /** Asks for a commit. */
+  requestCommit(): void;
+}
+
+export interface IngestCounters {
+  messages: number;
+  accepted: number;
+  late: number;
+  rejected: Record<RejectReason, number>;
+  ingestLagMs: number;
+}
+
+/** Log one line per reason at most this often. */
+const REJECT_LOG_INTERVAL_MS = 10_000;
+/** Seconds over which the usual difference between arrival and time stamp is taken. */
+const LAG_BASELINE_SECONDS = 60;
+
+/** What ingest keeps per channel: one look-up per sample. */
+interface Tracked {
+  channel: Channel;
+  /** The store has the channel, or the pending batch introduces it. */
+  introduced: boolean;
+  /** Took samples since the last commit (a checkpoint candidate). */
+  active: boolean;
+  /** Wall-clock ms of the last sample (NaN: none since the start). */
+  lastArrival: number;
+  derivedInput: boolean;
+}
+
+export class Ingest {
+  readonly counters: IngestCounters = { messages: 0, accepted: 0, late: 0, rejected: Object.fromEntries(REJECT_REASONS.map((r) => [r, 0])) as Record<RejectReason, number>, ingestLagMs: 0 };
+  private readonly options: IngestOptions;
+  private readonly commandPrefix: string;
+  private readonly tracked = new Map<string, Tracked>();
+  private active: Tracked[] = [];
+  private readonly lastRejectLog = new Map<string, number>();
+  private readonly lagSeconds = new Float64Array(LAG_BASELINE_SECONDS).fill(-Infinity);
+  private readonly lagMinima = new Float64Array(LAG_BASELINE_SECONDS);
+  private lagWarned = false;
+
+  constructor(options: IngestOptions) {
+    this.options = options;
+    this.commandPrefix = `${options.commandTopic}/`;
+  }
+
+  /** A channel the store already has (restored at start). */
+  known(channel: Channel): void {
+    this.track(channel.name, null).introduced = true;
+  }
+
+  /** The channels that took samples since the last call (a restored channel rebuilt by a replay counts too). */
+  takeActive(): Channel[] {
+    const out = this.active.map((t) => {
+      t.active = false;
+      return t.channel;
+    });
+    this.active = [];
+    return out;
+  }
+
+  touch(channel: Channel): void {
+    this.activate(this.track(channel.name, null));
+  }
+
+  /** Makes sure the store gets the channel: a new one joins the pending batch (its first commit creates it). */
+  introduce(channel: Channel): void {
+    const tracked = this.track(channel.name, null);
+    if (tracked.introduced) return;
+    tracked.introduced = true;
+    this.options.batch.addChannel(channel.name, channel.unit);
+  }
+
+  /** The channel's record, the channel created (with its configured unit) when new. */
+  private track(name: string, unit: string | null): Tracked {
+    let tracked = this.tracked.get(name);
+    if (tracked === undefined) {
+      const channel = this.options.registry.ensure(name, unit ?? this.options.configuredUnit(name));
+      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name) };
+      this.tracked.set(name, tracked);
+    } else if (unit !== null && tracked.channel.unit === null) tracked.channel.unit = unit;
+    return tracked;
+  }
+
+  private activate(tracked: Tracked): void {
+    if (tracked.active) return;
+    tracked.active = true;
+    this.active.push(tracked);
+  }
+
+  batch(batch: SourceBatch): void {
+    const pending = this.options.batch;
+    for (const delivery of batch.deliveries) {
+      this.message(delivery.topic, delivery.payload, delivery.subscription);
+      if (delivery.position.durable) pending.setPosition(delivery.position);
+    }
+    pending.addToken(batch.token);
+    this.options.requestCommit();
+  }
+
+  private message(topic: string, payload: Uint8Array, subscription: SubscriptionConfig | null): void {
+    const { batch, clock } = this.options;
+    const arrival = clock.now();
+    this.counters.messages++;
+    if (topic.startsWith(this.commandPrefix)) return this.options.command(topic.slice(this.commandPrefix.length), payload);
+    if (subscription === null) return this.rejected('unknown-topic', `topic ${topic.slice(0, 80)}: no subscription of this daemon matches it`);
+    const decoded = decodePayload(topic, payload, subscription, arrival);
+    for (const rejection of decoded.rejections) this.rejected(rejection.reason, rejection.detail);
+    let latestStamp = 0;
+    for (const sample of decoded.samples) {
+      let tracked: Tracked;
+      let result: AcceptResult;
+      try {
+        tracked = this.track(sample.channel, sample.unit ?? null);
+        result = tracked.channel.accept(sample.value, sample.timeMs, sample.stamped);
+      } catch (error) {
+        // A defect in the engine must not take the daemon down: the sample is counted and logged (with the stack).
+        this.rejected('engine-error', `channel ${sample.channel}: ${(error as Error).message}`, error);
+        continue;
+      }
+      if (!result.accepted) {
+        this.rejected(result.reason, `channel ${sample.channel}: sample at ${new Date(sample.timeMs).toISOString()} ${result.reason === 'duplicate' ? 'repeats an accepted time' : 'is older than every remembered one'}`);
+        continue;
+      }
+      this.counters.accepted++;
+      if (result.late) this.counters.late++;
+      if (sample.stamped && sample.timeMs > latestStamp) latestStamp = sample.timeMs;
+      const channel = tracked.channel;
+      tracked.lastArrival = arrival;
+      if (!tracked.introduced) this.introduce(channel);
+      batch.addSample(channel.name, result.seq, result.timeMs, sample.value, sample.stamped);
+      // The channel took the sample and then the engine failed on it: the sample is stored (nothing
+      // accepted is lost) and the defect counted and logged.
+      if (result.engineError !== null) this.rejected('engine-error', `channel ${sample.channel}: sample ${result.seq} stored, but the engine failed on it: ${result.engineError.message}`, result.engineError);
+      if (!tracked.active) this.activate(tracked);
+      for (const event of result.events) this.channelEvent(channel, event);
+      if (tracked.derivedInput) this.options.sampled(channel.name);
+    }
+    if (latestStamp > 0) this.noteLag(arrival, arrival - latestStamp);
+  }
+
+  /** A channel's event joins the batch, its source the channel. */
+  channelEvent(channel: Channel, event: ChannelEvent): void {
+    const { kind, at, ...rest } = event;
+    this.options.raise(channel.name, kind, at, { channel: channel.name, ...rest });
+  }
+
+  /** Counts (and logs, at a limited rate) a refused payload or sample; an engine defect is logged with its error. */
+  rejected(reason: RejectReason, detail: string, err?: unknown): void {
+    this.counters.rejected[reason]++;
+    const now = this.options.clock.now();
+    const last = this.lastRejectLog.get(reason) ?? Number.NEGATIVE_INFINITY;
+    if (now - last >= REJECT_LOG_INTERVAL_MS) {
+      this.lastRejectLog.set(reason, now);
+      if (err !== undefined) this.options.log.error({ reason, count: this.counters.rejected[reason], err }, `rejected: ${detail}`);
+      else this.options.log.warn({ reason, count: this.counters.rejected[reason] }, `rejected: ${detail}`);
+    }
+  }
+
+  /** Channels silent for their staleSeconds (by the daemon's clock) turn stale; one event each. */
+  checkStale(): void {
+    const now = this.options.clock.now();
+    let any = false;
+    for (const channel of this.options.registry.all()) {
+      // A channel restored from the store (or created by a test point) counts its silence from the daemon's start.
+      const tracked = this.track(channel.name, null);
+      if (Number.isNaN(tracked.lastArrival)) tracked.lastArrival = now;
+      const event = channel.pipeline.checkStale((now - tracked.lastArrival) / 1000);
+      if (event) {
+        this.channelEvent(channel, event);
+        any = true;
+      }
+    }
+    if (any) this.options.requestCommit();
+  }
+
+  /**
+   * Ingest lag: how much later than usual samples are handled, measured against their own time
+   * stamps. The difference arrival - stamp also holds the rig clock's offset (or a replay's age), so
+   * the lag is the excess over the smallest difference seen in the last LAG_BASELINE_SECONDS: a
+   * daemon that falls behind sees it grow, while a constant clock offset cancels out.
+   */
+  private noteLag(arrivalMs: number, differenceMs: number): void {
+    const second = Math.floor(arrivalMs / 1000);
+    const slot = second % LAG_BASELINE_SECONDS;
+    if (this.lagSeconds[slot] !== second) {
+      this.lagSeconds[slot] = second;
+      this.lagMinima[slot] = differenceMs;
+    } else if (differenceMs < (this.lagMinima[slot] as number)) this.lagMinima[slot] = differenceMs;
+    let baseline = Number.POSITIVE_INFINITY;
+    for (let i = 0; i < LAG_BASELINE_SECONDS; i++) {
+      if (second - (this.lagSeconds[i] as number) < LAG_BASELINE_SECONDS && (this.lagMinima[i] as number) < baseline) baseline = this.lagMinima[i] as number;
+    }
+    const lagMs = Math.max(0, differenceMs - baseline);
+    this.counters.ingestLagMs = lagMs;
+    const warning = this.options.lagWarningMs;
+    if (!this.lagWarned && lagMs > warning) {
+      this.lagWarned = true;
+      this.options.raise('daemon', 'ingest-lag', null, { lagMs, detail: `samples are being handled ${(lagMs / 1000).toFixed(1)} s later than their time stamps allow: the daemon is falling behind and the broker is queueing` });
+    } else if (this.lagWarned && lagMs < warning / 2) this.lagWarned = false;
+  }
+}

@@ -1,0 +1,107 @@
+import type { ChannelRegistry } from '../engine/channel-registry.js';
+import type { Channel } from '../engine/channel.js';
+import type { ChannelView, DerivedView, TestPointView } from '../ports/daemon-api.js';
+import type { Store, StoredEvent, StoredRecord } from '../ports/store.js';
+import { channelTrace } from './channel-trace.js';
+import type { DerivedResults } from './derived-results.js';
+import type { TestPointControl } from './test-point-control.js';
+
+/**
+ * The read side of the daemon's API (src/ports/daemon-api.ts): channels, derived results, stored
+ * events, test points and records, as plain views. A channel's view is made once and reads the
+ * channel on demand; its `version` changes with every sample or event, which is how the WebSocket
+ * hub tells which summaries to send again.
+ */
+export interface QueriesOptions {
+  registry: ChannelRegistry;
+  derived: DerivedResults;
+  testPoints: TestPointControl;
+  store(): Store | null;
+  /** The newest stored event id (restored at start, then published). */
+  lastEventId(): number;
+}
+
+export class Queries {
+  private readonly options: QueriesOptions;
+  private readonly views = new Map<Channel, ChannelView>();
+
+  constructor(options: QueriesOptions) {
+    this.options = options;
+  }
+
+  channels(): ChannelView[] {
+    return this.options.registry.all().map((channel) => this.viewOf(channel));
+  }
+
+  channel(name: string): ChannelView | null {
+    const channel = this.options.registry.get(name);
+    return channel === undefined ? null : this.viewOf(channel);
+  }
+
+  derivedNames(): string[] {
+    return this.options.derived.names();
+  }
+
+  derivedResults(): DerivedView[] {
+    return this.options.derived.names().length === 0 ? [] : this.options.derived.views();
+  }
+
+  derivedResult(name: string): DerivedView | null {
+    if (!this.options.derived.names().includes(name)) return null;
+    return this.derivedResults().find((view) => view.name === name) ?? null;
+  }
+
+  events(after: number, limit: number): StoredEvent[] {
+    return this.options.store()?.eventsAfter(after, limit) ?? [];
+  }
+
+  /** The newest `limit` events: ids are consecutive and retention only removes the oldest, so one query. */
+  latestEvents(limit: number): StoredEvent[] {
+    return this.events(Math.max(0, this.options.lastEventId() - limit), limit);
+  }
+
+  event(id: number): StoredEvent | null {
+    if (!Number.isInteger(id) || id < 1) return null;
+    const [event] = this.events(id - 1, 1);
+    return event !== undefined && event.id === id ? event : null;
+  }
+
+  eventsFor(source: string, limit: number): StoredEvent[] {
+    return this.options.store()?.eventsFor(source, limit) ?? [];
+  }
+
+  testPoints(): TestPointView[] {
+    return this.options.testPoints.views();
+  }
+
+  testPoint(id: string): TestPointView | null {
+    return this.options.testPoints.view(id);
+  }
+
+  records(testPointId: string): StoredRecord[] {
+    return this.options.store()?.records(testPointId) ?? [];
+  }
+
+  private viewOf(channel: Channel): ChannelView {
+    let view = this.views.get(channel);
+    if (view === undefined) {
+      const store = () => this.options.store();
+      view = {
+        name: channel.name,
+        get unit() {
+          return channel.unit;
+        },
+        get version() {
+          return channel.pipeline.totalReceived + channel.pipeline.snapshotKeyEvents * 2 ** 40;
+        },
+        summary: () => channel.pipeline.summary(),
+        snapshot: () => channel.pipeline.snapshot(),
+        trace: (count) => channelTrace(store(), channel, count),
+        cusumTrace: () => channel.pipeline.cusumTrace(),
+        storedEvents: (limit) => store()?.eventsFor(channel.name, limit) ?? [],
+      };
+      this.views.set(channel, view);
+    }
+    return view;
+  }
+}

@@ -1,0 +1,105 @@
+import type { ChannelRegistry } from '../engine/channel-registry.js';
+import type { TestPointChange, TestPoints } from '../engine/test-points.js';
+import type { Clock } from '../ports/clock.js';
+import type { TestPointRequest, TestPointView } from '../ports/daemon-api.js';
+import type { DerivedResults } from './derived-results.js';
+import type { Ingest } from './ingest.js';
+import type { PendingBatch } from './pending-batch.js';
+
+/**
+ * Test-point orchestration: starting one restarts the growing window of each of its channels, and
+ * of the inputs of its derived results, at their next sample (the channels hand out the marks,
+ * stored with the batch so a replay restarts them at the same sample); stopping one, annotating it,
+ * and its readiness (checked before every commit) write its state, its record and an event. A
+ * command commits at once so that its answer reports a durable change, and is refused while
+ * commits fail (`requireStore`): nothing it changed could be stored.
+ */
+export interface TestPointControlOptions {
+  testPoints: TestPoints;
+  registry: ChannelRegistry;
+  derived: DerivedResults;
+  ingest: Ingest;
+  batch: PendingBatch;
+  clock: Clock;
+  /** Throws ERR_STORE_UNAVAILABLE while commits fail. */
+  requireStore(): void;
+  /** Commits at once. */
+  commit(): void;
+  raise(source: string, kind: string, at: number | null, body: Record<string, unknown>): void;
+  configuredUnit(name: string): string | null;
+}
+
+export class TestPointControl {
+  private readonly options: TestPointControlOptions;
+
+  constructor(options: TestPointControlOptions) {
+    this.options = options;
+  }
+
+  start(request: TestPointRequest): TestPointView {
+    const { testPoints, registry, derived, ingest, batch, clock } = this.options;
+    this.options.requireStore();
+    const change = testPoints.start(request, clock.now(), derived.names());
+    if (change.kind === 'test-point-started') {
+      const marks = [...change.marks];
+      // The inputs of the test point's derived results restart with it, even when they are not
+      // listed as channels (they do not join its readiness: a channel without a target is never precise).
+      for (const name of derived.inputsOf(change.point.derived)) {
+        if (change.point.channels.includes(name)) continue;
+        const channel = registry.ensure(name, this.options.configuredUnit(name));
+        if (channel.pipeline.options.window.kind !== 'growing') continue;
+        marks.push({ channel: name, seq: channel.restartWindow().seq });
+      }
+      for (const mark of marks) {
+        const channel = registry.ensure(mark.channel, null);
+        ingest.introduce(channel);
+        batch.addMark({ channel: channel.name, seq: mark.seq, kind: 'restart-window' });
+      }
+      derived.restart(change.point.derived);
+    }
+    this.apply(change);
+    this.options.commit();
+    return this.view(change.point.id) as TestPointView;
+  }
+
+  stop(id: string): TestPointView {
+    this.options.requireStore();
+    this.apply(this.options.testPoints.stop(id, this.options.clock.now()));
+    this.options.commit();
+    return this.view(id) as TestPointView;
+  }
+
+  annotate(id: string, text: string): TestPointView {
+    this.options.requireStore();
+    const point = this.options.testPoints.annotate(id, text, this.options.clock.now());
+    this.options.batch.putTestPoint(point.id, point);
+    this.options.raise(id, 'test-point-annotated', null, { text: text.slice(0, 2000) });
+    this.options.commit();
+    return this.view(id) as TestPointView;
+  }
+
+  /** Before each commit: running test points whose channels and derived results are all at target become ready. */
+  evaluate(nowMs: number): void {
+    for (const change of this.options.testPoints.evaluate(nowMs)) this.apply(change);
+  }
+
+  view(id: string): TestPointView | null {
+    const point = this.options.testPoints.get(id);
+    return point ? { ...point, verdict: this.options.testPoints.verdict(point) } : null;
+  }
+
+  views(): TestPointView[] {
+    return this.options.testPoints.list().map((point) => ({ ...point, verdict: this.options.testPoints.verdict(point) }));
+  }
+
+  private apply(change: TestPointChange): void {
+    const { batch } = this.options;
+    batch.putTestPoint(change.point.id, change.point);
+    const body: Record<string, unknown> = { testPoint: change.point.id, name: change.point.name, channels: change.point.channels, state: change.point.state };
+    if (change.kind !== 'test-point-started') {
+      batch.addRecord(change.point.id, change.record);
+      body.record = change.record;
+    }
+    this.options.raise(change.point.id, change.kind, null, body);
+  }
+}

@@ -1,0 +1,279 @@
+import { ChannelPipeline } from './channel-pipeline.js';
+import type { ChannelOptions } from './channel-options.js';
+import type { ChannelEvent } from './channel-events.js';
+import { channelRecord, decideCheckpoint, optionsIdentity, type ChannelRecord, type OptionsIdentity } from './channel-state.js';
+import { SteadyHistory } from './steadiness.js';
+
+/**
+ * One channel of the daemon: its pipeline, the time policy that decides which samples enter, its
+ * window restarts and its replay. Everything the daemon stores about a channel is what this object
+ * hands out: accepted samples (with their index and the time taken), events, window marks and
+ * checkpoints; and a restart feeds the stored samples back through the same accept path, so the
+ * restored channel has decided every sample exactly as the live one did.
+ *
+ * Time policy (documented in the README): a sample's time is its payload's time when it has one,
+ * else its arrival time. Samples are taken in arrival order. A payload-stamped sample whose time
+ * equals one of the channel's last RECENT_TIMES accepted stamped times is a duplicate (an MQTT
+ * message delivered again after a reconnect) and is refused; one older than the newest but still
+ * within those recent times is late (messages reordered around a reconnect) and is accepted and
+ * counted as late; one older than all of them is out of order and refused, since nothing can tell
+ * whether it repeats an earlier one. Arrival-stamped samples are never refused; their time is held
+ * at or after the channel's last time (so a repeat cannot be recognised: use payload times when
+ * delivery is at least once).
+ *
+ * Restore (`restore`): the checkpoint is loaded or set aside as src/engine/channel-state.ts
+ * decides (a named, versioned record with the fingerprint of the options it was built under); then
+ * the stored samples before the checkpoint's index only refill the remembered times (up to
+ * RECENT_TIMES of them), and from the index on each goes through the same classify-then-admit path
+ * as a live sample, with the stamp flag it was stored with, while the window marks restart the
+ * window at their sample index. The verdict is the live one by construction; should a stored sample
+ * be refused all the same (retention removed the samples its lateness was judged against), it is
+ * taken anyway, since it was accepted once, and counted in `RestoreReport.forced`. A checkpoint set
+ * aside means a replay of every stored sample; when retention has removed the oldest, the channel
+ * starts again at the first one kept (`seqOffset`: its sample indices still match the store's,
+ * while the indices in its events count from there).
+ *
+ * No clock, no I/O: times come in as arguments.
+ */
+
+/**
+ * Accepted times remembered per channel (32 KiB). After a reconnect a broker may redeliver the
+ * whole window of messages the daemon had not yet acknowledged (it acknowledges after each commit)
+ * interleaved with new ones (aedes does): around a broker restart in test/integration/broker-restart
+ * a first delivery came up to 400 samples behind the newest, which 256 remembered times turned into
+ * lost samples about one run in five. The scan runs only for a sample older than the newest.
+ */
+export const RECENT_TIMES = 4096;
+
+export type AcceptResult =
+  | { accepted: true; seq: number; timeMs: number; late: boolean; events: readonly ChannelEvent[]; /** The engine failed on the sample after taking it (a defect): it must still be stored. */ engineError: Error | null }
+  | { accepted: false; reason: 'duplicate' | 'out-of-order' };
+
+/** A window restart at sample index `seq` (a test point started): stored, and replayed at that index. */
+export interface WindowMark {
+  seq: number;
+  kind: 'restart-window';
+}
+
+/** A stored sample run, as the store hands it back (times in epoch ms). */
+export interface StoredSamples {
+  firstSeq: number;
+  times: ArrayLike<number>;
+  values: ArrayLike<number>;
+  /** Bit i set: sample i carried no time of its own. */
+  unstamped: Uint8Array | null;
+}
+
+/** What a channel reads from the store at restart. */
+export interface ChannelHistory {
+  /** Stored samples from `fromSeq` on (a run may start before it), in order. */
+  samplesFrom(fromSeq: number): Iterable<StoredSamples>;
+  marksFrom(fromSeq: number): readonly { seq: number; kind: string }[];
+}
+
+export interface RestoreReport {
+  /** fresh: no checkpoint; loaded: from the checkpoint; replayed: the checkpoint was set aside. */
+  outcome: 'fresh' | 'loaded' | 'replayed';
+  /** Why, for the log (options carried over, why a checkpoint was set aside, a shortened history). */
+  detail: string | null;
+  /** Samples fed through the pipeline. */
+  replayed: number;
+  /** Stored samples the time policy would refuse now, taken all the same (see the class comment). */
+  forced: number;
+}
+
+export class Channel {
+  readonly name: string;
+  unit: string | null;
+  private readonly options: ChannelOptions;
+  /** The options as the checkpoints carry them (computed once: a checkpoint of every channel is written at each stop). */
+  private readonly identity: OptionsIdentity;
+  private current: ChannelPipeline;
+  /** Store index of the pipeline's sample 0 (see the class comment). */
+  private offset = 0;
+  /** When the channel was steady, by pipeline sample index (for derived results). */
+  private readonly steadiness = new SteadyHistory();
+  private lastStampMs = Number.NEGATIVE_INFINITY;
+  /** The last RECENT_TIMES accepted payload times (a ring), for duplicate and lateness checks. */
+  private readonly recentTimes = new Float64Array(RECENT_TIMES);
+  private recentCount = 0;
+
+  constructor(name: string, unit: string | null, options: ChannelOptions) {
+    this.name = name;
+    this.unit = unit;
+    this.options = options;
+    this.identity = optionsIdentity(options);
+    this.current = new ChannelPipeline(name, options);
+  }
+
+  get pipeline(): ChannelPipeline {
+    return this.current;
+  }
+
+  /** Store index of the pipeline's sample 0 (0 unless rebuilt from a history retention had shortened). */
+  get seqOffset(): number {
+    return this.offset;
+  }
+
+  /** Epoch milliseconds of the newest accepted sample (its own time stamp, or its held arrival time). */
+  get lastTimeMs(): number {
+    return this.lastStampMs;
+  }
+
+  /** The store index the next accepted sample gets. */
+  get nextSeq(): number {
+    return this.offset + this.current.totalReceived;
+  }
+
+  /** Applies the time policy and, when it admits the sample, feeds the pipeline. */
+  accept(value: number, timeMs: number, stamped: boolean): AcceptResult {
+    const verdict = this.classify(timeMs, stamped);
+    if (verdict === 'duplicate' || verdict === 'out-of-order') return { accepted: false, reason: verdict };
+    const seq = this.nextSeq;
+    let events: readonly ChannelEvent[] = [];
+    let engineError: Error | null = null;
+    try {
+      events = this.admit(value, timeMs, stamped);
+    } catch (error) {
+      // Not taken at all: nothing to store. Taken, then failed: the index is used, so the sample is stored.
+      if (this.nextSeq === seq) throw error;
+      engineError = error instanceof Error ? error : new Error(String(error));
+    }
+    return { accepted: true, seq, timeMs: this.admitted, late: verdict === 'late', events, engineError };
+  }
+
+  /** Starts a new growing window at the next sample (a test point starts); returns the mark to store. */
+  restartWindow(): WindowMark {
+    const mark: WindowMark = { seq: this.nextSeq, kind: 'restart-window' };
+    this.steadiness.restart(this.current.totalReceived);
+    this.current.restartWindow();
+    return mark;
+  }
+
+  /** Whether the channel was steady when it took its sample of pipeline index `index` (see src/engine/steadiness.ts). */
+  steadyAt(index: number): boolean {
+    return this.steadiness.steadyAt(index);
+  }
+
+  /** The checkpoint to store: the channel record and the index of the next sample. */
+  checkpoint(): { seq: number; state: ChannelRecord } {
+    return { seq: this.nextSeq, state: channelRecord(this.identity, this.offset, this.current.saveState(), this.steadiness.state()) };
+  }
+
+  /** Rebuilds a new channel from its checkpoint (or none) and its stored samples and marks. */
+  restore(checkpoint: { seq: number; state: unknown } | null, history: ChannelHistory): RestoreReport {
+    let outcome: RestoreReport['outcome'] = 'fresh';
+    let detail: string | null = null;
+    let from = 0;
+    if (checkpoint !== null) {
+      const decision = decideCheckpoint(checkpoint.state, this.options, this.identity);
+      if (decision.action === 'load') {
+        try {
+          this.current.loadState(decision.pipeline);
+          if (decision.steadiness !== null) this.steadiness.load(decision.steadiness);
+          else this.steadiness.noteEvents(decision.pipeline.recentEvents);
+          this.offset = decision.seqOffset;
+          from = checkpoint.seq;
+          outcome = 'loaded';
+          if (decision.carriedOver.length > 0) detail = `carried over to the changed options ${decision.carriedOver.join(', ')}`;
+        } catch (error) {
+          this.current = new ChannelPipeline(this.name, this.options);
+          outcome = 'replayed';
+          detail = `the checkpoint could not be read (${(error as Error).message})`;
+        }
+      } else {
+        outcome = 'replayed';
+        detail = decision.reason;
+      }
+    }
+    if (outcome === 'replayed' || outcome === 'fresh') {
+      // Every stored sample, from the first one kept.
+      const runs = history.samplesFrom(0)[Symbol.iterator]();
+      const first = runs.next();
+      if (first.done) return { outcome, detail, replayed: 0, forced: 0 };
+      this.offset = first.value.firstSeq;
+      if (this.offset > 0) detail = `${detail ?? 'no checkpoint'}; rebuilt from stored sample ${this.offset} on (retention removed the earlier ones): the statistics start there, and event indices count from there`;
+      const all = (function* () {
+        yield first.value;
+        for (let next = runs.next(); !next.done; next = runs.next()) yield next.value;
+      })();
+      return { outcome, detail, ...this.replay(all, history.marksFrom(this.offset), this.offset) };
+    }
+    return { outcome, detail, ...this.replay(history.samplesFrom(Math.max(this.offset, from - RECENT_TIMES)), history.marksFrom(from), from) };
+  }
+
+  /**
+   * `fromSeq` is the store index of the first sample the pipeline has not seen; `samples` start at
+   * or before max(offset, fromSeq - RECENT_TIMES) when they still exist; `marks` are the window
+   * marks at or after fromSeq.
+   */
+  private replay(samples: Iterable<StoredSamples>, marks: readonly { seq: number; kind: string }[], fromSeq: number): { replayed: number; forced: number } {
+    let markIndex = 0;
+    let replayed = 0;
+    let forced = 0;
+    const applyMarks = (seq: number) => {
+      while (markIndex < marks.length && (marks[markIndex] as { seq: number }).seq <= seq) {
+        const mark = marks[markIndex] as { seq: number; kind: string };
+        if (mark.seq === seq && mark.kind === 'restart-window') {
+          this.steadiness.restart(this.current.totalReceived);
+          this.current.restartWindow();
+        }
+        markIndex++;
+      }
+    };
+    for (const run of samples) {
+      for (let i = 0; i < run.values.length; i++) {
+        const seq = run.firstSeq + i;
+        const timeMs = run.times[i] as number;
+        const stamped = run.unstamped === null || ((run.unstamped[i >> 3] as number) & (1 << (i & 7))) === 0;
+        if (seq < fromSeq) {
+          // Before the checkpoint: only the time policy's memory.
+          if (stamped) this.remember(timeMs);
+          if (timeMs > this.lastStampMs) this.lastStampMs = timeMs;
+          continue;
+        }
+        applyMarks(seq);
+        const verdict = this.classify(timeMs, stamped);
+        if (verdict === 'duplicate' || verdict === 'out-of-order') forced++;
+        this.admit(run.values[i] as number, timeMs, stamped);
+        replayed++;
+      }
+    }
+    // A mark at the very next sample (a test point started after the last stored sample).
+    applyMarks(this.nextSeq);
+    return { replayed, forced };
+  }
+
+  /** For a stamped time: on time (newer than every accepted one), a repeat, late but recent, or too old to tell. */
+  private classify(timeMs: number, stamped: boolean): 'on-time' | 'late' | 'duplicate' | 'out-of-order' {
+    if (!stamped || timeMs > this.lastStampMs) return 'on-time';
+    const count = Math.min(this.recentCount, RECENT_TIMES);
+    let oldest = Number.POSITIVE_INFINITY;
+    for (let i = 0; i < count; i++) {
+      const t = this.recentTimes[i] as number;
+      if (t === timeMs) return 'duplicate';
+      if (t < oldest) oldest = t;
+    }
+    return timeMs > oldest ? 'late' : 'out-of-order';
+  }
+
+  /** The time the last admitted sample was taken at (its own, or its arrival time held at the last time). */
+  private admitted = Number.NaN;
+
+  /** The one way a sample enters the pipeline, live or replayed; returns the events it raised. */
+  private admit(value: number, timeMs: number, stamped: boolean): readonly ChannelEvent[] {
+    let time = timeMs;
+    if (stamped) this.remember(timeMs);
+    else if (time < this.lastStampMs) time = this.lastStampMs;
+    if (time > this.lastStampMs) this.lastStampMs = time;
+    this.admitted = time;
+    const events = this.current.push(value, time / 1000);
+    if (events.length > 0) this.steadiness.noteEvents(events);
+    return events;
+  }
+
+  private remember(timeMs: number): void {
+    this.recentTimes[this.recentCount % RECENT_TIMES] = timeMs;
+    this.recentCount++;
+  }
+}
