@@ -1,3 +1,4 @@
+import type { StoreHealth } from '../ports/daemon-api.js';
 import type { Logger } from 'pino';
 import type { Clock } from '../ports/clock.js';
 import type { AckToken } from '../ports/sample-source.js';
@@ -23,19 +24,8 @@ import { PendingBatch } from './pending-batch.js';
  * reports the recovery. With MQTT at QoS 1 the broker stops sending once its window of
  * unacknowledged messages is full, so a failing store throttles the stream instead of losing it.
  */
-export interface CommitHealth {
-  failing: boolean;
-  /** Wall-clock ms of the first failure of the current streak (null when healthy). */
-  since: number | null;
-  /** Failed attempts in the current streak. */
-  attempts: number;
-  lastError: { code: string; message: string } | null;
-  pendingSamples: number;
-  pendingAcknowledgements: number;
-  commits: number;
-  lastCommitMs: number;
-  maxCommitMs: number;
-}
+/** How commits fare: the store-health view of the daemon's API (src/ports/daemon-api.ts). */
+export type CommitHealth = StoreHealth;
 
 export interface CommitCycleOptions {
   store: Pick<Store, 'commit'>;
