@@ -679,7 +679,7 @@ export class ChannelPipeline {
     const noise = this.shortMemoryNoise();
     const found = recheckTransient(this.history, noise.longRunVariance, noise.tauInt, this.series.firstIndex, this.series.nextIndex);
     if (!found) return;
-    this.transient = { amplitude: found.fit.amplitude, timeConstant: found.fit.timeConstant, level: found.fit.level, improvement: found.fit.improvement, significant: true, decays: found.fit.decays };
+    this.transient = { amplitude: found.fit.amplitude, timeConstant: found.fit.timeConstant, level: found.fit.level, improvement: found.fit.improvement, significant: true, decays: found.fit.decays, lackOfFit: found.fit.lackOfFit };
     if (found.start === null) {
       // After a break the level's own movements are the monitor's to judge (a drift is a trend).
       if (this.lostBefore) return;
@@ -793,7 +793,7 @@ export class ChannelPipeline {
     const noise = this.shortMemoryNoise();
     const fit = alarmIsWarmup(this.history, noise.longRunVariance, noise.tauInt);
     if (!fit) return false;
-    this.transient = { amplitude: fit.amplitude, timeConstant: fit.timeConstant, level: fit.level, improvement: fit.improvement, significant: true, decays: fit.decays };
+    this.transient = { amplitude: fit.amplitude, timeConstant: fit.timeConstant, level: fit.level, improvement: fit.improvement, significant: true, decays: fit.decays, lackOfFit: fit.lackOfFit };
     this.withdrawSteady(index, fit.timeConstant, 'the monitor\'s alarm is the warm-up still running: the record since the window began is explained by a decaying transient, not by a break');
     return true;
   }

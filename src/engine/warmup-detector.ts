@@ -56,6 +56,8 @@ export interface TransientSummary {
   significant: boolean;
   /** Decayed within the record (a warm-up seen to settle, not a level still moving). */
   decays: boolean;
+  /** Residual over noise variance of the fit (see core/stationarity/transient-fit.ts). */
+  lackOfFit: number;
 }
 
 export interface WarmupVerdict {
@@ -85,6 +87,28 @@ export const BIAS_TOLERANCE = 0.25;
  * the tail is seen, so a start that was just admissible would otherwise creep at every check).
  */
 export const BIAS_TRIGGER = 0.6;
+/**
+ * Largest lack of fit (residual over noise variance of the block means, transient-fit.ts) at which
+ * the exponential is taken as the warm-up's shape. Measured on the exponential families of the
+ * studies (src/sim/warmup-families.ts, 36 families x 4 seeds, every 500 samples): median 0.98,
+ * 99th percentile 2.0, largest 2.6. Ramps, S-curves and step-then-settle shapes read 4 to several
+ * hundred; for them the fit's tail is a fiction that pushes the start late or withdraws a sound
+ * verdict, so MSER places the cut instead. A ramp and hold under heavier noise can read below the
+ * limit: a ramp-and-hold fit that beats the exponential by RAMP_MARGIN block variances says so.
+ */
+export const LACK_OF_FIT_LIMIT = 3;
+
+/** Whether a fitted transient is the warm-up's shape: significant and no worse than exponential noise allows. */
+export function fitDescribesWarmup(fit: TransientFit): boolean {
+  return fit.significant && fit.lackOfFit <= LACK_OF_FIT_LIMIT && fit.rss <= fit.rampAndHoldRss + RAMP_MARGIN * fit.noiseVariance;
+}
+
+/**
+ * A ramp that ends and holds must fit better than the exponential by this many block variances (a
+ * log-likelihood lead of 5, as for a break in transient-fit.ts warmupExplains) for the warm-up to
+ * be taken as a ramp: near the noise the two trade places at random.
+ */
+const RAMP_MARGIN = 10;
 
 export interface WarmupInput {
   /** The window's values, oldest first. */
@@ -118,8 +142,8 @@ export function detectWarmup(input: WarmupInput): WarmupVerdict {
   // The fit takes the same noise estimate as the steady window's recheck (recheckTransient), so the
   // two cannot disagree about one record and flap. It is cheap (the history's blocks): it runs
   // first, and the tests over the window's samples only where it leaves the question open.
-  const fit = fitTransient({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance: input.noise.longRunVariance, tauInt: input.noise.tauInt });
-  const transient = fit ? summary(fit) : null;
+  let fit = fitTransient({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance: input.noise.longRunVariance, tauInt: input.noise.tauInt });
+  let transient = fit ? summary(fit) : null;
   const needed = MIN_EFFECTIVE;
   let tau = Math.max(1, input.noise.tauInt);
   let minKept = Math.ceil(needed * tau);
@@ -130,7 +154,8 @@ export function detectWarmup(input: WarmupInput): WarmupVerdict {
     return { ...none, steady: false, start: firstIndex, method: 'transient-fit', reason: 'too short to check for a warm-up', pending: { condition: 'effective-samples', message: `the record is too short to tell a warm-up from correlated noise: about ${formatSamples(toGo)} more samples`, samplesToGo: toGo } };
   }
   let whole: HeidelbergerWelchResult | null = null;
-  if (fit.significant) {
+  let shaped = fitDescribesWarmup(fit);
+  if (shaped) {
     // The window's own tau_int is inflated by the transient it holds; the fit's noise (its residual
     // S(0)) over the second half's spread gives the steady noise's.
     const tailVariance = variance(values.subarray(n >> 1));
@@ -149,7 +174,7 @@ export function detectWarmup(input: WarmupInput): WarmupVerdict {
   let method: WarmupVerdict['method'];
   let reason: string;
   let proposal: MserResult | null = null;
-  if (fit?.significant) {
+  if (shaped) {
     const admissible = admissibleStart(fit, firstIndex, next, BIAS_TOLERANCE, minKept);
     if (admissible === null) {
       if (!fit.decays) {
@@ -184,6 +209,27 @@ export function detectWarmup(input: WarmupInput): WarmupVerdict {
     method = 'mser';
     reason = 'MSER truncation';
   }
+  // The record kept must hold no transient of its own: a warm-up of another shape (an overshoot,
+  // an S-curve) or with a second, slower lag usually ends in a first-order tail that MSER, or the
+  // fit of the whole record dominated by the fast part, leaves in the kept mean. Fitted on the
+  // record from the cut on, it moves the start as the whole-record fit would.
+  if (method !== 'whole-window') {
+    const tail = tailFit(history, start, input.noise);
+    if (tail) {
+      shaped = true;
+      fit = tail;
+      transient = summary(tail);
+      const admissible = admissibleStart(tail, start, next, BIAS_TOLERANCE, minKept);
+      if (admissible === null) {
+        const toGo = tail.decays ? samplesUntilAdmissible(tail, start, next, minKept) : null;
+        return { ...none, transient, heidelbergerWelch: whole ?? null, mser: proposal, steady: false, start, method, reason: 'the tail of the warm-up is still decaying', pending: { condition: 'warm-up', message: `the tail of the warm-up is still decaying (time constant about ${formatSamples(tail.timeConstant)} samples)${toGo === null ? '' : `: about ${formatSamples(toGo)} more samples`}`, samplesToGo: toGo } };
+      }
+      if (admissible > start) {
+        start = admissible;
+        reason += `; a slower tail fitted after the cut (time constant about ${formatSamples(tail.timeConstant)} samples) moves the start on`;
+      }
+    }
+  }
   const kept = values.subarray(start - firstIndex);
   const keptEstimate = autoregressiveSpectrumOfValues(kept);
   const effective = kept.length / Math.max(keptEstimate.tauInt, 1e-12);
@@ -198,7 +244,7 @@ export function detectWarmup(input: WarmupInput): WarmupVerdict {
   }
   start += test.startIndex;
   if (test.startIndex > 0) reason += `; Heidelberger-Welch discarded ${test.startIndex} more`;
-  if (fit?.significant && Math.abs(transientBias(fit, start, next)) > BIAS_TOLERANCE * Math.sqrt(fit.longRunVariance / (next - start))) {
+  if (shaped && Math.abs(transientBias(fit, start, next)) > BIAS_TOLERANCE * Math.sqrt(fit.longRunVariance / (next - start))) {
     return { ...base, heidelbergerWelch: test, steady: false, start, method, reason, pending: { condition: 'warm-up', message: 'warm-up still decaying', samplesToGo: null } };
   }
   const keptEffective = test.startIndex > 0 ? ((next - start) / kept.length) * effective : effective;
@@ -217,8 +263,16 @@ export function detectWarmup(input: WarmupInput): WarmupVerdict {
  * after all). Undefined when nothing changes.
  */
 export function recheckTransient(history: BlockHistory, longRunVariance: number, tauInt: number, firstIndex: number, next: number, trigger = BIAS_TRIGGER): { start: number | null; fit: TransientFit } | undefined {
-  const fit = fitTransient({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance, tauInt });
-  if (!fit?.significant) return undefined;
+  const whole = fitTransient({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance, tauInt });
+  // The whole record's fit first; then the record kept on its own, where a warm-up of another
+  // shape, or a second and slower lag, leaves a first-order tail the whole fit does not describe.
+  const found = (whole && fitDescribesWarmup(whole) ? movedStart(whole, tauInt, firstIndex, next, trigger) : undefined)
+    ?? (firstIndex > history.start ? movedStart(tailFit(history, firstIndex, { longRunVariance, tauInt }), tauInt, firstIndex, next, trigger) : undefined);
+  return found;
+}
+
+function movedStart(fit: TransientFit | null, tauInt: number, firstIndex: number, next: number, trigger: number): { start: number | null; fit: TransientFit } | undefined {
+  if (!fit || !fitDescribesWarmup(fit)) return undefined;
   const s0 = fit.longRunVariance;
   if (Math.abs(transientBias(fit, firstIndex, next)) <= Math.max(trigger, BIAS_TOLERANCE) * Math.sqrt(s0 / (next - firstIndex))) return undefined;
   // Only a record that a warm-up explains at least as well as a late break moves the start or
@@ -240,7 +294,29 @@ export function recheckTransient(history: BlockHistory, longRunVariance: number,
  */
 export function alarmIsWarmup(history: BlockHistory, longRunVariance: number, tauInt: number): TransientFit | null {
   const fit = fitTransient({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance, tauInt });
-  return fit?.significant && warmupExplains(fit) ? fit : null;
+  return fit && fitDescribesWarmup(fit) && warmupExplains(fit) ? fit : null;
+}
+
+/**
+ * The exponential fitted to the record from `from` on (the history's blocks from the one holding
+ * it), when it is significant and describes that record (fitDescribesWarmup); else null. Where the
+ * record from `from` still holds more than one exponential (a fast lag and a slower one), the fit
+ * is tried again from later starts, an eighth of the rest at a time up to half of it, so that the
+ * slowest part, which biases the kept mean longest, is found on its own.
+ * Cost: at most five fits, O(K * 80) each.
+ */
+function tailFit(history: BlockHistory, from: number, noise: { longRunVariance: number; tauInt: number }): TransientFit | null {
+  const means = history.means();
+  const end = history.start + means.length * history.blockSize;
+  for (let j = 0; j <= 4; j++) {
+    const at = from + Math.floor((j * (end - from)) / 8);
+    const first = Math.max(0, Math.ceil((at - history.start) / history.blockSize));
+    if (first >= means.length) return null;
+    const tail = fitTransient({ means: means.subarray(first), blockSize: history.blockSize, origin: history.start + first * history.blockSize, longRunVariance: noise.longRunVariance, tauInt: noise.tauInt });
+    if (!tail?.significant) return null;
+    if (fitDescribesWarmup(tail)) return tail;
+  }
+  return null;
 }
 
 function confirmCount(kept: Float64Array, start: number, firstIndex: number, method: 'none' | 'fixed', reason: string, base: Omit<WarmupVerdict, 'steady' | 'start' | 'method' | 'reason' | 'pending'>): WarmupVerdict {
@@ -276,7 +352,7 @@ function samplesUntilAdmissible(fit: TransientFit, from: number, next: number, m
 }
 
 function summary(fit: TransientFit): TransientSummary {
-  return { amplitude: fit.amplitude, timeConstant: fit.timeConstant, level: fit.level, improvement: fit.improvement, significant: fit.significant, decays: fit.decays };
+  return { amplitude: fit.amplitude, timeConstant: fit.timeConstant, level: fit.level, improvement: fit.improvement, significant: fit.significant, decays: fit.decays, lackOfFit: fit.lackOfFit };
 }
 
 function variance(values: Float64Array): number {

@@ -64,6 +64,21 @@ export interface TransientFit {
   /** The block means fitted (oldest first). */
   means: Float64Array;
   /**
+   * Residual variance of the fit over the noise variance of a block mean told by the successive
+   * differences of the block means (their median, robust to the few large differences of a sharp
+   * transition and to the small ones of a smooth one): near 1 when the exponential describes the
+   * record, far above it when the warm-up has another shape (a ramp and hold, a step, an S-curve).
+   */
+  lackOfFit: number;
+  /**
+   * Residual sum of squares of the best ramp that ends and then holds (a straight approach to the
+   * set point, then steady: y = a + s max(0, c - k)), three parameters like the exponential, so
+   * the two compare directly (changeFits on the reversed record; O(K^2)).
+   */
+  rampAndHoldRss: number;
+  /** Variance of one block mean told by the successive differences (see lackOfFit). */
+  noiseVariance: number;
+  /**
    * The longest time constant still consistent with the record (profile least squares within
    * 3.84 block variances of the best fit: an approximate 95 % interval for T, one parameter) and
    * its amplitude: a slow tail that a young record cannot rule out yet.
@@ -149,6 +164,7 @@ export function fitTransient(input: TransientFitInput): TransientFit | null {
   const residualVariance = best.rss / (K - 3);
   const blockVariance = Math.min(sigma2, Math.max(residualVariance, Number.MIN_VALUE));
   const improvement = (rss0 - best.rss) / blockVariance;
+  const noiseVariance = differenceVariance(y);
   let slowest = { timeConstant: best.T, amplitude: best.A };
   let fastest = { timeConstant: best.T, amplitude: best.A };
   for (const point of profile) {
@@ -170,9 +186,22 @@ export function fitTransient(input: TransientFitInput): TransientFit | null {
     blockVariance,
     longRunVariance: blockVariance * b,
     means: y,
+    lackOfFit: residualVariance / noiseVariance,
+    rampAndHoldRss: changeFits(y.slice().reverse()).ramp.rss,
+    noiseVariance,
     slowest,
     fastest,
   };
+}
+
+/** Variance of one value of y from the median squared successive difference (2 sigma^2 chi-square(1), median 0.4549). */
+function differenceVariance(y: Float64Array): number {
+  const d = new Float64Array(y.length - 1);
+  for (let k = 1; k < y.length; k++) d[k - 1] = ((y[k] as number) - (y[k - 1] as number)) ** 2;
+  d.sort();
+  const m = d.length;
+  const median = m % 2 === 1 ? (d[(m - 1) >> 1] as number) : ((d[m / 2 - 1] as number) + (d[m / 2] as number)) / 2;
+  return Math.max(median / (2 * 0.45493642311957283), Number.MIN_VALUE);
 }
 
 /**
