@@ -12,7 +12,7 @@ import { detectLattice, type Lattice } from '../core/resolution/lattice.js';
 import { type ChannelOptions, FEW_SAMPLES, MIN_REPORTED_LAGS } from './channel-options.js';
 import { CaoRhinehartFilter, type CaoRhinehartState } from '../core/stationarity/cao-rhinehart.js';
 import { StationarityMonitor, type MonitorState, type StationarityBreak } from './stationarity-monitor.js';
-import { detectWarmup, recheckTransient, alarmIsWarmup, formatSamples, MIN_EFFECTIVE, type WarmupPending, type WarmupVerdict, type TransientSummary } from './warmup-detector.js';
+import { detectWarmup, recheckTransient, alarmIsWarmup, transientSummary, formatSamples, MIN_EFFECTIVE, type WarmupPending, type WarmupVerdict, type TransientSummary } from './warmup-detector.js';
 import type { ChannelEvent, ChannelState } from './channel-events.js';
 import { stationarityReport, allanReport, type StationarityReport, type AllanReport } from './stationarity-report.js';
 import type { WindowedSeriesState } from '../core/window/windowed-series.js';
@@ -679,7 +679,7 @@ export class ChannelPipeline {
     const noise = this.shortMemoryNoise();
     const found = recheckTransient(this.history, noise.longRunVariance, noise.tauInt, this.series.firstIndex, this.series.nextIndex);
     if (!found) return;
-    this.transient = { amplitude: found.fit.amplitude, timeConstant: found.fit.timeConstant, level: found.fit.level, improvement: found.fit.improvement, significant: true, decays: found.fit.decays, lackOfFit: found.fit.lackOfFit };
+    this.transient = { ...transientSummary(found.fit), significant: true };
     if (found.start === null) {
       // After a break the level's own movements are the monitor's to judge (a drift is a trend).
       if (this.lostBefore) return;
@@ -793,7 +793,7 @@ export class ChannelPipeline {
     const noise = this.shortMemoryNoise();
     const fit = alarmIsWarmup(this.history, noise.longRunVariance, noise.tauInt);
     if (!fit) return false;
-    this.transient = { amplitude: fit.amplitude, timeConstant: fit.timeConstant, level: fit.level, improvement: fit.improvement, significant: true, decays: fit.decays, lackOfFit: fit.lackOfFit };
+    this.transient = { ...transientSummary(fit), significant: true };
     this.withdrawSteady(index, fit.timeConstant, 'the monitor\'s alarm is the warm-up still running: the record since the window began is explained by a decaying transient, not by a break');
     return true;
   }

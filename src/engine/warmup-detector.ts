@@ -1,6 +1,7 @@
 import { mser, batchSizeFromTau, type MserResult } from '../core/stationarity/mser.js';
 import { heidelbergerWelch, type HeidelbergerWelchResult } from '../core/stationarity/heidelberger-welch.js';
-import { fitTransient, admissibleStart, transientBias, warmupExplains, MIN_FIT_BLOCKS, type TransientFit } from '../core/stationarity/transient-fit.js';
+import { fitTransient, admissibleStart, transientBias, warmupExplains, MIN_FIT_BLOCKS, type TransientFit, type TransientFitInput } from '../core/stationarity/transient-fit.js';
+import { fitTwoLags } from '../core/stationarity/two-lag-fit.js';
 import { autoregressiveSpectrumOfValues } from '../core/tau/autoregressive-spectrum.js';
 import type { BlockHistory } from '../core/window/block-history.js';
 
@@ -58,6 +59,8 @@ export interface TransientSummary {
   decays: boolean;
   /** Residual over noise variance of the fit (see core/stationarity/transient-fit.ts). */
   lackOfFit: number;
+  /** A faster lag fitted with the main one (core/stationarity/two-lag-fit.ts), or null. */
+  second: { timeConstant: number; amplitude: number } | null;
 }
 
 export interface WarmupVerdict {
@@ -99,6 +102,10 @@ export const BIAS_TRIGGER = 0.6;
 export const LACK_OF_FIT_LIMIT = 3;
 
 /** Whether a fitted transient is the warm-up's shape: significant and no worse than exponential noise allows. */
+export function transientSummary(fit: TransientFit): TransientSummary {
+  return summary(fit);
+}
+
 export function fitDescribesWarmup(fit: TransientFit): boolean {
   return fit.significant && fit.lackOfFit <= LACK_OF_FIT_LIMIT && fit.rss <= fit.rampAndHoldRss + RAMP_MARGIN * fit.noiseVariance;
 }
@@ -142,7 +149,7 @@ export function detectWarmup(input: WarmupInput): WarmupVerdict {
   // The fit takes the same noise estimate as the steady window's recheck (recheckTransient), so the
   // two cannot disagree about one record and flap. It is cheap (the history's blocks): it runs
   // first, and the tests over the window's samples only where it leaves the question open.
-  let fit = fitTransient({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance: input.noise.longRunVariance, tauInt: input.noise.tauInt });
+  let fit = warmupFit({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance: input.noise.longRunVariance, tauInt: input.noise.tauInt });
   let transient = fit ? summary(fit) : null;
   const needed = MIN_EFFECTIVE;
   let tau = Math.max(1, input.noise.tauInt);
@@ -263,7 +270,7 @@ export function detectWarmup(input: WarmupInput): WarmupVerdict {
  * after all). Undefined when nothing changes.
  */
 export function recheckTransient(history: BlockHistory, longRunVariance: number, tauInt: number, firstIndex: number, next: number, trigger = BIAS_TRIGGER): { start: number | null; fit: TransientFit } | undefined {
-  const whole = fitTransient({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance, tauInt });
+  const whole = warmupFit({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance, tauInt });
   // The whole record's fit first; then the record kept on its own, where a warm-up of another
   // shape, or a second and slower lag, leaves a first-order tail the whole fit does not describe.
   const found = (whole && fitDescribesWarmup(whole) ? movedStart(whole, tauInt, firstIndex, next, trigger) : undefined)
@@ -293,8 +300,20 @@ function movedStart(fit: TransientFit | null, tauInt: number, firstIndex: number
  * a step or a ramp would, core/stationarity/transient-fit.ts warmupExplains) rather than a break.
  */
 export function alarmIsWarmup(history: BlockHistory, longRunVariance: number, tauInt: number): TransientFit | null {
-  const fit = fitTransient({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance, tauInt });
+  const fit = warmupFit({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance, tauInt });
   return fit && fitDescribesWarmup(fit) && warmupExplains(fit) ? fit : null;
+}
+
+/**
+ * The warm-up's fit: one exponential (core/stationarity/transient-fit.ts); where that is
+ * significant but does not describe the record, two lags (core/stationarity/two-lag-fit.ts) when
+ * they do; else the one exponential, which the caller then finds inadequate.
+ */
+function warmupFit(input: TransientFitInput): TransientFit | null {
+  const one = fitTransient(input);
+  if (!one?.significant || fitDescribesWarmup(one)) return one;
+  const two = fitTwoLags(input);
+  return two && fitDescribesWarmup(two) ? two : one;
 }
 
 /**
@@ -312,7 +331,7 @@ function tailFit(history: BlockHistory, from: number, noise: { longRunVariance: 
     const at = from + Math.floor((j * (end - from)) / 8);
     const first = Math.max(0, Math.ceil((at - history.start) / history.blockSize));
     if (first >= means.length) return null;
-    const tail = fitTransient({ means: means.subarray(first), blockSize: history.blockSize, origin: history.start + first * history.blockSize, longRunVariance: noise.longRunVariance, tauInt: noise.tauInt });
+    const tail = warmupFit({ means: means.subarray(first), blockSize: history.blockSize, origin: history.start + first * history.blockSize, longRunVariance: noise.longRunVariance, tauInt: noise.tauInt });
     if (!tail?.significant) return null;
     if (fitDescribesWarmup(tail)) return tail;
   }
@@ -352,7 +371,7 @@ function samplesUntilAdmissible(fit: TransientFit, from: number, next: number, m
 }
 
 function summary(fit: TransientFit): TransientSummary {
-  return { amplitude: fit.amplitude, timeConstant: fit.timeConstant, level: fit.level, improvement: fit.improvement, significant: fit.significant, decays: fit.decays, lackOfFit: fit.lackOfFit };
+  return { amplitude: fit.amplitude, timeConstant: fit.timeConstant, level: fit.level, improvement: fit.improvement, significant: fit.significant, decays: fit.decays, lackOfFit: fit.lackOfFit, second: fit.second ? { ...fit.second } : null };
 }
 
 function variance(values: Float64Array): number {

@@ -29,6 +29,16 @@ export const WARMUP_SHAPES: WarmupShape[] = [
   { name: 'overshoot (critically damped, negative lobe)', shape: (u) => Math.exp(-u / 0.04) * (1 - 1.25 * (u / 0.04)), settled: 0.2 },
 ];
 
+/**
+ * Warm-ups far above the noise (a bath or a heat exchanger brought from ambient: hundreds of noise
+ * deviations): one lag, and a stage behind a warming source through a lag of its own (the
+ * response of two first-order stages to a step, (T1 e^(-t/T1) - T2 e^(-t/T2)) / (T1 - T2)).
+ */
+export const LARGE_WARMUP_SHAPES: WarmupShape[] = [
+  { name: 'one lag, T = N/40', shape: (u) => Math.exp(-u * 40), settled: 0.2 },
+  { name: 'two stages, T = N/40 behind N/90', shape: (u) => (Math.exp(-u * 40) / 40 - Math.exp(-u * 90) / 90) / (1 / 40 - 1 / 90), settled: 0.22 },
+];
+
 export const SHAPE_LEVEL = 10;
 
 /** A record of N samples: level + amplitude (in stationary noise sd) x shape + AR(1) noise. */

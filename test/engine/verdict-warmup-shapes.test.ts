@@ -1,7 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { ChannelPipeline } from '../../src/engine/channel-pipeline.js';
 import { DEFAULT_CHANNEL_OPTIONS } from '../../src/engine/channel-options.js';
-import { WARMUP_SHAPES, SHAPE_LEVEL, shapedWarmupSeries, type WarmupShape } from '../../src/sim/warmup-shapes.js';
+import { WARMUP_SHAPES, LARGE_WARMUP_SHAPES, SHAPE_LEVEL, shapedWarmupSeries, type WarmupShape } from '../../src/sim/warmup-shapes.js';
 
 // The verdict on warm-ups that one exponential does not describe (src/sim/warmup-shapes.ts: ramp and
 // hold, S-curves, a step then a fast settle, two lags, ringing, an overshoot), AR(1) noise with phi
@@ -49,6 +49,7 @@ function run(shape: WarmupShape, phi: number, amplitude: number, seed: number) {
   const cut = s.window.startIndex / N;
   return {
     steadyBy70: steadySince >= 0 && steadySince <= 0.7 * N,
+    steadyBy60: steadySince >= 0 && steadySince <= 0.6 * N,
     within: steady && s.expandedUncertainty !== null && Math.abs((s.mean as number) - SHAPE_LEVEL) <= s.expandedUncertainty,
     smallBias: steady && s.expandedUncertainty !== null && Math.abs(shapeBias(shape, phi, amplitude, s.window.startIndex)) <= s.expandedUncertainty,
     notLate: steady && cut <= 0.45,
@@ -70,6 +71,31 @@ describe('the verdict on warm-ups of other shapes inside a growing window (10 se
           expect(count('within'), label).toBeGreaterThanOrEqual(Math.min(7, floor));
           expect(count('smallBias'), label).toBeGreaterThanOrEqual(floor);
           expect(count('notLate'), label).toBeGreaterThanOrEqual(floor);
+        }
+      }
+    }, 300_000);
+  }
+});
+
+// Warm-ups hundreds of noise deviations high (a rig brought from ambient to its set point), where
+// the fit's time constant must be known to a fraction of a percent for its tail to place the cut:
+// one lag, and a stage behind a warming source (two lags of opposite signs). Amplitudes 300 and
+// 1000 noise standard deviations, AR(1) phi 0.5 and 0.95, time constants of N/40 (such a warm-up
+// needs about ten time constants before its tail is below a quarter of the final u, so the
+// record's end must lie well beyond that). Same checks, steady by 60 % of the record.
+describe('the verdict on warm-ups far above the noise (10 seeds per case)', () => {
+  for (const shape of LARGE_WARMUP_SHAPES) {
+    it(`${shape.name}: steady by 60 %, mean within U (>= 7), the warm-up's bias left below U, the cut not beyond 45 %, each in >= 8 of 10 runs`, () => {
+      for (const phi of [0.5, 0.95]) {
+        for (const amplitude of [300, 1000]) {
+          const runs = Array.from({ length: SEEDS }, (_, i) => run(shape, phi, amplitude, 7100 + 53 * i));
+          const count = (key: 'steadyBy60' | 'within' | 'smallBias' | 'notLate') => runs.filter((r) => r[key]).length;
+          const label = `${shape.name}, phi ${phi}, amplitude ${amplitude} sd`;
+          console.log(`${label}: steady by 60 % ${count('steadyBy60')}/${SEEDS}, within U ${count('within')}/${SEEDS}, bias <= U ${count('smallBias')}, not late ${count('notLate')}; cuts ${runs.map((r) => r.cut.toFixed(2)).join(' ')}`);
+          expect(count('steadyBy60'), label).toBeGreaterThanOrEqual(8);
+          expect(count('within'), label).toBeGreaterThanOrEqual(7);
+          expect(count('smallBias'), label).toBeGreaterThanOrEqual(8);
+          expect(count('notLate'), label).toBeGreaterThanOrEqual(8);
         }
       }
     }, 300_000);

@@ -79,6 +79,11 @@ export interface TransientFit {
   /** Variance of one block mean told by the successive differences (see lackOfFit). */
   noiseVariance: number;
   /**
+   * A faster lag fitted together with the main one (two-lag-fit.ts: a sensor or a downstream
+   * stage lagging a slower source), whose bias transientBias adds; null for one lag.
+   */
+  second: { timeConstant: number; amplitude: number } | null;
+  /**
    * The longest time constant still consistent with the record (profile least squares within
    * 3.84 block variances of the best fit: an approximate 95 % interval for T, one parameter) and
    * its amplitude: a slow tail that a young record cannot rule out yet.
@@ -108,23 +113,33 @@ export const DECAYED_SPANS = 3;
 export const DEFAULT_THRESHOLD = 16;
 /** Fewest blocks a fit needs. */
 export const MIN_FIT_BLOCKS = 16;
-const GRID_RATIO = 1.12;
+export const GRID_RATIO = 1.12;
 
-export function fitTransient(input: TransientFitInput): TransientFit | null {
-  const { longRunVariance, origin } = input;
-  if (!(longRunVariance > 0)) return null;
-  // Merge blocks so that each spans at least four tau_int, but keep at least 2 MIN_FIT_BLOCKS
-  // blocks where the record allows (an inflated tau_int must not leave too few to fit).
+/**
+ * The block means a fit works on: the input's blocks merged so that each spans at least four
+ * tau_int, keeping at least 2 MIN_FIT_BLOCKS blocks where the record allows (an inflated tau_int
+ * must not leave too few to fit); null when fewer than MIN_FIT_BLOCKS remain.
+ */
+export function fitBlocks(input: TransientFitInput): { y: Float64Array; b: number } | null {
   const group = Math.max(1, Math.min(Math.ceil((4 * Math.max(1, input.tauInt)) / input.blockSize), Math.floor(input.means.length / (2 * MIN_FIT_BLOCKS))));
   const K = Math.floor(input.means.length / group);
   if (K < MIN_FIT_BLOCKS) return null;
-  const b = input.blockSize * group;
   const y = new Float64Array(K);
   for (let k = 0; k < K; k++) {
     let s = 0;
     for (let j = 0; j < group; j++) s += input.means[k * group + j] as number;
     y[k] = s / group;
   }
+  return { y, b: input.blockSize * group };
+}
+
+export function fitTransient(input: TransientFitInput): TransientFit | null {
+  const { longRunVariance, origin } = input;
+  if (!(longRunVariance > 0)) return null;
+  const blocks = fitBlocks(input);
+  if (!blocks) return null;
+  const { y, b } = blocks;
+  const K = y.length;
   const shift = y[K - 1] as number;
   let mean = 0;
   for (let k = 0; k < K; k++) mean += (y[k] as number) - shift;
@@ -135,10 +150,14 @@ export function fitTransient(input: TransientFitInput): TransientFit | null {
   let best: { T: number; A: number; mu: number; rss: number } | null = null;
   const profile: { T: number; A: number; rss: number }[] = [];
   const span = K * b;
-  for (let T = b / 2; T <= 8 * span; T *= GRID_RATIO) {
+  // The profile at one time constant: the amplitude and level solved by least squares, and the
+  // residual sum of squares (from rss0 on the grid; summed directly where `direct`, which keeps
+  // its digits when a transient far above the noise leaves rss a millionth of rss0).
+  const at = (T: number, direct = false): { T: number; A: number; mu: number; rss: number } | null => {
     // g_k = q^(k b) (1 - q^b) / (b (1 - q)), q = exp(-1/T); computed by recurrence.
     const stepDecay = Math.exp(-b / T);
-    let g = -Math.expm1(-b / T) / (b * -Math.expm1(-1 / T));
+    const g0 = -Math.expm1(-b / T) / (b * -Math.expm1(-1 / T));
+    let g = g0;
     let sg = 0;
     let sgg = 0;
     let syg = 0;
@@ -151,11 +170,51 @@ export function fitTransient(input: TransientFitInput): TransientFit | null {
     }
     const gMean = sg / K;
     const sxx = sgg - K * gMean * gMean;
-    if (!(sxx > 1e-300)) continue;
+    if (!(sxx > 1e-300)) return null;
     const A = syg / sxx; // the d are centred, so sum d (g - gMean) = syg
-    const rss = rss0 - A * A * sxx;
-    profile.push({ T, A, rss });
-    if (!best || rss < best.rss) best = { T, A, mu: shift + mean - A * gMean, rss };
+    let rss = rss0 - A * A * sxx;
+    if (direct) {
+      rss = 0;
+      g = g0;
+      for (let k = 0; k < K; k++) {
+        rss += ((y[k] as number) - shift - mean - A * (g - gMean)) ** 2;
+        g *= stepDecay;
+      }
+    }
+    return { T, A, mu: shift + mean - A * gMean, rss };
+  };
+  for (let T = b / 2; T <= 8 * span; T *= GRID_RATIO) {
+    const point = at(T);
+    if (!point) continue;
+    profile.push({ T, A: point.A, rss: point.rss });
+    if (!best || point.rss < best.rss) best = point;
+  }
+  // The grid's step (12 %) is far coarser than the time constant of a warm-up tens or hundreds of
+  // noise deviations high is known: refine between the neighbouring grid points by golden-section
+  // search on log T (40 steps: a relative precision near 1e-9).
+  if (best) {
+    let low = Math.log(best.T / GRID_RATIO);
+    let high = Math.log(best.T * GRID_RATIO);
+    const ratio = (Math.sqrt(5) - 1) / 2;
+    let x1 = high - ratio * (high - low);
+    let x2 = low + ratio * (high - low);
+    let f1 = at(Math.exp(x1), true)?.rss ?? Number.POSITIVE_INFINITY;
+    let f2 = at(Math.exp(x2), true)?.rss ?? Number.POSITIVE_INFINITY;
+    for (let i = 0; i < 40; i++) {
+      if (f1 <= f2) {
+        high = x2; x2 = x1; f2 = f1;
+        x1 = high - ratio * (high - low);
+        f1 = at(Math.exp(x1), true)?.rss ?? Number.POSITIVE_INFINITY;
+      } else {
+        low = x1; x1 = x2; f1 = f2;
+        x2 = low + ratio * (high - low);
+        f2 = at(Math.exp(x2), true)?.rss ?? Number.POSITIVE_INFINITY;
+      }
+    }
+    const refined = at(Math.exp((low + high) / 2), true);
+    const gridBest = at(best.T, true);
+    if (refined && gridBest && refined.rss < gridBest.rss) best = refined;
+    else if (gridBest) best = gridBest;
   }
   if (!best) return null;
   // The block variance: from the caller's S(0), or from the fit's own residuals when they are
@@ -189,13 +248,14 @@ export function fitTransient(input: TransientFitInput): TransientFit | null {
     lackOfFit: residualVariance / noiseVariance,
     rampAndHoldRss: changeFits(y.slice().reverse()).ramp.rss,
     noiseVariance,
+    second: null,
     slowest,
     fastest,
   };
 }
 
 /** Variance of one value of y from the median squared successive difference (2 sigma^2 chi-square(1), median 0.4549). */
-function differenceVariance(y: Float64Array): number {
+export function differenceVariance(y: Float64Array): number {
   const d = new Float64Array(y.length - 1);
   for (let k = 1; k < y.length; k++) d[k - 1] = ((y[k] as number) - (y[k - 1] as number)) ** 2;
   d.sort();
@@ -215,8 +275,8 @@ export function transientBias(fit: TransientFit, from: number, to: number, which
   const a = Math.max(0, from - fit.origin);
   const length = to - from;
   // sum_(t = a .. a + length - 1) exp(-t / T) = exp(-a / T) (1 - exp(-length / T)) / (1 - exp(-1 / T))
-  const sum = (Math.exp(-a / T) * -Math.expm1(-length / T)) / -Math.expm1(-1 / T);
-  return (amplitude * sum) / length;
+  const lag = (A: number, tc: number) => (A * Math.exp(-a / tc) * -Math.expm1(-length / tc)) / -Math.expm1(-1 / tc);
+  return (lag(amplitude, T) + (fit.second ? lag(fit.second.amplitude, fit.second.timeConstant) : 0)) / length;
 }
 
 /**
