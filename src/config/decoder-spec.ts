@@ -2,8 +2,11 @@
  * How a subscription's payloads are read: part of the configuration (src/ingest/payload-decoder.ts
  * reads payloads by it). Kept here so that the configuration depends on nothing in ingest.
  */
+export const DECODER_FORMATS = ['number', 'json', 'senml', 'senml-cbor'] as const;
+export type DecoderFormat = (typeof DECODER_FORMATS)[number];
+
 export interface DecoderSpec {
-  format: 'number' | 'json' | 'senml';
+  format: DecoderFormat;
   /** Channel name: a template over topic levels ({1} is the first level, {topic} the whole topic) and, for SenML, {name}. */
   channel: string;
   /** Dot path of the value in a JSON object. */

@@ -2,7 +2,7 @@ import { readFileSync } from 'node:fs';
 import { parse as parseYaml } from 'yaml';
 import { ConfigError, ConfigReader, describe, join, type Plain } from './config-reader.js';
 import type { ChannelGroup, ChannelSettings, DerivedConfig, PlateauConfig, SubscriptionConfig } from './plateau-config.js';
-import { DECODER_DEFAULTS } from './decoder-spec.js';
+import { DECODER_DEFAULTS, DECODER_FORMATS } from './decoder-spec.js';
 import { ESTIMATOR_NAMES } from '../core/tau/tau-estimate.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
 import { DEFAULT_CHANNEL_OPTIONS, DEFAULT_MAX_SAMPLES, type WindowSpec } from '../engine/channel-options.js';
@@ -84,8 +84,8 @@ export function parseConfig(document: unknown, source = 'config'): PlateauConfig
     if (!r.require(s, 'topic', path, 'the MQTT topic filter to subscribe to')) return;
     const topic = r.string(s, 'topic', path, '');
     if (topic && !validTopicFilter(topic)) r.problem(join(path, 'topic'), `"${topic}" is not a valid MQTT topic filter (+ and # must fill a whole level; # only at the end)`);
-    const format = r.oneOf(s, 'format', path, ['number', 'json', 'senml'] as const, 'json');
-    const channel = r.string(s, 'channel', path, format === 'senml' ? '{name}' : '{topic}');
+    const format = r.oneOf(s, 'format', path, DECODER_FORMATS, 'json');
+    const channel = r.string(s, 'channel', path, format === 'senml' || format === 'senml-cbor' ? '{name}' : '{topic}');
     for (const match of channel.matchAll(/\{(\w+)\}/g)) {
       const key = match[1] as string;
       if (!['topic', 'name', 'field'].includes(key) && !/^[1-9]\d?$/.test(key)) r.problem(join(path, 'channel'), `unknown placeholder {${key}} (expected {topic}, {name}, {field} or a topic level such as {2})`);

@@ -1,5 +1,6 @@
 import { MAX_MAGNITUDE, MAX_TIME_MS, type DecodeResult, type Rejection, type RejectReason, type Sample } from './sample.js';
 import type { DecoderSpec } from '../config/decoder-spec.js';
+import { senmlCborRecords } from './senml-cbor.js';
 
 /**
  * Payload decoding: (topic, bytes, subscription, arrival time) -> samples and rejections.
@@ -16,6 +17,8 @@ import type { DecoderSpec } from '../config/decoder-spec.js';
  *   senml    a SenML JSON pack (RFC 8428): records with base name bn, base time bt, base unit bu,
  *            base value bv, name n, unit u, value v, time t; records carrying vs/vb/vd (strings,
  *            booleans, data) are rejected as not numeric
+ *   senml-cbor  the same pack in CBOR with the integer labels of RFC 8428 section 6 (senml-cbor.ts);
+ *            read by the same SenML reader, so it gives exactly the samples of its JSON form
  * Times: the payload's time when present (seconds or milliseconds since the epoch, or ISO 8601
  * text), else the arrival time. SenML times below 2^28 are relative to the arrival time
  * (RFC 8428, section 4.5.3).
@@ -33,6 +36,12 @@ export function decodePayload(topic: string, payload: Uint8Array, spec: DecoderS
     return out;
   };
   if (payload.byteLength > spec.maxBytes) return reject('too-large', `${payload.byteLength} bytes, more than the ${spec.maxBytes} allowed`);
+  if (spec.format === 'senml-cbor') {
+    const read = senmlCborRecords(payload, spec.maxSamples);
+    if ('error' in read) return reject(read.error.startsWith('payload is not CBOR') ? 'unparseable' : read.error.includes('more than the') ? 'too-many-samples' : 'wrong-type', read.error);
+    decodeSenml(topic, read.records, spec, arrivalMs, out);
+    return out;
+  }
   let text: string;
   try {
     text = utf8.decode(payload);
@@ -195,6 +204,7 @@ function readNumberText(text: string): number | RejectReason {
 }
 
 function inRange(value: number): number | RejectReason {
+  if (Number.isNaN(value)) return 'nan'; // a binary NaN (CBOR, float frames), named as such
   if (!Number.isFinite(value)) return 'infinite';
   return Math.abs(value) <= MAX_MAGNITUDE ? value : 'out-of-range';
 }
