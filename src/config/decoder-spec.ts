@@ -2,12 +2,12 @@
  * How a subscription's payloads are read: part of the configuration (src/ingest/payload-decoder.ts
  * reads payloads by it). Kept here so that the configuration depends on nothing in ingest.
  */
-export const DECODER_FORMATS = ['number', 'json', 'senml', 'senml-cbor'] as const;
+export const DECODER_FORMATS = ['number', 'json', 'senml', 'senml-cbor', 'binary'] as const;
 export type DecoderFormat = (typeof DECODER_FORMATS)[number];
 
 export interface DecoderSpec {
   format: DecoderFormat;
-  /** Channel name: a template over topic levels ({1} is the first level, {topic} the whole topic) and, for SenML, {name}. */
+  /** Channel name: a template over topic levels ({1} is the first level, {topic} the whole topic) and {name} (the SenML name, the binary frame's channel id). */
   channel: string;
   /** Dot path of the value in a JSON object. */
   valueField: string;

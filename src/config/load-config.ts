@@ -85,7 +85,7 @@ export function parseConfig(document: unknown, source = 'config'): PlateauConfig
     const topic = r.string(s, 'topic', path, '');
     if (topic && !validTopicFilter(topic)) r.problem(join(path, 'topic'), `"${topic}" is not a valid MQTT topic filter (+ and # must fill a whole level; # only at the end)`);
     const format = r.oneOf(s, 'format', path, DECODER_FORMATS, 'json');
-    const channel = r.string(s, 'channel', path, format === 'senml' || format === 'senml-cbor' ? '{name}' : '{topic}');
+    const channel = r.string(s, 'channel', path, format === 'senml' || format === 'senml-cbor' || format === 'binary' ? '{name}' : '{topic}');
     for (const match of channel.matchAll(/\{(\w+)\}/g)) {
       const key = match[1] as string;
       if (!['topic', 'name', 'field'].includes(key) && !/^[1-9]\d?$/.test(key)) r.problem(join(path, 'channel'), `unknown placeholder {${key}} (expected {topic}, {name}, {field} or a topic level such as {2})`);

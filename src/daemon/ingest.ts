@@ -140,7 +140,7 @@ export class Ingest {
   }
 
   private message(topic: string, payload: Uint8Array, subscription: SubscriptionConfig | null): void {
-    const { batch, clock } = this.options;
+    const { clock } = this.options;
     const arrival = clock.now();
     this.counters.messages++;
     if (topic.startsWith(this.commandPrefix)) return this.options.command(topic.slice(this.commandPrefix.length), payload);
@@ -150,34 +150,61 @@ export class Ingest {
     let latestStamp = 0;
     for (const sample of decoded.samples) {
       let tracked: Tracked;
-      let result: AcceptResult;
       try {
         tracked = this.track(sample.channel, sample.unit ?? null);
-        result = tracked.channel.accept(sample.value, sample.timeMs, sample.stamped);
       } catch (error) {
-        // A defect in the engine must not take the daemon down: the sample is counted and logged (with the stack).
         this.rejected('engine-error', `channel ${sample.channel}: ${(error as Error).message}`, error);
         continue;
       }
-      if (!result.accepted) {
-        this.rejected(result.reason, `channel ${sample.channel}: sample at ${new Date(sample.timeMs).toISOString()} ${result.reason === 'duplicate' ? 'repeats an accepted time' : 'is older than every remembered one'}`);
-        continue;
+      if (this.take(tracked, sample.value, sample.timeMs, sample.stamped, arrival) && sample.stamped && sample.timeMs > latestStamp) latestStamp = sample.timeMs;
+    }
+    if (decoded.blocks !== undefined) {
+      // Binary frames: one channel look-up per block, no object per sample.
+      for (const block of decoded.blocks) {
+        let tracked: Tracked;
+        try {
+          tracked = this.track(block.channel, block.unit ?? null);
+        } catch (error) {
+          this.rejected('engine-error', `channel ${block.channel}: ${(error as Error).message}`, error);
+          continue;
+        }
+        const { times, values, length, stamped } = block;
+        for (let i = 0; i < length; i++) {
+          const timeMs = times[i] as number;
+          if (this.take(tracked, values[i] as number, timeMs, stamped, arrival) && stamped && timeMs > latestStamp) latestStamp = timeMs;
+        }
       }
-      this.counters.accepted++;
-      if (result.late) this.counters.late++;
-      if (sample.stamped && sample.timeMs > latestStamp) latestStamp = sample.timeMs;
-      const channel = tracked.channel;
-      tracked.lastArrival = arrival;
-      if (!tracked.introduced) this.introduce(channel);
-      batch.addSample(channel.name, result.seq, result.timeMs, sample.value, sample.stamped);
-      // The channel took the sample and then the engine failed on it: the sample is stored (nothing
-      // accepted is lost) and the defect counted and logged.
-      if (result.engineError !== null) this.rejected('engine-error', `channel ${sample.channel}: sample ${result.seq} stored, but the engine failed on it: ${result.engineError.message}`, result.engineError);
-      if (!tracked.active) this.activate(tracked);
-      for (const event of result.events) this.channelEvent(channel, event);
-      if (tracked.derivedInput) this.options.sampled(channel.name);
     }
     if (latestStamp > 0) this.noteLag(arrival, arrival - latestStamp);
+  }
+
+  /** One sample to its channel's accept path; whether the channel took it. */
+  private take(tracked: Tracked, value: number, timeMs: number, stamped: boolean, arrival: number): boolean {
+    const channel = tracked.channel;
+    let result: AcceptResult;
+    try {
+      result = channel.accept(value, timeMs, stamped);
+    } catch (error) {
+      // A defect in the engine must not take the daemon down: the sample is counted and logged (with the stack).
+      this.rejected('engine-error', `channel ${channel.name}: ${(error as Error).message}`, error);
+      return false;
+    }
+    if (!result.accepted) {
+      this.rejected(result.reason, `channel ${channel.name}: sample at ${new Date(timeMs).toISOString()} ${result.reason === 'duplicate' ? 'repeats an accepted time' : 'is older than every remembered one'}`);
+      return false;
+    }
+    this.counters.accepted++;
+    if (result.late) this.counters.late++;
+    tracked.lastArrival = arrival;
+    if (!tracked.introduced) this.introduce(channel);
+    this.options.batch.addSample(channel.name, result.seq, result.timeMs, value, stamped);
+    // The channel took the sample and then the engine failed on it: the sample is stored (nothing
+    // accepted is lost) and the defect counted and logged.
+    if (result.engineError !== null) this.rejected('engine-error', `channel ${channel.name}: sample ${result.seq} stored, but the engine failed on it: ${result.engineError.message}`, result.engineError);
+    if (!tracked.active) this.activate(tracked);
+    for (const event of result.events) this.channelEvent(channel, event);
+    if (tracked.derivedInput) this.options.sampled(channel.name);
+    return true;
   }
 
   /** A channel's event joins the batch, its source the channel. */

@@ -1,6 +1,7 @@
-import { MAX_MAGNITUDE, MAX_TIME_MS, type DecodeResult, type Rejection, type RejectReason, type Sample } from './sample.js';
+import { MAX_MAGNITUDE, MAX_TIME_MS, type DecodeResult, type Rejection, type RejectReason, type Sample, type SampleBlock } from './sample.js';
 import type { DecoderSpec } from '../config/decoder-spec.js';
 import { senmlCborRecords } from './senml-cbor.js';
+import { readFrameHeader, readFrameValues } from './binary-frame.js';
 
 /**
  * Payload decoding: (topic, bytes, subscription, arrival time) -> samples and rejections.
@@ -19,6 +20,9 @@ import { senmlCborRecords } from './senml-cbor.js';
  *            booleans, data) are rejected as not numeric
  *   senml-cbor  the same pack in CBOR with the integer labels of RFC 8428 section 6 (senml-cbor.ts);
  *            read by the same SenML reader, so it gives exactly the samples of its JSON form
+ *   binary   plateau's little-endian frame (binary-frame.ts): one channel, a first time stamp, an
+ *            interval and float64 or float32 values, decoded into a typed-array block; a truncated,
+ *            oversized or misaligned frame is refused whole (bad-frame), a NaN value alone
  * Times: the payload's time when present (seconds or milliseconds since the epoch, or ISO 8601
  * text), else the arrival time. SenML times below 2^28 are relative to the arrival time
  * (RFC 8428, section 4.5.3).
@@ -36,6 +40,10 @@ export function decodePayload(topic: string, payload: Uint8Array, spec: DecoderS
     return out;
   };
   if (payload.byteLength > spec.maxBytes) return reject('too-large', `${payload.byteLength} bytes, more than the ${spec.maxBytes} allowed`);
+  if (spec.format === 'binary') {
+    decodeFrame(topic, payload, spec, out);
+    return out;
+  }
   if (spec.format === 'senml-cbor') {
     const read = senmlCborRecords(payload, spec.maxSamples);
     if ('error' in read) return reject(read.error.startsWith('payload is not CBOR') ? 'unparseable' : read.error.includes('more than the') ? 'too-many-samples' : 'wrong-type', read.error);
@@ -183,6 +191,41 @@ function decodeSenml(topic: string, document: unknown, spec: DecoderSpec, arriva
     if (fixed !== undefined && fixed !== null) sample.unit = fixed;
     out.samples.push(sample);
   });
+}
+
+function decodeFrame(topic: string, payload: Uint8Array, spec: DecoderSpec, out: DecodeResult): void {
+  const header = readFrameHeader(payload, spec.maxSamples);
+  if ('problem' in header) {
+    const reason: RejectReason = header.problem === 'too-many-samples' ? 'too-many-samples' : header.problem === 'bad-time' ? 'bad-time' : 'bad-frame';
+    out.rejections.push({ reason, detail: `topic ${truncate(topic)}: binary frame ${header.problem === 'bad-header' || header.problem === 'bad-time' || header.problem === 'too-many-samples' ? 'refused' : header.problem}: ${header.detail}` });
+    return;
+  }
+  const channel = channelName(spec.channel, topic, { name: header.channelId });
+  if (channel === null) {
+    out.rejections.push({ reason: 'bad-channel', detail: `topic ${truncate(topic)}: binary frame: channel id "${truncate(header.channelId)}" gives no valid channel name` });
+    return;
+  }
+  const n = header.count;
+  const values = new Float64Array(n);
+  const times = new Float64Array(n);
+  readFrameValues(payload, header, values);
+  const first = header.firstTime;
+  const interval = header.interval;
+  let k = 0;
+  for (let i = 0; i < n; i++) {
+    const v = values[i] as number;
+    if (v - v === 0 && v <= MAX_MAGNITUDE && v >= -MAX_MAGNITUDE) {
+      values[k] = v;
+      times[k] = (first + i * interval) * 1000;
+      k++;
+    } else {
+      const reason = inRange(v) as RejectReason;
+      out.rejections.push({ reason, detail: `topic ${truncate(topic)}: binary frame: value ${i} is ${REASON_TEXT[reason]}` });
+    }
+  }
+  const block: SampleBlock = { channel, times, values, length: k, stamped: true };
+  if (spec.unit !== null) block.unit = spec.unit;
+  if (k > 0) out.blocks = [block];
 }
 
 const REASON_TEXT: Record<string, string> = {
