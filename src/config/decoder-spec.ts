@@ -2,7 +2,7 @@
  * How a subscription's payloads are read: part of the configuration (src/ingest/payload-decoder.ts
  * reads payloads by it). Kept here so that the configuration depends on nothing in ingest.
  */
-export const DECODER_FORMATS = ['number', 'json', 'senml', 'senml-cbor', 'binary'] as const;
+export const DECODER_FORMATS = ['number', 'json', 'senml', 'senml-cbor', 'binary', 'sparkplug'] as const;
 export type DecoderFormat = (typeof DECODER_FORMATS)[number];
 
 export interface DecoderSpec {
@@ -24,6 +24,8 @@ export interface DecoderSpec {
   maxBytes: number;
   maxDepth: number;
   maxSamples: number;
+  /** Sparkplug B: send a rebirth request (NCMD) to a node that needs one. */
+  sparkplug: { requestRebirth: boolean };
 }
 
 export const DECODER_DEFAULTS: Omit<DecoderSpec, 'format' | 'channel'> = {
@@ -36,5 +38,6 @@ export const DECODER_DEFAULTS: Omit<DecoderSpec, 'format' | 'channel'> = {
   maxBytes: 262_144, // bytes
   maxDepth: 8,
   maxSamples: 10_000,
+  sparkplug: { requestRebirth: false },
 };
 

@@ -90,6 +90,8 @@ export class Daemon implements DaemonApi {
   private readonly publishers: Publisher[] = [];
   private storeAdapter: Store | null = null;
   private source: SampleSource | null = null;
+  /** The MQTT connection the daemon built (null when it was given a source): decoders publish on it (Sparkplug B rebirth requests). */
+  private connection: MqttConnection | null = null;
   private timers: NodeJS.Timeout[] = [];
   private restored = { samples: 0, ms: 0 };
   private stopped = false;
@@ -135,6 +137,11 @@ export class Daemon implements DaemonApi {
       isDerivedInput: (channel) => this.derived.usesChannel(channel),
       sampled: (channel) => this.derived.onSample(channel),
       requestCommit: () => this.commits.request(),
+      publish: (topic, payload) => {
+        if (this.connection === null) return false;
+        this.connection.publish(topic, Buffer.from(payload.buffer, payload.byteOffset, payload.byteLength), { qos: 0, retain: false });
+        return true;
+      },
     });
     this.control = new TestPointControl({
       testPoints: this.testPoints,
@@ -215,6 +222,7 @@ export class Daemon implements DaemonApi {
     } else {
       const subscriptions = daemonSubscriptions(this.config);
       const connection = new MqttConnection(this.config.broker, this.brokerUrl, subscriptions.map((s) => s.topic));
+      this.connection = connection;
       this.source = new MqttSampleSource(connection, subscriptions);
       this.publishers.push(this.options.publisher ?? new MqttPublisher(connection, this.config.topics));
     }
@@ -303,6 +311,7 @@ export class Daemon implements DaemonApi {
     const source = this.ingest;
     return {
       samples: { accepted: c.accepted, late: c.late, rejected: { ...c.rejected } },
+      sparkplug: { ...this.ingestion.decoders.sparkplug.counters, nodesNeedingRebirth: this.ingestion.decoders.sparkplug.nodesNeedingRebirth() },
       messages: c.messages,
       commands: this.commands.count,
       broker: { url: this.brokerUrl, connected: source?.connected ?? false, reconnects: source?.reconnects ?? 0, heldAcknowledgements: source?.unacknowledged ?? 0 },

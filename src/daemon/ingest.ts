@@ -3,8 +3,8 @@ import type { SubscriptionConfig } from '../config/plateau-config.js';
 import type { ChannelRegistry } from '../engine/channel-registry.js';
 import type { AcceptResult, Channel } from '../engine/channel.js';
 import type { ChannelEvent } from '../engine/channel-events.js';
-import { decodePayload } from '../ingest/payload-decoder.js';
-import { REJECT_REASONS, type RejectReason } from '../ingest/sample.js';
+import { PayloadDecoders } from '../ingest/payload-decoder.js';
+import { REJECT_REASONS, type DecodeEffects, type RejectReason } from '../ingest/sample.js';
 import type { Clock } from '../ports/clock.js';
 import type { SourceBatch } from '../ports/sample-source.js';
 import type { PendingBatch } from './pending-batch.js';
@@ -42,6 +42,8 @@ export interface IngestOptions {
   sampled(channel: string): void;
   /** Asks for a commit. */
   requestCommit(): void;
+  /** Publishes a message the decoders ask for (a Sparkplug B rebirth request); false when there is no connection to send it on. */
+  publish?(topic: string, payload: Uint8Array): boolean;
 }
 
 export interface IngestCounters {
@@ -71,6 +73,8 @@ interface Tracked {
 
 export class Ingest {
   readonly counters: IngestCounters = { messages: 0, accepted: 0, late: 0, rejected: Object.fromEntries(REJECT_REASONS.map((r) => [r, 0])) as Record<RejectReason, number>, ingestLagMs: 0 };
+  /** The payload decoders, with the Sparkplug B state of each edge node. */
+  readonly decoders = new PayloadDecoders();
   private readonly options: IngestOptions;
   private readonly commandPrefix: string;
   private readonly tracked = new Map<string, Tracked>();
@@ -145,7 +149,7 @@ export class Ingest {
     this.counters.messages++;
     if (topic.startsWith(this.commandPrefix)) return this.options.command(topic.slice(this.commandPrefix.length), payload);
     if (subscription === null) return this.rejected('unknown-topic', `topic ${topic.slice(0, 80)}: no subscription of this daemon matches it`);
-    const decoded = decodePayload(topic, payload, subscription, arrival);
+    const decoded = this.decoders.decode(topic, payload, subscription, arrival);
     for (const rejection of decoded.rejections) this.rejected(rejection.reason, rejection.detail);
     let latestStamp = 0;
     for (const sample of decoded.samples) {
@@ -176,6 +180,29 @@ export class Ingest {
       }
     }
     if (latestStamp > 0) this.noteLag(arrival, arrival - latestStamp);
+    if (decoded.effects !== undefined) this.effects(decoded.effects);
+  }
+
+  /** What a message asks besides its samples: messages to send, channels stale at once, sequence gaps. */
+  private effects(effects: DecodeEffects): void {
+    for (const message of effects.publish) {
+      const sent = this.options.publish?.(message.topic, message.payload) ?? false;
+      this.options.log.info({ topic: message.topic, sent }, sent ? `rebirth request sent on ${message.topic}` : `a rebirth request on ${message.topic} could not be sent: no broker connection`);
+    }
+    let any = false;
+    for (const { channels, cause } of effects.stale) {
+      for (const name of channels) {
+        if (this.options.registry.get(name) === undefined) continue;
+        const tracked = this.track(name, null);
+        const silent = Number.isNaN(tracked.lastArrival) ? 0 : (this.options.clock.now() - tracked.lastArrival) / 1000;
+        const event = tracked.channel.pipeline.checkStale(silent, true);
+        if (event === null) continue;
+        const { kind, at, ...rest } = event;
+        this.options.raise(name, kind, at, { channel: name, ...rest, cause });
+        any = true;
+      }
+    }
+    if (any) this.options.requestCommit();
   }
 
   /** One sample to its channel's accept path; whether the channel took it. */

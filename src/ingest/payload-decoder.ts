@@ -2,6 +2,7 @@ import { MAX_MAGNITUDE, MAX_TIME_MS, type DecodeResult, type Rejection, type Rej
 import type { DecoderSpec } from '../config/decoder-spec.js';
 import { senmlCborRecords } from './senml-cbor.js';
 import { readFrameHeader, readFrameValues } from './binary-frame.js';
+import { SparkplugDecoder } from './sparkplug-decoder.js';
 
 /**
  * Payload decoding: (topic, bytes, subscription, arrival time) -> samples and rejections.
@@ -33,6 +34,19 @@ const SENML_RELATIVE_LIMIT = 2 ** 28; // seconds: RFC 8428 4.5.3
 const CHANNEL_PATTERN = /^[\p{L}\p{N}_.:\-/]{1,128}$/u;
 const utf8 = new TextDecoder('utf-8', { fatal: true });
 
+/**
+ * The daemon's decoders: the pure ones above, and the Sparkplug B decoder with its state per edge
+ * node (sparkplug-decoder.ts). One instance per daemon.
+ */
+export class PayloadDecoders {
+  readonly sparkplug = new SparkplugDecoder();
+
+  decode(topic: string, payload: Uint8Array, spec: DecoderSpec, arrivalMs: number): DecodeResult {
+    if (spec.format === 'sparkplug') return this.sparkplug.decode(topic, payload, spec, arrivalMs);
+    return decodePayload(topic, payload, spec, arrivalMs);
+  }
+}
+
 export function decodePayload(topic: string, payload: Uint8Array, spec: DecoderSpec, arrivalMs: number): DecodeResult {
   const out: DecodeResult = { samples: [], rejections: [] };
   const reject = (reason: RejectReason, detail: string) => {
@@ -40,6 +54,7 @@ export function decodePayload(topic: string, payload: Uint8Array, spec: DecoderS
     return out;
   };
   if (payload.byteLength > spec.maxBytes) return reject('too-large', `${payload.byteLength} bytes, more than the ${spec.maxBytes} allowed`);
+  if (spec.format === 'sparkplug') return reject('wrong-type', 'Sparkplug B payloads are read by the stateful decoder (PayloadDecoders), not payload by payload');
   if (spec.format === 'binary') {
     decodeFrame(topic, payload, spec, out);
     return out;

@@ -24,6 +24,9 @@ export const REJECT_REASONS = [
   'unknown-topic',
   'too-many-samples',
   'bad-frame',
+  'unknown-alias',
+  'bad-sequence',
+  'stale-death',
   'duplicate',
   'out-of-order',
   'engine-error',
@@ -60,9 +63,21 @@ export interface SampleBlock {
   stamped: boolean;
 }
 
+/** What a message asks of the daemon besides its samples. */
+export interface DecodeEffects {
+  /** Messages to publish (rebirth requests). */
+  publish: { topic: string; payload: Uint8Array }[];
+  /** Channels to mark stale at once, and why. */
+  stale: { channels: string[]; cause: string }[];
+  /** Messages lost by a sequence number, and the channels of the node that lost them. */
+  sequenceGaps: { node: string; missing: number; channels: string[]; timeMs: number }[];
+}
+
 export interface DecodeResult {
   samples: Sample[];
   rejections: Rejection[];
   /** Samples decoded as blocks (they come after `samples` in arrival order). */
   blocks?: SampleBlock[];
+  /** What the message asks of the daemon besides its samples (Sparkplug B). */
+  effects?: DecodeEffects;
 }
