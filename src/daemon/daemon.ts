@@ -137,6 +137,10 @@ export class Daemon implements DaemonApi {
       isDerivedInput: (channel) => this.derived.usesChannel(channel),
       sampled: (channel) => this.derived.onSample(channel),
       requestCommit: () => this.commits.request(),
+      expectedIntervalMs: (name) => {
+        const rate = settingsFor(this.config, name).rate;
+        return rate !== null && rate > 0 ? 1000 / rate : null;
+      },
       publish: (topic, payload) => {
         if (this.connection === null) return false;
         this.connection.publish(topic, Buffer.from(payload.buffer, payload.byteOffset, payload.byteLength), { qos: 0, retain: false });
@@ -213,6 +217,8 @@ export class Daemon implements DaemonApi {
     ingest.accepted = counters.accepted ?? 0;
     ingest.messages = counters.messages ?? 0;
     for (const reason of REJECT_REASONS) ingest.rejected[reason] = counters[`rejected.${reason}`] ?? 0;
+    ingest.gaps = counters.gaps ?? 0;
+    ingest.missingSamples = counters.missingSamples ?? 0;
     this.restored = { samples: summary.replayed, ms: summary.ms };
     this.log.info({ channels: summary.channels, checkpoints: summary.outcomes, replayedSamples: summary.replayed, ms: Math.round(summary.ms) }, 'state rebuilt from the store');
 
@@ -277,6 +283,8 @@ export class Daemon implements DaemonApi {
     const c = this.ingestion.counters;
     const out: Record<string, number> = { accepted: c.accepted, messages: c.messages };
     for (const reason of REJECT_REASONS) out[`rejected.${reason}`] = c.rejected[reason];
+    out.gaps = c.gaps;
+    out.missingSamples = c.missingSamples;
     return out;
   }
 
@@ -311,6 +319,7 @@ export class Daemon implements DaemonApi {
     const source = this.ingest;
     return {
       samples: { accepted: c.accepted, late: c.late, rejected: { ...c.rejected } },
+      gaps: { count: c.gaps, missingSamples: c.missingSamples, channels: this.ingestion.gapReport() },
       sparkplug: { ...this.ingestion.decoders.sparkplug.counters, nodesNeedingRebirth: this.ingestion.decoders.sparkplug.nodesNeedingRebirth() },
       messages: c.messages,
       commands: this.commands.count,

@@ -3,6 +3,7 @@ import type { SubscriptionConfig } from '../config/plateau-config.js';
 import type { ChannelRegistry } from '../engine/channel-registry.js';
 import type { AcceptResult, Channel } from '../engine/channel.js';
 import type { ChannelEvent } from '../engine/channel-events.js';
+import { GapDetector, type GapRecord } from '../engine/gap-detector.js';
 import { PayloadDecoders } from '../ingest/payload-decoder.js';
 import { REJECT_REASONS, type DecodeEffects, type RejectReason } from '../ingest/sample.js';
 import type { Clock } from '../ports/clock.js';
@@ -42,6 +43,8 @@ export interface IngestOptions {
   sampled(channel: string): void;
   /** Asks for a commit. */
   requestCommit(): void;
+  /** The expected sample interval configured for a channel (ms), or null to learn it from the time stamps. */
+  expectedIntervalMs?(name: string): number | null;
   /** Publishes a message the decoders ask for (a Sparkplug B rebirth request); false when there is no connection to send it on. */
   publish?(topic: string, payload: Uint8Array): boolean;
 }
@@ -52,6 +55,9 @@ export interface IngestCounters {
   late: number;
   rejected: Record<RejectReason, number>;
   ingestLagMs: number;
+  /** Gaps found (time stamps and sequence numbers) and the samples they miss. */
+  gaps: number;
+  missingSamples: number;
 }
 
 /** Log one line per reason at most this often. */
@@ -69,10 +75,12 @@ interface Tracked {
   /** Wall-clock ms of the last sample (NaN: none since the start). */
   lastArrival: number;
   derivedInput: boolean;
+  /** Samples that never came (by the time stamps, or a source's sequence numbers). */
+  gaps: GapDetector;
 }
 
 export class Ingest {
-  readonly counters: IngestCounters = { messages: 0, accepted: 0, late: 0, rejected: Object.fromEntries(REJECT_REASONS.map((r) => [r, 0])) as Record<RejectReason, number>, ingestLagMs: 0 };
+  readonly counters: IngestCounters = { messages: 0, accepted: 0, late: 0, rejected: Object.fromEntries(REJECT_REASONS.map((r) => [r, 0])) as Record<RejectReason, number>, ingestLagMs: 0, gaps: 0, missingSamples: 0 };
   /** The payload decoders, with the Sparkplug B state of each edge node. */
   readonly decoders = new PayloadDecoders();
   private readonly options: IngestOptions;
@@ -121,7 +129,7 @@ export class Ingest {
     let tracked = this.tracked.get(name);
     if (tracked === undefined) {
       const channel = this.options.registry.ensure(name, unit ?? this.options.configuredUnit(name));
-      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name) };
+      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name), gaps: new GapDetector(this.options.expectedIntervalMs?.(name) ?? null) };
       this.tracked.set(name, tracked);
     } else if (unit !== null && tracked.channel.unit === null) tracked.channel.unit = unit;
     return tracked;
@@ -151,6 +159,7 @@ export class Ingest {
     if (subscription === null) return this.rejected('unknown-topic', `topic ${topic.slice(0, 80)}: no subscription of this daemon matches it`);
     const decoded = this.decoders.decode(topic, payload, subscription, arrival);
     for (const rejection of decoded.rejections) this.rejected(rejection.reason, rejection.detail);
+    if (decoded.effects !== undefined && decoded.effects.sequenceGaps.length > 0) this.sequenceGaps(decoded.effects);
     let latestStamp = 0;
     for (const sample of decoded.samples) {
       let tracked: Tracked;
@@ -183,7 +192,21 @@ export class Ingest {
     if (decoded.effects !== undefined) this.effects(decoded.effects);
   }
 
-  /** What a message asks besides its samples: messages to send, channels stale at once, sequence gaps. */
+  /**
+   * Messages a source's sequence numbers say were lost, before the samples of the message that
+   * revealed it: each channel of the source counts the gap (and does not judge its next step by
+   * the time stamps again).
+   */
+  private sequenceGaps(effects: DecodeEffects): void {
+    for (const lost of effects.sequenceGaps) {
+      for (const name of lost.channels) {
+        if (this.options.registry.get(name) === undefined) continue;
+        this.gap(name, null, this.track(name, null).gaps.noteSequenceGap(lost.missing, lost.timeMs));
+      }
+    }
+  }
+
+  /** What a message asks besides its samples: messages to send, channels stale at once. */
   private effects(effects: DecodeEffects): void {
     for (const message of effects.publish) {
       const sent = this.options.publish?.(message.topic, message.payload) ?? false;
@@ -230,8 +253,45 @@ export class Ingest {
     if (result.engineError !== null) this.rejected('engine-error', `channel ${channel.name}: sample ${result.seq} stored, but the engine failed on it: ${result.engineError.message}`, result.engineError);
     if (!tracked.active) this.activate(tracked);
     for (const event of result.events) this.channelEvent(channel, event);
+    if (stamped && !result.late) {
+      const gap = tracked.gaps.push(timeMs);
+      if (gap !== null) this.gap(channel.name, result.seq, gap);
+    }
     if (tracked.derivedInput) this.options.sampled(channel.name);
     return true;
+  }
+
+  /** A gap: counted, and an event on the channel at the index of the first sample after it. */
+  private gap(name: string, at: number | null, gap: GapRecord): void {
+    this.counters.gaps++;
+    this.counters.missingSamples += gap.missing;
+    this.options.raise(name, 'gap', at, {
+      channel: name,
+      from: new Date(gap.fromMs).toISOString(),
+      to: new Date(gap.toMs).toISOString(),
+      missing: gap.missing,
+      intervalMs: gap.intervalMs,
+      source: gap.source,
+      detail: gap.source === 'sequence' ? `${gap.missing} messages lost by the source's sequence numbers` : `${gap.missing} samples missing at ${gap.intervalMs?.toPrecision(4)} ms intervals`,
+    });
+  }
+
+  /** Gaps of a channel within a window (ISO times), for its test point's record. */
+  gapsWithin(name: string, from: string | null, to: string | null): { count: number; missingSamples: number; list: { from: string; to: string; missing: number; source: 'time-stamps' | 'sequence' }[] } {
+    const tracked = this.tracked.get(name);
+    if (tracked === undefined || from === null || to === null) return { count: 0, missingSamples: 0, list: [] };
+    const found = tracked.gaps.within(Date.parse(from), Date.parse(to));
+    return { count: found.gaps, missingSamples: found.missing, list: found.list.slice(0, 100).map((g) => ({ from: new Date(g.fromMs).toISOString(), to: new Date(g.toMs).toISOString(), missing: g.missing, source: g.source })) };
+  }
+
+  /** Channels with gaps: their counts and expected intervals. */
+  gapReport(): Record<string, { gaps: number; missing: number; intervalMs: number | null; learned: boolean }> {
+    const out: Record<string, { gaps: number; missing: number; intervalMs: number | null; learned: boolean }> = {};
+    for (const [name, tracked] of this.tracked) {
+      const stats = tracked.gaps.stats();
+      if (stats.gaps > 0) out[name] = { gaps: stats.gaps, missing: stats.missing, intervalMs: stats.intervalMs, learned: stats.learned };
+    }
+    return out;
   }
 
   /** A channel's event joins the batch, its source the channel. */

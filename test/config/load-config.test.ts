@@ -46,7 +46,7 @@ describe('configuration validation', () => {
         'broker.keepaliveSeconds: expected a whole number at least 1 and at most 65535, got -1',
         'subscriptions[0].colour: unknown key (expected one of topic, format, channel, valueField, timeField, timeUnit, samplesField, channelField, unit, maxBytes, maxDepth, maxSamples)',
         'subscriptions[0].topic: "rig/#/x" is not a valid MQTT topic filter (+ and # must fill a whole level; # only at the end)',
-        'subscriptions[0].format: expected one of number, json, senml, got "xml"',
+        'subscriptions[0].format: expected one of number, json, senml, senml-cbor, binary, sparkplug, got "xml"',
         'subscriptions[0].maxBytes: expected a whole number at least 16 and at most 67108864, got "big"',
         'channels.defaults.window: a sliding window needs samples or seconds',
         'channels.defaults.confidence: expected a number between 0 and 1, got 1.5',
