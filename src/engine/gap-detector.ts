@@ -59,6 +59,8 @@ export const MIN_LEARNED = 8;
 export const MAX_KEPT = 1024;
 /** A step of at least this many intervals is a gap (one sample missing at 2 rounded). */
 const GAP_RATIO = 1.5;
+/** Steps between medians once the grid is refined over a long span. */
+const MEDIAN_EVERY = 256;
 /** The learned grid starts again when the median step moves this far (relative) from it. */
 const REANCHOR = 0.2;
 
@@ -70,6 +72,7 @@ export class GapDetector {
   private medianMs: number | null = null;
   private last = Number.NaN;
   private readonly ring = new Float64Array(LEARN_WINDOW);
+  private readonly sorted = new Float64Array(LEARN_WINDOW);
   private ringCount = 0;
   private ringNext = 0;
   private sinceMedian = 0;
@@ -155,11 +158,16 @@ export class GapDetector {
     this.ringNext = (this.ringNext + 1) % LEARN_WINDOW;
     if (this.ringCount < LEARN_WINDOW) this.ringCount++;
     this.sinceMedian++;
-    const due = this.medianMs === null ? this.ringCount >= MIN_LEARNED : this.sinceMedian >= LEARN_WINDOW / 2;
+    // The median is what notices a change of rate: every half window at first, then (the grid
+    // refined over a long span) every MEDIAN_EVERY steps, so that it costs little per sample.
+    const due = this.medianMs === null ? this.ringCount >= MIN_LEARNED : this.sinceMedian >= (this.spanSteps > MEDIAN_EVERY ? MEDIAN_EVERY : LEARN_WINDOW / 2);
     if (!due) return;
     this.sinceMedian = 0;
-    const values = Array.from(this.ring.subarray(0, this.ringCount)).sort((a, b) => a - b);
-    const mid = values.length >> 1;
-    this.medianMs = values.length % 2 === 1 ? (values[mid] as number) : ((values[mid - 1] as number) + (values[mid] as number)) / 2;
+    const n = this.ringCount;
+    const values = this.sorted.subarray(0, n);
+    values.set(this.ring.subarray(0, n));
+    values.sort();
+    const mid = n >> 1;
+    this.medianMs = n % 2 === 1 ? (values[mid] as number) : ((values[mid - 1] as number) + (values[mid] as number)) / 2;
   }
 }

@@ -157,6 +157,8 @@ function decodeSenml(topic: string, document: unknown, spec: DecoderSpec, arriva
   let baseTime = 0;
   let baseUnit: string | undefined;
   let baseValue = 0;
+  let lastName: string | null = null;
+  let lastChannel: string | null = null;
   document.forEach((record, index) => {
     const where = `record ${index}`;
     if (!isObject(record)) return void fail('wrong-type', `${where}: ${typeName(record)} where a SenML record object was expected`);
@@ -199,7 +201,12 @@ function decodeSenml(topic: string, document: unknown, spec: DecoderSpec, arriva
     if (typeof total === 'string') return void fail(total, `${where}: v + bv is ${REASON_TEXT[total]}`);
     const unit = record.u !== undefined ? record.u : baseUnit;
     if (unit !== undefined && typeof unit !== 'string') return void fail('wrong-type', `${where}: u is not a string`);
-    const channel = channelName(spec.channel, topic, { name: fullName });
+    // Records of a pack mostly repeat a name: the channel is worked out once per run of equal names.
+    if (fullName !== lastName) {
+      lastName = fullName;
+      lastChannel = channelName(spec.channel, topic, { name: fullName });
+    }
+    const channel = lastChannel;
     if (channel === null) return void fail('bad-channel', `${where}: name "${truncate(fullName)}" is not a valid channel name`);
     const sample: Sample = { channel, timeMs, value: total, stamped: !relative };
     const fixed = spec.unit ?? unit;
