@@ -18,11 +18,14 @@ client.stream?.setMaxListeners?.(0);
 const start = Date.now();
 const t0 = Date.now() / 1000 - 3600;
 const values = new Float64Array(pack);
+let x = 0;
 let inflight = 0;
 for (let i = 0; i < count; i++) {
   const c = i % channels;
   const first = t0 + Math.floor(i / channels) * pack * 1e-3;
-  for (let k = 0; k < pack; k++) values[k] = 20 + Math.sin(i + k * 0.1);
+  // AR(1) noise (phi 0.5) about 20: a measurement, not a pure sinusoid (whose spectral line the
+  // channel's diagnosis would refine at every check).
+  for (let k = 0; k < pack; k++) values[k] = 20 + (x = 0.5 * x + Math.random() - 0.5);
   let payload;
   if (format === 'binary') payload = Buffer.from(encodeFrame(`c${c}`, first, 1e-3, values));
   else {
