@@ -28,6 +28,7 @@ for (let i = 0; i < count; i++) {
   for (let k = 0; k < pack; k++) values[k] = 20 + (x = 0.5 * x + Math.random() - 0.5);
   let payload;
   if (format === 'binary') payload = Buffer.from(encodeFrame(`c${c}`, first, 1e-3, values));
+  else if (format === 'json') payload = JSON.stringify(Array.from(values, (v, k) => ({ v, t: first + k * 1e-3 })));
   else {
     const records = new Array(pack);
     records[0] = new Map([[-2, `c${c}`], [-3, first], [2, values[0]]]);

@@ -3,8 +3,8 @@
 //  - samples/s at QoS 1 with packs of 1000 samples through Mosquitto into the daemon and SQLite, in
 //    binary frames and in SenML CBOR, against a bare subscriber's samples/s on the same broker in
 //    the same run (it reads each pack as the daemon must: the frame header, or the CBOR document),
-//    with the daemon's CPU time per sample. Mosquitto: the one at 127.0.0.1:1883 when it answers,
-//    else one of the benchmark's own on a free port.
+//    with the daemon's CPU time per sample; JSON packs as the baseline of the same run. Mosquitto: one
+//    of the benchmark's own on a free port (the machine's at 127.0.0.1:1883 only when none is installed).
 // Every wait is bounded: a stalled run is reported as a failed figure, never as silence.
 // Run: npm run bench:payloads     (QUICK=1 for a shorter run)
 import { spawn } from 'node:child_process';
@@ -132,7 +132,8 @@ async function bare(url, format, prefix) {
     if (format === 'binary') {
       const h = readFrameHeader(payload, 1e6);
       if ('count' in h) samples += h.count;
-    } else samples += decoder.decode(payload).length;
+    } else if (format === 'json') samples += JSON.parse(payload.toString()).length;
+    else samples += decoder.decode(payload).length;
   });
   const publishing = runPublisher(url, format, prefix, 180_000);
   const result = await measure(() => samples, COUNT * PACK);
@@ -144,7 +145,7 @@ async function bare(url, format, prefix) {
 async function daemonRun(url, format, prefix, dir) {
   const config = parseConfig({
     broker: { url, clientId: `bench-pl-daemon-${Date.now()}`, qos: 1, reconnectPeriodMs: 200 },
-    subscriptions: [{ topic: `${prefix}/+`, format, maxSamples: 10_000 }],
+    subscriptions: [format === 'json' ? { topic: `${prefix}/+`, format, channel: '{2}' } : { topic: `${prefix}/+`, format, maxSamples: 10_000 }],
     channels: { defaults: { window: { kind: 'sliding', samples: 4096 } } },
     store: { path: join(dir, `${prefix}.sqlite`) },
     http: { listen: '127.0.0.1:0' },
@@ -174,7 +175,8 @@ else if (await reachable(1883)) broker = { url: 'mqtt://127.0.0.1:1883', stop: (
 if (broker === null) console.log('Mosquitto is neither reachable at 127.0.0.1:1883 nor installed: the throughput figures are skipped');
 else {
   const dir = mkdtempSync(join(tmpdir(), 'plateau-bench-pl-'));
-  for (const format of ['binary', 'senml-cbor']) {
+  // JSON packs (the format bench:e2e measures) are the baseline of the same run.
+  for (const format of ['binary', 'senml-cbor', 'json']) {
     const stamp = Date.now().toString(36);
     const b = await bare(broker.url, format, `bpl-bare-${format}-${stamp}`);
     const d = await daemonRun(broker.url, format, `bpl-d-${format}-${stamp}`, dir);

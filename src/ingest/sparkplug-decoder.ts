@@ -148,12 +148,12 @@ export class SparkplugDecoder {
       node.birth(bdSeqOf(metrics), seq);
     } else {
       if (!node.born) {
-        this.needsRebirth(node, `${type} before any NBIRTH`, spec, arrivalMs, effects, out);
+        this.needsRebirth(node, `${type} before any NBIRTH`, spec, arrivalMs, effects);
         this.counters.unknownAliases += metrics.length;
         return reject('unknown-alias', `${type} of ${key}${device === null ? '' : `/${device}`} before the node's birth: its ${metrics.length} metrics cannot be named`), out;
       }
       if (seq === null || seq > 255) {
-        this.needsRebirth(node, `${type} without a seq`, spec, arrivalMs, effects, out);
+        this.needsRebirth(node, `${type} without a seq`, spec, arrivalMs, effects);
         reject('bad-sequence', `${type} of ${key} without a seq of 0 to 255`);
       } else {
         const missing = node.advance(seq);
@@ -161,7 +161,7 @@ export class SparkplugDecoder {
           this.counters.sequenceGaps++;
           this.counters.missedMessages += missing;
           effects.sequenceGaps.push({ node: key, missing, channels: node.channels(), timeMs: payloadTime ?? arrivalMs });
-          this.needsRebirth(node, `seq ${seq} after ${(seq - missing - 1 + 256) & 0xff}: ${missing} messages lost`, spec, arrivalMs, effects, out);
+          this.needsRebirth(node, `seq ${seq} after ${(seq - missing - 1 + 256) & 0xff}: ${missing} messages lost`, spec, arrivalMs, effects);
         }
       }
       if (type === 'DBIRTH') {
@@ -233,12 +233,12 @@ export class SparkplugDecoder {
     }
     if (unknown > 0) {
       this.counters.unknownAliases += unknown;
-      this.needsRebirth(node, `${unknown} metrics never announced in a birth`, spec, arrivalMs, effects, out);
+      this.needsRebirth(node, `${unknown} metrics never announced in a birth`, spec, arrivalMs, effects);
     }
     return out;
   }
 
-  private needsRebirth(node: EdgeNodeState, cause: string, spec: DecoderSpec, arrivalMs: number, effects: DecodeEffects, _out: DecodeResult): void {
+  private needsRebirth(node: EdgeNodeState, cause: string, spec: DecoderSpec, arrivalMs: number, effects: DecodeEffects): void {
     if (node.markNeedsRebirth(cause)) this.counters.needsRebirth++;
     if (!spec.sparkplug.requestRebirth) return;
     if (!Number.isNaN(node.rebirthRequestedAt) && arrivalMs - node.rebirthRequestedAt < REBIRTH_REPEAT_MS) return;
