@@ -171,6 +171,24 @@ describe('Sparkplug B decoder', () => {
     expect(r.rejections.map((x) => x.reason)).toEqual(['missing-field', 'nan', 'infinite']);
   });
 
+  it('a payload nested 6000 levels deep (Metric.template_value -> Template.metrics -> ...) is refused, not a stack overflow', () => {
+    const length = (n: number) => {
+      const out: number[] = [];
+      for (; n > 127; n >>>= 7) out.push((n & 127) | 128);
+      out.push(n);
+      return Buffer.from(out);
+    };
+    let inner = Buffer.alloc(0);
+    for (let d = 0; d < 6000; d++) {
+      const template = Buffer.concat([Buffer.from([0x12]), length(inner.length), inner]); // Template.metrics, field 2
+      inner = Buffer.concat([Buffer.from([0x92, 0x01]), length(template.length), template]); // Metric.template_value, field 18
+    }
+    const bytes = Buffer.concat([Buffer.from([0x12]), length(inner.length), inner]); // Payload.metrics, field 2
+    const r = new PayloadDecoders().decode(topic('NBIRTH'), bytes, spec({ maxBytes: 1_000_000 }), ARRIVAL);
+    expect(r.samples).toEqual([]);
+    expect(r.rejections.map((x) => x.reason)).toEqual(['unparseable']);
+  });
+
   it('channel templates over group, node, device and metric', () => {
     expect(sparkplugChannel('{node}.{device}.{metric}', 'g', 'n1', null, 'Temp')).toBe('n1.Temp');
     expect(sparkplugChannel('{node}.{device}.{metric}', 'g', 'n1', 'd 1', 'Inlet Temp')).toBe('n1.d_1.Inlet_Temp');
