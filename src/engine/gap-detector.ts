@@ -23,8 +23,9 @@
  * step of time stamps is then not judged again, so one loss is never counted twice.
  *
  * Deterministic: the same time stamps give the same gaps. O(1) per sample (a median of
- * LEARN_WINDOW values every LEARN_WINDOW / 2 samples while learning). Memory: the last MAX_KEPT
- * gaps and the totals.
+ * LEARN_WINDOW values, every LEARN_WINDOW / 2 steps while learning, then every MEDIAN_EVERY).
+ * Memory: 512 bytes, the totals, and the last MAX_KEPT gaps (up to about 25 kB): a test point's
+ * record counts the gaps of its window among those kept, the totals count every one.
  */
 export interface GapRecord {
   /** Time stamp of the last sample before the gap (ms). */
@@ -56,7 +57,7 @@ export interface GapSummary {
 
 export const LEARN_WINDOW = 32;
 export const MIN_LEARNED = 8;
-export const MAX_KEPT = 1024;
+export const MAX_KEPT = 256;
 /** A step of at least this many intervals is a gap (one sample missing at 2 rounded). */
 const GAP_RATIO = 1.5;
 /** Steps between medians once the grid is refined over a long span. */
