@@ -27,7 +27,9 @@ afterAll(async () => {
 });
 
 const cbor = new Encoder({ mapsAsObjects: false, useRecords: false, variableMapSize: true });
-const sparkplug = (seq: number | null, metrics: Record<string, unknown>[]) => Buffer.from(SparkplugPayload.encode(SparkplugPayload.fromObject({ timestamp: Date.now(), ...(seq === null ? {} : { seq }), metrics })).finish());
+// Each payload a time stamp of its own (two messages in one millisecond would repeat a sample's time).
+let stamp = Date.now();
+const sparkplug = (seq: number | null, metrics: Record<string, unknown>[]) => Buffer.from(SparkplugPayload.encode(SparkplugPayload.fromObject({ timestamp: (stamp += 10), ...(seq === null ? {} : { seq }), metrics })).finish());
 
 async function formats(url: string, protocolVersion: 4 | 5) {
   const prefix = unique('fmt');
@@ -61,7 +63,9 @@ async function formats(url: string, protocolVersion: 4 | 5) {
     await publishAsync(client, `spBv1.0/${group}/NBIRTH/${node}`, sparkplug(0, [{ name: 'bdSeq', datatype: T.Int64, long_value: 1 }, { name: 'Temp', alias: 1, datatype: T.Double, double_value: 20 }]));
     await publishAsync(client, `spBv1.0/${group}/NDATA/${node}`, sparkplug(1, [{ alias: 1, double_value: 20.5 }]));
     await publishAsync(client, `spBv1.0/${group}/NDATA/${node}`, sparkplug(3, [{ alias: 1, double_value: 21 }]));
-    await waitFor(() => daemon.counters.accepted >= 5000 + 500 + 3, 20_000, 'every sample');
+    await waitFor(() => daemon.counters.accepted >= 5000 + 500 + 3, 20_000, 'every sample').catch((error: Error) => {
+      throw new Error(`${error.message}: accepted ${daemon.counters.accepted}, messages ${daemon.counters.messages}, refused ${JSON.stringify(Object.fromEntries(Object.entries(daemon.counters.rejected).filter(([, n]) => n > 0)))}`);
+    });
     await waitFor(() => requests.length >= 1, 5000, 'a rebirth request');
     expect(requests).toEqual([`spBv1.0/${group}/NCMD/${node}`]);
     expect(daemon.registry.get('rigX.frame')?.pipeline.totalReceived).toBe(5000);
