@@ -284,6 +284,13 @@ export class Ingest {
     return { count: found.gaps, missingSamples: found.missing, list: found.list.slice(0, 100).map((g) => ({ from: new Date(g.fromMs).toISOString(), to: new Date(g.toMs).toISOString(), missing: g.missing, source: g.source })) };
   }
 
+  /** Gaps of a channel between two times (ms), in seconds since the epoch, for its trace. */
+  gapTrace(name: string, fromMs: number, toMs: number): { from: number; to: number; missing: number; source: 'time-stamps' | 'sequence' }[] {
+    const tracked = this.tracked.get(name);
+    if (tracked === undefined) return [];
+    return tracked.gaps.within(fromMs, toMs).list.map((g) => ({ from: g.fromMs / 1000, to: g.toMs / 1000, missing: g.missing, source: g.source }));
+  }
+
   /** Channels with gaps: their counts and expected intervals. */
   gapReport(): Record<string, { gaps: number; missing: number; intervalMs: number | null; learned: boolean }> {
     const out: Record<string, { gaps: number; missing: number; intervalMs: number | null; learned: boolean }> = {};

@@ -40,6 +40,11 @@ describe('gaps in the daemon', () => {
       expect(gaps[0]?.body.from).toBe(new Date((T0 + 149 * 0.1) * 1000).toISOString());
       expect(daemon.counters.gaps).toBe(2);
       expect(daemon.counters.missingSamples).toBe(4);
+      // The channel's trace marks them (seconds since the epoch).
+      expect(daemon.channel('hx.t')?.trace(1000).gaps).toEqual([
+        { from: T0 + 149 * 0.1, to: T0 + 153 * 0.1, missing: 3, source: 'time-stamps' },
+        { from: T0 + 299 * 0.1, to: T0 + 301 * 0.1, missing: 1, source: 'time-stamps' },
+      ]);
       daemon.stopTestPoint('tp-gaps');
       const record = daemon.records('tp-gaps').at(-1)?.body as TestPointRecord;
       expect(record.entries[0]?.gaps).toMatchObject({ count: 2, missingSamples: 4 });
