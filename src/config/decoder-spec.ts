@@ -2,9 +2,12 @@
  * How a subscription's payloads are read: part of the configuration (src/ingest/payload-decoder.ts
  * reads payloads by it). Kept here so that the configuration depends on nothing in ingest.
  */
+export const DECODER_FORMATS = ['number', 'json', 'senml', 'senml-cbor', 'binary', 'sparkplug'] as const;
+export type DecoderFormat = (typeof DECODER_FORMATS)[number];
+
 export interface DecoderSpec {
-  format: 'number' | 'json' | 'senml';
-  /** Channel name: a template over topic levels ({1} is the first level, {topic} the whole topic) and, for SenML, {name}. */
+  format: DecoderFormat;
+  /** Channel name: a template over topic levels ({1} is the first level, {topic} the whole topic) and {name} (the SenML name, the binary frame's channel id). */
   channel: string;
   /** Dot path of the value in a JSON object. */
   valueField: string;
@@ -21,6 +24,8 @@ export interface DecoderSpec {
   maxBytes: number;
   maxDepth: number;
   maxSamples: number;
+  /** Sparkplug B: send a rebirth request (NCMD) to a node that needs one. */
+  sparkplug: { requestRebirth: boolean };
 }
 
 export const DECODER_DEFAULTS: Omit<DecoderSpec, 'format' | 'channel'> = {
@@ -33,5 +38,6 @@ export const DECODER_DEFAULTS: Omit<DecoderSpec, 'format' | 'channel'> = {
   maxBytes: 262_144, // bytes
   maxDepth: 8,
   maxSamples: 10_000,
+  sparkplug: { requestRebirth: false },
 };
 

@@ -2,7 +2,7 @@ import { readFileSync } from 'node:fs';
 import { parse as parseYaml } from 'yaml';
 import { ConfigError, ConfigReader, describe, join, type Plain } from './config-reader.js';
 import type { ChannelGroup, ChannelSettings, DerivedConfig, PlateauConfig, SubscriptionConfig } from './plateau-config.js';
-import { DECODER_DEFAULTS } from './decoder-spec.js';
+import { DECODER_DEFAULTS, DECODER_FORMATS } from './decoder-spec.js';
 import { ESTIMATOR_NAMES } from '../core/tau/tau-estimate.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
 import { DEFAULT_CHANNEL_OPTIONS, DEFAULT_MAX_SAMPLES, type WindowSpec } from '../engine/channel-options.js';
@@ -80,16 +80,21 @@ export function parseConfig(document: unknown, source = 'config'): PlateauConfig
   if (subscriptionList.length === 0) r.problem('subscriptions', 'missing: at least one subscription (a topic filter and how to read its payloads)');
   subscriptionList.forEach((item, index) => {
     const path = join('subscriptions', index);
-    const s = r.section(item, path, ['topic', 'format', 'channel', 'valueField', 'timeField', 'timeUnit', 'samplesField', 'channelField', 'unit', 'maxBytes', 'maxDepth', 'maxSamples']);
+    const s = r.section(item, path, ['topic', 'format', 'channel', 'valueField', 'timeField', 'timeUnit', 'samplesField', 'channelField', 'unit', 'maxBytes', 'maxDepth', 'maxSamples', 'sparkplug']);
     if (!r.require(s, 'topic', path, 'the MQTT topic filter to subscribe to')) return;
     const topic = r.string(s, 'topic', path, '');
     if (topic && !validTopicFilter(topic)) r.problem(join(path, 'topic'), `"${topic}" is not a valid MQTT topic filter (+ and # must fill a whole level; # only at the end)`);
-    const format = r.oneOf(s, 'format', path, ['number', 'json', 'senml'] as const, 'json');
-    const channel = r.string(s, 'channel', path, format === 'senml' ? '{name}' : '{topic}');
+    const format = r.oneOf(s, 'format', path, DECODER_FORMATS, 'json');
+    const channel = r.string(s, 'channel', path, format === 'sparkplug' ? '{node}.{device}.{metric}' : format === 'senml' || format === 'senml-cbor' || format === 'binary' ? '{name}' : '{topic}');
     for (const match of channel.matchAll(/\{(\w+)\}/g)) {
       const key = match[1] as string;
-      if (!['topic', 'name', 'field'].includes(key) && !/^[1-9]\d?$/.test(key)) r.problem(join(path, 'channel'), `unknown placeholder {${key}} (expected {topic}, {name}, {field} or a topic level such as {2})`);
+      if (format === 'sparkplug') {
+        if (!['group', 'node', 'device', 'metric'].includes(key)) r.problem(join(path, 'channel'), `unknown placeholder {${key}} (a Sparkplug B channel template takes {group}, {node}, {device} and {metric})`);
+      } else if (!['topic', 'name', 'field'].includes(key) && !/^[1-9]\d?$/.test(key)) r.problem(join(path, 'channel'), `unknown placeholder {${key}} (expected {topic}, {name}, {field} or a topic level such as {2})`);
     }
+    if (format === 'sparkplug' && !channel.includes('{metric}')) r.problem(join(path, 'channel'), 'a Sparkplug B channel template needs {metric}');
+    const sparkplugSection = r.section(s.sparkplug, join(path, 'sparkplug'), ['requestRebirth']);
+    if (s.sparkplug !== undefined && format !== 'sparkplug') r.problem(join(path, 'sparkplug'), 'only for format: sparkplug');
     const timeField = s.timeField === false ? null : r.string(s, 'timeField', path, DECODER_DEFAULTS.timeField as string);
     subscriptions.push({
       topic,
@@ -104,6 +109,7 @@ export function parseConfig(document: unknown, source = 'config'): PlateauConfig
       maxBytes: r.number(s, 'maxBytes', path, { min: 16, max: 64 * 1024 * 1024, integer: true }, DECODER_DEFAULTS.maxBytes),
       maxDepth: r.number(s, 'maxDepth', path, { min: 1, max: 64, integer: true }, DECODER_DEFAULTS.maxDepth),
       maxSamples: r.number(s, 'maxSamples', path, { min: 1, max: 1_000_000, integer: true }, DECODER_DEFAULTS.maxSamples),
+      sparkplug: { requestRebirth: r.boolean(sparkplugSection, 'requestRebirth', join(path, 'sparkplug'), DECODER_DEFAULTS.sparkplug.requestRebirth) },
     });
   });
 

@@ -90,6 +90,8 @@ export class Daemon implements DaemonApi {
   private readonly publishers: Publisher[] = [];
   private storeAdapter: Store | null = null;
   private source: SampleSource | null = null;
+  /** The MQTT connection the daemon built (null when it was given a source): decoders publish on it (Sparkplug B rebirth requests). */
+  private connection: MqttConnection | null = null;
   private timers: NodeJS.Timeout[] = [];
   private restored = { samples: 0, ms: 0 };
   private stopped = false;
@@ -135,6 +137,15 @@ export class Daemon implements DaemonApi {
       isDerivedInput: (channel) => this.derived.usesChannel(channel),
       sampled: (channel) => this.derived.onSample(channel),
       requestCommit: () => this.commits.request(),
+      expectedIntervalMs: (name) => {
+        const rate = settingsFor(this.config, name).rate;
+        return rate !== null && rate > 0 ? 1000 / rate : null;
+      },
+      publish: (topic, payload) => {
+        if (this.connection === null) return false;
+        this.connection.publish(topic, Buffer.from(payload.buffer, payload.byteOffset, payload.byteLength), { qos: 0, retain: false });
+        return true;
+      },
     });
     this.control = new TestPointControl({
       testPoints: this.testPoints,
@@ -159,7 +170,7 @@ export class Daemon implements DaemonApi {
         return true;
       },
     });
-    this.queries = new Queries({ registry: this.registry, derived: this.derived, testPoints: this.control, store: () => this.storeAdapter, lastEventId: () => this.publishing.lastEventId });
+    this.queries = new Queries({ registry: this.registry, derived: this.derived, testPoints: this.control, store: () => this.storeAdapter, lastEventId: () => this.publishing.lastEventId, gaps: (channel, fromMs, toMs) => this.ingestion.gapTrace(channel, fromMs, toMs) });
   }
 
   /** The store (opened by start()). */
@@ -206,6 +217,8 @@ export class Daemon implements DaemonApi {
     ingest.accepted = counters.accepted ?? 0;
     ingest.messages = counters.messages ?? 0;
     for (const reason of REJECT_REASONS) ingest.rejected[reason] = counters[`rejected.${reason}`] ?? 0;
+    ingest.gaps = counters.gaps ?? 0;
+    ingest.missingSamples = counters.missingSamples ?? 0;
     this.restored = { samples: summary.replayed, ms: summary.ms };
     this.log.info({ channels: summary.channels, checkpoints: summary.outcomes, replayedSamples: summary.replayed, ms: Math.round(summary.ms) }, 'state rebuilt from the store');
 
@@ -215,6 +228,7 @@ export class Daemon implements DaemonApi {
     } else {
       const subscriptions = daemonSubscriptions(this.config);
       const connection = new MqttConnection(this.config.broker, this.brokerUrl, subscriptions.map((s) => s.topic));
+      this.connection = connection;
       this.source = new MqttSampleSource(connection, subscriptions);
       this.publishers.push(this.options.publisher ?? new MqttPublisher(connection, this.config.topics));
     }
@@ -269,6 +283,8 @@ export class Daemon implements DaemonApi {
     const c = this.ingestion.counters;
     const out: Record<string, number> = { accepted: c.accepted, messages: c.messages };
     for (const reason of REJECT_REASONS) out[`rejected.${reason}`] = c.rejected[reason];
+    out.gaps = c.gaps;
+    out.missingSamples = c.missingSamples;
     return out;
   }
 
@@ -303,6 +319,8 @@ export class Daemon implements DaemonApi {
     const source = this.ingest;
     return {
       samples: { accepted: c.accepted, late: c.late, rejected: { ...c.rejected } },
+      gaps: { count: c.gaps, missingSamples: c.missingSamples, channels: this.ingestion.gapReport() },
+      sparkplug: { ...this.ingestion.decoders.sparkplug.counters, nodesNeedingRebirth: this.ingestion.decoders.sparkplug.nodesNeedingRebirth() },
       messages: c.messages,
       commands: this.commands.count,
       broker: { url: this.brokerUrl, connected: source?.connected ?? false, reconnects: source?.reconnects ?? 0, heldAcknowledgements: source?.unacknowledged ?? 0 },

@@ -3,8 +3,9 @@ import type { SubscriptionConfig } from '../config/plateau-config.js';
 import type { ChannelRegistry } from '../engine/channel-registry.js';
 import type { AcceptResult, Channel } from '../engine/channel.js';
 import type { ChannelEvent } from '../engine/channel-events.js';
-import { decodePayload } from '../ingest/payload-decoder.js';
-import { REJECT_REASONS, type RejectReason } from '../ingest/sample.js';
+import { GapDetector, type GapRecord } from '../engine/gap-detector.js';
+import { PayloadDecoders } from '../ingest/payload-decoder.js';
+import { REJECT_REASONS, type DecodeEffects, type RejectReason } from '../ingest/sample.js';
 import type { Clock } from '../ports/clock.js';
 import type { SourceBatch } from '../ports/sample-source.js';
 import type { PendingBatch } from './pending-batch.js';
@@ -42,6 +43,10 @@ export interface IngestOptions {
   sampled(channel: string): void;
   /** Asks for a commit. */
   requestCommit(): void;
+  /** The expected sample interval configured for a channel (ms), or null to learn it from the time stamps. */
+  expectedIntervalMs?(name: string): number | null;
+  /** Publishes a message the decoders ask for (a Sparkplug B rebirth request); false when there is no connection to send it on. */
+  publish?(topic: string, payload: Uint8Array): boolean;
 }
 
 export interface IngestCounters {
@@ -50,6 +55,9 @@ export interface IngestCounters {
   late: number;
   rejected: Record<RejectReason, number>;
   ingestLagMs: number;
+  /** Gaps found (time stamps and sequence numbers) and the samples they miss. */
+  gaps: number;
+  missingSamples: number;
 }
 
 /** Log one line per reason at most this often. */
@@ -67,10 +75,14 @@ interface Tracked {
   /** Wall-clock ms of the last sample (NaN: none since the start). */
   lastArrival: number;
   derivedInput: boolean;
+  /** Samples that never came (by the time stamps, or a source's sequence numbers). */
+  gaps: GapDetector;
 }
 
 export class Ingest {
-  readonly counters: IngestCounters = { messages: 0, accepted: 0, late: 0, rejected: Object.fromEntries(REJECT_REASONS.map((r) => [r, 0])) as Record<RejectReason, number>, ingestLagMs: 0 };
+  readonly counters: IngestCounters = { messages: 0, accepted: 0, late: 0, rejected: Object.fromEntries(REJECT_REASONS.map((r) => [r, 0])) as Record<RejectReason, number>, ingestLagMs: 0, gaps: 0, missingSamples: 0 };
+  /** The payload decoders, with the Sparkplug B state of each edge node. */
+  readonly decoders = new PayloadDecoders();
   private readonly options: IngestOptions;
   private readonly commandPrefix: string;
   private readonly tracked = new Map<string, Tracked>();
@@ -117,7 +129,7 @@ export class Ingest {
     let tracked = this.tracked.get(name);
     if (tracked === undefined) {
       const channel = this.options.registry.ensure(name, unit ?? this.options.configuredUnit(name));
-      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name) };
+      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name), gaps: new GapDetector(this.options.expectedIntervalMs?.(name) ?? null) };
       this.tracked.set(name, tracked);
     } else if (unit !== null && tracked.channel.unit === null) tracked.channel.unit = unit;
     return tracked;
@@ -140,44 +152,153 @@ export class Ingest {
   }
 
   private message(topic: string, payload: Uint8Array, subscription: SubscriptionConfig | null): void {
-    const { batch, clock } = this.options;
+    const { clock } = this.options;
     const arrival = clock.now();
     this.counters.messages++;
     if (topic.startsWith(this.commandPrefix)) return this.options.command(topic.slice(this.commandPrefix.length), payload);
     if (subscription === null) return this.rejected('unknown-topic', `topic ${topic.slice(0, 80)}: no subscription of this daemon matches it`);
-    const decoded = decodePayload(topic, payload, subscription, arrival);
+    const decoded = this.decoders.decode(topic, payload, subscription, arrival);
     for (const rejection of decoded.rejections) this.rejected(rejection.reason, rejection.detail);
+    if (decoded.effects !== undefined && decoded.effects.sequenceGaps.length > 0) this.sequenceGaps(decoded.effects);
     let latestStamp = 0;
     for (const sample of decoded.samples) {
       let tracked: Tracked;
-      let result: AcceptResult;
       try {
         tracked = this.track(sample.channel, sample.unit ?? null);
-        result = tracked.channel.accept(sample.value, sample.timeMs, sample.stamped);
       } catch (error) {
-        // A defect in the engine must not take the daemon down: the sample is counted and logged (with the stack).
         this.rejected('engine-error', `channel ${sample.channel}: ${(error as Error).message}`, error);
         continue;
       }
-      if (!result.accepted) {
-        this.rejected(result.reason, `channel ${sample.channel}: sample at ${new Date(sample.timeMs).toISOString()} ${result.reason === 'duplicate' ? 'repeats an accepted time' : 'is older than every remembered one'}`);
-        continue;
+      if (this.take(tracked, sample.value, sample.timeMs, sample.stamped, arrival) && sample.stamped && sample.timeMs > latestStamp) latestStamp = sample.timeMs;
+    }
+    if (decoded.blocks !== undefined) {
+      // Binary frames: one channel look-up per block, no object per sample.
+      for (const block of decoded.blocks) {
+        let tracked: Tracked;
+        try {
+          tracked = this.track(block.channel, block.unit ?? null);
+        } catch (error) {
+          this.rejected('engine-error', `channel ${block.channel}: ${(error as Error).message}`, error);
+          continue;
+        }
+        const { times, values, length, stamped } = block;
+        for (let i = 0; i < length; i++) {
+          const timeMs = times[i] as number;
+          if (this.take(tracked, values[i] as number, timeMs, stamped, arrival) && stamped && timeMs > latestStamp) latestStamp = timeMs;
+        }
       }
-      this.counters.accepted++;
-      if (result.late) this.counters.late++;
-      if (sample.stamped && sample.timeMs > latestStamp) latestStamp = sample.timeMs;
-      const channel = tracked.channel;
-      tracked.lastArrival = arrival;
-      if (!tracked.introduced) this.introduce(channel);
-      batch.addSample(channel.name, result.seq, result.timeMs, sample.value, sample.stamped);
-      // The channel took the sample and then the engine failed on it: the sample is stored (nothing
-      // accepted is lost) and the defect counted and logged.
-      if (result.engineError !== null) this.rejected('engine-error', `channel ${sample.channel}: sample ${result.seq} stored, but the engine failed on it: ${result.engineError.message}`, result.engineError);
-      if (!tracked.active) this.activate(tracked);
-      for (const event of result.events) this.channelEvent(channel, event);
-      if (tracked.derivedInput) this.options.sampled(channel.name);
     }
     if (latestStamp > 0) this.noteLag(arrival, arrival - latestStamp);
+    if (decoded.effects !== undefined) this.effects(decoded.effects);
+  }
+
+  /**
+   * Messages a source's sequence numbers say were lost, before the samples of the message that
+   * revealed it: each channel of the source counts the gap (and does not judge its next step by
+   * the time stamps again).
+   */
+  private sequenceGaps(effects: DecodeEffects): void {
+    for (const lost of effects.sequenceGaps) {
+      for (const name of lost.channels) {
+        if (this.options.registry.get(name) === undefined) continue;
+        this.gap(name, null, this.track(name, null).gaps.noteSequenceGap(lost.missing, lost.timeMs));
+      }
+    }
+  }
+
+  /** What a message asks besides its samples: messages to send, channels stale at once. */
+  private effects(effects: DecodeEffects): void {
+    for (const message of effects.publish) {
+      const sent = this.options.publish?.(message.topic, message.payload) ?? false;
+      this.options.log.info({ topic: message.topic, sent }, sent ? `rebirth request sent on ${message.topic}` : `a rebirth request on ${message.topic} could not be sent: no broker connection`);
+    }
+    let any = false;
+    for (const { channels, cause } of effects.stale) {
+      for (const name of channels) {
+        if (this.options.registry.get(name) === undefined) continue;
+        const tracked = this.track(name, null);
+        const silent = Number.isNaN(tracked.lastArrival) ? 0 : (this.options.clock.now() - tracked.lastArrival) / 1000;
+        const event = tracked.channel.pipeline.checkStale(silent, true);
+        if (event === null) continue;
+        const { kind, at, ...rest } = event;
+        this.options.raise(name, kind, at, { channel: name, ...rest, cause });
+        any = true;
+      }
+    }
+    if (any) this.options.requestCommit();
+  }
+
+  /** One sample to its channel's accept path; whether the channel took it. */
+  private take(tracked: Tracked, value: number, timeMs: number, stamped: boolean, arrival: number): boolean {
+    const channel = tracked.channel;
+    let result: AcceptResult;
+    try {
+      result = channel.accept(value, timeMs, stamped);
+    } catch (error) {
+      // A defect in the engine must not take the daemon down: the sample is counted and logged (with the stack).
+      this.rejected('engine-error', `channel ${channel.name}: ${(error as Error).message}`, error);
+      return false;
+    }
+    if (!result.accepted) {
+      this.rejected(result.reason, `channel ${channel.name}: sample at ${new Date(timeMs).toISOString()} ${result.reason === 'duplicate' ? 'repeats an accepted time' : 'is older than every remembered one'}`);
+      return false;
+    }
+    this.counters.accepted++;
+    if (result.late) this.counters.late++;
+    tracked.lastArrival = arrival;
+    if (!tracked.introduced) this.introduce(channel);
+    this.options.batch.addSample(channel.name, result.seq, result.timeMs, value, stamped);
+    // The channel took the sample and then the engine failed on it: the sample is stored (nothing
+    // accepted is lost) and the defect counted and logged.
+    if (result.engineError !== null) this.rejected('engine-error', `channel ${channel.name}: sample ${result.seq} stored, but the engine failed on it: ${result.engineError.message}`, result.engineError);
+    if (!tracked.active) this.activate(tracked);
+    for (const event of result.events) this.channelEvent(channel, event);
+    if (stamped && !result.late) {
+      const gap = tracked.gaps.push(timeMs);
+      if (gap !== null) this.gap(channel.name, result.seq, gap);
+    }
+    if (tracked.derivedInput) this.options.sampled(channel.name);
+    return true;
+  }
+
+  /** A gap: counted, and an event on the channel at the index of the first sample after it. */
+  private gap(name: string, at: number | null, gap: GapRecord): void {
+    this.counters.gaps++;
+    this.counters.missingSamples += gap.missing;
+    this.options.raise(name, 'gap', at, {
+      channel: name,
+      from: new Date(gap.fromMs).toISOString(),
+      to: new Date(gap.toMs).toISOString(),
+      missing: gap.missing,
+      intervalMs: gap.intervalMs,
+      source: gap.source,
+      detail: gap.source === 'sequence' ? `${gap.missing} messages lost by the source's sequence numbers` : `${gap.missing} samples missing at ${gap.intervalMs?.toPrecision(4)} ms intervals`,
+    });
+  }
+
+  /** Gaps of a channel within a window (ISO times), for its test point's record. */
+  gapsWithin(name: string, from: string | null, to: string | null): { count: number; missingSamples: number; list: { from: string; to: string; missing: number; source: 'time-stamps' | 'sequence' }[] } {
+    const tracked = this.tracked.get(name);
+    if (tracked === undefined || from === null || to === null) return { count: 0, missingSamples: 0, list: [] };
+    const found = tracked.gaps.within(Date.parse(from), Date.parse(to));
+    return { count: found.gaps, missingSamples: found.missing, list: found.list.slice(0, 100).map((g) => ({ from: new Date(g.fromMs).toISOString(), to: new Date(g.toMs).toISOString(), missing: g.missing, source: g.source })) };
+  }
+
+  /** Gaps of a channel between two times (ms), in seconds since the epoch, for its trace. */
+  gapTrace(name: string, fromMs: number, toMs: number): { from: number; to: number; missing: number; source: 'time-stamps' | 'sequence' }[] {
+    const tracked = this.tracked.get(name);
+    if (tracked === undefined) return [];
+    return tracked.gaps.within(fromMs, toMs).list.map((g) => ({ from: g.fromMs / 1000, to: g.toMs / 1000, missing: g.missing, source: g.source }));
+  }
+
+  /** Channels with gaps: their counts and expected intervals. */
+  gapReport(): Record<string, { gaps: number; missing: number; intervalMs: number | null; learned: boolean }> {
+    const out: Record<string, { gaps: number; missing: number; intervalMs: number | null; learned: boolean }> = {};
+    for (const [name, tracked] of this.tracked) {
+      const stats = tracked.gaps.stats();
+      if (stats.gaps > 0) out[name] = { gaps: stats.gaps, missing: stats.missing, intervalMs: stats.intervalMs, learned: stats.learned };
+    }
+    return out;
   }
 
   /** A channel's event joins the batch, its source the channel. */

@@ -1,6 +1,6 @@
 import type { ChannelRegistry } from '../engine/channel-registry.js';
 import type { Channel } from '../engine/channel.js';
-import type { ChannelView, DerivedView, TestPointView } from '../ports/daemon-api.js';
+import type { ChannelView, DerivedView, TestPointView, TraceGap } from '../ports/daemon-api.js';
 import type { Store, StoredEvent, StoredRecord } from '../ports/store.js';
 import { channelTrace } from './channel-trace.js';
 import type { DerivedResults } from './derived-results.js';
@@ -19,6 +19,8 @@ export interface QueriesOptions {
   store(): Store | null;
   /** The newest stored event id (restored at start, then published). */
   lastEventId(): number;
+  /** A channel's gaps between two times (ms), for its trace. */
+  gaps?(channel: string, fromMs: number, toMs: number): TraceGap[];
 }
 
 export class Queries {
@@ -96,7 +98,16 @@ export class Queries {
         },
         summary: () => channel.pipeline.summary(),
         snapshot: () => channel.pipeline.snapshot(),
-        trace: (count) => channelTrace(store(), channel, count),
+        trace: (count) => {
+          const trace = channelTrace(store(), channel, count);
+          const gaps = this.options.gaps;
+          let first: number | null = null;
+          for (const t of trace.times) if (t !== null) { first = t; break; }
+          let last: number | null = null;
+          for (let i = trace.times.length - 1; i >= 0; i--) if (trace.times[i] !== null) { last = trace.times[i] as number; break; }
+          if (gaps !== undefined && first !== null && last !== null) trace.gaps = gaps(channel.name, first * 1000, last * 1000);
+          return trace;
+        },
         cusumTrace: () => channel.pipeline.cusumTrace(),
         storedEvents: (limit) => store()?.eventsFor(channel.name, limit) ?? [],
       };

@@ -97,6 +97,8 @@ export class TestPointControl {
     batch.putTestPoint(change.point.id, change.point);
     const body: Record<string, unknown> = { testPoint: change.point.id, name: change.point.name, channels: change.point.channels, state: change.point.state };
     if (change.kind !== 'test-point-started') {
+      // Samples missing within each channel's window (the gap detectors are the daemon's).
+      for (const entry of change.record.entries) entry.gaps = this.options.ingest.gapsWithin(entry.channel, entry.windowStartTime, entry.windowEndTime);
       batch.addRecord(change.point.id, change.record);
       body.record = change.record;
     }

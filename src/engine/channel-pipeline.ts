@@ -355,11 +355,12 @@ export class ChannelPipeline {
    * The daemon's clock: a channel that has had no sample for staleSeconds of wall-clock time (the
    * daemon measures the silence from arrival times, not from the samples' own time stamps, which may
    * come from a replayed log) turns stale: one event, at the index of its last sample. `plateau
-   * analyze` has no clock and never calls this.
+   * analyze` has no clock and never calls this. `now`: stale at once, whatever the silence (the
+   * source said so: a Sparkplug B death).
    */
-  checkStale(silentSeconds: number): ChannelEvent | null {
+  checkStale(silentSeconds: number, now = false): ChannelEvent | null {
     if (this.stale || this.received === 0) return null;
-    if (silentSeconds < this.options.staleSeconds) return null;
+    if (!now && silentSeconds < this.options.staleSeconds) return null;
     this.stale = true;
     const event: ChannelEvent = { kind: 'stale', at: this.received - 1, silentSeconds };
     this.remember(event);

@@ -40,6 +40,8 @@ export interface RecordEntry {
   statement: string;
   /** Stationary-bootstrap cross-check of u (and of the median and a trimmed mean), when run. */
   bootstrap?: BootstrapCheck | null;
+  /** Samples missing within the window (gap-detector.ts; the daemon adds it): gaps, samples, the first 100 gaps. */
+  gaps?: { count: number; missingSamples: number; list: { from: string; to: string; missing: number; source: 'time-stamps' | 'sequence' }[] };
 }
 
 export interface TestPointRecord {

@@ -154,7 +154,7 @@ export class MqttConnection {
     return sent;
   }
 
-  publish(topic: string, payload: string, options: { qos: 0 | 1; retain: boolean }): void {
+  publish(topic: string, payload: string | Buffer, options: { qos: 0 | 1; retain: boolean }): void {
     const client = this.client;
     if (!client) return;
     try {

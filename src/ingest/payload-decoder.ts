@@ -1,5 +1,8 @@
-import { MAX_MAGNITUDE, MAX_TIME_MS, type DecodeResult, type Rejection, type RejectReason, type Sample } from './sample.js';
+import { MAX_MAGNITUDE, MAX_TIME_MS, type DecodeResult, type Rejection, type RejectReason, type Sample, type SampleBlock } from './sample.js';
 import type { DecoderSpec } from '../config/decoder-spec.js';
+import { senmlCborRecords } from './senml-cbor.js';
+import { readFrameHeader, readFrameValues } from './binary-frame.js';
+import { SparkplugDecoder } from './sparkplug-decoder.js';
 
 /**
  * Payload decoding: (topic, bytes, subscription, arrival time) -> samples and rejections.
@@ -16,6 +19,11 @@ import type { DecoderSpec } from '../config/decoder-spec.js';
  *   senml    a SenML JSON pack (RFC 8428): records with base name bn, base time bt, base unit bu,
  *            base value bv, name n, unit u, value v, time t; records carrying vs/vb/vd (strings,
  *            booleans, data) are rejected as not numeric
+ *   senml-cbor  the same pack in CBOR with the integer labels of RFC 8428 section 6 (senml-cbor.ts);
+ *            read by the same SenML reader, so it gives exactly the samples of its JSON form
+ *   binary   plateau's little-endian frame (binary-frame.ts): one channel, a first time stamp, an
+ *            interval and float64 or float32 values, decoded into a typed-array block; a truncated,
+ *            oversized or misaligned frame is refused whole (bad-frame), a NaN value alone
  * Times: the payload's time when present (seconds or milliseconds since the epoch, or ISO 8601
  * text), else the arrival time. SenML times below 2^28 are relative to the arrival time
  * (RFC 8428, section 4.5.3).
@@ -26,13 +34,49 @@ const SENML_RELATIVE_LIMIT = 2 ** 28; // seconds: RFC 8428 4.5.3
 const CHANNEL_PATTERN = /^[\p{L}\p{N}_.:\-/]{1,128}$/u;
 const utf8 = new TextDecoder('utf-8', { fatal: true });
 
-export function decodePayload(topic: string, payload: Uint8Array, spec: DecoderSpec, arrivalMs: number): DecodeResult {
+/**
+ * The daemon's decoders: the pure ones above, and the Sparkplug B decoder with its state per edge
+ * node (sparkplug-decoder.ts). One instance per daemon.
+ */
+export class PayloadDecoders {
+  readonly sparkplug = new SparkplugDecoder();
+  /**
+   * Typed arrays reused by every binary frame: a block's arrays hold its samples only until the next
+   * decode (the daemon's ingest takes them at once). Allocating two typed arrays per frame cost
+   * more than reading the frame (about 0.1 us per sample, measured on the shared machine).
+   */
+  private readonly scratch: FrameScratch = { values: new Float64Array(1024), times: new Float64Array(1024) };
+
+  decode(topic: string, payload: Uint8Array, spec: DecoderSpec, arrivalMs: number): DecodeResult {
+    if (spec.format === 'sparkplug') return this.sparkplug.decode(topic, payload, spec, arrivalMs);
+    return decodePayload(topic, payload, spec, arrivalMs, this.scratch);
+  }
+}
+
+/** Arrays a binary frame may decode into (grown as needed); without them each frame gets its own. */
+export interface FrameScratch {
+  values: Float64Array;
+  times: Float64Array;
+}
+
+export function decodePayload(topic: string, payload: Uint8Array, spec: DecoderSpec, arrivalMs: number, scratch?: FrameScratch): DecodeResult {
   const out: DecodeResult = { samples: [], rejections: [] };
   const reject = (reason: RejectReason, detail: string) => {
     out.rejections.push({ reason, detail: `topic ${truncate(topic)}: ${detail}` });
     return out;
   };
   if (payload.byteLength > spec.maxBytes) return reject('too-large', `${payload.byteLength} bytes, more than the ${spec.maxBytes} allowed`);
+  if (spec.format === 'sparkplug') return reject('wrong-type', 'Sparkplug B payloads are read by the stateful decoder (PayloadDecoders), not payload by payload');
+  if (spec.format === 'binary') {
+    decodeFrame(topic, payload, spec, out, scratch);
+    return out;
+  }
+  if (spec.format === 'senml-cbor') {
+    const read = senmlCborRecords(payload, spec.maxSamples);
+    if ('error' in read) return reject(read.error.startsWith('payload is not CBOR') ? 'unparseable' : read.error.includes('more than the') ? 'too-many-samples' : 'wrong-type', read.error);
+    decodeSenml(topic, read.records, spec, arrivalMs, out);
+    return out;
+  }
   let text: string;
   try {
     text = utf8.decode(payload);
@@ -125,6 +169,8 @@ function decodeSenml(topic: string, document: unknown, spec: DecoderSpec, arriva
   let baseTime = 0;
   let baseUnit: string | undefined;
   let baseValue = 0;
+  let lastName: string | null = null;
+  let lastChannel: string | null = null;
   document.forEach((record, index) => {
     const where = `record ${index}`;
     if (!isObject(record)) return void fail('wrong-type', `${where}: ${typeName(record)} where a SenML record object was expected`);
@@ -167,13 +213,64 @@ function decodeSenml(topic: string, document: unknown, spec: DecoderSpec, arriva
     if (typeof total === 'string') return void fail(total, `${where}: v + bv is ${REASON_TEXT[total]}`);
     const unit = record.u !== undefined ? record.u : baseUnit;
     if (unit !== undefined && typeof unit !== 'string') return void fail('wrong-type', `${where}: u is not a string`);
-    const channel = channelName(spec.channel, topic, { name: fullName });
+    // Records of a pack mostly repeat a name: the channel is worked out once per run of equal names.
+    if (fullName !== lastName) {
+      lastName = fullName;
+      lastChannel = channelName(spec.channel, topic, { name: fullName });
+    }
+    const channel = lastChannel;
     if (channel === null) return void fail('bad-channel', `${where}: name "${truncate(fullName)}" is not a valid channel name`);
     const sample: Sample = { channel, timeMs, value: total, stamped: !relative };
     const fixed = spec.unit ?? unit;
     if (fixed !== undefined && fixed !== null) sample.unit = fixed;
     out.samples.push(sample);
   });
+}
+
+function decodeFrame(topic: string, payload: Uint8Array, spec: DecoderSpec, out: DecodeResult, scratch: FrameScratch | undefined): void {
+  const header = readFrameHeader(payload, spec.maxSamples);
+  if ('problem' in header) {
+    const reason: RejectReason = header.problem === 'too-many-samples' ? 'too-many-samples' : header.problem === 'bad-time' ? 'bad-time' : 'bad-frame';
+    out.rejections.push({ reason, detail: `topic ${truncate(topic)}: binary frame ${header.problem === 'bad-header' || header.problem === 'bad-time' || header.problem === 'too-many-samples' ? 'refused' : header.problem}: ${header.detail}` });
+    return;
+  }
+  const channel = channelName(spec.channel, topic, { name: header.channelId });
+  if (channel === null) {
+    out.rejections.push({ reason: 'bad-channel', detail: `topic ${truncate(topic)}: binary frame: channel id "${truncate(header.channelId)}" gives no valid channel name` });
+    return;
+  }
+  const n = header.count;
+  let values: Float64Array;
+  let times: Float64Array;
+  if (scratch === undefined) {
+    values = new Float64Array(n);
+    times = new Float64Array(n);
+  } else {
+    if (scratch.values.length < n) {
+      scratch.values = new Float64Array(n);
+      scratch.times = new Float64Array(n);
+    }
+    values = scratch.values;
+    times = scratch.times;
+  }
+  readFrameValues(payload, header, values);
+  const first = header.firstTime;
+  const interval = header.interval;
+  let k = 0;
+  for (let i = 0; i < n; i++) {
+    const v = values[i] as number;
+    if (v - v === 0 && v <= MAX_MAGNITUDE && v >= -MAX_MAGNITUDE) {
+      values[k] = v;
+      times[k] = (first + i * interval) * 1000;
+      k++;
+    } else {
+      const reason = inRange(v) as RejectReason;
+      out.rejections.push({ reason, detail: `topic ${truncate(topic)}: binary frame: value ${i} is ${REASON_TEXT[reason]}` });
+    }
+  }
+  const block: SampleBlock = { channel, times, values, length: k, stamped: true };
+  if (spec.unit !== null) block.unit = spec.unit;
+  if (k > 0) out.blocks = [block];
 }
 
 const REASON_TEXT: Record<string, string> = {
@@ -195,6 +292,7 @@ function readNumberText(text: string): number | RejectReason {
 }
 
 function inRange(value: number): number | RejectReason {
+  if (Number.isNaN(value)) return 'nan'; // a binary NaN (CBOR, float frames), named as such
   if (!Number.isFinite(value)) return 'infinite';
   return Math.abs(value) <= MAX_MAGNITUDE ? value : 'out-of-range';
 }

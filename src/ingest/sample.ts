@@ -23,6 +23,10 @@ export const REJECT_REASONS = [
   'bad-channel',
   'unknown-topic',
   'too-many-samples',
+  'bad-frame',
+  'unknown-alias',
+  'bad-sequence',
+  'stale-death',
   'duplicate',
   'out-of-order',
   'engine-error',
@@ -45,7 +49,35 @@ export const MAX_MAGNITUDE = 1e100;
 /** Plausible sample times, epoch milliseconds: 1970 to 2200. */
 export const MAX_TIME_MS = 7_258_118_400_000;
 
+/**
+ * Samples of one channel decoded into typed arrays (binary frames): no object per sample. Entries
+ * 0 .. length-1 hold the samples, in order.
+ */
+export interface SampleBlock {
+  channel: string;
+  unit?: string;
+  /** Epoch milliseconds. */
+  times: Float64Array;
+  values: Float64Array;
+  length: number;
+  stamped: boolean;
+}
+
+/** What a message asks of the daemon besides its samples. */
+export interface DecodeEffects {
+  /** Messages to publish (rebirth requests). */
+  publish: { topic: string; payload: Uint8Array }[];
+  /** Channels to mark stale at once, and why. */
+  stale: { channels: string[]; cause: string }[];
+  /** Messages lost by a sequence number, and the channels of the node that lost them. */
+  sequenceGaps: { node: string; missing: number; channels: string[]; timeMs: number }[];
+}
+
 export interface DecodeResult {
   samples: Sample[];
   rejections: Rejection[];
+  /** Samples decoded as blocks (they come after `samples` in arrival order). */
+  blocks?: SampleBlock[];
+  /** What the message asks of the daemon besides its samples (Sparkplug B). */
+  effects?: DecodeEffects;
 }

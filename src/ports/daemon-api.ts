@@ -47,6 +47,15 @@ export interface ChannelTrace {
   originIndex: number;
   /** How many of the leading samples came from the store (before the window). */
   beforeWindow: number;
+  /** Gaps (samples that never came) between the trace's first and last time: seconds since the epoch. */
+  gaps?: TraceGap[];
+}
+
+export interface TraceGap {
+  from: number;
+  to: number;
+  missing: number;
+  source: 'time-stamps' | 'sequence';
 }
 
 export interface CusumTrace {

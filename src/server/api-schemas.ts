@@ -183,6 +183,11 @@ export const channelTraceSchema = {
     windowStartIndex: { type: 'integer' },
     originIndex: { type: 'integer' },
     beforeWindow: { type: 'integer' },
+    gaps: {
+      type: 'array',
+      description: 'samples that never came, between the first and the last time of the trace (seconds since the epoch)',
+      items: { type: 'object', properties: { from: { type: 'number' }, to: { type: 'number' }, missing: { type: 'integer' }, source: { type: 'string', enum: ['time-stamps', 'sequence'] } }, additionalProperties: false },
+    },
   },
   additionalProperties: false,
 } as const;

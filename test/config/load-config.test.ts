@@ -44,9 +44,9 @@ describe('configuration validation', () => {
         'broker.protocolVersion: expected one of 4, 5, got 3',
         'broker.qos: expected one of 0, 1, got 2',
         'broker.keepaliveSeconds: expected a whole number at least 1 and at most 65535, got -1',
-        'subscriptions[0].colour: unknown key (expected one of topic, format, channel, valueField, timeField, timeUnit, samplesField, channelField, unit, maxBytes, maxDepth, maxSamples)',
+        'subscriptions[0].colour: unknown key (expected one of topic, format, channel, valueField, timeField, timeUnit, samplesField, channelField, unit, maxBytes, maxDepth, maxSamples, sparkplug)',
         'subscriptions[0].topic: "rig/#/x" is not a valid MQTT topic filter (+ and # must fill a whole level; # only at the end)',
-        'subscriptions[0].format: expected one of number, json, senml, got "xml"',
+        'subscriptions[0].format: expected one of number, json, senml, senml-cbor, binary, sparkplug, got "xml"',
         'subscriptions[0].maxBytes: expected a whole number at least 16 and at most 67108864, got "big"',
         'channels.defaults.window: a sliding window needs samples or seconds',
         'channels.defaults.confidence: expected a number between 0 and 1, got 1.5',
@@ -57,6 +57,18 @@ describe('configuration validation', () => {
         'topics.events: "plateau/#" must be a plain topic, without + or #',
       ]),
     );
+  });
+
+  it('the payload formats of issue 13: defaults and their problems', () => {
+    const ok = parseConfig({ subscriptions: [{ topic: 'a/#', format: 'senml-cbor' }, { topic: 'b/#', format: 'binary' }, { topic: 'spBv1.0/#', format: 'sparkplug', sparkplug: { requestRebirth: true } }] }, 'test');
+    expect(ok.subscriptions.map((s) => [s.format, s.channel, s.sparkplug.requestRebirth])).toEqual([['senml-cbor', '{name}', false], ['binary', '{name}', false], ['sparkplug', '{node}.{device}.{metric}', true]]);
+    expect(problems({ subscriptions: [{ topic: 'spBv1.0/#', format: 'sparkplug', channel: '{2}.{name}', sparkplug: { rebirth: 1 } }, { topic: 'x/#', format: 'json', sparkplug: { requestRebirth: true } }] })).toEqual([
+      'subscriptions[0].channel: unknown placeholder {2} (a Sparkplug B channel template takes {group}, {node}, {device} and {metric})',
+      'subscriptions[0].channel: unknown placeholder {name} (a Sparkplug B channel template takes {group}, {node}, {device} and {metric})',
+      'subscriptions[0].channel: a Sparkplug B channel template needs {metric}',
+      'subscriptions[0].sparkplug.rebirth: unknown key (expected one of requestRebirth)',
+      'subscriptions[1].sparkplug: only for format: sparkplug',
+    ]);
   });
 
   it('a missing subscription list and a listen address beyond loopback without a token', () => {

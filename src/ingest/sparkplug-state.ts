@@ -1,0 +1,112 @@
+/**
+ * What the Sparkplug decoder remembers of one edge node (Sparkplug B: a node publishes NBIRTH with
+ * its metrics, their aliases and its bdSeq, then NDATA, and for each device DBIRTH, DDATA, DDEATH;
+ * its NDEATH, the MQTT will, repeats the birth's bdSeq). Aliases are unique across a node and its
+ * devices, so one table per node serves both.
+ *
+ * The sequence number (0..255, NBIRTH carries 0) goes up by one, wrapping after 255, with every
+ * message of the node after its birth (DBIRTH, NDATA, DDATA, DDEATH). A jump means messages were
+ * lost: the node "needs rebirth" until its next NBIRTH, and so does an alias the node never
+ * announced.
+ */
+export interface MetricInfo {
+  /** The metric's name as announced at birth. */
+  name: string;
+  /** Device id, or null for the node's own metrics. */
+  device: string | null;
+  /** Sparkplug data type code announced at birth (0 when none was given). */
+  datatype: number;
+  /** The channel its samples go to, or null when the name gives no valid channel. */
+  channel: string | null;
+  /** Its data type is a number type (or none was announced): it can have samples. */
+  numeric: boolean;
+}
+
+export class EdgeNodeState {
+  readonly group: string;
+  readonly node: string;
+  /** An NBIRTH was seen and no matching NDEATH since. */
+  born = false;
+  /** bdSeq of the current birth (null: the birth carried none). */
+  bdSeq: number | null = null;
+  /** seq of the last message of the node (-1: none since birth). */
+  lastSeq = -1;
+  needsRebirth = false;
+  /** Why the node needs a rebirth (for the log and the counters). */
+  rebirthCause = '';
+  /** Arrival time of the last rebirth request sent for it (NaN: none in this episode). */
+  rebirthRequestedAt = Number.NaN;
+  readonly aliases = new Map<number, MetricInfo>();
+  /** Metrics by device ('' for the node) and name. */
+  readonly names = new Map<string, MetricInfo>();
+  /** Devices that sent a DBIRTH since the node's birth and no DDEATH since. */
+  readonly devices = new Set<string>();
+
+  constructor(group: string, node: string) {
+    this.group = group;
+    this.node = node;
+  }
+
+  /** A new NBIRTH: everything learned before is forgotten. */
+  birth(bdSeq: number | null, seq: number): void {
+    this.born = true;
+    this.bdSeq = bdSeq;
+    this.lastSeq = seq;
+    this.needsRebirth = false;
+    this.rebirthCause = '';
+    this.rebirthRequestedAt = Number.NaN;
+    this.aliases.clear();
+    this.names.clear();
+    this.devices.clear();
+  }
+
+  /** A device's DBIRTH: its earlier metrics are forgotten. */
+  deviceBirth(device: string): void {
+    for (const [alias, info] of this.aliases) if (info.device === device) this.aliases.delete(alias);
+    for (const [key, info] of this.names) if (info.device === device) this.names.delete(key);
+    this.devices.add(device);
+  }
+
+  learn(info: MetricInfo, alias: number | null): void {
+    this.names.set(nameKey(info.device, info.name), info);
+    if (alias !== null) this.aliases.set(alias, info);
+  }
+
+  lookup(device: string | null, name: string | null, alias: number | null): MetricInfo | undefined {
+    if (name !== null) return this.names.get(nameKey(device, name));
+    if (alias !== null) {
+      const info = this.aliases.get(alias);
+      return info !== undefined && info.device === device ? info : undefined;
+    }
+    return undefined;
+  }
+
+  /**
+   * Checks a message's seq against the last one: the number of messages missing between them
+   * (0 when it follows, 1..255 otherwise; a repeat counts as 255 missing, as it cannot be told
+   * from a full turn of the counter).
+   */
+  advance(seq: number): number {
+    const expected = (this.lastSeq + 1) & 0xff;
+    this.lastSeq = seq;
+    return (seq - expected + 256) & 0xff;
+  }
+
+  markNeedsRebirth(cause: string): boolean {
+    const first = !this.needsRebirth;
+    this.needsRebirth = true;
+    if (first) this.rebirthCause = cause;
+    return first;
+  }
+
+  /** Channels of the node's metrics, or of one device's. */
+  channels(device?: string): string[] {
+    const out = new Set<string>();
+    for (const info of this.names.values()) if (info.channel !== null && info.numeric && (device === undefined || info.device === device)) out.add(info.channel);
+    return [...out];
+  }
+}
+
+function nameKey(device: string | null, name: string): string {
+  return `${device ?? ''}\u0000${name}`;
+}
