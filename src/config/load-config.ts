@@ -6,6 +6,7 @@ import { DECODER_DEFAULTS } from './decoder-spec.js';
 import { ESTIMATOR_NAMES } from '../core/tau/tau-estimate.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
 import { DEFAULT_CHANNEL_OPTIONS, DEFAULT_MAX_SAMPLES, type WindowSpec } from '../engine/channel-options.js';
+import { readCriteria } from './criteria-config.js';
 
 export { ConfigError };
 
@@ -21,6 +22,7 @@ export const CHANNEL_DEFAULTS: ChannelSettings = {
   rate: null,
   range: null,
   unit: null,
+  criteria: null,
 };
 
 /** Reads and validates a YAML (or JSON) configuration file. Throws ConfigError with one line per problem. */
@@ -173,7 +175,7 @@ export function parseConfig(document: unknown, source = 'config'): PlateauConfig
   return { source, broker, subscriptions, channels: { defaults, groups }, derived, store, http, topics, log };
 }
 
-const SETTING_KEYS = ['window', 'maxLag', 'estimator', 'warmup', 'confidence', 'target', 'falseAlarmSamples', 'staleSeconds', 'rate', 'range', 'unit'];
+const SETTING_KEYS = ['window', 'maxLag', 'estimator', 'warmup', 'confidence', 'target', 'falseAlarmSamples', 'staleSeconds', 'rate', 'range', 'unit', 'criteria'];
 
 function readChannelSettings(r: ConfigReader, value: unknown, path: string): Partial<ChannelSettings> {
   const s = r.section(value, path, SETTING_KEYS);
@@ -206,6 +208,8 @@ function readChannelSettings(r: ConfigReader, value: unknown, path: string): Par
   if (s.staleSeconds !== undefined) out.staleSeconds = r.number(s, 'staleSeconds', path, { above: 0 }, CHANNEL_DEFAULTS.staleSeconds);
   if (s.rate !== undefined) out.rate = r.number(s, 'rate', path, { above: 0 }, null);
   if (s.unit !== undefined) out.unit = r.string(s, 'unit', path, null);
+  // Stability rules (criteria-config.ts): a group's criteria replace those of the defaults.
+  if (s.criteria !== undefined) out.criteria = readCriteria(r, s.criteria, join(path, 'criteria'));
   if (s.range !== undefined) {
     const range = s.range;
     if (!Array.isArray(range) || range.length !== 2 || !range.every((v) => typeof v === 'number' && Number.isFinite(v)) || (range[0] as number) >= (range[1] as number)) {
