@@ -68,7 +68,8 @@ export function readCriteria(r: ConfigReader, value: unknown, path: string): Cri
   const policy = section.policy === undefined || section.policy === null ? null : r.oneOf(section, 'policy', path, READINESS_POLICIES, 'both');
   const rules: CriterionSpec[] = [];
   const names = new Map<string, number>();
-  r.list(section.rules, join(path, 'rules')).forEach((item, index) => {
+  const items = r.list(section.rules, join(path, 'rules'));
+  items.forEach((item, index) => {
     const rulePath = join(join(path, 'rules'), index);
     const spec = readRule(r, item, rulePath, index);
     // Names are checked on what was written, so a repeated name shows even beside other problems.
@@ -77,7 +78,7 @@ export function readCriteria(r: ConfigReader, value: unknown, path: string): Cri
     else names.set(name, index);
     if (spec) rules.push(spec);
   });
-  if (policy === 'rules' && rules.length === 0) r.problem(join(path, 'policy'), 'policy "rules" needs at least one rule under rules');
+  if ((policy === 'rules' || policy === 'both') && items.length === 0) r.problem(join(path, 'policy'), `policy "${policy}" needs at least one rule under rules`);
   return { policy, rules };
 }
 

@@ -157,11 +157,15 @@ export class Channel {
 
   /**
    * The test point's set point for the channel's stability rules, from the next sample on; returns
-   * the mark to store (replayed at the same sample), or null when the channel has no rules.
+   * the mark to store (replayed at the same sample), or null when the channel has no rules or the
+   * set point is unchanged.
    */
   setSetPoint(value: number | null): WindowMark | null {
-    if (this.current.criteria === null) return null;
-    this.current.setSetPoint(value);
+    const criteria = this.current.criteria;
+    if (criteria === null) return null;
+    const next = value !== null && Number.isFinite(value) ? value : null;
+    if (next === criteria.setPoint) return null; // unchanged: nothing to replay
+    this.current.setSetPoint(next);
     return { seq: this.nextSeq, kind: setPointMark(value) };
   }
 
