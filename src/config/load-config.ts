@@ -25,8 +25,12 @@ export const CHANNEL_DEFAULTS: ChannelSettings = {
   criteria: null,
 };
 
-/** Reads and validates a YAML (or JSON) configuration file. Throws ConfigError with one line per problem. */
-export function loadConfigFile(path: string): PlateauConfig {
+/**
+ * Reads and validates a YAML (or JSON) configuration file. Throws ConfigError with one line per problem.
+ * `requireSubscriptions: false` (plateau analyze, which reads a file and needs only the channel
+ * settings) accepts a file without subscriptions.
+ */
+export function loadConfigFile(path: string, options: { requireSubscriptions?: boolean } = {}): PlateauConfig {
   let text: string;
   try {
     text = readFileSync(path, 'utf8');
@@ -41,7 +45,7 @@ export function loadConfigFile(path: string): PlateauConfig {
     throw new ConfigError([`${path}: not valid YAML: ${message}`]);
   }
   try {
-    return parseConfig(document, path);
+    return parseConfig(document, path, options);
   } catch (error) {
     if (error instanceof ConfigError) throw new ConfigError(error.problems.map((line) => `${path}: ${line}`));
     throw error;
@@ -49,7 +53,7 @@ export function loadConfigFile(path: string): PlateauConfig {
 }
 
 /** Validates a parsed configuration document and fills in defaults. */
-export function parseConfig(document: unknown, source = 'config'): PlateauConfig {
+export function parseConfig(document: unknown, source = 'config', options: { requireSubscriptions?: boolean } = {}): PlateauConfig {
   const r = new ConfigReader();
   const root = r.section(document ?? {}, '', ['broker', 'subscriptions', 'channels', 'derived', 'store', 'http', 'topics', 'log']);
   const brokerSection = r.section(root.broker, 'broker', ['url', 'clientId', 'username', 'password', 'tls', 'protocolVersion', 'qos', 'sessionExpirySeconds', 'keepaliveSeconds', 'reconnectPeriodMs']);
@@ -79,7 +83,7 @@ export function parseConfig(document: unknown, source = 'config'): PlateauConfig
 
   const subscriptions: SubscriptionConfig[] = [];
   const subscriptionList = r.list(root.subscriptions, 'subscriptions');
-  if (subscriptionList.length === 0) r.problem('subscriptions', 'missing: at least one subscription (a topic filter and how to read its payloads)');
+  if (subscriptionList.length === 0 && options.requireSubscriptions !== false) r.problem('subscriptions', 'missing: at least one subscription (a topic filter and how to read its payloads)');
   subscriptionList.forEach((item, index) => {
     const path = join('subscriptions', index);
     const s = r.section(item, path, ['topic', 'format', 'channel', 'valueField', 'timeField', 'timeUnit', 'samplesField', 'channelField', 'unit', 'maxBytes', 'maxDepth', 'maxSamples']);
