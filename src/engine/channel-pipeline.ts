@@ -19,7 +19,8 @@ import type { WindowedSeriesState } from '../core/window/windowed-series.js';
 import { channelVerdict, type ChannelVerdict } from './channel-verdict.js';
 import { expectRecord, type StateRecord } from '../core/state/record.js';
 import { channelCriteria, type ChannelCriteria, type CriterionBrief } from './criteria/channel-criteria.js';
-import type { CriterionState } from './criteria/criteria-tracker.js';
+import type { CriterionState, CriteriaTracker } from './criteria/criteria-tracker.js';
+import type { CriterionEvent } from './criteria/criteria-events.js';
 import type { Readiness } from './criteria/readiness-policy.js';
 
 /** One estimator's result as reported in a snapshot. */
@@ -290,6 +291,8 @@ export class ChannelPipeline {
   private snapshotCache: { key: string; snapshot: ChannelSnapshot } | null = null;
   /** The stability rules, fed every sample beside the statistics (null without any). */
   readonly criteria: ChannelCriteria | null;
+  /** Its tracker, called directly on the per-sample path (one call less). */
+  private readonly criteriaTracker: CriteriaTracker | null;
 
   /**
    * @param fft transform workspace shared by the channels of one process (a snapshot's FFT fallback
@@ -300,6 +303,7 @@ export class ChannelPipeline {
     this.options = options;
     this.estimatorSet = new EstimatorSet(fft);
     this.criteria = channelCriteria(options.criteria);
+    this.criteriaTracker = this.criteria?.tracker ?? null;
     const { window } = options;
     const capacity = window.kind === 'sliding' && window.samples ? Math.min(window.samples, window.maxSamples) : window.maxSamples;
     this.series = new WindowedSeries({
@@ -335,7 +339,10 @@ export class ChannelPipeline {
       this.stale = false;
       this.raise({ kind: 'fresh', at: index });
     }
-    if (this.criteria !== null) this.pushCriteria(value, timeSeconds, index);
+    if (this.criteriaTracker !== null) {
+      const raised = this.criteriaTracker.push(value, timeSeconds);
+      if (raised.length !== 0) this.raiseCriteria(raised, index);
+    }
     if (index >= this.nextDiagnosis) this.updateDiagnosis(index);
     if (this.options.detectors === false) {
       if (this.phase !== 'steady' && this.series.length >= 2) {
@@ -364,9 +371,12 @@ export class ChannelPipeline {
     return this.pendingEvents ?? NO_EVENTS;
   }
 
-  private pushCriteria(value: number, timeSeconds: number, index: number): void {
-    const raised = (this.criteria as ChannelCriteria).push(value, timeSeconds, index);
-    for (let i = 0; i < raised.length; i++) this.raise(raised[i] as ChannelEvent);
+  /** The rules' events of one sample, with the pipeline's index (as ChannelCriteria.push gives them). */
+  private raiseCriteria(raised: readonly CriterionEvent[], index: number): void {
+    for (const event of raised) {
+      event.at = index;
+      this.raise(event);
+    }
   }
 
   /** The test point's set point for the rules that take it (null: none), from the next sample on. */
