@@ -125,6 +125,14 @@ describe('stability rules in the daemon', () => {
     expect(onSetPoint!.holdsFrom).toBeGreaterThan(Date.parse(entry.windowStartTime!) / 1000);
   });
 
+  it('the MQTT command topic takes set points too', async () => {
+    const { daemon, source } = await start();
+    source.publish('plateau/command/test-point/start', JSON.stringify({ id: 'tp-mqtt', channels: ['cl3.supply_degC'], setPoints: { 'cl3.supply_degC': 6.5 } }));
+    daemon.commitNow();
+    expect(daemon.testPoint('tp-mqtt')?.setPoints).toEqual({ 'cl3.supply_degC': 6.5 });
+    expect(daemon.channel('cl3.supply_degC')!.snapshot().criteria[1]).toMatchObject({ name: 'on-set-point', setPoint: 6.5 });
+  });
+
   it('a set point for a channel that is not in the test point is refused', async () => {
     const { daemon } = await start();
     expect(() => daemon.startTestPoint({ channels: ['cl3.supply_degC'], setPoints: { 'cl3.return_degC': 7 } })).toThrow(/set point for "cl3.return_degC": not a channel of this test point/);
