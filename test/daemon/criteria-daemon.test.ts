@@ -3,6 +3,11 @@ import pino from 'pino';
 import { parseConfig } from '../../src/config/load-config.js';
 import { Daemon, daemonSubscriptions } from '../../src/daemon/daemon.js';
 import { MemoryStore } from '../../src/store/memory-store.js';
+import { SqliteStore } from '../../src/store/sqlite-store.js';
+import { mkdtempSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import type { Store } from '../../src/ports/store.js';
 import { MemorySampleSource } from '../../src/ingest/memory-sample-source.js';
 import { ManualClock } from '../../src/clock/manual-clock.js';
 import { SeededRandom } from '../../src/core/random/seeded-random.js';
@@ -46,13 +51,13 @@ afterEach(async () => {
   for (const d of daemons.splice(0)) await d.stop();
 });
 
-async function start(): Promise<{ daemon: Daemon; source: MemorySampleSource; clock: ManualClock; published: StoredEvent[]; fed: StoredEvent[] }> {
-  const config = parseConfig(CONFIG);
+async function start(store: Store = new MemoryStore(), document: unknown = CONFIG): Promise<{ daemon: Daemon; source: MemorySampleSource; clock: ManualClock; published: StoredEvent[]; fed: StoredEvent[] }> {
+  const config = parseConfig(document);
   const source = new MemorySampleSource(daemonSubscriptions(config));
   const clock = new ManualClock(T0 * 1000);
   const published: StoredEvent[] = [];
   const publisher: Publisher = { event: (e) => published.push(e), volatileEvent: () => {}, status: () => {} };
-  const daemon = new Daemon(config, { logger: pino({ level: 'silent' }), clock, store: new MemoryStore(), source, publisher });
+  const daemon = new Daemon(config, { logger: pino({ level: 'silent' }), clock, store, source, publisher });
   daemons.push(daemon);
   await daemon.start();
   const fed: StoredEvent[] = [];
@@ -131,6 +136,46 @@ describe('stability rules in the daemon', () => {
     daemon.commitNow();
     expect(daemon.testPoint('tp-mqtt')?.setPoints).toEqual({ 'cl3.supply_degC': 6.5 });
     expect(daemon.channel('cl3.supply_degC')!.snapshot().criteria[1]).toMatchObject({ name: 'on-set-point', setPoint: 6.5 });
+  });
+
+  it('across a restart on SQLite: the set point and the rules come back, from the checkpoint or replayed with the set-point mark', async () => {
+    const dir = mkdtempSync(join(tmpdir(), 'plateau-criteria-'));
+    try {
+      const file = join(dir, 'cl3.sqlite');
+      const first = await start(new SqliteStore(file));
+      let t = T0;
+      const feed = (d: { daemon: Daemon; source: MemorySampleSource; clock: ManualClock }, seconds: number) => {
+        for (let s = 0; s < seconds; s++) {
+          for (let k = 0; k < 10; k++) {
+            t += 0.1;
+            d.source.publish('rig/cl3/supply_degC', JSON.stringify({ v: 7 + 0.05 * Math.sin(t), t }));
+          }
+          d.clock.advance(Math.max(0, Math.round(t * 1000) - d.clock.now()));
+          d.daemon.commitNow();
+        }
+      };
+      feed(first, 60);
+      first.daemon.startTestPoint({ id: 'tp-r', channels: ['cl3.supply_degC'], setPoints: { 'cl3.supply_degC': 7 } });
+      feed(first, 600);
+      const before = first.daemon.channel('cl3.supply_degC')!.snapshot().criteria;
+      expect(before.map((c) => c.holds)).toEqual([true, true]);
+      await first.daemon.stop();
+      daemons.splice(daemons.indexOf(first.daemon), 1);
+      // Loaded from the checkpoint the clean stop wrote.
+      const second = await start(new SqliteStore(file));
+      expect(second.daemon.channel('cl3.supply_degC')!.snapshot().criteria).toEqual(before);
+      await second.daemon.stop();
+      daemons.splice(daemons.indexOf(second.daemon), 1);
+      // Other rules: the checkpoint is set aside and the channel replayed from SQLite, the set point at its mark.
+      const changed = JSON.parse(JSON.stringify(CONFIG));
+      changed.channels.groups[0].criteria.rules[0].tolerance = 0.6;
+      const third = await start(new SqliteStore(file), changed);
+      const after = third.daemon.channel('cl3.supply_degC')!.snapshot().criteria;
+      expect(after[1]).toEqual(before[1]);
+      expect(after[0]).toMatchObject({ name: 'band', tolerance: 0.6, holds: true });
+    } finally {
+      rmSync(dir, { recursive: true, force: true });
+    }
   });
 
   it('a set point for a channel that is not in the test point is refused', async () => {
