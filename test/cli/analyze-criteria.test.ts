@@ -4,6 +4,11 @@ import { SeededRandom } from '../../src/core/random/seeded-random.js';
 import { CriteriaTracker } from '../../src/engine/criteria/criteria-tracker.js';
 import { parseConfig, settingsFor } from '../../src/config/load-config.js';
 import { parse as parseYaml } from 'yaml';
+import pino from 'pino';
+import { Daemon, daemonSubscriptions } from '../../src/daemon/daemon.js';
+import { MemoryStore } from '../../src/store/memory-store.js';
+import { MemorySampleSource } from '../../src/ingest/memory-sample-source.js';
+import { ManualClock } from '../../src/clock/manual-clock.js';
 
 // `plateau analyze --config`: the configuration's stability rules per channel, in JSON
 // (criteria[{name, holds, since, value, tolerance, margin}]) and in the table. The values are
@@ -79,6 +84,33 @@ describe('plateau analyze --config: stability rules', () => {
     // A channel the configuration gives no rules.
     expect(ret.criteria).toEqual([]);
     expect(ret.readiness).toBeNull();
+  });
+
+  it('the daemon, fed the same samples over its accept path, gives the same rules as plateau analyze, field for field', async () => {
+    const analyzed = JSON.parse(runCli(['analyze', file, '--json', '--config', configFile]).stdout);
+    const config = parseConfig({ ...parseYaml(CONFIG), subscriptions: [{ topic: 'rig/cl3/+', format: 'json', channel: 'cl3.{3}' }], store: { path: ':memory:' }, log: { level: 'silent' } });
+    const source = new MemorySampleSource(daemonSubscriptions(config));
+    const clock = new ManualClock(T0 * 1000);
+    const daemon = new Daemon(config, { logger: pino({ level: 'silent' }), clock, store: new MemoryStore(), source });
+    await daemon.start();
+    try {
+      for (const r of rows) {
+        source.publish('rig/cl3/supply_degC', JSON.stringify({ v: r.supply, t: r.t }));
+        source.publish('rig/cl3/flow_kg_s', JSON.stringify({ v: r.flow, t: r.t }));
+        if (r.t % 100 === 0) daemon.commitNow();
+      }
+      daemon.commitNow();
+      for (const name of ['cl3.supply_degC', 'cl3.flow_kg_s']) {
+        const live = JSON.parse(JSON.stringify(daemon.channel(name)!.snapshot()));
+        const fromFile = analyzed.channels.find((c: { name: string }) => c.name === name);
+        expect(live.criteria, name).toEqual(fromFile.criteria);
+        expect(live.readiness, name).toEqual(fromFile.readiness);
+        const events = (list: { kind: string }[]) => list.filter((e) => e.kind.startsWith('criterion-'));
+        expect(events(live.events), name).toEqual(events(fromFile.events));
+      }
+    } finally {
+      await daemon.stop();
+    }
   });
 
   it('the table: a rules column and one line per rule', () => {
