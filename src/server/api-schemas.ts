@@ -154,6 +154,7 @@ export const testPoint = {
   properties: {
     id: { type: 'string' },
     name: { type: 'string' },
+    setPoints: { type: 'object', additionalProperties: { type: 'number' } },
     channels: { type: 'array', items: { type: 'string' } },
     derived: { type: 'array', items: { type: 'string' } },
     state: { type: 'string', enum: ['running', 'ready', 'stopped'] },
