@@ -1,18 +1,18 @@
 import type { CriterionSpec } from '../../core/criteria/criterion-spec.js';
 import { CriteriaTracker, type CriteriaTrackerState, type CriterionState } from './criteria-tracker.js';
-import type { CriterionEvent } from './criteria-events.js';
 import { combineReadiness, defaultPolicy, type Readiness, type ReadinessPolicy, type StatisticalVerdict } from './readiness-policy.js';
 
 /**
  * A channel's stability criteria as its pipeline runs them (src/engine/channel-pipeline.ts): the
- * tracker fed with every sample the pipeline takes, on the same accept path, so the daemon and
+ * tracker, which the pipeline's `push` feeds with every sample it takes (calling the tracker
+ * directly, and giving the events its own sample index), on the same accept path, so the daemon and
  * `plateau analyze` evaluate the rules on exactly the same readings; the readiness policy; the
  * views the API, the WebSocket, the table, the report and the records show.
  *
  * The rules watch the channel continuously: a test point starting (a window restart) does not
  * restart them, since the readings before it are the channel's history that a rule like "less than
  * 1 K in 15 min" is about; a test point's set point applies from its first sample
- * (`setSetPoint`). Events carry the pipeline's sample index in `at`.
+ * (`setSetPoint`).
  */
 export interface ChannelCriteriaSettings {
   /** Readiness policy; null: the default (both when there are rules). */
@@ -48,13 +48,6 @@ export class ChannelCriteria {
 
   get ruleCount(): number {
     return this.tracker.specs.length;
-  }
-
-  /** Takes one sample (the pipeline's index `index`); returns the events it caused. */
-  push(value: number, timeSeconds: number, index: number): readonly CriterionEvent[] {
-    const events = this.tracker.push(value, timeSeconds);
-    for (let i = 0; i < events.length; i++) (events[i] as CriterionEvent).at = index;
-    return events;
   }
 
   /** The test point's set point (null: none), applied from the next sample on. */
