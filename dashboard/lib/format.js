@@ -156,6 +156,8 @@ const EVENT_TEXT = {
   'averaging-limit': ['notice', 'Averaging limit: longer runs no longer help'],
   stale: ['alert', 'Data stopped'],
   fresh: ['info', 'Data flowing again'],
+  'criterion-holds': ['good', 'Stability rule holds'],
+  'criterion-lost': ['notice', 'Stability rule no longer holds'],
   'test-point-started': ['info', 'Test point started'],
   'test-point-ready': ['good', 'Test point ready'],
   'test-point-stopped': ['info', 'Test point stopped'],
@@ -199,6 +201,10 @@ function eventDetail(event) {
       return `beyond m = ${body.m}${body.tauSeconds ? ` (${formatDuration(body.tauSeconds)})` : ''} the Allan deviation stops falling`;
     case 'stale':
       return `silent for ${formatDuration(body.silentSeconds)}`;
+    case 'criterion-holds':
+      return `${body.rule ?? ''}: ${trimNumber(body.value, 3)} against the tolerance ${trimNumber(body.tolerance, 3)}`;
+    case 'criterion-lost':
+      return `${body.rule ?? ''}: ${body.reason ?? ''}`;
     case 'test-point-started':
     case 'test-point-ready':
     case 'test-point-stopped':

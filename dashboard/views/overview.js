@@ -10,6 +10,7 @@
 
 import { h, setText, breakable } from '../lib/dom.js';
 import { ProgressBar } from '../lib/progress-bar.js';
+import { renderRuleStrip } from '../lib/rule-strip.js';
 import { decimalsFor, formatValue, formatUncertainty, formatResult, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber, derivedStateOf } from '../lib/format.js';
 
 export class OverviewView {
@@ -203,6 +204,7 @@ export class OverviewView {
       ),
       h('div', { className: 'tile-progress' }, parts.progress.element, parts.progressText),
       parts.verdict,
+      (parts.rules = h('div', { className: 'rule-strip', 'aria-label': 'stability rules', hidden: true })),
     );
     return { element, parts, state: null };
   }
@@ -255,5 +257,6 @@ export class OverviewView {
     setText(p.verdict, verdict ? (verdict.ready ? 'ready to record' : `waiting: ${verdict.summary}`) : '');
     p.verdict.title = verdict && !verdict.ready ? verdict.pending.map((c) => `${c.condition}: ${c.message}`).join('\n') : '';
     p.verdict.classList.toggle('ready', Boolean(verdict?.ready));
+    renderRuleStrip(p.rules, s.criteria, s.unit);
   }
 }

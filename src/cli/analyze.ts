@@ -11,6 +11,7 @@ import type { ChannelEvent } from '../engine/channel-events.js';
 import type { WarmupSetting } from '../engine/warmup-detector.js';
 import { prepareDerived, DERIVE_HELP, parseDeriveFlags, renderDerived, type AnalyzedDerived, type DeriveOptions, type DerivedRecorder } from './analyze-derived.js';
 import { SteadyHistory } from '../engine/steadiness.js';
+import { criteriaOptionsFor, criteriaLines, criteriaCell, CRITERIA_HELP } from './analyze-criteria.js';
 
 const MAX_EVENTS = 10_000;
 
@@ -37,6 +38,7 @@ Options:
                          sample as given; N cuts the first N samples of each channel
   --time-column NAME     the column holding time (default: a column named time, t, timestamp, ...)
   --delimiter C          field separator (default: guessed from the header: , ; or tab)
+${CRITERIA_HELP}
 ${DERIVE_HELP}`;
 
 export interface AnalyzeReport {
@@ -72,6 +74,7 @@ export async function runAnalyze(argv: string[], io: Io): Promise<number> {
       warmup: { type: 'string' },
       'time-column': { type: 'string' },
       delimiter: { type: 'string' },
+      config: { type: 'string' },
       derive: { type: 'string', multiple: true },
       'monte-carlo-trials': { type: 'string' },
       help: { type: 'boolean', short: 'h', default: false },
@@ -83,10 +86,10 @@ export async function runAnalyze(argv: string[], io: Io): Promise<number> {
   }
   if (positionals.length !== 1) throw new UsageError(positionals.length === 0 ? 'analyze needs a CSV file: plateau analyze FILE' : `analyze takes one file, got ${positionals.length}`);
   const file = positionals[0] as string;
-  const { derive: deriveFlags, ...flags } = values;
+  const { derive: deriveFlags, config: configFile, ...flags } = values;
   const options = channelOptionsFromFlags(flags);
   const derive = parseDeriveFlags(deriveFlags ?? [], numberFlag(flags, 'monte-carlo-trials', (v) => Number.isInteger(v) && (v === 0 || (v >= 20_000 && v <= 5_000_000)), 'a whole number of trials, 0 (no Monte Carlo check) or 20000 to 5000000'));
-  const report = await analyzeFile(file, options, { timeColumn: values['time-column'], delimiter: values.delimiter }, derive);
+  const report = await analyzeFile(file, options, { timeColumn: values['time-column'], delimiter: values.delimiter }, derive, criteriaOptionsFor(configFile));
   io.out(values.json ? `${JSON.stringify(report, finiteOrNull, 2)}\n` : renderReport(report));
   return 0;
 }
@@ -146,7 +149,17 @@ export function channelOptionsFromFlags(flags: Flags): ChannelOptions {
 }
 
 /** Replays a CSV file through one pipeline per channel: the streaming code path, row by row. */
-export async function analyzeFile(file: string, options: ChannelOptions, csv: { timeColumn?: string | undefined; delimiter?: string | undefined } = {}, derive: DeriveOptions = { requests: [] }): Promise<AnalyzeReport> {
+/**
+ * `optionsFor` gives a channel's options from the flags' (`--config`: with the stability rules the
+ * configuration gives the channel, src/cli/analyze-criteria.ts).
+ */
+export async function analyzeFile(
+  file: string,
+  options: ChannelOptions,
+  csv: { timeColumn?: string | undefined; delimiter?: string | undefined } = {},
+  derive: DeriveOptions = { requests: [] },
+  optionsFor: (name: string, options: ChannelOptions) => ChannelOptions = (_name, o) => o,
+): Promise<AnalyzeReport> {
   const layout = await probeCsv(file, {
     ...(csv.timeColumn !== undefined ? { timeColumn: csv.timeColumn } : {}),
     ...(csv.delimiter !== undefined ? { delimiter: csv.delimiter } : {}),
@@ -154,7 +167,7 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
   if (options.window.seconds !== undefined && !layout.timeColumn) {
     throw new UsageError(`--window-seconds needs a time column, and ${file} has none (name one with --time-column)`);
   }
-  const pipelines = layout.channels.map((column) => new ChannelPipeline(column.name, options));
+  const pipelines = layout.channels.map((column) => new ChannelPipeline(column.name, optionsFor(column.name, options)));
   // When each channel was steady (derived results judge their inputs by it).
   const steadiness = pipelines.map(() => new SteadyHistory());
   // Derived results: compiled against the columns before the rows are read (a bad --derive stops
@@ -196,6 +209,7 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
   if (layout.ignored.length > 0) notes.push(`${file}: columns not numeric, ignored: ${layout.ignored.map((n) => `"${n}"`).join(', ')}`);
   if (timeIssues > 0) notes.push(`${firstTimeIssue}${timeIssues > 1 ? ` (${timeIssues} rows in all)` : ''}; those rows have no time`);
   if (backwards > 0) notes.push(`${file}: time goes backwards at ${backwards} rows; rate estimates may be off`);
+  if (!layout.timeColumn && pipelines.some((p) => p.criteria !== null && p.criteria.ruleCount > 0)) notes.push(`${file}: stability rules need the time of each sample, and the file has no time column (name one with --time-column): no rule can hold`);
   const channels = pipelines.map((pipeline, c) => {
     const snapshot = { ...pipeline.snapshot(), events: events[c] as ChannelEvent[] };
     const column = layout.channels[c];
@@ -220,7 +234,8 @@ export function finiteOrNull(_key: string, value: unknown): unknown {
 }
 
 function renderReport(report: AnalyzeReport): string {
-  const header = ['channel', 'verdict', 'state', 'n', 'mean', 'U', 'k', 'u', 'nu_eff', 'tau_int', 'n_eff', 'estimator', 'target'];
+  const withRules = report.channels.some((c) => c.readiness !== null);
+  const header = ['channel', 'verdict', 'state', 'n', 'mean', 'U', 'k', 'u', 'nu_eff', 'tau_int', 'n_eff', 'estimator', 'target', ...(withRules ? ['rules'] : [])];
   const rows = report.channels.map((c) => {
     const rounded = c.mean === null ? { value: '-', uncertainty: null } : roundWithUncertainty(c.mean, c.expandedUncertainty ?? c.standardUncertainty);
     const steady = c.state === 'steady' || c.state === 'precise';
@@ -245,6 +260,7 @@ function renderReport(report: AnalyzeReport): string {
       formatSignificant(c.nEff, 3),
       c.estimator,
       target,
+      ...(withRules ? [criteriaCell(c)] : []),
     ];
   });
   const confidence = report.channels[0]?.confidence ?? 0.95;
@@ -260,6 +276,7 @@ function renderReport(report: AnalyzeReport): string {
     lines.push('', 'Not ready yet:');
     for (const c of waiting) for (const p of c.verdict.pending) lines.push(`  - ${c.name}: ${p.condition}: ${p.message}`);
   }
+  lines.push(...criteriaLines(report.channels));
   const reasons = report.channels.filter((c) => c.mean !== null && c.n >= 2).map((c) => `  - ${c.name}: ${c.estimator}, ${c.estimatorReason}`);
   if (reasons.length > 0) lines.push('', 'Estimators:', ...reasons);
   if (report.derived.length > 0) lines.push('', ...renderDerived(report.derived));

@@ -14,7 +14,8 @@ import { READINESS_POLICIES, type ReadinessPolicy } from '../engine/criteria/rea
  * criteria:
  *   policy: both                 # statistical | rules | both (default: both when there are rules)
  *   rules:
- *     - preset: iec-60335-2-6    # a named public rule (criteria-presets.ts), with its parameters
+ *     - iec-60335-2-6            # a named public rule (criteria-presets.ts) by its name alone,
+ *     - preset: iec-60335-2-6    # or as a mapping, with its parameters
  *     - preset: ashrae-93-inlet-temperature
  *       name: glycol-inlet       # presets also take name, setPoint and holdSeconds
  *       setPoint: 45.0
@@ -35,7 +36,7 @@ import { READINESS_POLICIES, type ReadinessPolicy } from '../engine/criteria/rea
  *       direction: any           # change, average-change, slope: any, rise or fall
  *       perSeconds: 60           # slope: value and tolerance per minute
  * ```
- * Phase 2 hooks this into load-config.ts (`criteria` among the channel setting keys).
+ * load-config.ts reads it among the channel setting keys (a group's criteria replace the defaults').
  */
 export interface CriteriaSettings {
   /** Readiness policy; null: the default (both when there are rules). */
@@ -67,7 +68,8 @@ export function readCriteria(r: ConfigReader, value: unknown, path: string): Cri
   const policy = section.policy === undefined || section.policy === null ? null : r.oneOf(section, 'policy', path, READINESS_POLICIES, 'both');
   const rules: CriterionSpec[] = [];
   const names = new Map<string, number>();
-  r.list(section.rules, join(path, 'rules')).forEach((item, index) => {
+  const items = r.list(section.rules, join(path, 'rules'));
+  items.forEach((item, index) => {
     const rulePath = join(join(path, 'rules'), index);
     const spec = readRule(r, item, rulePath, index);
     // Names are checked on what was written, so a repeated name shows even beside other problems.
@@ -76,7 +78,7 @@ export function readCriteria(r: ConfigReader, value: unknown, path: string): Cri
     else names.set(name, index);
     if (spec) rules.push(spec);
   });
-  if (policy === 'rules' && rules.length === 0) r.problem(join(path, 'policy'), 'policy "rules" needs at least one rule under rules');
+  if ((policy === 'rules' || policy === 'both') && items.length === 0) r.problem(join(path, 'policy'), `policy "${policy}" needs at least one rule under rules`);
   return { policy, rules };
 }
 
@@ -88,6 +90,7 @@ export function parseCriteria(value: unknown, path = 'criteria'): { settings: Cr
 }
 
 function ruleName(item: unknown, index: number): string {
+  if (typeof item === 'string' && item.length > 0) return item;
   const plain = item !== null && typeof item === 'object' && !Array.isArray(item) ? (item as Plain) : {};
   if (typeof plain.name === 'string' && plain.name.length > 0) return plain.name;
   if (typeof plain.preset === 'string') return plain.preset;
@@ -95,6 +98,8 @@ function ruleName(item: unknown, index: number): string {
 }
 
 function readRule(r: ConfigReader, item: unknown, path: string, index: number): CriterionSpec | null {
+  // A preset by its name alone.
+  if (typeof item === 'string') return readPresetRule(r, { preset: item }, path);
   if (item === null || typeof item !== 'object' || Array.isArray(item)) {
     r.problem(path, `expected a rule (a mapping with preset, or statistic, window and tolerance), got ${describe(item)}`);
     return null;

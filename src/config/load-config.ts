@@ -6,6 +6,7 @@ import { DECODER_DEFAULTS, DECODER_FORMATS } from './decoder-spec.js';
 import { ESTIMATOR_NAMES } from '../core/tau/tau-estimate.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
 import { DEFAULT_CHANNEL_OPTIONS, DEFAULT_MAX_SAMPLES, type WindowSpec } from '../engine/channel-options.js';
+import { readCriteria } from './criteria-config.js';
 
 export { ConfigError };
 
@@ -21,10 +22,15 @@ export const CHANNEL_DEFAULTS: ChannelSettings = {
   rate: null,
   range: null,
   unit: null,
+  criteria: null,
 };
 
-/** Reads and validates a YAML (or JSON) configuration file. Throws ConfigError with one line per problem. */
-export function loadConfigFile(path: string): PlateauConfig {
+/**
+ * Reads and validates a YAML (or JSON) configuration file. Throws ConfigError with one line per problem.
+ * `requireSubscriptions: false` (plateau analyze, which reads a file and needs only the channel
+ * settings) accepts a file without subscriptions.
+ */
+export function loadConfigFile(path: string, options: { requireSubscriptions?: boolean } = {}): PlateauConfig {
   let text: string;
   try {
     text = readFileSync(path, 'utf8');
@@ -39,7 +45,7 @@ export function loadConfigFile(path: string): PlateauConfig {
     throw new ConfigError([`${path}: not valid YAML: ${message}`]);
   }
   try {
-    return parseConfig(document, path);
+    return parseConfig(document, path, options);
   } catch (error) {
     if (error instanceof ConfigError) throw new ConfigError(error.problems.map((line) => `${path}: ${line}`));
     throw error;
@@ -47,7 +53,7 @@ export function loadConfigFile(path: string): PlateauConfig {
 }
 
 /** Validates a parsed configuration document and fills in defaults. */
-export function parseConfig(document: unknown, source = 'config'): PlateauConfig {
+export function parseConfig(document: unknown, source = 'config', options: { requireSubscriptions?: boolean } = {}): PlateauConfig {
   const r = new ConfigReader();
   const root = r.section(document ?? {}, '', ['broker', 'subscriptions', 'channels', 'derived', 'store', 'http', 'topics', 'log']);
   const brokerSection = r.section(root.broker, 'broker', ['url', 'clientId', 'username', 'password', 'tls', 'protocolVersion', 'qos', 'sessionExpirySeconds', 'keepaliveSeconds', 'reconnectPeriodMs']);
@@ -77,7 +83,7 @@ export function parseConfig(document: unknown, source = 'config'): PlateauConfig
 
   const subscriptions: SubscriptionConfig[] = [];
   const subscriptionList = r.list(root.subscriptions, 'subscriptions');
-  if (subscriptionList.length === 0) r.problem('subscriptions', 'missing: at least one subscription (a topic filter and how to read its payloads)');
+  if (subscriptionList.length === 0 && options.requireSubscriptions !== false) r.problem('subscriptions', 'missing: at least one subscription (a topic filter and how to read its payloads)');
   subscriptionList.forEach((item, index) => {
     const path = join('subscriptions', index);
     const s = r.section(item, path, ['topic', 'format', 'channel', 'valueField', 'timeField', 'timeUnit', 'samplesField', 'channelField', 'unit', 'maxBytes', 'maxDepth', 'maxSamples', 'sparkplug']);
@@ -179,7 +185,7 @@ export function parseConfig(document: unknown, source = 'config'): PlateauConfig
   return { source, broker, subscriptions, channels: { defaults, groups }, derived, store, http, topics, log };
 }
 
-const SETTING_KEYS = ['window', 'maxLag', 'estimator', 'warmup', 'confidence', 'target', 'falseAlarmSamples', 'staleSeconds', 'rate', 'range', 'unit'];
+const SETTING_KEYS = ['window', 'maxLag', 'estimator', 'warmup', 'confidence', 'target', 'falseAlarmSamples', 'staleSeconds', 'rate', 'range', 'unit', 'criteria'];
 
 function readChannelSettings(r: ConfigReader, value: unknown, path: string): Partial<ChannelSettings> {
   const s = r.section(value, path, SETTING_KEYS);
@@ -212,6 +218,8 @@ function readChannelSettings(r: ConfigReader, value: unknown, path: string): Par
   if (s.staleSeconds !== undefined) out.staleSeconds = r.number(s, 'staleSeconds', path, { above: 0 }, CHANNEL_DEFAULTS.staleSeconds);
   if (s.rate !== undefined) out.rate = r.number(s, 'rate', path, { above: 0 }, null);
   if (s.unit !== undefined) out.unit = r.string(s, 'unit', path, null);
+  // Stability rules (criteria-config.ts): a group's criteria replace those of the defaults.
+  if (s.criteria !== undefined) out.criteria = readCriteria(r, s.criteria, join(path, 'criteria'));
   if (s.range !== undefined) {
     const range = s.range;
     if (!Array.isArray(range) || range.length !== 2 || !range.every((v) => typeof v === 'number' && Number.isFinite(v)) || (range[0] as number) >= (range[1] as number)) {

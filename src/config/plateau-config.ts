@@ -3,6 +3,7 @@ import type { EstimatorName } from '../core/tau/tau-estimate.js';
 import type { WarmupSetting } from '../engine/warmup-detector.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
 import type { WindowSpec } from '../engine/channel-options.js';
+import type { CriteriaSettings } from './criteria-config.js';
 
 /** The daemon's whole configuration, after validation and defaults. Units are in the key names. */
 export interface PlateauConfig {
@@ -55,6 +56,8 @@ export interface ChannelSettings {
   /** Physical range of the channel, used to check derived expressions for division by zero. */
   range: [number, number] | null;
   unit: string | null;
+  /** Stability rules from the test procedure and the readiness policy (criteria-config.ts); null: none. */
+  criteria: CriteriaSettings | null;
 }
 
 export interface ChannelGroup {

@@ -3,7 +3,7 @@ import type { TestPointControl } from './test-point-control.js';
 
 /**
  * Commands from a rig sequencer on `<topics.command>/<action>` (JSON object payloads):
- * `test-point/start` ({id?, name?, channels, derived?}) and `test-point/stop` ({id}). A payload that
+ * `test-point/start` ({id?, name?, channels, derived?, setPoints?: {channel: number}}) and `test-point/stop` ({id}). A payload that
  * is not a JSON object is refused as `unparseable`, an unknown action as `unknown-topic` (counted
  * like refused samples); a command the daemon refuses (an unknown test point, a failing store) is
  * logged and raises a `command-refused` event naming the reason.
@@ -41,6 +41,7 @@ export class Commands {
           ...(typeof body.name === 'string' ? { name: body.name } : {}),
           channels: Array.isArray(body.channels) ? (body.channels as string[]) : [],
           derived: Array.isArray(body.derived) ? (body.derived as string[]) : [],
+          ...(body.setPoints !== undefined ? { setPoints: body.setPoints as Record<string, number> } : {}),
         });
       } else if (action === 'test-point/stop') {
         this.options.testPoints.stop(String(body.id ?? ''));

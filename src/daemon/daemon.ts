@@ -191,7 +191,7 @@ export class Daemon implements DaemonApi {
 
   channelOptions(name: string): ChannelOptions {
     const s = settingsFor(this.config, name);
-    return { window: s.window, maxLag: s.maxLag, estimator: s.estimator, warmup: s.warmup, confidence: s.confidence, target: s.target, rate: s.rate, falseAlarmSamples: s.falseAlarmSamples, staleSeconds: s.staleSeconds };
+    return { window: s.window, maxLag: s.maxLag, estimator: s.estimator, warmup: s.warmup, confidence: s.confidence, target: s.target, rate: s.rate, falseAlarmSamples: s.falseAlarmSamples, staleSeconds: s.staleSeconds, criteria: s.criteria };
   }
 
   /** The unit the configuration gives a channel (looked up once per channel). */

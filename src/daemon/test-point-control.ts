@@ -53,7 +53,7 @@ export class TestPointControl {
       for (const mark of marks) {
         const channel = registry.ensure(mark.channel, null);
         ingest.introduce(channel);
-        batch.addMark({ channel: channel.name, seq: mark.seq, kind: 'restart-window' });
+        batch.addMark({ channel: channel.name, seq: mark.seq, kind: mark.kind ?? 'restart-window' });
       }
       derived.restart(change.point.derived);
     }

@@ -1,4 +1,5 @@
 import type { BreakCause } from './stationarity-monitor.js';
+import type { CriterionEvent } from './criteria/criteria-events.js';
 
 /**
  * What a channel tells the world. Events are edge-triggered: each marks a change of state, once.
@@ -17,6 +18,8 @@ export type ChannelEvent =
   | { kind: 'steady-withdrawn'; at: number; reason: string }
   | { kind: 'averaging-limit'; at: number; m: number; tauSeconds: number | null; adev: number }
   | { kind: 'stale'; at: number; silentSeconds: number }
-  | { kind: 'fresh'; at: number };
+  | { kind: 'fresh'; at: number }
+  /** A stability rule starts or stops holding (src/engine/criteria/criteria-events.ts). */
+  | CriterionEvent;
 
 export type EventKind = ChannelEvent['kind'];

@@ -1,6 +1,7 @@
 import type { EstimatorName } from '../core/tau/tau-estimate.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
 import type { WarmupSetting } from './warmup-detector.js';
+import type { ChannelCriteriaSettings } from './criteria/channel-criteria.js';
 
 /** How a channel's averaging window is bounded. */
 export interface WindowSpec {
@@ -36,6 +37,8 @@ export interface ChannelOptions {
    * stationarity event is raised: the plain statistics of every sample (estimator studies).
    */
   detectors?: boolean;
+  /** Stability rules from the test procedure and the readiness policy (src/engine/criteria/); none when absent. */
+  criteria?: ChannelCriteriaSettings | null;
 }
 
 /**

@@ -18,6 +18,10 @@ import { stationarityReport, allanReport, type StationarityReport, type AllanRep
 import type { WindowedSeriesState } from '../core/window/windowed-series.js';
 import { channelVerdict, type ChannelVerdict } from './channel-verdict.js';
 import { expectRecord, type StateRecord } from '../core/state/record.js';
+import { channelCriteria, type ChannelCriteria, type CriterionBrief } from './criteria/channel-criteria.js';
+import type { CriterionState, CriteriaTracker } from './criteria/criteria-tracker.js';
+import type { CriterionEvent } from './criteria/criteria-events.js';
+import type { Readiness } from './criteria/readiness-policy.js';
 
 /** One estimator's result as reported in a snapshot. */
 export interface EstimatorReport {
@@ -97,6 +101,10 @@ export interface ChannelSnapshot {
   events: ChannelEvent[];
   eventCount: number;
   notes: string[];
+  /** Stability rules (src/engine/criteria/): live state per rule, in configuration order; empty without rules. */
+  criteria: CriterionState[];
+  /** Readiness under the policy (the statistical verdict and the rules); null when no criteria are configured. */
+  readiness: Readiness | null;
 }
 
 /** A channel at a glance (live displays, retained status messages). */
@@ -118,11 +126,18 @@ export interface ChannelSummary {
   target: TargetStatus | null;
   estimator: MethodName | null;
   verdict: ChannelVerdict;
+  /** Stability rules at a glance; empty without rules. */
+  criteria: CriterionBrief[];
+  /** Ready under the readiness policy; null when no criteria are configured (the verdict decides). */
+  readyUnderPolicy: boolean | null;
 }
 
 const SHARED_FFT = new AutocovarianceFft();
 const SHARED_PERIODOGRAM = new PeriodogramWorkspace();
 const NO_EVENTS: readonly ChannelEvent[] = Object.freeze([]);
+
+/** The snapshot without the stability rules (added by `snapshot`). */
+type StatisticalSnapshot = Omit<ChannelSnapshot, 'criteria' | 'readiness'>;
 
 type SnapshotBase = Pick<ChannelSnapshot, 'name' | 'n' | 'confidence' | 'estimator' | 'window' | 'rate' | 'received' | 'last' | 'state' | 'excluded' | 'events' | 'eventCount'>;
 
@@ -274,6 +289,10 @@ export class ChannelPipeline {
   private eventCount = 0;
   private pendingEvents: ChannelEvent[] | null = null;
   private snapshotCache: { key: string; snapshot: ChannelSnapshot } | null = null;
+  /** The stability rules, fed every sample beside the statistics (null without any). */
+  readonly criteria: ChannelCriteria | null;
+  /** Its tracker, called directly on the per-sample path (one call less). */
+  private readonly criteriaTracker: CriteriaTracker | null;
 
   /**
    * @param fft transform workspace shared by the channels of one process (a snapshot's FFT fallback
@@ -283,6 +302,8 @@ export class ChannelPipeline {
     this.name = name;
     this.options = options;
     this.estimatorSet = new EstimatorSet(fft);
+    this.criteria = channelCriteria(options.criteria);
+    this.criteriaTracker = this.criteria?.tracker ?? null;
     const { window } = options;
     const capacity = window.kind === 'sliding' && window.samples ? Math.min(window.samples, window.maxSamples) : window.maxSamples;
     this.series = new WindowedSeries({
@@ -318,6 +339,10 @@ export class ChannelPipeline {
       this.stale = false;
       this.raise({ kind: 'fresh', at: index });
     }
+    if (this.criteriaTracker !== null) {
+      const raised = this.criteriaTracker.push(value, timeSeconds);
+      if (raised.length !== 0) this.raiseCriteria(raised, index);
+    }
     if (index >= this.nextDiagnosis) this.updateDiagnosis(index);
     if (this.options.detectors === false) {
       if (this.phase !== 'steady' && this.series.length >= 2) {
@@ -344,6 +369,21 @@ export class ChannelPipeline {
     if (this.phase === 'steady' && index >= this.nextPrecisionCheck) this.checkPrecision(index);
     if (index >= this.nextAllanCheck) this.checkAveragingLimit(index);
     return this.pendingEvents ?? NO_EVENTS;
+  }
+
+  /** The rules' events of one sample, with the pipeline's index (as ChannelCriteria.push gives them). */
+  private raiseCriteria(raised: readonly CriterionEvent[], index: number): void {
+    for (const event of raised) {
+      event.at = index;
+      this.raise(event);
+    }
+  }
+
+  /** The test point's set point for the rules that take it (null: none), from the next sample on. */
+  setSetPoint(value: number | null): void {
+    if (this.criteria === null) return;
+    this.criteria.setSetPoint(value);
+    this.snapshotCache = null;
   }
 
   private raise(event: ChannelEvent): void {
@@ -947,7 +987,7 @@ export class ChannelPipeline {
   }
 
   /** Snapshot of an empty, one-sample or constant window: the mean where there is one, and why no uncertainty. */
-  private degenerateSnapshot(base: SnapshotBase, notes: string[]): ChannelSnapshot {
+  private degenerateSnapshot(base: SnapshotBase, notes: string[]): StatisticalSnapshot {
     const n = base.n;
     const none = {
       sd: null,
@@ -992,6 +1032,15 @@ export class ChannelPipeline {
    * deviation, only the reported estimator. Cost: one estimator run (tens of microseconds).
    */
   summary(): ChannelSummary {
+    const summary = this.statisticalSummary();
+    const criteria = this.criteria;
+    if (criteria === null) return { ...summary, criteria: [], readyUnderPolicy: null };
+    const states = criteria.states();
+    const readiness = criteria.readiness({ ready: summary.verdict.ready, reasons: summary.verdict.pending.map((p) => p.message) }, null, states);
+    return { ...summary, criteria: criteria.briefs(states), readyUnderPolicy: readiness.ready };
+  }
+
+  private statisticalSummary(): Omit<ChannelSummary, 'criteria' | 'readyUnderPolicy'> {
     const { series, options } = this;
     const n = series.length;
     const base = { name: this.name, state: this.state, n, received: this.received, last: this.received > 0 ? { value: this.lastValue, time: finiteOrNull(this.lastTime) } : null, confidence: options.confidence, excluded: this.excluded };
@@ -1012,12 +1061,23 @@ export class ChannelPipeline {
   snapshot(): ChannelSnapshot {
     const key = `${this.series.firstIndex}:${this.series.nextIndex}:${this.eventCount}:${this.stale}`;
     if (this.snapshotCache?.key === key) return this.snapshotCache.snapshot;
-    const snapshot = this.computeSnapshot();
+    const snapshot = this.withCriteria(this.computeSnapshot());
     this.snapshotCache = { key, snapshot };
     return snapshot;
   }
 
-  private computeSnapshot(): ChannelSnapshot {
+  /** The rules' live state, and readiness under the policy over the snapshot's window. */
+  private withCriteria(statistical: StatisticalSnapshot): ChannelSnapshot {
+    const criteria = this.criteria;
+    if (criteria === null) return { ...statistical, criteria: [], readiness: null };
+    const states = criteria.states();
+    const { startTime, endTime } = statistical.window;
+    const window = startTime !== null && endTime !== null ? { startTime, endTime } : null;
+    const readiness = criteria.readiness({ ready: statistical.verdict.ready, reasons: statistical.verdict.pending.map((p) => p.message) }, window, states);
+    return { ...statistical, criteria: states, readiness };
+  }
+
+  private computeSnapshot(): StatisticalSnapshot {
     const { options, series } = this;
     const n = series.length;
     const notes: string[] = [];

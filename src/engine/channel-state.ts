@@ -3,6 +3,7 @@ import type { ChannelOptions } from './channel-options.js';
 import { PIPELINE_STATE_VERSION, type ChannelPipelineState } from './channel-pipeline.js';
 import { canonicalJson, differingKeys, fingerprint } from './state-record.js';
 import type { SteadinessState } from './steadiness.js';
+import type { ChannelCriteriaState } from './criteria/channel-criteria.js';
 
 /**
  * A channel's checkpoint: a named, versioned record holding the pipeline's record, the options the
@@ -20,7 +21,7 @@ import type { SteadinessState } from './steadiness.js';
  * confidence, the target, the rate and the stale time (they decide later verdicts, and a replay
  * would only rewrite events already published).
  */
-export interface ChannelRecord extends StateRecord<'channel', 1> {
+export interface ChannelRecord extends StateRecord<'channel', 1 | 2> {
   /** Every option the state was built under (for the log, when they differ). */
   options: Record<string, unknown>;
   /** Fingerprint of the shaping options. */
@@ -30,7 +31,16 @@ export interface ChannelRecord extends StateRecord<'channel', 1> {
   pipeline: ChannelPipelineState;
   /** When the channel was steady (src/engine/steadiness.ts), for derived results. */
   steadiness: SteadinessState;
+  /**
+   * Version 2: the stability rules' tracker (its own named, versioned record with the fingerprint
+   * of its rules), null without rules. Version 1 has none: loaded as it is when the channel has no
+   * rules, replayed from the stored samples when it has (the rules need the readings).
+   */
+  criteria?: ChannelCriteriaState | null;
 }
+
+/** The channel record this plateau writes. */
+export const CHANNEL_RECORD_VERSION = 2;
 
 export const SHAPING_OPTIONS = ['window', 'maxLag', 'estimator', 'warmup', 'falseAlarmSamples', 'detectors'] as const;
 
@@ -54,8 +64,8 @@ export function optionsIdentity(options: ChannelOptions): OptionsIdentity {
   return { plain: plainOptions(options), fingerprint: shapingFingerprint(options) };
 }
 
-export function channelRecord(identity: OptionsIdentity, seqOffset: number, pipeline: ChannelPipelineState, steadiness: SteadinessState): ChannelRecord {
-  return { record: 'channel', version: 1, options: identity.plain, fingerprint: identity.fingerprint, seqOffset, pipeline, steadiness };
+export function channelRecord(identity: OptionsIdentity, seqOffset: number, pipeline: ChannelPipelineState, steadiness: SteadinessState, criteria: ChannelCriteriaState | null = null): ChannelRecord {
+  return { record: 'channel', version: CHANNEL_RECORD_VERSION, options: identity.plain, fingerprint: identity.fingerprint, seqOffset, pipeline, steadiness, criteria };
 }
 
 export type CheckpointDecision =
@@ -67,6 +77,8 @@ export type CheckpointDecision =
       steadiness: SteadinessState | null;
       /** Options that changed without changing the state's shape, when any did. */
       carriedOver: string[];
+      /** The stability rules' state (null: none saved); the channel replays when it does not fit its rules. */
+      criteria: ChannelCriteriaState | null;
     }
   | { action: 'replay'; reason: string };
 
@@ -86,7 +98,7 @@ export function decideCheckpoint(raw: unknown, options: ChannelOptions, identity
   if (isLegacyPipeline(raw)) return { action: 'replay', reason: EARLIER_ENGINE(1) };
   const record = raw as Partial<ChannelRecord> | null;
   if (record === null || typeof record !== 'object' || record.record !== 'channel') return { action: 'replay', reason: 'the checkpoint is not a channel record' };
-  if (record.version !== 1) return { action: 'replay', reason: `the checkpoint is a channel record of version ${String(record.version)}, which this plateau does not know (it knows version 1)` };
+  if (record.version !== 1 && record.version !== CHANNEL_RECORD_VERSION) return { action: 'replay', reason: `the checkpoint is a channel record of version ${String(record.version)}, which this plateau does not know (it knows versions 1 and ${CHANNEL_RECORD_VERSION})` };
   if (record.fingerprint !== identity.fingerprint) {
     const changed = differingKeys(pick(record.options ?? {}, SHAPING_OPTIONS), pick(identity.plain, SHAPING_OPTIONS));
     return { action: 'replay', reason: `the checkpoint was made under other options (${changed.join(', ') || 'fingerprint'})` };
@@ -94,7 +106,16 @@ export function decideCheckpoint(raw: unknown, options: ChannelOptions, identity
   const pipeline = record.pipeline as Partial<StateRecord> | undefined;
   if (isLegacyPipeline(pipeline)) return { action: 'replay', reason: EARLIER_ENGINE(1) };
   if (pipeline?.record === 'channel-pipeline' && typeof pipeline.version === 'number' && pipeline.version < PIPELINE_STATE_VERSION) return { action: 'replay', reason: EARLIER_ENGINE(pipeline.version) };
-  return { action: 'load', pipeline: record.pipeline as ChannelPipelineState, seqOffset: typeof record.seqOffset === 'number' ? record.seqOffset : 0, steadiness: record.steadiness ?? null, carriedOver: differingKeys(record.options ?? {}, identity.plain) };
+  const rules = options.criteria?.rules.length ?? 0;
+  if (record.version === 1 && rules > 0) return { action: 'replay', reason: 'the checkpoint (channel record version 1) holds no state of the stability rules now configured' };
+  return {
+    action: 'load',
+    pipeline: record.pipeline as ChannelPipelineState,
+    seqOffset: typeof record.seqOffset === 'number' ? record.seqOffset : 0,
+    steadiness: record.steadiness ?? null,
+    carriedOver: differingKeys(record.options ?? {}, identity.plain),
+    criteria: record.criteria ?? null,
+  };
 }
 
 function pick(from: Record<string, unknown>, keys: readonly string[]): Record<string, unknown> {

@@ -3,6 +3,7 @@ import type { ChannelOptions } from './channel-options.js';
 import type { ChannelEvent } from './channel-events.js';
 import { channelRecord, decideCheckpoint, optionsIdentity, type ChannelRecord, type OptionsIdentity } from './channel-state.js';
 import { SteadyHistory } from './steadiness.js';
+import { parseSetPointMark, setPointMark } from './criteria/set-point-mark.js';
 
 /**
  * One channel of the daemon: its pipeline, the time policy that decides which samples enter, its
@@ -49,10 +50,14 @@ export type AcceptResult =
   | { accepted: true; seq: number; timeMs: number; late: boolean; events: readonly ChannelEvent[]; /** The engine failed on the sample after taking it (a defect): it must still be stored. */ engineError: Error | null }
   | { accepted: false; reason: 'duplicate' | 'out-of-order' };
 
-/** A window restart at sample index `seq` (a test point started): stored, and replayed at that index. */
+/**
+ * A control mark at sample index `seq`, stored and replayed at that index: a window restart (a test
+ * point started), or the test point's set point for the stability rules (`set-point:<number>` or
+ * `set-point:none`, src/engine/criteria/set-point-mark.ts).
+ */
 export interface WindowMark {
   seq: number;
-  kind: 'restart-window';
+  kind: 'restart-window' | `set-point:${string}`;
 }
 
 /** A stored sample run, as the store hands it back (times in epoch ms). */
@@ -150,6 +155,20 @@ export class Channel {
     return mark;
   }
 
+  /**
+   * The test point's set point for the channel's stability rules, from the next sample on; returns
+   * the mark to store (replayed at the same sample), or null when the channel has no rules or the
+   * set point is unchanged.
+   */
+  setSetPoint(value: number | null): WindowMark | null {
+    const criteria = this.current.criteria;
+    if (criteria === null) return null;
+    const next = value !== null && Number.isFinite(value) ? value : null;
+    if (next === criteria.setPoint) return null; // unchanged: nothing to replay
+    this.current.setSetPoint(next);
+    return { seq: this.nextSeq, kind: setPointMark(value) };
+  }
+
   /** Whether the channel was steady when it took its sample of pipeline index `index` (see src/engine/steadiness.ts). */
   steadyAt(index: number): boolean {
     return this.steadiness.steadyAt(index);
@@ -157,7 +176,7 @@ export class Channel {
 
   /** The checkpoint to store: the channel record and the index of the next sample. */
   checkpoint(): { seq: number; state: ChannelRecord } {
-    return { seq: this.nextSeq, state: channelRecord(this.identity, this.offset, this.current.saveState(), this.steadiness.state()) };
+    return { seq: this.nextSeq, state: channelRecord(this.identity, this.offset, this.current.saveState(), this.steadiness.state(), this.current.criteria?.saveState() ?? null) };
   }
 
   /** Rebuilds a new channel from its checkpoint (or none) and its stored samples and marks. */
@@ -170,12 +189,20 @@ export class Channel {
       if (decision.action === 'load') {
         try {
           this.current.loadState(decision.pipeline);
-          if (decision.steadiness !== null) this.steadiness.load(decision.steadiness);
-          else this.steadiness.noteEvents(decision.pipeline.recentEvents);
-          this.offset = decision.seqOffset;
-          from = checkpoint.seq;
-          outcome = 'loaded';
-          if (decision.carriedOver.length > 0) detail = `carried over to the changed options ${decision.carriedOver.join(', ')}`;
+          // The rules' state must fit the rules now configured (their fingerprint), else a replay.
+          const criteria = this.current.criteria;
+          if (criteria !== null && !criteria.loadState(decision.criteria)) {
+            this.current = new ChannelPipeline(this.name, this.options);
+            outcome = 'replayed';
+            detail = 'the stability rules changed since the checkpoint (or it holds no state of them)';
+          } else {
+            if (decision.steadiness !== null) this.steadiness.load(decision.steadiness);
+            else this.steadiness.noteEvents(decision.pipeline.recentEvents);
+            this.offset = decision.seqOffset;
+            from = checkpoint.seq;
+            outcome = 'loaded';
+            if (decision.carriedOver.length > 0) detail = `carried over to the changed options ${decision.carriedOver.join(', ')}`;
+          }
         } catch (error) {
           this.current = new ChannelPipeline(this.name, this.options);
           outcome = 'replayed';
@@ -217,6 +244,9 @@ export class Channel {
         if (mark.seq === seq && mark.kind === 'restart-window') {
           this.steadiness.restart(this.current.totalReceived);
           this.current.restartWindow();
+        } else if (mark.seq === seq) {
+          const setPoint = parseSetPointMark(mark.kind);
+          if (setPoint !== undefined) this.current.setSetPoint(setPoint);
         }
         markIndex++;
       }

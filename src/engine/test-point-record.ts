@@ -1,6 +1,21 @@
 import type { ChannelSnapshot } from './channel-pipeline.js';
 import type { BootstrapCheck } from './derived/bootstrap-cross-check.js';
 import { csvText } from './csv-text.js';
+import type { CriterionEvidence, ReadinessPolicy } from './criteria/readiness-policy.js';
+
+/**
+ * The stability rules in a record: the policy, whether the channel was ready under it, and per rule
+ * whether it held over the whole recorded window (from the window's first sample to its last), with
+ * its value, tolerance and margin when the record was made and its smallest margin since it began
+ * to be met (src/engine/criteria/readiness-policy.ts).
+ */
+export interface RecordCriteria {
+  policy: ReadinessPolicy;
+  ready: boolean;
+  statisticalReady: boolean;
+  rulesReady: boolean;
+  rules: CriterionEvidence[];
+}
 
 /**
  * The record of a test point: per channel the result as a test report or calibration certificate
@@ -42,6 +57,8 @@ export interface RecordEntry {
   bootstrap?: BootstrapCheck | null;
   /** Samples missing within the window (gap-detector.ts; the daemon adds it): gaps, samples, the first 100 gaps. */
   gaps?: { count: number; missingSamples: number; list: { from: string; to: string; missing: number; source: 'time-stamps' | 'sequence' }[] };
+  /** The stability rules over the recorded window; null when the channel has none. */
+  criteria: RecordCriteria | null;
 }
 
 export interface TestPointRecord {
@@ -92,7 +109,22 @@ export function recordEntry(snapshot: ChannelSnapshot, unit: string | null): Rec
       kpssPassed: tests?.kpss?.passed ?? null,
     },
     statement: gumStatement(snapshot.name, snapshot.mean, snapshot.standardUncertainty, snapshot.expandedUncertainty, snapshot.coverageFactor, snapshot.dof, snapshot.confidence, unit),
+    criteria: recordCriteria(snapshot),
   };
+}
+
+function recordCriteria(snapshot: ChannelSnapshot): RecordCriteria | null {
+  const r = snapshot.readiness;
+  return r === null ? null : { policy: r.policy, ready: r.ready, statisticalReady: r.statistical.ready, rulesReady: r.rules.ready, rules: r.rules.evidence };
+}
+
+/** The rules of a record entry in one cell: "name: held over the window|not over the whole window|does not hold, value v, tolerance t, margin m". */
+export function criteriaCell(criteria: RecordCriteria | null): string | null {
+  if (criteria === null) return null;
+  const number = (x: number | null) => (x === null ? 'n/a' : String(+x.toPrecision(4)));
+  return criteria.rules
+    .map((e) => `${e.name}: ${e.heldOverWindow ? 'held over the window' : e.holds ? 'holds, not over the whole window' : 'does not hold'}, value ${number(e.value)}, tolerance ${number(e.tolerance)}, margin ${number(e.margin)}`)
+    .join('; ');
 }
 
 /**
@@ -120,13 +152,14 @@ const CSV_COLUMNS: (keyof RecordEntry)[] = ['channel', 'unit', 'mean', 'standard
 
 /** CSV (RFC 4180) of a record's entries; full-precision numbers, one row per channel. */
 export function recordCsv(record: TestPointRecord): string {
-  const header = [...CSV_COLUMNS, 'heidelbergerWelchPassed', 'gewekeZ', 'kpssStatistic', 'statement'];
+  const header = [...CSV_COLUMNS, 'heidelbergerWelchPassed', 'gewekeZ', 'kpssStatistic', 'statement', 'criteria'];
   const rows = record.entries.map((entry) => [
     ...CSV_COLUMNS.map((key) => entry[key] as unknown),
     entry.tests.heidelbergerWelchPassed,
     entry.tests.gewekeZ,
     entry.tests.kpssStatistic,
     entry.statement,
+    criteriaCell(entry.criteria ?? null),
   ]);
   return csvText(header, rows);
 }

@@ -20,6 +20,12 @@ export type TestPointState = 'running' | 'ready' | 'stopped';
  */
 function channelReady(pipeline: ChannelPipeline | undefined): boolean {
   if (!pipeline) return false;
+  // The readiness policy (src/engine/criteria/readiness-policy.ts): the rules, the statistical verdict, or both.
+  const criteria = pipeline.criteria;
+  if (criteria !== null && criteria.policy !== 'statistical') {
+    if (!criteria.tracker.allHold) return false;
+    if (criteria.policy === 'rules') return true;
+  }
   const state = pipeline.state;
   if (state !== 'precise' && !(state === 'steady' && !pipeline.options.target)) return false;
   return pipeline.summary().verdict.ready;
@@ -36,11 +42,13 @@ export interface TestPoint {
   stoppedMs: number | null;
   /** Each channel's sample index at the start. */
   startSeq: Record<string, number>;
+  /** Set points given at the start, per channel (for the stability rules that take theirs from the test point). */
+  setPoints?: Record<string, number>;
   annotations: { timeMs: number; text: string }[];
 }
 
 export type TestPointChange =
-  | { kind: 'test-point-started'; point: TestPoint; marks: { channel: string; seq: number }[] }
+  | { kind: 'test-point-started'; point: TestPoint; marks: { channel: string; seq: number; /** restart-window when absent */ kind?: string }[] }
   | { kind: 'test-point-ready'; point: TestPoint; record: TestPointRecord }
   | { kind: 'test-point-stopped'; point: TestPoint; record: TestPointRecord };
 
@@ -86,7 +94,7 @@ export class TestPoints {
     }
   }
 
-  start(request: { id?: string; name?: string; channels: string[]; derived?: string[] }, nowMs: number, knownDerived: string[] = []): TestPointChange {
+  start(request: { id?: string; name?: string; channels: string[]; derived?: string[]; setPoints?: Record<string, number> }, nowMs: number, knownDerived: string[] = []): TestPointChange {
     const channels = [...new Set(request.channels)];
     if (channels.length === 0 && (request.derived ?? []).length === 0) throw new PlateauError('ERR_TEST_POINT_EMPTY');
     for (const name of channels) {
@@ -99,12 +107,16 @@ export class TestPoints {
     if (!ID_PATTERN.test(id)) throw new PlateauError('ERR_TEST_POINT_ID', { id: id.slice(0, 80) });
     const existing = this.points.get(id);
     if (existing && existing.state !== 'stopped') throw new PlateauError('ERR_TEST_POINT_RUNNING', { id });
-    const marks: { channel: string; seq: number }[] = [];
+    const setPoints = checkSetPoints(request.setPoints, channels);
+    const marks: { channel: string; seq: number; kind?: string }[] = [];
     const startSeq: Record<string, number> = {};
     for (const name of channels) {
       const channel = this.registry.ensure(name, null);
       startSeq[name] = channel.nextSeq;
       if (channel.pipeline.options.window.kind === 'growing') marks.push({ channel: name, seq: channel.restartWindow().seq });
+      // The stability rules that take their set point from the test point: this one's, or none.
+      const setPoint = channel.setSetPoint(setPoints[name] ?? null);
+      if (setPoint !== null) marks.push({ channel: name, seq: setPoint.seq, kind: setPoint.kind });
     }
     const point: TestPoint = {
       id,
@@ -117,6 +129,7 @@ export class TestPoints {
       stoppedMs: null,
       startSeq,
       annotations: [],
+      ...(Object.keys(setPoints).length > 0 ? { setPoints } : {}),
     };
     this.points.set(id, point);
     return { kind: 'test-point-started', point, marks };
@@ -158,7 +171,13 @@ export class TestPoints {
     return point.channels.map((name) => {
       const pipeline = this.registry.get(name)?.pipeline;
       if (!pipeline) return { channel: name, state: 'no data', reached: false, pending: ['no samples yet'] };
-      const verdict = pipeline.summary().verdict;
+      const summary = pipeline.summary();
+      const verdict = summary.verdict;
+      if (pipeline.criteria !== null) {
+        // Under the readiness policy: the rules' reasons beside the verdict's.
+        const readiness = pipeline.criteria.readiness({ ready: verdict.ready, reasons: verdict.pending.map((p) => p.message) });
+        return { channel: name, state: pipeline.state, reached: readiness.ready, pending: readiness.reasons };
+      }
       return { channel: name, state: pipeline.state, reached: verdict.ready, pending: verdict.pending.map((p) => p.message) };
     });
   }
@@ -186,4 +205,17 @@ export class TestPoints {
     if (point.state === 'stopped') throw new PlateauError('ERR_TEST_POINT_STOPPED', { id });
     return point;
   }
+}
+
+/** The set points of a start request: numbers, for channels of the test point. */
+function checkSetPoints(given: unknown, channels: string[]): Record<string, number> {
+  if (given === undefined || given === null) return {};
+  if (typeof given !== 'object' || Array.isArray(given)) throw new PlateauError('ERR_TEST_POINT_SET_POINT', { name: 'setPoints', problem: 'expected a mapping of channel names to numbers' });
+  const out: Record<string, number> = {};
+  for (const [name, value] of Object.entries(given as Record<string, unknown>)) {
+    if (!channels.includes(name)) throw new PlateauError('ERR_TEST_POINT_SET_POINT', { name: name.slice(0, 80), problem: 'not a channel of this test point' });
+    if (typeof value !== 'number' || !Number.isFinite(value)) throw new PlateauError('ERR_TEST_POINT_SET_POINT', { name: name.slice(0, 80), problem: 'expected a number' });
+    out[name] = value;
+  }
+  return out;
 }

@@ -58,6 +58,7 @@ export const ERRORS = {
   ERR_TEST_POINT_EMPTY: { status: 400, exit: USER, message: 'a test point needs at least one channel or derived result' },
   ERR_TEST_POINT_CHANNEL: { status: 400, exit: USER, message: '"{name}" is not a valid channel name' },
   ERR_TEST_POINT_DERIVED: { status: 400, exit: USER, message: 'no derived result named "{name}" (known: {known})' },
+  ERR_TEST_POINT_SET_POINT: { status: 400, exit: USER, message: 'set point for "{name}": {problem}' },
   ERR_TEST_POINT_ID: { status: 400, exit: USER, message: 'test point id "{id}": letters, digits, _ . - only, up to 64 characters' },
   ERR_TEST_POINT_RUNNING: { status: 409, exit: USER, message: 'test point {id} is already running' },
   ERR_TEST_POINT_UNKNOWN: { status: 404, exit: USER, message: 'no test point {id}' },

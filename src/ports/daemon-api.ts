@@ -97,6 +97,8 @@ export interface TestPointRequest {
   name?: string;
   channels: string[];
   derived?: string[];
+  /** Set point per channel, for the stability rules that take theirs from the test point. */
+  setPoints?: Record<string, number>;
 }
 
 export interface DaemonQueries {

@@ -63,6 +63,23 @@ const channelVerdict = {
   additionalProperties: true,
 } as const;
 
+/** A stability rule at a glance (src/engine/criteria/channel-criteria.ts): the summary's and the snapshot's fields. */
+export const criterionBrief = {
+  type: 'object',
+  required: ['name', 'holds', 'since', 'value', 'tolerance', 'margin'],
+  properties: {
+    name: { type: 'string' },
+    holds: { type: 'boolean' },
+    met: { type: 'boolean' },
+    since: nullableNumber,
+    value: nullableNumber,
+    tolerance: nullableNumber,
+    margin: nullableNumber,
+    secondsToHold: nullableNumber,
+  },
+  additionalProperties: true,
+} as const;
+
 /** The light view pushed over the WebSocket and returned by /api/channels?view=summary. */
 export const channelSummary = {
   type: 'object',
@@ -86,6 +103,8 @@ export const channelSummary = {
     target: targetStatus,
     estimator: nullableString,
     verdict: channelVerdict,
+    criteria: { type: 'array', items: criterionBrief },
+    readyUnderPolicy: { type: ['boolean', 'null'] },
   },
   additionalProperties: true,
 } as const;
@@ -103,6 +122,8 @@ export const channelSnapshot = {
     estimator: { type: 'string' },
     estimatorReason: { type: 'string' },
     verdict: channelVerdict,
+    criteria: { type: 'array', items: criterionBrief },
+    readiness: { type: ['object', 'null'], additionalProperties: true },
   },
   additionalProperties: true,
 } as const;
@@ -133,6 +154,7 @@ export const testPoint = {
   properties: {
     id: { type: 'string' },
     name: { type: 'string' },
+    setPoints: { type: 'object', additionalProperties: { type: 'number' } },
     channels: { type: 'array', items: { type: 'string' } },
     derived: { type: 'array', items: { type: 'string' } },
     state: { type: 'string', enum: ['running', 'ready', 'stopped'] },

@@ -376,6 +376,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
             name: { type: 'string', minLength: 1, maxLength: 200 },
             channels: { type: 'array', items: { type: 'string', pattern: NAME_PATTERN }, maxItems: 1000 },
             derived: { type: 'array', items: { type: 'string', pattern: NAME_PATTERN }, maxItems: 100 },
+            setPoints: { type: 'object', additionalProperties: { type: 'number' }, maxProperties: 1000 },
           },
           required: ['channels'],
           additionalProperties: false,
@@ -384,7 +385,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
       },
     },
     async (request, reply) => {
-      const body = request.body as { id?: string; name?: string; channels: string[]; derived?: string[] };
+      const body = request.body as { id?: string; name?: string; channels: string[]; derived?: string[]; setPoints?: Record<string, number> };
       return reply.code(201).send({ testPoint: daemon.startTestPoint(body) });
     },
   );

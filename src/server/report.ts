@@ -6,6 +6,7 @@ import type { DerivedReportEntry } from '../engine/derived/derived-record.js';
 import { escapeHtml } from './html-text.js';
 import { svgBarChart, svgChart, type SvgBar } from './svg-chart.js';
 import { recordDerivedEntries } from './record-derived.js';
+import { criteriaSection } from './report-criteria.js';
 import type { ChannelTrace, CusumTrace, DerivedView } from '../ports/daemon-api.js';
 
 /**
@@ -200,6 +201,7 @@ function channelSection(channel: ReportChannel, entry: RecordEntry | null, recor
 ${s.disagreement.length ? `<p class="note">Disagreement: ${escapeHtml(s.disagreement.join('; '))}</p>` : ''}
 <h3>Steady-state evidence</h3>
 <table>${rows(evidence)}</table>
+${criteriaSection(entry?.criteria, s)}
 ${s.notes.length ? `<p class="note">Notes: ${escapeHtml(s.notes.join('; '))}</p>` : ''}
 <div class="grid">${traceChart(channel)}${acfChart(s)}${allanChart(s)}${cusumChart(channel.cusum)}</div>
 <p class="note">Charts show the window when this report was generated (n = ${s.n}).</p>

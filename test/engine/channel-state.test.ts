@@ -59,7 +59,7 @@ describe('channel checkpoints', () => {
     const { channel } = live();
     const { seq, state } = channel.checkpoint();
     expect(seq).toBe(N);
-    expect(state).toMatchObject({ record: 'channel', version: 1, fingerprint: shapingFingerprint(OPTIONS), seqOffset: 0, pipeline: { record: 'channel-pipeline', version: 3 } });
+    expect(state).toMatchObject({ record: 'channel', version: 2, criteria: null, fingerprint: shapingFingerprint(OPTIONS), seqOffset: 0, pipeline: { record: 'channel-pipeline', version: 3 } });
     expect(state.pipeline.history).toMatchObject({ record: 'block-history', version: 1 });
     expect(state.pipeline.series).toMatchObject({ record: 'windowed-series', version: 1, ring: { record: 'sample-ring' }, moments: { record: 'shifted-moments' }, lags: { record: 'lagged-products' }, pyramid: { record: 'block-pyramid' } });
     expect(state.pipeline.monitor).toMatchObject({ record: 'stationarity-monitor', version: 1 });
@@ -75,6 +75,16 @@ describe('channel checkpoints', () => {
     expect(restored.restore(checkpoint, full.history)).toEqual({ outcome: 'loaded', detail: null, replayed: N - CHECKPOINT_AT, forced: 0 });
     expect(restored.pipeline.snapshot()).toEqual(full.channel.pipeline.snapshot());
     expect(restored.checkpoint()).toEqual(full.channel.checkpoint());
+  });
+
+  it('a channel record of version 1 (before the stability rules) loads as it is for a channel without rules', () => {
+    const first = live(OPTIONS, CHECKPOINT_AT);
+    const { criteria: _none, ...rest } = first.channel.checkpoint().state;
+    const checkpoint = { seq: CHECKPOINT_AT, state: { ...rest, version: 1 } };
+    const full = live();
+    const restored = new Channel('fixture.loop_degC', 'degC', OPTIONS);
+    expect(restored.restore(checkpoint, full.history)).toEqual({ outcome: 'loaded', detail: null, replayed: N - CHECKPOINT_AT, forced: 0 });
+    expect(restored.pipeline.snapshot()).toEqual(full.channel.pipeline.snapshot());
   });
 
   it('a loader refuses a record of another name or version instead of casting it', () => {
@@ -141,8 +151,8 @@ describe('channel checkpoints', () => {
     const full = live();
     const checkpoint = first.channel.checkpoint();
     const newer = new Channel('fixture.loop_degC', 'degC', OPTIONS);
-    const r1 = newer.restore({ ...checkpoint, state: { ...checkpoint.state, version: 2 } }, full.history);
-    expect(r1).toMatchObject({ outcome: 'replayed', detail: 'the checkpoint is a channel record of version 2, which this plateau does not know (it knows version 1)', replayed: N });
+    const r1 = newer.restore({ ...checkpoint, state: { ...checkpoint.state, version: 3 } }, full.history);
+    expect(r1).toMatchObject({ outcome: 'replayed', detail: 'the checkpoint is a channel record of version 3, which this plateau does not know (it knows versions 1 and 2)', replayed: N });
     const broken = new Channel('fixture.loop_degC', 'degC', OPTIONS);
     const r2 = broken.restore({ ...checkpoint, state: { ...checkpoint.state, pipeline: { ...checkpoint.state.pipeline, series: { record: 'windowed-series', version: 9 } } } }, full.history);
     expect(r2.outcome).toBe('replayed');

@@ -1,4 +1,4 @@
-import { toleranceFor, type CriterionSpec } from './criterion-spec.js';
+import type { CriterionSpec } from './criterion-spec.js';
 import type { LaggedChange } from './lagged-change.js';
 import type { SlidingWindow, WindowNeeds } from './sliding-window.js';
 
@@ -101,6 +101,15 @@ export class CriterionEvaluator {
   private readonly lagged: LaggedChange | null;
   /** The tolerance when it depends on neither the readings nor the set point, else NaN. */
   private readonly fixedTolerance: number;
+  // A relative tolerance, worked out in place (toleranceFor's arithmetic, without its boxed result).
+  private readonly absoluteLimit: number;
+  private readonly relative: number;
+  private readonly zero: number;
+  private readonly relativeToSetPoint: boolean;
+  private readonly basisNewest: boolean;
+  /** A tolerance relative to the set point depends on it alone: worked out again only when it changes. */
+  private toleranceSetPoint = Number.NaN;
+  private setPointTolerance = Number.NaN;
 
   constructor(spec: CriterionSpec, window: SlidingWindow) {
     this.spec = spec;
@@ -110,6 +119,11 @@ export class CriterionEvaluator {
     this.perSeconds = spec.perSeconds;
     this.lagged = laggedFor(spec, window);
     this.fixedTolerance = spec.tolerance.relative === null && spec.tolerance.absolute !== null ? spec.tolerance.absolute : Number.NaN;
+    this.absoluteLimit = spec.tolerance.absolute ?? 0;
+    this.relative = spec.tolerance.relative ?? 0;
+    this.zero = spec.tolerance.zero;
+    this.relativeToSetPoint = spec.tolerance.relative !== null && spec.tolerance.relativeTo === 'setpoint';
+    this.basisNewest = changeStatistic(spec);
   }
 
   /** Sets `value` and `tolerance` (assigned, not returned: V8 boxes a number returned from a call it does not inline). */
@@ -166,10 +180,30 @@ export class CriterionEvaluator {
     this.value = value;
   }
 
+  /** As toleranceFor (criterion-spec.ts): the greater of the absolute and the relative part; NaN without a finite basis. */
   private updateTolerance(): void {
-    const setPoint = this.setPoint;
-    const found = toleranceFor(this.spec.tolerance, readingBasis(this.spec, this.window), Number.isNaN(setPoint) ? null : setPoint);
-    this.tolerance = found === null ? Number.NaN : found;
+    let basis: number;
+    if (this.relativeToSetPoint) {
+      const setPoint = this.setPoint;
+      if (setPoint === this.toleranceSetPoint) {
+        this.tolerance = this.setPointTolerance;
+        return;
+      }
+      basis = setPoint;
+    } else {
+      const window = this.window;
+      basis = window.end === window.start ? Number.NaN : this.basisNewest ? window.newestValue : window.sums !== null ? window.mean : Number.NaN;
+    }
+    let tolerance = Number.NaN;
+    if (Number.isFinite(basis)) {
+      const relative = this.relative * Math.abs(basis - this.zero);
+      tolerance = relative > this.absoluteLimit ? relative : this.absoluteLimit;
+    }
+    if (this.relativeToSetPoint) {
+      this.toleranceSetPoint = basis;
+      this.setPointTolerance = tolerance;
+    }
+    this.tolerance = tolerance;
   }
 
   private directed(change: number): number {
