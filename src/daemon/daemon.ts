@@ -9,6 +9,7 @@ import { REJECT_REASONS } from '../ingest/sample.js';
 import { MqttConnection } from '../ingest/mqtt-connection.js';
 import { MqttSampleSource } from '../ingest/mqtt-sample-source.js';
 import { MqttPublisher } from '../ingest/mqtt-publisher.js';
+import { JetStreamWorker } from '../ingest/jetstream-worker.js';
 import { SqliteStore } from '../store/sqlite-store.js';
 import { SystemClock } from '../clock/system-clock.js';
 import { PlateauError } from '../errors/catalogue.js';
@@ -21,6 +22,7 @@ import { Acknowledgements, ACKNOWLEDGED_KIND, ALERT_KINDS } from './acknowledgem
 import { CheckpointSchedule } from './checkpoint-schedule.js';
 import { Commands } from './commands.js';
 import { CommitCycle } from './commit-cycle.js';
+import { DeliveryFence } from './delivery-fence.js';
 import { DerivedResults } from './derived-results.js';
 import { Ingest, type IngestCounters } from './ingest.js';
 import { ListenerPublisher } from './listener-publisher.js';
@@ -90,6 +92,9 @@ export class Daemon implements DaemonApi {
   private readonly publishers: Publisher[] = [];
   private storeAdapter: Store | null = null;
   private source: SampleSource | null = null;
+  /** With `broker.url: nats://...`: this worker's partitions, leases and JetStream source. */
+  private worker: JetStreamWorker | null = null;
+  private fence: DeliveryFence | null = null;
   private timers: NodeJS.Timeout[] = [];
   private restored = { samples: 0, ms: 0 };
   private stopped = false;
@@ -209,8 +214,21 @@ export class Daemon implements DaemonApi {
     this.restored = { samples: summary.replayed, ms: summary.ms };
     this.log.info({ channels: summary.channels, checkpoints: summary.outcomes, replayedSamples: summary.replayed, ms: Math.round(summary.ms) }, 'state rebuilt from the store');
 
+    this.fence = new DeliveryFence((source) => store.position(source)?.sequence ?? 0);
     if (this.options.source) {
       this.source = this.options.source;
+      if (this.options.publisher) this.publishers.push(this.options.publisher);
+    } else if (this.config.scale) {
+      const fence = this.fence;
+      this.worker = new JetStreamWorker({
+        scale: this.config.scale,
+        broker: this.config.broker,
+        subscriptions: daemonSubscriptions(this.config),
+        log: this.log,
+        startAfter: (source) => fence.covered(source),
+      });
+      await this.worker.open();
+      this.source = this.worker.source;
       if (this.options.publisher) this.publishers.push(this.options.publisher);
     } else {
       const subscriptions = daemonSubscriptions(this.config);
@@ -221,7 +239,7 @@ export class Daemon implements DaemonApi {
     this.publishers.push(this.listeners);
     await this.source.start(
       {
-        batch: (batch) => this.ingestion.batch(batch),
+        batch: (batch) => this.ingestion.batch((this.fence as DeliveryFence).filter(batch)),
         connection: (connected, detail) => {
           this.log.info({ broker: this.brokerUrl, connected }, `broker ${detail}`);
           this.queueEvent('daemon', connected ? 'broker-connected' : 'broker-disconnected', null, { broker: this.brokerUrl, detail });
@@ -232,6 +250,7 @@ export class Daemon implements DaemonApi {
       },
       store.position(this.source.name),
     );
+    if (this.worker) await this.worker.startLeases();
     this.timers.push(setInterval(() => this.ingestion.checkStale(), 1000));
     this.timers.push(setInterval(() => this.prune(), 3_600_000));
     for (const timer of this.timers) timer.unref();
@@ -244,7 +263,8 @@ export class Daemon implements DaemonApi {
     for (const timer of this.timers) clearInterval(timer);
     // Commit what is pending with a checkpoint of every channel, acknowledge it, then disconnect.
     this.commits.stop();
-    await this.source?.stop();
+    if (this.worker) await this.worker.stop();
+    else await this.source?.stop();
     this.storeAdapter?.close();
   }
 
@@ -311,12 +331,20 @@ export class Daemon implements DaemonApi {
       database: { path: this.storeAdapter?.location ?? this.config.store.path, bytes: this.storeAdapter?.sizeBytes() ?? 0 },
       channels: this.registry.size,
       restore: { samples: this.restored.samples, ms: this.restored.ms },
+      redeliveriesSkipped: this.fence?.skipped ?? 0,
+      ...(this.worker ? { scale: this.scaleStatus() } : {}),
       memory: process.memoryUsage(),
     };
   }
 
   channels(): ChannelView[] {
     return this.queries.channels();
+  }
+
+  /** With JetStream ingest: this worker's name, the partitions it holds, the live workers. */
+  scaleStatus(): { worker: string; partitions: number[]; workers: string[] } | null {
+    if (this.worker === null || !this.config.scale) return null;
+    return { worker: this.config.scale.worker, partitions: this.worker.owned(), workers: this.worker.workers() };
   }
 
   channel(name: string): ChannelView | null {
