@@ -34,6 +34,12 @@ interface Partition {
   reader: Promise<void> | null;
   /** performance.now() after which the partition is no longer ours (Infinity: no lease). */
   deadline: number;
+  /**
+   * A message arrived past the deadline and was not handed out: from then on nothing of the
+   * partition is (a later message handed out after a dropped one would leave a gap that the
+   * daemon's sequence fence could not tell from a redelivery). Read again only after a new assign.
+   */
+  expired: boolean;
   /** Messages handed out and not yet acknowledged, by stream sequence. */
   outstanding: Map<number, JsMsg>;
   /** Batches handed out and not yet acknowledged. */
@@ -98,10 +104,7 @@ export class JetStreamSampleSource implements SampleSource {
   }
 
   async assign(index: number, startAfter: number | null, deadline = Number.POSITIVE_INFINITY): Promise<void> {
-    if (this.partitions.has(index)) {
-      this.setDeadline(index, deadline);
-      return;
-    }
+    if (this.partitions.has(index)) await this.release(index);
     const nc = this.options.link.nc;
     const stream = this.options.stream;
     const durable = consumerName(stream, index);
@@ -111,7 +114,7 @@ export class JetStreamSampleSource implements SampleSource {
       await jsm.consumers.add(stream, consumerConfig({ stream, subjectPrefix: this.options.subjectPrefix }, index, startAfter));
     }
     const consumer = await jetstream(nc).consumers.get(stream, durable);
-    const partition: Partition = { index, name: this.partitionName(index), epoch: ++this.epochs, messages: null, reader: null, deadline, outstanding: new Map(), tokens: new Set() };
+    const partition: Partition = { index, name: this.partitionName(index), epoch: ++this.epochs, messages: null, reader: null, deadline, expired: false, outstanding: new Map(), tokens: new Set() };
     this.partitions.set(index, partition);
     const messages = await consumer.consume({ max_messages: this.options.fetchBatch ?? 256, expires: 5000 });
     partition.messages = messages;
@@ -124,9 +127,12 @@ export class JetStreamSampleSource implements SampleSource {
     })();
   }
 
-  setDeadline(index: number, deadline: number): void {
+  /** A renewed lease's deadline; false when the partition is not read here any more (it must be assigned again). */
+  setDeadline(index: number, deadline: number): boolean {
     const p = this.partitions.get(index);
-    if (p) p.deadline = deadline;
+    if (!p || p.expired) return false;
+    p.deadline = deadline;
+    return true;
   }
 
   /** Stops reading partition p; what it handed out and was not acknowledged is sent again (to the next owner). */
@@ -134,8 +140,9 @@ export class JetStreamSampleSource implements SampleSource {
     const p = this.partitions.get(index);
     if (!p) return;
     this.partitions.delete(index);
+    // Not waiting for the reader to end (it ends with the pull request in flight): a heartbeat
+    // must not wait that long, the other leases' renewals follow it.
     p.messages?.stop();
-    await p.reader;
     // Delayed: the server would otherwise send them again at once to this connection's pull
     // request, which is still open until it expires or the connection closes.
     this.voidOutstanding(p, performance.now() < p.deadline ? RELEASE_NAK_DELAY_MS : null);
@@ -148,8 +155,14 @@ export class JetStreamSampleSource implements SampleSource {
 
   /** One batch per message: the commit cycle gathers what arrives together into one commit. */
   private take(p: Partition, msg: JsMsg): void {
-    // Past the lease, the partition is someone else's: hand out nothing (the next owner reads it).
-    if (this.partitions.get(p.index) !== p || performance.now() >= p.deadline || this.handlers === null) return;
+    if (this.partitions.get(p.index) !== p || p.expired || this.handlers === null) return;
+    // Past the lease, the partition may be someone else's: hand out nothing more (the next owner,
+    // or this worker after a new assign, reads it from where its state ends).
+    if (performance.now() >= p.deadline) {
+      p.expired = true;
+      p.messages?.stop();
+      return;
+    }
     const topic = subjectToTopic(msg.subject, this.options.subjectPrefix);
     p.outstanding.set(msg.seq, msg);
     const token: JetStreamToken = { source: this.name, partition: p.index, epoch: p.epoch, messages: [msg] };

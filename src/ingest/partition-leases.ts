@@ -26,7 +26,8 @@ import type { KV } from '@nats-io/kv';
 export interface LeaseHandlers {
   /** The partition is ours until `deadline` (performance.now() ms): start reading it. */
   acquired(partition: number, deadline: number): Promise<void>;
-  renewed(partition: number, deadline: number): void;
+  /** The lease was renewed; false when the partition stopped being read (it is released, to be acquired again). */
+  renewed(partition: number, deadline: number): boolean;
   /** Ours no more (a renewal failed or the deadline passed): stop at once, acknowledge nothing. */
   lost(partition: number, reason: string): void;
   /** Give it up cleanly (rebalance, stop): stop reading, let what is committed be acknowledged. */
@@ -130,7 +131,10 @@ export class PartitionLeases {
         const revision = await kv.update(`p.${p}`, worker, h.revision);
         const deadline = sent + this.leaseMs - this.marginMs;
         this.held.set(p, { revision, deadline });
-        handlers.renewed(p, deadline);
+        if (!handlers.renewed(p, deadline)) {
+          await this.release(p);
+          continue;
+        }
       } catch (error) {
         this.held.delete(p);
         handlers.lost(p, `the renewal failed: ${(error as Error).message}`);

@@ -21,7 +21,9 @@ import { startOwnNatsServer, type OwnNatsServer } from '../helpers/nats-server.j
 // counted twice. Skipped with a message when nats-server is not installed.
 
 const P = 4;
+/** Samples per channel before the victim rejoins, and in all. */
 const N = 1200;
+const TOTAL = 1800;
 const T0 = 1_764_000_000;
 const NATS_CHANNELS = ['c0', 'c1', 'c2', 'c3'];
 const MQTT_CHANNELS = ['c4', 'c5', 'c6', 'c7'];
@@ -32,7 +34,7 @@ function series(): Record<string, number[]> {
   const random = new SeededRandom(12);
   const out: Record<string, number[]> = {};
   CHANNELS.forEach((name, i) => {
-    out[name] = ar1Series(random, 0.2 + 0.1 * i, N).map((v) => 20 + i + 0.05 * v);
+    out[name] = Array.from(ar1Series(random, 0.2 + 0.1 * i, TOTAL), (v) => 20 + i + 0.05 * v);
   });
   return out;
 }
@@ -72,6 +74,27 @@ async function counters(w: DaemonProcess): Promise<Counters> {
   return getJson<Counters>(new URL("api/counters", w.url).href);
 }
 
+/** Samples a channel took: those in its window and those its warm-up cut. */
+function taken(view: Record<string, unknown> | undefined): number {
+  return view === undefined ? -1 : Number(view.n) + Number(view.excluded);
+}
+
+/** Every channel of the lab view equals `plateau analyze` on the samples published so far, field for field. */
+async function compare(view: Map<string, Record<string, unknown>>, rows: string[], dir: string, label: string): Promise<void> {
+  const count = rows.length - 1;
+  const file = join(dir, `${label}.csv`);
+  writeFileSync(file, `${rows.join('\n')}\n`);
+  const report = await analyzeFile(file, DEFAULT_CHANNEL_OPTIONS);
+  for (const c of CHANNELS) {
+    const fromLab = view.get(c) as Record<string, unknown>;
+    const fromFile = report.channels.find((x) => x.name === c) as unknown as Record<string, unknown>;
+    expect(taken(fromFile), `${label}: ${c} samples in plateau analyze`).toBe(count);
+    for (const key of ['n', 'mean', 'sd', 'acf', 'tauInt', 'nEff', 'standardUncertainty', 'dof', 'coverageFactor', 'expandedUncertainty', 'confidence', 'state', 'excluded', 'stationarity', 'allan', 'estimators']) {
+      expect(fromLab[key], `${label}: ${c}.${key}`).toEqual(fromFile[key]);
+    }
+  }
+}
+
 describe('a lab of three workers on JetStream', () => {
   it('kill -9 of one worker mid-stream: its partitions are taken over, every channel equals plateau analyze on the same samples', async (context) => {
     if (server === null) return context.skip();
@@ -80,7 +103,7 @@ describe('a lab of three workers on JetStream', () => {
     const nc: NatsConnection = await connect({ servers: server.url });
     let mqtt: MqttClient | null = null;
     try {
-      for (const name of ['w1', 'w2', 'w3']) workers.set(name, await startDaemonProcess(dir, workerConfig(name, dir), `${name}.yaml`));
+      for (const name of ['w1', 'w2', 'w3']) workers.set(name, await startDaemonProcess(dir, workerConfig(name, dir), `${name}.yaml`, join(dir, `${name}.log`)));
       // The partitions spread evenly before the samples come: each worker holds some, none twice.
       const spread = async (live: string[]) => {
         const held = await Promise.all(live.map(async (name) => (await counters(workers.get(name) as DaemonProcess)).scale?.partitions ?? []));
@@ -90,22 +113,37 @@ describe('a lab of three workers on JetStream', () => {
       await waitFor(() => spread(['w1', 'w2', 'w3']), 20_000, 'the partitions to spread over three workers', 200);
       // Which partition each channel lands in (the server's mapping), seen on the partitioned subjects.
       const partitionOf = new Map<string, number>();
-      const sub = nc.subscribe('part.*.lab.>', { callback: (_err, msg) => partitionOf.set(msg.subject.split('.')[4] as string, Number(msg.subject.split('.')[1])) });
-      mqtt = await mqttClient(server.mqttUrl as string, 'rig-b');
+      const sub = nc.subscribe('part.*.lab.>', {
+        callback: (_err, msg) => {
+          partitionOf.set(msg.subject.split('.')[4] as string, Number(msg.subject.split('.')[1]));
+        },
+      });
+      const rig = await mqttClient(server.mqttUrl as string, 'rig-b');
+      mqtt = rig;
       const js = jetstream(nc);
       const data = series();
       const rows = [`time,${CHANNELS.join(',')}`];
       let killedAt = 0;
       let victim = '';
       let victimPartitions: number[] = [];
-      for (let i = 0; i < N; i++) {
-        const t = T0 + i * 0.1;
-        rows.push(`${t},${CHANNELS.map((c) => data[c]?.[i]).join(',')}`);
-        const acks: Promise<unknown>[] = [];
-        for (const c of NATS_CHANNELS) acks.push(js.publish(topicOf(c).split('/').join('.'), JSON.stringify({ v: data[c]?.[i], t })));
-        for (const c of MQTT_CHANNELS) acks.push(publishAsync(mqtt, topicOf(c), JSON.stringify({ v: data[c]?.[i], t }), 1));
-        if (i % 50 === 49) await Promise.all(acks);
-        if (i === N / 2) {
+      // Half the channels over NATS into the stream, half at QoS 1 into the MQTT listener, interleaved.
+      const publish = async (from: number, to: number, midway?: () => Promise<void>) => {
+        let acks: Promise<unknown>[] = [];
+        for (let i = from; i < to; i++) {
+          const t = T0 + i * 0.1;
+          rows.push(`${t},${CHANNELS.map((c) => data[c]?.[i]).join(',')}`);
+          for (const c of NATS_CHANNELS) acks.push(js.publish(topicOf(c).split('/').join('.'), JSON.stringify({ v: data[c]?.[i], t })));
+          for (const c of MQTT_CHANNELS) acks.push(publishAsync(rig, topicOf(c), JSON.stringify({ v: data[c]?.[i], t }), 1));
+          if (i % 50 === 49) {
+            await Promise.all(acks);
+            acks = [];
+          }
+          if (midway && i === Math.floor((from + to) / 2)) await midway();
+        }
+        await Promise.all(acks);
+      };
+      await publish(0, N, async () => {
+        {
           // Kill the worker that holds the most partitions, with SIGKILL: no clean stop, no release.
           const held = await Promise.all([...workers].map(async ([name, w]) => [name, (await counters(w)).scale?.partitions ?? []] as const));
           held.sort((a, b) => b[1].length - a[1].length);
@@ -115,7 +153,7 @@ describe('a lab of three workers on JetStream', () => {
           killedAt = Date.now();
           workers.delete(victim);
         }
-      }
+      });
       const live = [...workers.keys()];
       // Takeover: the survivors hold every partition within the lease time plus a heartbeat or two.
       await waitFor(() => spread(live), 30_000, 'the survivors to hold every partition', 100);
@@ -141,19 +179,23 @@ describe('a lab of three workers on JetStream', () => {
       };
       await waitFor(async () => {
         const view = await lab();
-        return CHANNELS.every((c) => view.get(c)?.n === N);
+        return CHANNELS.every((c) => taken(view.get(c)) === N);
       }, 60_000, `every channel to reach ${N} samples on its owner`, 250);
-      const view = await lab();
-      const file = join(dir, 'same.csv');
-      writeFileSync(file, `${rows.join('\n')}\n`);
-      const report = await analyzeFile(file, DEFAULT_CHANNEL_OPTIONS);
-      for (const c of CHANNELS) {
-        const fromLab = view.get(c) as Record<string, unknown>;
-        const fromFile = report.channels.find((x) => x.name === c) as unknown as Record<string, unknown>;
-        for (const key of ['n', 'mean', 'sd', 'acf', 'tauInt', 'nEff', 'standardUncertainty', 'dof', 'coverageFactor', 'expandedUncertainty', 'confidence', 'state', 'excluded', 'stationarity', 'allan', 'estimators']) {
-          expect(fromLab[key], `${c}.${key}`).toEqual(fromFile[key]);
-        }
-      }
+      await compare(await lab(), rows.slice(0, N + 1), dir, 'after-takeover');
+      // The killed worker comes back on its own SQLite file: the partitions rebalance over three
+      // workers again; it resumes its partitions after the sequence it committed, skipping what it
+      // had taken before it died.
+      workers.set(victim, await startDaemonProcess(dir, workerConfig(victim, dir), `${victim}.yaml`, join(dir, `${victim}.log`)));
+      live.push(victim);
+      await waitFor(() => spread(live), 30_000, 'the partitions to spread over three workers again', 100);
+      await publish(N, TOTAL);
+      await waitFor(async () => {
+        const view = await lab();
+        return CHANNELS.every((c) => taken(view.get(c)) === TOTAL);
+      }, 60_000, `every channel to reach ${TOTAL} samples on its owner`, 250);
+      await compare(await lab(), rows, dir, 'after-rejoin');
+      const rejoined = await counters(workers.get(victim) as DaemonProcess);
+      console.log(`lab: ${victim} rejoined and holds partitions ${rejoined.scale?.partitions.join(',')}; it skipped ${rejoined.redeliveriesSkipped} redelivered sequences`);
       // Nothing was counted twice and nothing refused: redeliveries were skipped by sequence, not
       // caught later by the channels' duplicate rule.
       for (const name of live) {
@@ -161,10 +203,16 @@ describe('a lab of three workers on JetStream', () => {
         expect(k.samples.rejected.duplicate, `${name} duplicates`).toBe(0);
         expect(k.samples.rejected['out-of-order'], `${name} out of order`).toBe(0);
       }
-      console.log(`lab: ${CHANNELS.length} channels x ${N} samples over ${P} partitions; ${victim} (partitions ${victimPartitions.join(',')}) killed at sample ${N / 2}; the survivors held every partition ${takeoverMs} ms later (lease ${LEASE_SECONDS} s)`);
-      expect(victimPartitions.length).toBeGreaterThan(0);
+      const orphaned = CHANNELS.filter((c) => victimPartitions.includes(partitionOf.get(c) as number));
+      console.log(`lab: ${CHANNELS.length} channels x ${TOTAL} samples over ${P} partitions; ${victim} (partitions ${victimPartitions.join(',')}, channels ${orphaned.join(',')}) killed at sample ${N / 2}; the survivors held every partition ${takeoverMs} ms later (lease ${LEASE_SECONDS} s)`);
+      expect(orphaned.length).toBeGreaterThan(0);
     } catch (error) {
+      for (const [name, w] of workers) {
+        const channels = (await getJson<{ channels: Record<string, unknown>[] }>(new URL('api/channels', w.url).href).catch(() => ({ channels: [] }))).channels;
+        console.log(name, channels.map((c) => `${String(c.name)}:${String(c.n)}`).join(' '));
+      }
       for (const [name, w] of workers) console.log(`--- ${name}\n${w.stderr().slice(-3000)}`);
+      console.log(`logs in ${dir}`);
       for (const [name, w] of workers) console.log(name, JSON.stringify(await counters(w).catch((e) => String(e))).slice(0, 600));
       throw error;
     } finally {
