@@ -1,9 +1,9 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { mkdtempSync, writeFileSync } from 'node:fs';
+import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { connect, type NatsConnection } from '@nats-io/transport-node';
-import { jetstream } from '@nats-io/jetstream';
+import { jetstream, jetstreamManager } from '@nats-io/jetstream';
 import type { MqttClient } from 'mqtt';
 import { analyzeFile } from '../../src/cli/analyze.js';
 import { DEFAULT_CHANNEL_OPTIONS } from '../../src/engine/channel-options.js';
@@ -219,6 +219,98 @@ describe('a lab of three workers on JetStream', () => {
       mqtt?.end(true);
       await nc.close();
       for (const w of workers.values()) await killHard(w);
+    }
+  }, 180_000);
+});
+
+describe('lease safety with a real pause', () => {
+  it('a worker stopped with SIGSTOP past its lease takes nothing more of its partitions when it resumes; the lab stays exact', async (context) => {
+    const own = await startOwnNatsServer({ mappings: { 'lab.*.*': `part.{{partition(${P},1,2)}}.lab.{{wildcard(1)}}.{{wildcard(2)}}` } });
+    if (own === null) return context.skip();
+    const dir = mkdtempSync(join(tmpdir(), 'plateau-pause-'));
+    const config = (worker: string) => ({ ...workerConfig(worker, dir), broker: { url: own.url }, scale: { partitions: P, stream: 'PAUSE', worker, leaseSeconds: LEASE_SECONDS, fetchBatch: 64 } });
+    const workers = new Map<string, DaemonProcess>();
+    const nc = await connect({ servers: own.url });
+    const js = jetstream(nc);
+    const data = series();
+    const rows = [`time,${CHANNELS.join(',')}`];
+    const PHASE = 400;
+    const publish = async (from: number, to: number) => {
+      let acks: Promise<unknown>[] = [];
+      for (let i = from; i < to; i++) {
+        const t = T0 + i * 0.1;
+        rows.push(`${t},${CHANNELS.map((c) => data[c]?.[i]).join(',')}`);
+        for (const c of CHANNELS) acks.push(js.publish(`lab.${NATS_CHANNELS.includes(c) ? 'rigA' : 'rigB'}.${c}`, JSON.stringify({ v: data[c]?.[i], t })));
+        if (i % 50 === 49) {
+          await Promise.all(acks);
+          acks = [];
+        }
+      }
+      await Promise.all(acks);
+    };
+    const channelsOf = async (w: DaemonProcess) => new Map((await getJson<{ channels: Record<string, unknown>[] }>(new URL('api/channels', w.url).href)).channels.map((c) => [String(c.name), c] as const));
+    try {
+      for (const name of ['w1', 'w2']) workers.set(name, await startDaemonProcess(dir, config(name), `${name}.yaml`, join(dir, `${name}.log`)));
+      const held = async (name: string) => (await counters(workers.get(name) as DaemonProcess)).scale?.partitions ?? [];
+      await waitFor(async () => (await held('w1')).length === P / 2 && (await held('w2')).length === P / 2, 20_000, 'two partitions each', 100);
+      await publish(0, PHASE);
+      const w1 = workers.get('w1') as DaemonProcess;
+      const w2 = workers.get('w2') as DaemonProcess;
+      const all = async () => {
+        const [a, b] = [await channelsOf(w1), await channelsOf(w2)];
+        return CHANNELS.every((c) => taken(a.get(c)) === PHASE || taken(b.get(c)) === PHASE);
+      };
+      await waitFor(all, 30_000, `every channel to take ${PHASE} samples`, 100);
+      const w1Partitions = await held('w1');
+      const before = await channelsOf(w1);
+      // Freeze w1 past its lease; w2 takes its partitions over; the next samples are published
+      // while w1 is frozen (some reach its socket for the pull requests it had open).
+      w1.child.kill('SIGSTOP');
+      await waitFor(async () => (await held('w2')).length === P, 20_000, 'w2 to hold every partition', 100);
+      await publish(PHASE, 2 * PHASE);
+      w1.child.kill('SIGCONT');
+      // Right after waking, before any rebalance can hand it a partition again: it took nothing.
+      await new Promise((resolve) => setTimeout(resolve, 300));
+      const after = await channelsOf(w1);
+      for (const [name, view] of before) expect(taken(after.get(name)), `${name} on the woken worker`).toBe(taken(view));
+      // The lab ends exact: each channel on the worker holding its partition equals plateau analyze.
+      await waitFor(async () => (await held('w1')).length + (await held('w2')).length === P && (await held('w1')).length > 0, 20_000, 'the partitions to rebalance', 100);
+      // Each channel's partition: the one whose subjects hold its messages (the server's mapping).
+      const jsm = await jetstreamManager(nc);
+      const partitionOfChannel = new Map<string, number>();
+      for (const c of CHANNELS) {
+        for (let p = 0; p < P; p++) {
+          const found = await jsm.streams.getMessage('PAUSE', { last_by_subj: `part.${p}.lab.${NATS_CHANNELS.includes(c) ? 'rigA' : 'rigB'}.${c}` }).catch(() => null);
+          if (found) partitionOfChannel.set(c, p);
+        }
+      }
+      expect(partitionOfChannel.size).toBe(CHANNELS.length);
+      const view = async () => {
+        const out = new Map<string, Record<string, unknown>>();
+        for (const name of ['w1', 'w2']) {
+          const owned = await held(name);
+          const channels = await channelsOf(workers.get(name) as DaemonProcess);
+          for (const c of CHANNELS) if (owned.includes(partitionOfChannel.get(c) as number) && channels.get(c)) out.set(c, channels.get(c) as Record<string, unknown>);
+        }
+        return out;
+      };
+      await waitFor(async () => {
+        const v = await view();
+        return CHANNELS.every((c) => taken(v.get(c)) === 2 * PHASE);
+      }, 60_000, `every channel to take ${2 * PHASE} samples on its owner`, 250);
+      await compare(await view(), rows, dir, 'after-pause');
+      const log = readFileSync(join(dir, 'w1.log'), 'utf8');
+      for (const p of w1Partitions) expect(log).toMatch(new RegExp(`partition ${p} lost: the lease ran out before it was renewed`));
+    } catch (error) {
+      console.log(`logs in ${dir}`);
+      throw error;
+    } finally {
+      await nc.close();
+      for (const w of workers.values()) {
+        w.child.kill('SIGCONT');
+        await killHard(w);
+      }
+      await own.stop();
     }
   }, 180_000);
 });
