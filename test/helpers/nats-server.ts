@@ -29,6 +29,10 @@ export function natsServerBinary(): string | null {
 
 export interface NatsServerOptions {
   mqtt?: boolean;
+  /** A member of a cluster: its name, its route port, and the route ports of all members. */
+  cluster?: { name: string; port: number; routes: number[] };
+  /** The client port (default: a free one). */
+  port?: number;
   /** Subject mappings, source -> destination (the server config's `mappings`). */
   mappings?: Record<string, string>;
 }
@@ -36,16 +40,18 @@ export interface NatsServerOptions {
 export async function startOwnNatsServer(options: NatsServerOptions = {}): Promise<OwnNatsServer | null> {
   const binary = natsServerBinary();
   if (binary === null) return null;
-  const port = await freePort();
+  const port = options.port ?? (await freePort());
   const mqttPort = options.mqtt ? await freePort() : 0;
   const dir = mkdtempSync(join(tmpdir(), 'plateau-nats-'));
   const lines = [`server_name: plateau_test_${port}`, `listen: 127.0.0.1:${port}`, `jetstream { store_dir: ${JSON.stringify(join(dir, 'js'))} }`];
   if (options.mqtt) lines.push(`mqtt { listen: 127.0.0.1:${mqttPort} }`);
+  if (options.cluster) lines.push(`cluster { name: ${options.cluster.name}, listen: 127.0.0.1:${options.cluster.port}, routes: [${options.cluster.routes.map((p) => `nats-route://127.0.0.1:${p}`).join(', ')}] }`);
   if (options.mappings) lines.push(`mappings = { ${Object.entries(options.mappings).map(([from, to]) => `${JSON.stringify(from)}: ${JSON.stringify(to)}`).join(', ')} }`);
   const config = join(dir, 'nats.conf');
   writeFileSync(config, lines.join('\n') + '\n');
   const child: ChildProcess = spawn(binary, ['-c', config], { stdio: ['ignore', 'ignore', 'pipe'] });
   let stderr = '';
+  child.stderr?.resume();
   child.stderr?.on('data', (chunk: Buffer) => (stderr += chunk.toString()));
   const deadline = Date.now() + 10_000;
   while (!(await brokerReachable('127.0.0.1', port, 200)) || (options.mqtt && !(await brokerReachable('127.0.0.1', mqttPort, 200)))) {
@@ -87,4 +93,13 @@ export function freePort(): Promise<number> {
       server.close(() => resolve(port));
     });
   });
+}
+
+/** Three clustered servers with JetStream (R = 3 possible), each with the same mappings; null without the binary. */
+export async function startOwnNatsCluster(options: Omit<NatsServerOptions, 'cluster' | 'port'> = {}): Promise<OwnNatsServer[] | null> {
+  if (natsServerBinary() === null) return null;
+  const routes = [await freePort(), await freePort(), await freePort()];
+  const ports = [await freePort(), await freePort(), await freePort()];
+  const name = `plateau_test_${routes[0]}`;
+  return Promise.all(routes.map(async (route, i) => (await startOwnNatsServer({ ...options, port: ports[i] as number, cluster: { name, port: route, routes } })) as OwnNatsServer));
 }
