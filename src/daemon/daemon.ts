@@ -341,10 +341,22 @@ export class Daemon implements DaemonApi {
     return this.queries.channels();
   }
 
-  /** With JetStream ingest: this worker's name, the partitions it holds, the live workers. */
-  scaleStatus(): { worker: string; partitions: number[]; workers: string[] } | null {
+  /**
+   * With JetStream ingest: this worker's name, the partitions it holds, the live workers, and per
+   * channel the partition its latest sample came from (null: not since this process started) and
+   * whether this worker holds it now (a channel of a partition that moved away is stale here: its
+   * owner has the current state).
+   */
+  scaleStatus(): { worker: string; partitions: number[]; workers: string[]; channels: { name: string; partition: number | null; held: boolean }[] } | null {
     if (this.worker === null || !this.config.scale) return null;
-    return { worker: this.config.scale.worker, partitions: this.worker.owned(), workers: this.worker.workers() };
+    const partitions = this.worker.owned();
+    const prefix = `${this.worker.source.name}/p`;
+    const channels = this.registry.all().map((channel) => {
+      const log = this.ingestion.logOf(channel.name);
+      const partition = log !== null && log.startsWith(prefix) ? Number(log.slice(prefix.length)) : null;
+      return { name: channel.name, partition, held: partition !== null && partitions.includes(partition) };
+    });
+    return { worker: this.config.scale.worker, partitions, workers: this.worker.workers(), channels };
   }
 
   channel(name: string): ChannelView | null {

@@ -67,6 +67,8 @@ interface Tracked {
   /** Wall-clock ms of the last sample (NaN: none since the start). */
   lastArrival: number;
   derivedInput: boolean;
+  /** The durable log (a JetStream partition's) of the channel's latest sample; null: none or not durable. */
+  log: string | null;
 }
 
 export class Ingest {
@@ -79,10 +81,17 @@ export class Ingest {
   private readonly lagSeconds = new Float64Array(LAG_BASELINE_SECONDS).fill(-Infinity);
   private readonly lagMinima = new Float64Array(LAG_BASELINE_SECONDS);
   private lagWarned = false;
+  /** The durable log of the delivery being ingested (null for a source without durable positions). */
+  private currentLog: string | null = null;
 
   constructor(options: IngestOptions) {
     this.options = options;
     this.commandPrefix = `${options.commandTopic}/`;
+  }
+
+  /** The durable log (for example a JetStream partition's) the channel's latest sample came from; null when unknown. */
+  logOf(name: string): string | null {
+    return this.tracked.get(name)?.log ?? null;
   }
 
   /** A channel the store already has (restored at start). */
@@ -117,7 +126,7 @@ export class Ingest {
     let tracked = this.tracked.get(name);
     if (tracked === undefined) {
       const channel = this.options.registry.ensure(name, unit ?? this.options.configuredUnit(name));
-      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name) };
+      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name), log: null };
       this.tracked.set(name, tracked);
     } else if (unit !== null && tracked.channel.unit === null) tracked.channel.unit = unit;
     return tracked;
@@ -132,6 +141,7 @@ export class Ingest {
   batch(batch: SourceBatch): void {
     const pending = this.options.batch;
     for (const delivery of batch.deliveries) {
+      this.currentLog = delivery.position.durable ? delivery.position.source : null;
       this.message(delivery.topic, delivery.payload, delivery.subscription);
       if (delivery.position.durable) pending.setPosition(delivery.position);
     }
@@ -168,6 +178,7 @@ export class Ingest {
       if (sample.stamped && sample.timeMs > latestStamp) latestStamp = sample.timeMs;
       const channel = tracked.channel;
       tracked.lastArrival = arrival;
+      tracked.log = this.currentLog;
       if (!tracked.introduced) this.introduce(channel);
       batch.addSample(channel.name, result.seq, result.timeMs, sample.value, sample.stamped);
       // The channel took the sample and then the engine failed on it: the sample is stored (nothing

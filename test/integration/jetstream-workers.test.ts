@@ -46,7 +46,7 @@ function topicOf(channel: string): string {
 interface Counters {
   samples: { accepted: number; rejected: Record<string, number> };
   redeliveriesSkipped: number;
-  scale?: { worker: string; partitions: number[]; workers: string[] };
+  scale?: { worker: string; partitions: number[]; workers: string[]; channels: { name: string; partition: number | null; held: boolean }[] };
 }
 
 let server: OwnNatsServer | null = null;
@@ -182,6 +182,21 @@ describe('a lab of three workers on JetStream', () => {
         return CHANNELS.every((c) => taken(view.get(c)) === N);
       }, 60_000, `every channel to reach ${N} samples on its owner`, 250);
       await compare(await lab(), rows.slice(0, N + 1), dir, 'after-takeover');
+      // Each worker says which channels it holds now: every channel held by exactly one live
+      // worker, in the partition the server's mapping put it in (a copy left on a worker whose
+      // partition moved away says it is not held).
+      const holders = async () => {
+        const out = new Map<string, string[]>();
+        for (const name of live) {
+          for (const ch of (await counters(workers.get(name) as DaemonProcess)).scale?.channels ?? []) {
+            if (!ch.held) continue;
+            expect(ch.partition, `${ch.name} on ${name}`).toBe(partitionOf.get(ch.name));
+            out.set(ch.name, [...(out.get(ch.name) ?? []), name]);
+          }
+        }
+        return out;
+      };
+      for (const c of CHANNELS) expect((await holders()).get(c), c).toHaveLength(1);
       // The killed worker comes back on its own SQLite file: the partitions rebalance over three
       // workers again; it resumes its partitions after the sequence it committed, skipping what it
       // had taken before it died.
@@ -194,6 +209,7 @@ describe('a lab of three workers on JetStream', () => {
         return CHANNELS.every((c) => taken(view.get(c)) === TOTAL);
       }, 60_000, `every channel to reach ${TOTAL} samples on its owner`, 250);
       await compare(await lab(), rows, dir, 'after-rejoin');
+      for (const c of CHANNELS) expect((await holders()).get(c), c).toHaveLength(1);
       const rejoined = await counters(workers.get(victim) as DaemonProcess);
       console.log(`lab: ${victim} rejoined and holds partitions ${rejoined.scale?.partitions.join(',')}; it skipped ${rejoined.redeliveriesSkipped} redelivered sequences`);
       // Nothing was counted twice and nothing refused: redeliveries were skipped by sequence, not
