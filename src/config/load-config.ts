@@ -69,7 +69,7 @@ export function parseConfig(document: unknown, source = 'config'): PlateauConfig
     else r.problem('broker.url', `expected a NATS URL such as nats://127.0.0.1:4222, got ${describe(url)}`);
   }
   if (!nats && url !== 'embedded' && !/^(mqtts?|wss?|tcp|tls):\/\/[^\s]+$/.test(url)) r.problem('broker.url', `expected "embedded", a URL such as mqtt://127.0.0.1:1883, or nats://host:port (JetStream), got ${describe(url)}`);
-  const scale = readScale(r, root.scale, natsUrls, nats);
+
   const tlsSection = brokerSection.tls === undefined ? null : r.section(brokerSection.tls, 'broker.tls', ['caFile', 'certFile', 'keyFile', 'rejectUnauthorized']);
   const protocol = r.oneOf(brokerSection, 'protocolVersion', 'broker', [4, 5] as const, 4);
   const broker = {
@@ -91,6 +91,9 @@ export function parseConfig(document: unknown, source = 'config'): PlateauConfig
     keepaliveSeconds: r.number(brokerSection, 'keepaliveSeconds', 'broker', { min: 1, max: 65535, integer: true }, 30),
     reconnectPeriodMs: r.number(brokerSection, 'reconnectPeriodMs', 'broker', { min: 100, max: 600_000, integer: true }, 1000),
   };
+
+  const scale = readScale(r, root.scale, natsUrls, nats);
+  if (nats && broker.tls !== null && !broker.tls.rejectUnauthorized) r.problem('broker.tls.rejectUnauthorized', 'a NATS server\'s certificate is always verified: give its CA in broker.tls.caFile instead');
 
   const subscriptions: SubscriptionConfig[] = [];
   const subscriptionList = r.list(root.subscriptions, 'subscriptions');

@@ -19,7 +19,7 @@ export interface WorkerLog {
 
 export interface JetStreamWorkerOptions {
   scale: ScaleConfig;
-  broker: Pick<BrokerConfig, 'username' | 'password'>;
+  broker: Pick<BrokerConfig, 'username' | 'password'> & { tls?: BrokerConfig['tls'] };
   subscriptions: SubscriptionConfig[];
   log: WorkerLog;
   /** The stream sequence this worker's state covers for a partition's log (0: nothing). */
@@ -39,7 +39,7 @@ export class JetStreamWorker {
   constructor(options: JetStreamWorkerOptions) {
     this.options = options;
     const { scale } = options;
-    this.link = new NatsLink({ servers: scale.servers, name: `plateau ${scale.worker}`, username: options.broker.username, password: options.broker.password });
+    this.link = new NatsLink({ servers: scale.servers, name: `plateau ${scale.worker}`, username: options.broker.username, password: options.broker.password, tls: options.broker.tls ?? null });
     this.source = new JetStreamSampleSource({ link: this.link, stream: scale.stream, subjectPrefix: scale.subjectPrefix, subscriptions: options.subscriptions, fetchBatch: scale.fetchBatch, ownsLink: false });
   }
 

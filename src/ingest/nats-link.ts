@@ -11,6 +11,8 @@ export interface NatsLinkOptions {
   name: string;
   username?: string | null;
   password?: string | null;
+  /** TLS as for MQTT (`broker.tls`): a CA to trust, a client certificate and key (the server's certificate is always verified). */
+  tls?: { caFile: string | null; certFile: string | null; keyFile: string | null; rejectUnauthorized: boolean } | null;
   /** Wait for the first connection at most this long (ms). */
   connectTimeoutMs?: number;
   reconnectMs?: number;
@@ -42,6 +44,13 @@ export class NatsLink {
     };
     if (this.options.username) options.user = this.options.username;
     if (this.options.password) options.pass = this.options.password;
+    const tls = this.options.tls;
+    if (tls) {
+      options.tls = {};
+      if (tls.caFile) options.tls.caFile = tls.caFile;
+      if (tls.certFile) options.tls.certFile = tls.certFile;
+      if (tls.keyFile) options.tls.keyFile = tls.keyFile;
+    }
     const nc = await connect(options);
     this.connection = nc;
     this.up = true;

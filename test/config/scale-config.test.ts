@@ -34,6 +34,7 @@ describe('scale configuration', () => {
       expect(lines.filter((line) => line.startsWith(`${key}:`)), key).toHaveLength(1);
     }
     expect(problems({ broker: { url: 'mqtt://127.0.0.1:1883' }, scale: { worker: 'bay-1' } })).toEqual(['scale: applies only to a NATS broker (broker.url: nats://host:port); remove it or point broker.url at a NATS server']);
+    expect(problems({ broker: { url: 'nats://127.0.0.1:4222', tls: { caFile: 'ca.pem', rejectUnauthorized: false } }, scale: { worker: 'bay-1' } })).toEqual(["broker.tls.rejectUnauthorized: a NATS server's certificate is always verified: give its CA in broker.tls.caFile instead"]);
     expect(problems({ broker: { url: 'nats://' }, scale: { worker: 'bay-1' } })).toEqual(['broker.url: expected a NATS URL such as nats://127.0.0.1:4222, got "nats://"']);
   });
 });

@@ -33,6 +33,8 @@ export interface NatsServerOptions {
   cluster?: { name: string; port: number; routes: number[] };
   /** The client port (default: a free one). */
   port?: number;
+  /** More lines of server configuration (tls { ... }, authorization { ... }). */
+  extra?: string[];
   /** Subject mappings, source -> destination (the server config's `mappings`). */
   mappings?: Record<string, string>;
 }
@@ -47,6 +49,7 @@ export async function startOwnNatsServer(options: NatsServerOptions = {}): Promi
   if (options.mqtt) lines.push(`mqtt { listen: 127.0.0.1:${mqttPort} }`);
   if (options.cluster) lines.push(`cluster { name: ${options.cluster.name}, listen: 127.0.0.1:${options.cluster.port}, routes: [${options.cluster.routes.map((p) => `nats-route://127.0.0.1:${p}`).join(', ')}] }`);
   if (options.mappings) lines.push(`mappings = { ${Object.entries(options.mappings).map(([from, to]) => `${JSON.stringify(from)}: ${JSON.stringify(to)}`).join(', ')} }`);
+  if (options.extra) lines.push(...options.extra);
   const config = join(dir, 'nats.conf');
   writeFileSync(config, lines.join('\n') + '\n');
   const child: ChildProcess = spawn(binary, ['-c', config], { stdio: ['ignore', 'ignore', 'pipe'] });

@@ -38,7 +38,7 @@ describe('the server objects, declared or checked at start-up', () => {
     const worker = new JetStreamWorker({ scale: { ...scale({}), servers: [`nats://127.0.0.1:${port}`] }, broker: { username: null, password: null }, subscriptions: [], log: silent, startAfter: () => 0 });
     const error = await worker.open().then(() => null, (e: unknown) => e as Error & { code: string });
     expect(error?.code).toBe('ERR_SCALE_UNREACHABLE');
-    expect(error?.message).toMatch(new RegExp(`^cannot reach the NATS server at nats://127\\.0\\.0\\.1:${port} \\(.+\\)$`));
+    expect(error?.message).toMatch(new RegExp(`^cannot connect to the NATS server at nats://127\\.0\\.0\\.1:${port} \\(.+\\)$`));
     expect(error?.message.split('\n')).toHaveLength(1);
   });
 
