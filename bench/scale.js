@@ -6,6 +6,7 @@
 //    the survivor (goal < 5 s with the default lease of 3 s);
 //  - a projection of the workers a 10^7 samples/s lab needs from the measured worker rate.
 // It starts its own nats-server (Debian's package) on free loopback ports. Run: npm run bench:scale
+// (FETCH=n sets scale.fetchBatch of the worker; SKIP_TAKEOVER=1 measures the rates only; QUICK=1 is smaller).
 import { spawn } from 'node:child_process';
 import { createServer, connect as tcp } from 'node:net';
 import { mkdirSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
@@ -88,7 +89,7 @@ async function bareConsumer(url, stream) {
 async function oneWorker(url, stream, dir) {
   const config = parseConfig({
     broker: { url },
-    scale: { worker: 'bench-1', partitions: 1, stream, leaseSeconds: 3 },
+    scale: { worker: 'bench-1', partitions: 1, stream, leaseSeconds: 3, fetchBatch: Number(process.env.FETCH ?? 256) },
     subscriptions: [{ topic: 'lab/+/+', format: 'json', channel: '{3}', samplesField: 's', valueField: 'v', timeField: 't', timeUnit: 's', maxSamples: 10_000 }],
     channels: { defaults: { window: { kind: 'sliding', samples: 4096 } } },
     store: { path: join(dir, 'worker.sqlite') },
