@@ -7,6 +7,7 @@ import { ESTIMATOR_NAMES } from '../core/tau/tau-estimate.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
 import { DEFAULT_CHANNEL_OPTIONS, DEFAULT_MAX_SAMPLES, type WindowSpec } from '../engine/channel-options.js';
 import { readCriteria } from './criteria-config.js';
+import { isNatsUrl, readScale } from './scale-config.js';
 
 export { ConfigError };
 
@@ -55,10 +56,26 @@ export function loadConfigFile(path: string, options: { requireSubscriptions?: b
 /** Validates a parsed configuration document and fills in defaults. */
 export function parseConfig(document: unknown, source = 'config', options: { requireSubscriptions?: boolean } = {}): PlateauConfig {
   const r = new ConfigReader();
-  const root = r.section(document ?? {}, '', ['broker', 'subscriptions', 'channels', 'derived', 'store', 'http', 'topics', 'log']);
+  const root = r.section(document ?? {}, '', ['broker', 'subscriptions', 'channels', 'derived', 'store', 'http', 'topics', 'log', 'scale']);
   const brokerSection = r.section(root.broker, 'broker', ['url', 'clientId', 'username', 'password', 'tls', 'protocolVersion', 'qos', 'sessionExpirySeconds', 'keepaliveSeconds', 'reconnectPeriodMs']);
-  const url = r.string(brokerSection, 'url', 'broker', 'embedded');
-  if (url !== 'embedded' && !/^(mqtts?|wss?|tcp|tls):\/\/[^\s]+$/.test(url)) r.problem('broker.url', `expected "embedded" or a URL such as mqtt://127.0.0.1:1883, got ${describe(url)}`);
+  // A list of URLs is a NATS cluster (JetStream ingest, see scale-config.ts); one nats:// URL too.
+  const urlList = Array.isArray(brokerSection.url) ? (brokerSection.url as unknown[]) : null;
+  const nats = urlList !== null || (typeof brokerSection.url === 'string' && brokerSection.url.startsWith('nats://'));
+  const natsUrls: string[] = [];
+  if (urlList !== null) {
+    if (urlList.length === 0) r.problem('broker.url', 'an empty list: give one or more NATS URLs such as nats://127.0.0.1:4222');
+    urlList.forEach((item, index) => {
+      if (typeof item === 'string' && isNatsUrl(item)) natsUrls.push(item);
+      else r.problem(join('broker.url', index), `expected a NATS URL such as nats://127.0.0.1:4222 (a list of URLs is a NATS cluster), got ${describe(item)}`);
+    });
+  }
+  const url = urlList !== null ? natsUrls.join(',') : r.string(brokerSection, 'url', 'broker', 'embedded');
+  if (urlList === null && nats) {
+    if (isNatsUrl(url)) natsUrls.push(url);
+    else r.problem('broker.url', `expected a NATS URL such as nats://127.0.0.1:4222, got ${describe(url)}`);
+  }
+  if (!nats && url !== 'embedded' && !/^(mqtts?|wss?|tcp|tls):\/\/[^\s]+$/.test(url)) r.problem('broker.url', `expected "embedded", a URL such as mqtt://127.0.0.1:1883, or nats://host:port (JetStream), got ${describe(url)}`);
+
   const tlsSection = brokerSection.tls === undefined ? null : r.section(brokerSection.tls, 'broker.tls', ['caFile', 'certFile', 'keyFile', 'rejectUnauthorized']);
   const protocol = r.oneOf(brokerSection, 'protocolVersion', 'broker', [4, 5] as const, 4);
   const broker = {
@@ -80,6 +97,9 @@ export function parseConfig(document: unknown, source = 'config', options: { req
     keepaliveSeconds: r.number(brokerSection, 'keepaliveSeconds', 'broker', { min: 1, max: 65535, integer: true }, 30),
     reconnectPeriodMs: r.number(brokerSection, 'reconnectPeriodMs', 'broker', { min: 100, max: 600_000, integer: true }, 1000),
   };
+
+  const scale = readScale(r, root.scale, natsUrls, nats);
+  if (nats && broker.tls !== null && !broker.tls.rejectUnauthorized) r.problem('broker.tls.rejectUnauthorized', 'a NATS server\'s certificate is always verified: give its CA in broker.tls.caFile instead');
 
   const subscriptions: SubscriptionConfig[] = [];
   const subscriptionList = r.list(root.subscriptions, 'subscriptions');
@@ -182,7 +202,7 @@ export function parseConfig(document: unknown, source = 'config', options: { req
   const logSection = r.section(root.log, 'log', ['level']);
   const log = { level: r.oneOf(logSection, 'level', 'log', ['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent'] as const, 'info') };
   r.throwIfProblems();
-  return { source, broker, subscriptions, channels: { defaults, groups }, derived, store, http, topics, log };
+  return { source, broker, subscriptions, channels: { defaults, groups }, derived, store, http, topics, log, ...(scale !== null ? { scale } : {}) };
 }
 
 const SETTING_KEYS = ['window', 'maxLag', 'estimator', 'warmup', 'confidence', 'target', 'falseAlarmSamples', 'staleSeconds', 'rate', 'range', 'unit', 'criteria'];

@@ -4,6 +4,7 @@ import type { WarmupSetting } from '../engine/warmup-detector.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
 import type { WindowSpec } from '../engine/channel-options.js';
 import type { CriteriaSettings } from './criteria-config.js';
+import type { ScaleConfig } from './scale-config.js';
 
 /** The daemon's whole configuration, after validation and defaults. Units are in the key names. */
 export interface PlateauConfig {
@@ -17,10 +18,12 @@ export interface PlateauConfig {
   http: HttpConfig;
   topics: TopicsConfig;
   log: { level: 'fatal' | 'error' | 'warn' | 'info' | 'debug' | 'trace' | 'silent' };
+  /** Present when broker.url is nats://: JetStream ingest with partitions and leases. */
+  scale?: ScaleConfig;
 }
 
 export interface BrokerConfig {
-  /** mqtt://host:port, mqtts://host:port, or "embedded" for the in-process broker. */
+  /** mqtt://host:port, mqtts://host:port, "embedded" for the in-process broker, or nats:// URLs joined by commas (see `scale`). */
   url: string;
   clientId: string;
   username: string | null;

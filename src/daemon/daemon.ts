@@ -9,6 +9,7 @@ import { REJECT_REASONS } from '../ingest/sample.js';
 import { MqttConnection } from '../ingest/mqtt-connection.js';
 import { MqttSampleSource } from '../ingest/mqtt-sample-source.js';
 import { MqttPublisher } from '../ingest/mqtt-publisher.js';
+import { JetStreamWorker } from '../ingest/jetstream-worker.js';
 import { SqliteStore } from '../store/sqlite-store.js';
 import { SystemClock } from '../clock/system-clock.js';
 import { PlateauError } from '../errors/catalogue.js';
@@ -21,6 +22,7 @@ import { Acknowledgements, ACKNOWLEDGED_KIND, ALERT_KINDS } from './acknowledgem
 import { CheckpointSchedule } from './checkpoint-schedule.js';
 import { Commands } from './commands.js';
 import { CommitCycle } from './commit-cycle.js';
+import { DeliveryFence } from './delivery-fence.js';
 import { DerivedResults } from './derived-results.js';
 import { Ingest, type IngestCounters } from './ingest.js';
 import { ListenerPublisher } from './listener-publisher.js';
@@ -92,6 +94,9 @@ export class Daemon implements DaemonApi {
   private source: SampleSource | null = null;
   /** The MQTT connection the daemon built (null when it was given a source): decoders publish on it (Sparkplug B rebirth requests). */
   private connection: MqttConnection | null = null;
+  /** With `broker.url: nats://...`: this worker's partitions, leases and JetStream source. */
+  private worker: JetStreamWorker | null = null;
+  private fence: DeliveryFence | null = null;
   private timers: NodeJS.Timeout[] = [];
   private restored = { samples: 0, ms: 0 };
   private stopped = false;
@@ -222,8 +227,21 @@ export class Daemon implements DaemonApi {
     this.restored = { samples: summary.replayed, ms: summary.ms };
     this.log.info({ channels: summary.channels, checkpoints: summary.outcomes, replayedSamples: summary.replayed, ms: Math.round(summary.ms) }, 'state rebuilt from the store');
 
+    this.fence = new DeliveryFence((source) => store.position(source)?.sequence ?? 0);
     if (this.options.source) {
       this.source = this.options.source;
+      if (this.options.publisher) this.publishers.push(this.options.publisher);
+    } else if (this.config.scale) {
+      const fence = this.fence;
+      this.worker = new JetStreamWorker({
+        scale: this.config.scale,
+        broker: this.config.broker,
+        subscriptions: daemonSubscriptions(this.config),
+        log: this.log,
+        startAfter: (source) => fence.covered(source),
+      });
+      await this.worker.open();
+      this.source = this.worker.source;
       if (this.options.publisher) this.publishers.push(this.options.publisher);
     } else {
       const subscriptions = daemonSubscriptions(this.config);
@@ -235,7 +253,7 @@ export class Daemon implements DaemonApi {
     this.publishers.push(this.listeners);
     await this.source.start(
       {
-        batch: (batch) => this.ingestion.batch(batch),
+        batch: (batch) => this.ingestion.batch((this.fence as DeliveryFence).filter(batch)),
         connection: (connected, detail) => {
           this.log.info({ broker: this.brokerUrl, connected }, `broker ${detail}`);
           this.queueEvent('daemon', connected ? 'broker-connected' : 'broker-disconnected', null, { broker: this.brokerUrl, detail });
@@ -246,6 +264,7 @@ export class Daemon implements DaemonApi {
       },
       store.position(this.source.name),
     );
+    if (this.worker) await this.worker.startLeases();
     this.timers.push(setInterval(() => this.ingestion.checkStale(), 1000));
     this.timers.push(setInterval(() => this.prune(), 3_600_000));
     for (const timer of this.timers) timer.unref();
@@ -258,7 +277,8 @@ export class Daemon implements DaemonApi {
     for (const timer of this.timers) clearInterval(timer);
     // Commit what is pending with a checkpoint of every channel, acknowledge it, then disconnect.
     this.commits.stop();
-    await this.source?.stop();
+    if (this.worker) await this.worker.stop();
+    else await this.source?.stop();
     this.storeAdapter?.close();
   }
 
@@ -329,12 +349,32 @@ export class Daemon implements DaemonApi {
       database: { path: this.storeAdapter?.location ?? this.config.store.path, bytes: this.storeAdapter?.sizeBytes() ?? 0 },
       channels: this.registry.size,
       restore: { samples: this.restored.samples, ms: this.restored.ms },
+      redeliveriesSkipped: this.fence?.skipped ?? 0,
+      ...(this.worker ? { scale: this.scaleStatus() } : {}),
       memory: process.memoryUsage(),
     };
   }
 
   channels(): ChannelView[] {
     return this.queries.channels();
+  }
+
+  /**
+   * With JetStream ingest: this worker's name, the partitions it holds, the live workers, and per
+   * channel the partition its latest sample came from (null: not since this process started) and
+   * whether this worker holds it now (a channel of a partition that moved away is stale here: its
+   * owner has the current state).
+   */
+  scaleStatus(): { worker: string; partitions: number[]; workers: string[]; channels: { name: string; partition: number | null; held: boolean }[] } | null {
+    if (this.worker === null || !this.config.scale) return null;
+    const partitions = this.worker.owned();
+    const prefix = `${this.worker.source.name}/p`;
+    const channels = this.registry.all().map((channel) => {
+      const log = this.ingestion.logOf(channel.name);
+      const partition = log !== null && log.startsWith(prefix) ? Number(log.slice(prefix.length)) : null;
+      return { name: channel.name, partition, held: partition !== null && partitions.includes(partition) };
+    });
+    return { worker: this.config.scale.worker, partitions, workers: this.worker.workers(), channels };
   }
 
   channel(name: string): ChannelView | null {

@@ -77,6 +77,8 @@ interface Tracked {
   derivedInput: boolean;
   /** Samples that never came (by the time stamps, or a source's sequence numbers). */
   gaps: GapDetector;
+  /** The durable log (a JetStream partition's) of the channel's latest sample; null: none or not durable. */
+  log: string | null;
 }
 
 export class Ingest {
@@ -91,10 +93,17 @@ export class Ingest {
   private readonly lagSeconds = new Float64Array(LAG_BASELINE_SECONDS).fill(-Infinity);
   private readonly lagMinima = new Float64Array(LAG_BASELINE_SECONDS);
   private lagWarned = false;
+  /** The durable log of the delivery being ingested (null for a source without durable positions). */
+  private currentLog: string | null = null;
 
   constructor(options: IngestOptions) {
     this.options = options;
     this.commandPrefix = `${options.commandTopic}/`;
+  }
+
+  /** The durable log (for example a JetStream partition's) the channel's latest sample came from; null when unknown. */
+  logOf(name: string): string | null {
+    return this.tracked.get(name)?.log ?? null;
   }
 
   /** A channel the store already has (restored at start). */
@@ -129,7 +138,7 @@ export class Ingest {
     let tracked = this.tracked.get(name);
     if (tracked === undefined) {
       const channel = this.options.registry.ensure(name, unit ?? this.options.configuredUnit(name));
-      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name), gaps: new GapDetector(this.options.expectedIntervalMs?.(name) ?? null) };
+      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name), gaps: new GapDetector(this.options.expectedIntervalMs?.(name) ?? null), log: null };
       this.tracked.set(name, tracked);
     } else if (unit !== null && tracked.channel.unit === null) tracked.channel.unit = unit;
     return tracked;
@@ -144,6 +153,7 @@ export class Ingest {
   batch(batch: SourceBatch): void {
     const pending = this.options.batch;
     for (const delivery of batch.deliveries) {
+      this.currentLog = delivery.position.durable ? delivery.position.source : null;
       this.message(delivery.topic, delivery.payload, delivery.subscription);
       if (delivery.position.durable) pending.setPosition(delivery.position);
     }
@@ -246,6 +256,7 @@ export class Ingest {
     this.counters.accepted++;
     if (result.late) this.counters.late++;
     tracked.lastArrival = arrival;
+    tracked.log = this.currentLog;
     if (!tracked.introduced) this.introduce(channel);
     this.options.batch.addSample(channel.name, result.seq, result.timeMs, value, stamped);
     // The channel took the sample and then the engine failed on it: the sample is stored (nothing

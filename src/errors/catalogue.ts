@@ -64,6 +64,9 @@ export const ERRORS = {
   ERR_TEST_POINT_UNKNOWN: { status: 404, exit: USER, message: 'no test point {id}' },
   ERR_TEST_POINT_STOPPED: { status: 409, exit: USER, message: 'test point {id} is already stopped' },
   ERR_TEST_POINT_ANNOTATIONS: { status: 409, exit: USER, message: 'test point {id} has {max} annotations, the most it keeps' },
+  // Scale-out on NATS JetStream (start-up of a worker).
+  ERR_SCALE_UNREACHABLE: { status: 503, exit: USER, message: 'cannot connect to the NATS server at {servers} ({detail})' },
+  ERR_SCALE_LAYOUT: { status: 500, exit: USER, message: '{detail}' },
   // Defects.
   ERR_INTERNAL: { status: 500, exit: INTERNAL, message: 'internal error (see the daemon log)' },
 } as const satisfies Record<string, ErrorEntry>;

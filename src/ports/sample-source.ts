@@ -1,16 +1,16 @@
 import type { SubscriptionConfig } from '../config/plateau-config.js';
 
 /**
- * The sample-source port: where measurement messages come from (MQTT today, a stream with durable
- * positions such as JetStream next). Implementations: MqttSampleSource (src/ingest) and
- * MemorySampleSource (src/ingest, tests and embedding); test/contract/sample-source.contract.ts
- * runs the same suite against both.
+ * The sample-source port: where measurement messages come from (MQTT, or the partitions of a
+ * JetStream stream with durable positions). Implementations: MqttSampleSource,
+ * JetStreamSampleSource and MemorySampleSource (src/ingest, the last for tests and embedding);
+ * test/contract/sample-source.contract.ts runs the same suite against each.
  *
  * A source hands out batches of deliveries, each batch with one acknowledgement token. The daemon
  * acknowledges a token only after the samples of its batch are committed to the store; until then
  * the source must be able to deliver the batch again (after a reconnect or a restart). Contract:
  * - every delivery carries its topic, its payload, the configured subscription it matched (null
- *   when none does) and its position in the source; positions of one source increase;
+ *   when none does) and its position in the source; positions of one log increase;
  * - `acknowledge(tokens)` releases exactly those batches (a token twice, or a token from before a
  *   reconnect, is ignored: the source redelivers what the old connection held);
  * - a batch that is never acknowledged is delivered again by a new connection or a new instance
@@ -22,7 +22,11 @@ import type { SubscriptionConfig } from '../config/plateau-config.js';
  *   never acknowledges.
  */
 export interface SourcePosition {
-  /** The source's name (stable across restarts: what a durable position is stored under). */
+  /**
+   * The log the sequence belongs to, stable across restarts (what a durable position is stored
+   * under): the source's name, or for a partitioned source one partition's log, `<name>/p<p>`
+   * (JetStreamSampleSource); positions increase per log.
+   */
   source: string;
   /** Increases with every delivery of the source. */
   sequence: number;

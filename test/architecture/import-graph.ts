@@ -27,7 +27,7 @@ export const RULES: Record<string, LayerRule> = {
   ports: { layers: ['core', 'engine', 'config'], packages: [] },
   clock: { layers: ['ports'], packages: [] },
   net: { layers: [], packages: ['node:net'] },
-  ingest: { layers: ['core', 'engine', 'config', 'ports', 'errors', 'net'], packages: ['mqtt', 'aedes', 'cbor-x', 'protobufjs', 'node:*'] },
+  ingest: { layers: ['core', 'engine', 'config', 'ports', 'errors', 'net'], packages: ['mqtt', 'aedes', 'cbor-x', 'protobufjs', '@nats-io/transport-node', '@nats-io/jetstream', '@nats-io/kv', 'node:*'] },
   store: { layers: ['ports', 'errors'], packages: ['better-sqlite3', 'node:*'] },
   server: { layers: ['core', 'engine', 'ports', 'errors', 'net'], packages: ['fastify', 'ws', 'pino', 'node:*'] },
   daemon: { layers: ['core', 'engine', 'config', 'ports', 'errors', 'clock', 'ingest', 'store'], packages: ['pino', 'node:*'] },

@@ -39,8 +39,8 @@ describe('configuration validation', () => {
     });
     expect(lines).toEqual(
       expect.arrayContaining([
-        'extra: unknown key (expected one of broker, subscriptions, channels, derived, store, http, topics, log)',
-        'broker.url: expected "embedded" or a URL such as mqtt://127.0.0.1:1883, got "http://nowhere"',
+        'extra: unknown key (expected one of broker, subscriptions, channels, derived, store, http, topics, log, scale)',
+        'broker.url: expected "embedded", a URL such as mqtt://127.0.0.1:1883, or nats://host:port (JetStream), got "http://nowhere"',
         'broker.protocolVersion: expected one of 4, 5, got 3',
         'broker.qos: expected one of 0, 1, got 2',
         'broker.keepaliveSeconds: expected a whole number at least 1 and at most 65535, got -1',

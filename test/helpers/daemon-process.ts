@@ -1,5 +1,5 @@
 import { spawn, type ChildProcess } from 'node:child_process';
-import { writeFileSync } from 'node:fs';
+import { openSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { stringify } from 'yaml';
 import { ROOT } from './reference.js';
@@ -11,10 +11,12 @@ export interface DaemonProcess {
   stderr: () => string;
 }
 
-export async function startDaemonProcess(dir: string, config: Record<string, unknown>, name = 'daemon.yaml'): Promise<DaemonProcess> {
+export async function startDaemonProcess(dir: string, config: Record<string, unknown>, name = 'daemon.yaml', logFile?: string): Promise<DaemonProcess> {
   const file = join(dir, name);
   writeFileSync(file, stringify(config));
-  const child = spawn(process.execPath, [join(ROOT, 'bin', 'plateau.js'), 'run', '--config', file], { stdio: ['ignore', 'ignore', 'pipe'] });
+  // The log (stdout) is dropped, or appended to `logFile`.
+  const stdout = logFile === undefined ? 'ignore' : openSync(logFile, 'a');
+  const child = spawn(process.execPath, [join(ROOT, 'bin', 'plateau.js'), 'run', '--config', file], { stdio: ['ignore', stdout, 'pipe'] });
   let text = '';
   child.stderr?.on('data', (chunk: Buffer) => {
     text += chunk.toString();

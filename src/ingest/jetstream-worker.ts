@@ -1,0 +1,115 @@
+import type { BrokerConfig, SubscriptionConfig } from '../config/plateau-config.js';
+import type { ScaleConfig } from '../config/scale-config.js';
+import { PlateauError } from '../errors/catalogue.js';
+import { declareLayout, leaseBucket } from './jetstream-layout.js';
+import { JetStreamSampleSource } from './jetstream-sample-source.js';
+import { NatsLink } from './nats-link.js';
+import { PartitionLeases } from './partition-leases.js';
+
+/**
+ * One worker of a lab on NATS JetStream: its connection, the server objects (declared or checked),
+ * its sample source and its partition leases, wired together. The daemon builds one when
+ * `broker.url` is nats:// and gives it `startAfter`: the stream sequence its own state covers for a
+ * partition (what it committed, or took since), where a partition it acquires resumes.
+ */
+export interface WorkerLog {
+  info(object: Record<string, unknown>, message: string): void;
+  warn(object: Record<string, unknown>, message: string): void;
+}
+
+export interface JetStreamWorkerOptions {
+  scale: ScaleConfig;
+  broker: Pick<BrokerConfig, 'username' | 'password'> & { tls?: BrokerConfig['tls'] };
+  subscriptions: SubscriptionConfig[];
+  log: WorkerLog;
+  /** The stream sequence this worker's state covers for a partition's log (0: nothing). */
+  startAfter(partitionSource: string): number;
+  /** Partitions held changed (for the API and the log). */
+  changed?(owned: number[]): void;
+}
+
+export class JetStreamWorker {
+  readonly link: NatsLink;
+  readonly source: JetStreamSampleSource;
+  private leases: PartitionLeases | null = null;
+  private readonly options: JetStreamWorkerOptions;
+  /** Monotonic time of each acquisition (for the takeover figures). */
+  readonly acquisitions: { partition: number; at: number; startAfter: number }[] = [];
+
+  constructor(options: JetStreamWorkerOptions) {
+    this.options = options;
+    const { scale } = options;
+    this.link = new NatsLink({ servers: scale.servers, name: `plateau ${scale.worker}`, username: options.broker.username, password: options.broker.password, tls: options.broker.tls ?? null });
+    this.source = new JetStreamSampleSource({ link: this.link, stream: scale.stream, subjectPrefix: scale.subjectPrefix, subscriptions: options.subscriptions, fetchBatch: scale.fetchBatch, ownsLink: false });
+  }
+
+  /** Connects and declares or checks the server objects: one clear error when the server is not there, one line per disagreement. */
+  async open(): Promise<void> {
+    const { scale, log } = this.options;
+    let nc;
+    try {
+      nc = await this.link.open();
+    } catch (error) {
+      throw new PlateauError('ERR_SCALE_UNREACHABLE', { servers: scale.servers.join(', '), detail: (error as Error).message });
+    }
+    const report = await declareLayout(nc, scale);
+    for (const note of report.notes) log.warn({ stream: scale.stream }, note);
+    if (report.problems.length > 0) {
+      await this.link.close();
+      throw new PlateauError('ERR_SCALE_LAYOUT', { detail: report.problems.join('\n') });
+    }
+  }
+
+  /** The partitions held now. */
+  owned(): number[] {
+    return this.leases?.owned() ?? [];
+  }
+
+  /** Live workers seen at the last heartbeat. */
+  workers(): string[] {
+    return this.leases?.workers ?? [];
+  }
+
+  /** Starts the leases (after the source has started): partitions are read as they are acquired. */
+  async startLeases(): Promise<void> {
+    const { scale, log } = this.options;
+    const kv = await leaseBucket(this.link.nc, scale);
+    const source = this.source;
+    this.leases = new PartitionLeases({
+      kv,
+      worker: scale.worker,
+      partitions: scale.partitions,
+      leaseSeconds: scale.leaseSeconds,
+      handlers: {
+        acquired: async (p, deadline) => {
+          const startAfter = this.options.startAfter(source.partitionName(p));
+          this.acquisitions.push({ partition: p, at: performance.now(), startAfter });
+          await source.assign(p, startAfter, deadline);
+          log.info({ partition: p, startAfter, worker: scale.worker }, `partition ${p} acquired: reading from stream sequence ${startAfter + 1}`);
+          this.options.changed?.(this.owned());
+        },
+        renewed: (p, deadline) => source.setDeadline(p, deadline),
+        lost: (p, reason) => {
+          source.setDeadline(p, 0);
+          void source.release(p);
+          log.warn({ partition: p, worker: scale.worker }, `partition ${p} lost: ${reason}; it is no longer read or acknowledged here`);
+          this.options.changed?.(this.owned());
+        },
+        release: async (p) => {
+          await source.release(p);
+          log.info({ partition: p, worker: scale.worker }, `partition ${p} released`);
+          this.options.changed?.(this.owned().filter((q) => q !== p));
+        },
+        error: (error) => log.warn({ err: error }, 'partition leases'),
+      },
+    });
+    await this.leases.start();
+  }
+
+  /** Releases every lease (the partitions move to the other workers at once) and closes the connection. */
+  async stop(): Promise<void> {
+    await this.source.stop();
+    await this.leases?.stop();
+    await this.link.close();
+  }
+}
