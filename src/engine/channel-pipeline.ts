@@ -18,6 +18,8 @@ import { stationarityReport, allanReport, type StationarityReport, type AllanRep
 import type { WindowedSeriesState } from '../core/window/windowed-series.js';
 import { channelVerdict, type ChannelVerdict } from './channel-verdict.js';
 import { expectRecord, type StateRecord } from '../core/state/record.js';
+import { channelCombined, verdictWithStopping, type CombinedReport, type ConformityReport } from './channel-combined.js';
+import { DEFAULT_UNCERTAINTY_SETTINGS } from './channel-options.js';
 
 /** One estimator's result as reported in a snapshot. */
 export interface EstimatorReport {
@@ -97,6 +99,10 @@ export interface ChannelSnapshot {
   events: ChannelEvent[];
   eventCount: number;
   notes: string[];
+  /** Type A with the Type B components: u_c, nu_eff, k, U, the budget and the stopping rule (null without a Type A u). */
+  combined: CombinedReport | null;
+  /** Conformity with the configured limits and decision rule (null without limits or without u_c). */
+  conformity: ConformityReport | null;
 }
 
 /** A channel at a glance (live displays, retained status messages). */
@@ -124,6 +130,7 @@ const SHARED_FFT = new AutocovarianceFft();
 const SHARED_PERIODOGRAM = new PeriodogramWorkspace();
 const NO_EVENTS: readonly ChannelEvent[] = Object.freeze([]);
 
+type TypeASnapshot = Omit<ChannelSnapshot, 'combined' | 'conformity'>;
 type SnapshotBase = Pick<ChannelSnapshot, 'name' | 'n' | 'confidence' | 'estimator' | 'window' | 'rate' | 'received' | 'last' | 'state' | 'excluded' | 'events' | 'eventCount'>;
 
 function finiteOrNull(value: number): number | null {
@@ -946,7 +953,7 @@ export class ChannelPipeline {
   }
 
   /** Snapshot of an empty, one-sample or constant window: the mean where there is one, and why no uncertainty. */
-  private degenerateSnapshot(base: SnapshotBase, notes: string[]): ChannelSnapshot {
+  private degenerateSnapshot(base: SnapshotBase, notes: string[]): TypeASnapshot {
     const n = base.n;
     const none = {
       sd: null,
@@ -1011,12 +1018,22 @@ export class ChannelPipeline {
   snapshot(): ChannelSnapshot {
     const key = `${this.series.firstIndex}:${this.series.nextIndex}:${this.eventCount}:${this.stale}`;
     if (this.snapshotCache?.key === key) return this.snapshotCache.snapshot;
-    const snapshot = this.computeSnapshot();
+    const snapshot = this.withCombined(this.computeSnapshot());
     this.snapshotCache = { key, snapshot };
     return snapshot;
   }
 
-  private computeSnapshot(): ChannelSnapshot {
+  /** The combined uncertainty, the stopping rule and conformity (channel-combined.ts), from the Type A snapshot. */
+  private withCombined(snapshot: TypeASnapshot): ChannelSnapshot {
+    const settings = this.options.uncertainty ?? DEFAULT_UNCERTAINTY_SETTINGS;
+    if (snapshot.mean === null || snapshot.standardUncertainty === null || snapshot.dof === null || !(snapshot.dof > 0) || snapshot.n < 2) return { ...snapshot, combined: null, conformity: null };
+    const capacity = snapshot.window.kind === 'growing' ? Math.max(snapshot.window.capacity, snapshot.n) : snapshot.window.capacity;
+    const { combined, conformity } = channelCombined({ name: this.name, mean: snapshot.mean, n: snapshot.n, standardUncertainty: snapshot.standardUncertainty, dof: snapshot.dof, confidence: snapshot.confidence, rate: snapshot.rate, capacity, lattice: snapshot.resolution, settings, typeATarget: this.options.target });
+    const steady = snapshot.state === 'steady' || snapshot.state === 'precise';
+    return { ...snapshot, combined, conformity, verdict: verdictWithStopping(snapshot.verdict, combined.stopping, steady) };
+  }
+
+  private computeSnapshot(): TypeASnapshot {
     const { options, series } = this;
     const n = series.length;
     const notes: string[] = [];
