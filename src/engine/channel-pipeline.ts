@@ -124,6 +124,9 @@ export interface ChannelSummary {
   target: TargetStatus | null;
   estimator: MethodName | null;
   verdict: ChannelVerdict;
+  /** u_c, nu_eff, k, U and the stopping rule, when Type B components, limits or a stopping rule are configured. */
+  combined?: Pick<CombinedReport, 'value' | 'standardUncertainty' | 'dof' | 'coverageFactor' | 'expandedUncertainty' | 'stopping'> | null;
+  conformity?: Pick<ConformityReport, 'rule' | 'verdict' | 'probability'> | null;
 }
 
 const SHARED_FFT = new AutocovarianceFft();
@@ -998,6 +1001,33 @@ export class ChannelPipeline {
    * deviation, only the reported estimator. Cost: one estimator run (tens of microseconds).
    */
   summary(): ChannelSummary {
+    return this.summaryWithCombined(this.typeASummary());
+  }
+
+  /**
+   * The summary with the combined uncertainty and conformity when the channel has Type B
+   * components, limits or a stopping rule (the verdict then includes the stopping rule, so a test
+   * point's readiness honours it). O(n) for the lattice check of the resolution component.
+   */
+  private summaryWithCombined(summary: ChannelSummary): ChannelSummary {
+    const settings = this.options.uncertainty ?? DEFAULT_UNCERTAINTY_SETTINGS;
+    const configured = settings.typeB.length > 0 || settings.conformity !== null || settings.combinedTarget !== null || settings.dominanceFraction !== null;
+    if (!configured || summary.mean === null || summary.standardUncertainty === null || summary.n < 2) return configured ? { ...summary, combined: null, conformity: null } : summary;
+    const lattice = settings.proposeResolution ? detectLattice(this.series.values()) : null;
+    const growing = this.growing;
+    const capacity = growing ? Math.max(this.series.maxSamples, summary.n) : this.series.maxSamples;
+    const dof = summary.dof !== null && summary.dof > 0 ? summary.dof : summary.n - 1;
+    const { combined, conformity } = channelCombined({ name: this.name, mean: summary.mean, n: summary.n, standardUncertainty: summary.standardUncertainty, dof, confidence: summary.confidence, rate: this.rate(), capacity, lattice, settings, typeATarget: this.options.target });
+    const steady = summary.state === 'steady' || summary.state === 'precise';
+    return {
+      ...summary,
+      verdict: verdictWithStopping(summary.verdict, combined.stopping, steady),
+      combined: { value: combined.value, standardUncertainty: combined.standardUncertainty, dof: combined.dof, coverageFactor: combined.coverageFactor, expandedUncertainty: combined.expandedUncertainty, stopping: combined.stopping },
+      conformity: conformity === null ? null : { rule: conformity.rule, verdict: conformity.verdict, probability: conformity.probability },
+    };
+  }
+
+  private typeASummary(): ChannelSummary {
     const { series, options } = this;
     const n = series.length;
     const base = { name: this.name, state: this.state, n, received: this.received, last: this.received > 0 ? { value: this.lastValue, time: finiteOrNull(this.lastTime) } : null, confidence: options.confidence, excluded: this.excluded };

@@ -1,6 +1,7 @@
 import type { ChannelSnapshot } from './channel-pipeline.js';
 import type { BootstrapCheck } from './derived/bootstrap-cross-check.js';
 import { csvText } from './csv-text.js';
+import type { CombinedReport, ConformityReport } from './channel-combined.js';
 
 /**
  * The record of a test point: per channel the result as a test report or calibration certificate
@@ -40,10 +41,25 @@ export interface RecordEntry {
   statement: string;
   /** Stationary-bootstrap cross-check of u (and of the median and a trimmed mean), when run. */
   bootstrap?: BootstrapCheck | null;
+  /** Type A with the Type B components: u_c, nu_eff, k, U and the budget (issue 10). */
+  combined?: CombinedReport | null;
+  /** Conformity with the stated decision rule and the conformance probability. */
+  conformity?: ConformityReport | null;
+  /**
+   * The channel was not ready when the record was made (never steady, a break, a target or the
+   * stopping rule not met): the record calls the result provisional and says why, and the
+   * statement is not styled as a GUM statement.
+   */
+  provisional?: boolean;
+  provisionalReasons?: string[];
 }
 
 export interface TestPointRecord {
   testPoint: { id: string; name: string };
+  /** "<test point id>/<n>": 1 for the first record of the test point, 2 for a stop record after a ready one. */
+  recordNumber?: string;
+  /** Some entry was not ready when the record was made (each entry says why). */
+  provisional?: boolean;
   kind: 'ready' | 'stopped';
   createdAt: string;
   entries: RecordEntry[];
@@ -89,8 +105,31 @@ export function recordEntry(snapshot: ChannelSnapshot, unit: string | null): Rec
       kpssStatistic: tests?.kpss?.statistic ?? null,
       kpssPassed: tests?.kpss?.passed ?? null,
     },
-    statement: gumStatement(snapshot.name, snapshot.mean, snapshot.standardUncertainty, snapshot.expandedUncertainty, snapshot.coverageFactor, snapshot.dof, snapshot.confidence, unit),
+    statement: entryStatement(snapshot, unit),
+    combined: snapshot.combined,
+    conformity: snapshot.conformity,
+    provisional: !snapshot.verdict.ready,
+    provisionalReasons: snapshot.verdict.pending.map((p) => p.message),
   };
+}
+
+/**
+ * The statement of a record entry: the GUM 7.2.4 wording for a ready channel, of the combined
+ * result when Type B components are configured (the Type A one otherwise); for a channel that was
+ * not ready, a provisional line that says why and is not styled as a statement of a result.
+ */
+function entryStatement(snapshot: ChannelSnapshot, unit: string | null): string {
+  const c = snapshot.combined;
+  const withTypeB = c !== null && c.budget.some((b) => b.evaluation === 'B');
+  if (!snapshot.verdict.ready) {
+    const units = unit ? ` ${unit}` : '';
+    const value = withTypeB ? c.value : snapshot.mean;
+    const u = withTypeB ? c.standardUncertainty : snapshot.standardUncertainty;
+    const figures = value === null ? 'no value' : `value ${value}${units}${u === null ? '' : `, standard uncertainty ${u.toPrecision(2)}${units}`}`;
+    return `${snapshot.name}: PROVISIONAL, not a measurement result to report (${snapshot.verdict.pending.map((p) => p.message).join('; ')}); ${figures}`;
+  }
+  if (withTypeB) return gumStatement(snapshot.name, c.value, c.standardUncertainty, c.expandedUncertainty, c.coverageFactor, c.dof ?? Number.POSITIVE_INFINITY, c.confidence, unit);
+  return gumStatement(snapshot.name, snapshot.mean, snapshot.standardUncertainty, snapshot.expandedUncertainty, snapshot.coverageFactor, snapshot.dof, snapshot.confidence, unit);
 }
 
 /**
@@ -116,15 +155,32 @@ function roundPair(value: number, uncertainty: number): { value: string; uncerta
 
 const CSV_COLUMNS: (keyof RecordEntry)[] = ['channel', 'unit', 'mean', 'standardUncertainty', 'dof', 'coverageFactor', 'expandedUncertainty', 'confidence', 'n', 'nEff', 'tauInt', 'estimator', 'state', 'verdict', 'steadyStart', 'excluded', 'windowStartIndex', 'windowEndIndex', 'windowStartTime', 'windowEndTime'];
 
-/** CSV (RFC 4180) of a record's entries; full-precision numbers, one row per channel. */
+/**
+ * CSV (RFC 4180) of a record's entries; full-precision numbers, one row per channel; then the
+ * combined uncertainty, the conformity outcome with its decision rule, whether the entry is
+ * provisional and why, and the caution (in every row, so that no extract of the file loses it).
+ */
 export function recordCsv(record: TestPointRecord): string {
-  const header = [...CSV_COLUMNS, 'heidelbergerWelchPassed', 'gewekeZ', 'kpssStatistic', 'statement'];
+  const header = [...CSV_COLUMNS, 'heidelbergerWelchPassed', 'gewekeZ', 'kpssStatistic', 'statement', 'combinedStandardUncertainty', 'combinedDof', 'combinedCoverageFactor', 'combinedExpandedUncertainty', 'decisionRule', 'lowerLimit', 'upperLimit', 'guardBand', 'conformity', 'conformanceProbability', 'provisional', 'provisionalReasons', 'caution'];
   const rows = record.entries.map((entry) => [
     ...CSV_COLUMNS.map((key) => entry[key] as unknown),
     entry.tests.heidelbergerWelchPassed,
     entry.tests.gewekeZ,
     entry.tests.kpssStatistic,
     entry.statement,
+    entry.combined?.standardUncertainty ?? null,
+    entry.combined?.dof ?? null,
+    entry.combined?.coverageFactor ?? null,
+    entry.combined?.expandedUncertainty ?? null,
+    entry.conformity?.rule ?? null,
+    entry.conformity?.lower ?? null,
+    entry.conformity?.upper ?? null,
+    entry.conformity?.guardBand ?? null,
+    entry.conformity?.verdict ?? null,
+    entry.conformity?.probability ?? null,
+    entry.provisional ?? null,
+    (entry.provisionalReasons ?? []).join('; '),
+    record.caution,
   ]);
   return csvText(header, rows);
 }

@@ -21,7 +21,9 @@ export type TestPointState = 'running' | 'ready' | 'stopped';
 function channelReady(pipeline: ChannelPipeline | undefined): boolean {
   if (!pipeline) return false;
   const state = pipeline.state;
-  if (state !== 'precise' && !(state === 'steady' && !pipeline.options.target)) return false;
+  // a stopping rule (u_A <= f u_c) can make a steady channel ready before its Type A target
+  const stoppingRule = (pipeline.options.uncertainty?.dominanceFraction ?? null) !== null;
+  if (state !== 'precise' && !(state === 'steady' && (!pipeline.options.target || stoppingRule))) return false;
   return pipeline.summary().verdict.ready;
 }
 
@@ -164,17 +166,21 @@ export class TestPoints {
   }
 
   record(point: TestPoint, kind: 'ready' | 'stopped', nowMs: number): TestPointRecord {
+    const entries = point.channels.map((name) => {
+      const channel = this.registry.get(name);
+      if (!channel) throw new Error(`test point ${point.id}: channel ${name} is not in the registry`);
+      const snapshot = channel.pipeline.snapshot();
+      // The stationary bootstrap's standard error beside the analytic one (a cross-check).
+      return { ...recordEntry(snapshot, channel.unit), bootstrap: channelBootstrapCheck(channel.pipeline.series.values(), snapshot) };
+    });
     return {
       testPoint: { id: point.id, name: point.name },
+      // the ready record is the first; the stop record is the second when the point was ready before
+      recordNumber: `${point.id}/${kind === 'stopped' && point.readyMs !== null ? 2 : 1}`,
       kind,
       createdAt: new Date(nowMs).toISOString(),
-      entries: point.channels.map((name) => {
-        const channel = this.registry.get(name);
-        if (!channel) throw new Error(`test point ${point.id}: channel ${name} is not in the registry`);
-        const snapshot = channel.pipeline.snapshot();
-        // The stationary bootstrap's standard error beside the analytic one (a cross-check).
-        return { ...recordEntry(snapshot, channel.unit), bootstrap: channelBootstrapCheck(channel.pipeline.series.values(), snapshot) };
-      }),
+      provisional: entries.some((e) => e.provisional === true),
+      entries,
       derived: this.derived ? this.derived.recordEntries(point.derived) : [],
       caution: RECORD_CAUTION,
     };
