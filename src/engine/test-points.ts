@@ -101,6 +101,13 @@ export class TestPoints {
     if (!ID_PATTERN.test(id)) throw new PlateauError('ERR_TEST_POINT_ID', { id: id.slice(0, 80) });
     const existing = this.points.get(id);
     if (existing && existing.state !== 'stopped') throw new PlateauError('ERR_TEST_POINT_RUNNING', { id });
+    // a channel that has never received a sample is refused rather than created empty (a typo would otherwise wait forever)
+    for (const name of channels) {
+      if (this.registry.get(name) === undefined) {
+        const known = this.registry.all().map((c) => c.name);
+        throw new PlateauError('ERR_TEST_POINT_CHANNEL_UNKNOWN', { name: name.slice(0, 80), known: known.length === 0 ? 'none yet' : `${known.slice(0, 20).join(', ')}${known.length > 20 ? `, ... (${known.length} in all)` : ''}` });
+      }
+    }
     const marks: { channel: string; seq: number }[] = [];
     const startSeq: Record<string, number> = {};
     for (const name of channels) {
