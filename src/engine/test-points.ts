@@ -88,7 +88,11 @@ export class TestPoints {
     }
   }
 
-  start(request: { id?: string; name?: string; channels: string[]; derived?: string[] }, nowMs: number, knownDerived: string[] = []): TestPointChange {
+  /**
+   * `expected`: channels the configuration names (inputs of derived results), accepted before their
+   * first sample; any other channel that has never had a sample is refused.
+   */
+  start(request: { id?: string; name?: string; channels: string[]; derived?: string[] }, nowMs: number, knownDerived: string[] = [], expected: (channel: string) => boolean = () => false): TestPointChange {
     const channels = [...new Set(request.channels)];
     if (channels.length === 0 && (request.derived ?? []).length === 0) throw new PlateauError('ERR_TEST_POINT_EMPTY');
     for (const name of channels) {
@@ -103,7 +107,7 @@ export class TestPoints {
     if (existing && existing.state !== 'stopped') throw new PlateauError('ERR_TEST_POINT_RUNNING', { id });
     // a channel that has never received a sample is refused rather than created empty (a typo would otherwise wait forever)
     for (const name of channels) {
-      if (this.registry.get(name) === undefined) {
+      if (this.registry.get(name) === undefined && !expected(name)) {
         const known = this.registry.all().map((c) => c.name);
         throw new PlateauError('ERR_TEST_POINT_CHANNEL_UNKNOWN', { name: name.slice(0, 80), known: known.length === 0 ? 'none yet' : `${known.slice(0, 20).join(', ')}${known.length > 20 ? `, ... (${known.length} in all)` : ''}` });
       }
