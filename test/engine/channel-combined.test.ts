@@ -99,6 +99,19 @@ describe('the stopping rule u_A <= f u_c and the combined target in the verdict'
     expect(later.verdict.pending.map((p) => p.condition)).not.toContain('stopping');
   });
 
+  it('the summary (what test-point readiness reads) carries the same verdict, u_c and conformity as the snapshot', () => {
+    const options = { uncertainty: settings({ typeB: [certificate], dominanceFraction: 0.2, conformity: { limits: { lower: 29, upper: 31 }, rule: { kind: 'simple' as const } } }) };
+    const pipeline = feed(series(400), options);
+    const snapshot = pipeline.snapshot();
+    const summary = pipeline.summary();
+    expect(summary.verdict).toEqual(snapshot.verdict);
+    expect(summary.combined?.standardUncertainty).toBe(snapshot.combined?.standardUncertainty);
+    expect(summary.combined?.stopping).toEqual(snapshot.combined?.stopping);
+    expect(summary.conformity).toEqual({ rule: 'simple', verdict: snapshot.conformity?.verdict, probability: snapshot.conformity?.probability });
+    // nothing configured: the summary stays as it was
+    expect(feed(series(400)).summary().combined).toBeUndefined();
+  });
+
   it('a combined target that cannot be met (Type B alone exceeds it) says so; a reachable one is waited for', () => {
     const unreachable = feed(series(400), { uncertainty: settings({ typeB: [certificate], combinedTarget: { value: 0.009, relative: false, on: 'u' } }) }).snapshot();
     expect(unreachable.combined?.stopping?.waitingFor).toBeNull();
@@ -130,5 +143,34 @@ describe('readings on a lattice: the resolution component proposed', () => {
     const s = feed(new Float64Array(100).fill(20.5), { uncertainty: settings({ typeB: [{ name: 'display', kind: 'resolution', step: 0.1 }] }) }).snapshot();
     expect(s.combined?.standardUncertainty).toBeCloseTo(0.1 / Math.sqrt(12), 12);
     expect(s.combined?.dof).toBeNull();
+  });
+});
+
+describe('Monte Carlo: a channel on a lattice, through the pipeline snapshot (seeded)', () => {
+  // An AR(1) process (phi 0.5, marginal sd a quarter of the step) read through an indication of resolution 1, the
+  // true mean uniform within a step (the state of knowledge the rectangular resolution component describes, GUM
+  // F.2.2.1), as test/core/uncertainty/lattice-coverage.test.ts does with the core functions; here the proposed
+  // component and the combined interval are the snapshot's own (`combined`), with no configuration at all.
+  // 400 replicates: the Monte Carlo standard error of a coverage near 0.95 is sqrt(0.95 x 0.05 / 400) = 0.011.
+  it('the resolution component is proposed in every replicate; combined coverage >= 0.93 where the Type A interval falls short', () => {
+    const replicates = 400;
+    let proposed = 0;
+    let coveredA = 0;
+    let coveredCombined = 0;
+    for (let r = 0; r < replicates; r++) {
+      const random = new SeededRandom(92_000 + r);
+      const trueMean = 20 + random.uniform();
+      const x = ar1(random, 0.5, 1000, { sigma: 0.25 * Math.sqrt(1 - 0.25) });
+      for (let i = 0; i < x.length; i++) x[i] = (x[i] as number) + trueMean;
+      const s = feed(quantise(x, 1)).snapshot();
+      if (s.combined?.budget.some((b) => b.proposed && b.kind === 'resolution')) proposed++;
+      const error = Math.abs((s.mean as number) - trueMean);
+      if (error <= (s.expandedUncertainty as number)) coveredA++;
+      if (error <= (s.combined?.expandedUncertainty as number)) coveredCombined++;
+    }
+    console.log(`lattice channel through the pipeline: proposed ${proposed}/${replicates}; coverage Type A ${(coveredA / replicates).toFixed(3)}, combined ${(coveredCombined / replicates).toFixed(3)}`);
+    expect(proposed).toBe(replicates);
+    expect(coveredCombined / replicates).toBeGreaterThanOrEqual(0.93);
+    expect(coveredA / replicates).toBeLessThan(0.93);
   });
 });
