@@ -20,6 +20,7 @@ import { channelVerdict, type ChannelVerdict } from './channel-verdict.js';
 import { expectRecord, type StateRecord } from '../core/state/record.js';
 import { channelCombined, verdictWithStopping, type CombinedReport, type ConformityReport } from './channel-combined.js';
 import { DEFAULT_UNCERTAINTY_SETTINGS } from './channel-options.js';
+import type { Verdict } from '../core/conformity/decision-rule.js';
 
 /** One estimator's result as reported in a snapshot. */
 export interface EstimatorReport {
@@ -204,6 +205,8 @@ export interface ChannelPipelineState extends StateRecord<'channel-pipeline', ty
   stale: boolean;
   lostBefore: boolean;
   averagingLimitSeen: boolean;
+  /** The conformity outcome last announced (absent in checkpoints written before it existed). */
+  lastConformity?: Verdict | null;
   monitor: MonitorState | null;
   brokenMonitor: MonitorState | null;
   indicator: CaoRhinehartState;
@@ -245,6 +248,7 @@ export class ChannelPipeline {
   private stale = false;
   private lostBefore = false;
   private averagingLimitSeen = false;
+  private lastConformity: Verdict | null = null;
   private monitor: StationarityMonitor | null = null;
   /** The monitor that raised the last break (its CUSUM trace stays on display). */
   private brokenMonitor: StationarityMonitor | null = null;
@@ -359,6 +363,8 @@ export class ChannelPipeline {
   private raise(event: ChannelEvent): void {
     (this.pendingEvents ??= []).push(event);
     this.remember(event);
+    // conformity is judged afresh once the channel is steady again
+    if (event.kind === 'stationarity-lost' || event.kind === 'steady-withdrawn') this.lastConformity = null;
   }
 
   /**
@@ -391,6 +397,7 @@ export class ChannelPipeline {
     this.regainedAt = -1;
     this.excluded = 0;
     this.averagingLimitSeen = false;
+    this.lastConformity = null;
     this.nextAllanCheck = this.windowOrigin + 256;
     this.diagnosis = null;
     this.nextDiagnosis = this.windowOrigin + DIAGNOSIS_SEGMENT;
@@ -483,6 +490,7 @@ export class ChannelPipeline {
       stale: this.stale,
       lostBefore: this.lostBefore,
       averagingLimitSeen: this.averagingLimitSeen,
+      lastConformity: this.lastConformity,
       monitor: this.monitor ? this.monitor.saveState() : null,
       brokenMonitor: this.brokenMonitor ? this.brokenMonitor.saveState() : null,
       indicator: this.indicator.state(),
@@ -526,6 +534,7 @@ export class ChannelPipeline {
     this.stale = state.stale;
     this.lostBefore = state.lostBefore;
     this.averagingLimitSeen = state.averagingLimitSeen;
+    this.lastConformity = state.lastConformity ?? null;
     this.monitor = state.monitor ? StationarityMonitor.fromState(state.monitor) : null;
     this.brokenMonitor = state.brokenMonitor ? StationarityMonitor.fromState(state.brokenMonitor) : null;
     this.indicator = CaoRhinehartFilter.fromState(state.indicator);
@@ -914,6 +923,7 @@ export class ChannelPipeline {
     }
     const reported = this.options.estimator === 'auto' ? detector : this.estimatorSet.estimate(this.series, this.options.estimator, this.diagnosis);
     this.estimatorSet.maintainLags(this.series, reported);
+    this.checkConformity(index, reported, n);
     const target = this.options.target;
     if (!target) return;
     const u = meanUncertainty(withAnticorrelationFloor(reported, n), this.options.confidence);
@@ -927,6 +937,26 @@ export class ChannelPipeline {
       const achieved = target.on === 'u' ? u.standardUncertainty : (u.expandedUncertainty ?? Number.POSITIVE_INFINITY);
       if (achieved > PRECISION_REARM * status.bound || longMemory) this.precise = false;
     }
+  }
+
+  /**
+   * Conformity on the precision checks' schedule while steady: the outcome of the decision rule
+   * with the combined uncertainty (channel-combined.ts); a `conformity-changed` event when it
+   * differs from the one last announced (edge-triggered; forgotten when stationarity is lost or the
+   * window restarts). Costs one combined evaluation and, with the resolution proposal, O(n) for the
+   * lattice check, every 1/16 of the window.
+   */
+  private checkConformity(index: number, reported: TauEstimate, n: number): void {
+    const settings = this.options.uncertainty;
+    if (!settings?.conformity) return;
+    const u = meanUncertainty(withAnticorrelationFloor(reported, n), this.options.confidence);
+    if (!(u.dof > 0) || !Number.isFinite(u.standardUncertainty)) return;
+    const lattice = settings.proposeResolution ? detectLattice(this.series.values()) : null;
+    const { conformity } = channelCombined({ name: this.name, mean: this.series.mean, n, standardUncertainty: u.standardUncertainty, dof: u.dof, confidence: this.options.confidence, rate: null, capacity: Number.POSITIVE_INFINITY, lattice, settings: { ...settings, combinedTarget: null, dominanceFraction: null }, typeATarget: null });
+    if (conformity === null || conformity.verdict === null || conformity.verdict === this.lastConformity) return;
+    const previous = this.lastConformity;
+    this.lastConformity = conformity.verdict;
+    this.raise({ kind: 'conformity-changed', at: index, verdict: conformity.verdict, previous, rule: conformity.rule, probability: conformity.probability, value: conformity.value, expandedUncertainty: conformity.expandedUncertainty });
   }
 
   private checkAveragingLimit(index: number): void {

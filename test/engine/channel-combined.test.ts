@@ -174,3 +174,31 @@ describe('Monte Carlo: a channel on a lattice, through the pipeline snapshot (se
     expect(coveredA / replicates).toBeLessThan(0.93);
   });
 });
+
+describe('the conformity-changed event', () => {
+  it('is raised once the steady channel is judged, and again when the outcome changes; the same samples give the same events', () => {
+    // a level that steps from inside the limits to beyond them: pass, then (after the break and the new steady state) fail
+    // (the regain after a break needs twice the evidence of the first verdict: 24,000 samples after the step)
+    const n = 6000;
+    const x = series(5 * n);
+    for (let i = n; i < 5 * n; i++) x[i] = (x[i] as number) + 1;
+    const options = { detectors: true, uncertainty: settings({ typeB: [certificate], conformity: { limits: { lower: 29.5, upper: 30.5 }, rule: { kind: 'simple' as const } } }) };
+    const events = (values: Float64Array) => {
+      const pipeline = feed(values, options);
+      return pipeline.snapshot().events.filter((e) => e.kind === 'conformity-changed');
+    };
+    const first = events(x.slice(0, n));
+    expect(first.map((e) => (e as { verdict: string }).verdict)).toEqual(['pass']);
+    const both = events(x);
+    expect(both.map((e) => [(e as { verdict: string }).verdict, (e as { previous: string | null }).previous])).toEqual([
+      ['pass', null],
+      ['fail', null], // forgotten when stationarity was lost: judged afresh
+    ]);
+    const all = feed(x, options).snapshot().events;
+    // judged while steady: the second outcome comes no earlier than the regained verdict
+    const regained = all.find((e) => e.kind === 'stationarity-regained');
+    expect(regained).toBeDefined();
+    expect((both[1] as { at: number }).at).toBeGreaterThanOrEqual((regained as { at: number }).at);
+    expect(both).toEqual(events(x));
+  });
+});
