@@ -5,12 +5,11 @@ import type { ChannelRegistry } from '../engine/channel-registry.js';
 import { referencedChannels } from '../engine/derived/derived-definitions.js';
 import { compileWithConstants } from '../engine/derived/derived-constants.js';
 import type { DerivedResultSpec, DerivedSnapshot } from '../engine/derived/derived-engine.js';
-import { derivedReportEntry, derivedVerdict, type DerivedReportEntry, type DerivedVerdict } from '../engine/derived/derived-record.js';
+import { derivedEntryStatement, derivedReportEntry, derivedStatement, derivedVerdict, type DerivedReportEntry, type DerivedVerdict } from '../engine/derived/derived-record.js';
 import { DerivedMonitor, type DerivedEvent } from '../engine/derived/derived-monitor.js';
 import { DerivedTracker, type ChannelWindowView, type DerivedWindowSource } from '../engine/derived/derived-tracker.js';
 import type { ChannelDeclaration, DerivedDefinition } from '../engine/derived/expression-model.js';
 import type { DerivedStatus } from '../engine/test-points.js';
-import { gumStatement } from '../engine/test-point-record.js';
 import type { DerivedView } from '../ports/daemon-api.js';
 
 /**
@@ -191,7 +190,11 @@ export class DerivedResults implements DerivedStatus {
    * about 0.1-0.4 s per result and are computed when a test point writes its record.
    */
   views(): DerivedView[] {
-    return this.snapshots().map((state) => ({ ...state, statement: gumStatement(state.name, state.value, state.standardUncertainty, state.expandedUncertainty, state.coverageFactor, state.dof, state.confidence, state.unit) }));
+    // live: the GUM statement of the current value, with the flag a record would carry now
+    return this.snapshots().map((state) => {
+      const { provisional, provisionalReasons } = derivedEntryStatement(state, state);
+      return { ...state, statement: derivedStatement(state), provisional, provisionalReasons };
+    });
   }
 
   /**
