@@ -98,6 +98,8 @@ table.budget tr.total td{font-weight:600;border-top:2px solid #555}
 svg{display:block;margin:.2rem 0}
 footer{margin-top:1.5rem;color:#4a5563;font-size:11px}
 @media print{body{margin:0;max-width:none}h2{break-after:avoid}section{break-inside:avoid-page}.grid{break-inside:avoid}a{color:inherit;text-decoration:none}}
+@page{margin:16mm 12mm 16mm;@top-left{content:"${cssText(`Test point ${point.id}${record?.recordNumber ? `, record ${record.recordNumber}` : ''}`)}";font-size:9px;color:#4a5563}@top-right{content:"plateau ${cssText(input.version)}";font-size:9px;color:#4a5563}@bottom-right{content:"page " counter(page) " of " counter(pages);font-size:9px;color:#4a5563}}
+table.budget{break-inside:avoid}
 </style></head><body>
 <header>
 <h1>Test point report: ${escapeHtml(point.name)}</h1>
@@ -282,6 +284,11 @@ ${correlations.length ? `<h3>Correlation with the other derived results</h3><tab
 ${entry ? monteCarloBlock(entry, unit) + bootstrapBlock(entry, unit) : '<p class="note">The Monte Carlo (JCGM 101) and bootstrap checks are computed when the record is written.</p>'}
 ${otherNotes(d).length ? `<p class="note">Notes: ${escapeHtml(otherNotes(d).join('; '))}</p>` : ''}
 </section>`;
+}
+
+/** Text for a CSS string of the running header: letters, digits and a few marks only (ids are already restricted so). */
+function cssText(text: string): string {
+  return text.replace(/[^A-Za-z0-9 _.,:/-]/g, '?').slice(0, 120);
 }
 
 /** A provisional record entry: said before the result, with the reasons (issue 10, honest records). */
