@@ -249,6 +249,7 @@ export class ChannelPipeline {
   private lostBefore = false;
   private averagingLimitSeen = false;
   private lastConformity: Verdict | null = null;
+  private latticeCache: { key: string; lattice: Lattice | null } | null = null;
   private monitor: StationarityMonitor | null = null;
   /** The monitor that raised the last break (its CUSUM trace stays on display). */
   private brokenMonitor: StationarityMonitor | null = null;
@@ -1043,7 +1044,7 @@ export class ChannelPipeline {
     const settings = this.options.uncertainty ?? DEFAULT_UNCERTAINTY_SETTINGS;
     const configured = settings.typeB.length > 0 || settings.conformity !== null || settings.combinedTarget !== null || settings.dominanceFraction !== null;
     if (!configured || summary.mean === null || summary.standardUncertainty === null || summary.n < 2) return configured ? { ...summary, combined: null, conformity: null } : summary;
-    const lattice = settings.proposeResolution ? detectLattice(this.series.values()) : null;
+    const lattice = settings.proposeResolution ? this.windowLattice() : null;
     const growing = this.growing;
     const capacity = growing ? Math.max(this.series.maxSamples, summary.n) : this.series.maxSamples;
     const dof = summary.dof !== null && summary.dof > 0 ? summary.dof : summary.n - 1;
@@ -1055,6 +1056,13 @@ export class ChannelPipeline {
       combined: { value: combined.value, standardUncertainty: combined.standardUncertainty, dof: combined.dof, coverageFactor: combined.coverageFactor, expandedUncertainty: combined.expandedUncertainty, stopping: combined.stopping },
       conformity: conformity === null ? null : { rule: conformity.rule, verdict: conformity.verdict, probability: conformity.probability },
     };
+  }
+
+  /** The window's lattice, cached until the window changes (a summary per commit stays O(1) between samples). */
+  private windowLattice(): Lattice | null {
+    const key = `${this.series.firstIndex}:${this.series.nextIndex}`;
+    if (this.latticeCache?.key !== key) this.latticeCache = { key, lattice: detectLattice(this.series.values()) };
+    return this.latticeCache.lattice;
   }
 
   private typeASummary(): ChannelSummary {
