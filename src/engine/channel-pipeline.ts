@@ -8,7 +8,7 @@ import { targetStatus, type TargetStatus } from '../core/uncertainty/target-prec
 import { PeriodogramWorkspace, MAX_SEGMENT } from '../core/spectrum/periodogram.js';
 import { diagnoseSpectrum, removeLines, linesBlockVariance, type SpectralDiagnosis } from '../core/spectrum/spectral-diagnosis.js';
 import { fitAutoregression, blockMeanVariance, type ArFit } from '../core/tau/autoregressive-spectrum.js';
-import { detectLattice, type Lattice } from '../core/resolution/lattice.js';
+import { detectLattice, detectLatticeAt, type Lattice } from '../core/resolution/lattice.js';
 import { type ChannelOptions, FEW_SAMPLES, MIN_REPORTED_LAGS } from './channel-options.js';
 import { CaoRhinehartFilter, type CaoRhinehartState } from '../core/stationarity/cao-rhinehart.js';
 import { StationarityMonitor, type MonitorState, type StationarityBreak } from './stationarity-monitor.js';
@@ -952,7 +952,7 @@ export class ChannelPipeline {
     if (!settings?.conformity) return;
     const u = meanUncertainty(withAnticorrelationFloor(reported, n), this.options.confidence);
     if (!(u.dof > 0) || !Number.isFinite(u.standardUncertainty)) return;
-    const lattice = settings.proposeResolution ? detectLattice(this.series.values()) : null;
+    const lattice = settings.proposeResolution ? this.windowLattice() : null;
     const { conformity } = channelCombined({ name: this.name, mean: this.series.mean, n, standardUncertainty: u.standardUncertainty, dof: u.dof, confidence: this.options.confidence, rate: null, capacity: Number.POSITIVE_INFINITY, lattice, settings: { ...settings, combinedTarget: null, dominanceFraction: null }, typeATarget: null });
     if (conformity === null || conformity.verdict === null || conformity.verdict === this.lastConformity) return;
     const previous = this.lastConformity;
@@ -1061,7 +1061,8 @@ export class ChannelPipeline {
   /** The window's lattice, cached until the window changes (a summary per commit stays O(1) between samples). */
   private windowLattice(): Lattice | null {
     const key = `${this.series.firstIndex}:${this.series.nextIndex}`;
-    if (this.latticeCache?.key !== key) this.latticeCache = { key, lattice: detectLattice(this.series.values()) };
+    const ring = this.series.ring;
+    if (this.latticeCache?.key !== key) this.latticeCache = { key, lattice: detectLatticeAt(this.series.length, (i) => ring.at(i)) };
     return this.latticeCache.lattice;
   }
 
