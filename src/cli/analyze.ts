@@ -169,7 +169,6 @@ const CHANNEL_FLAG_KEYS: Record<string, (keyof ChannelOptions)[]> = {
   confidence: ['confidence'],
   target: ['target'],
   'target-rel': ['target'],
-  'target-on': ['target'],
   'max-lag': ['maxLag'],
   rate: ['rate'],
   estimator: ['estimator'],
