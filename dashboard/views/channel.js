@@ -199,7 +199,7 @@ function renderBudget(p, d) {
   const f = d.conformity;
   const stop = c.stopping;
   const parts = [`u_c = ${trimNumber(c.standardUncertainty, 2)}, ν_eff = ${c.dof === null ? '∞' : trimNumber(c.dof, 3)}, k = ${trimNumber(c.coverageFactor, 3)}, U = ${trimNumber(c.expandedUncertainty, 2)}`];
-  if (stop) parts.push(stop.stop ? `stopping rule met (${stop.reason === 'dominance' ? `u_A ≤ ${stop.fraction} u_c` : 'combined target'})` : `stopping rule: waiting for ${stop.waitingFor === 'dominance' ? `u_A ≤ ${stop.fraction} u_c` : stop.waitingFor === 'target' ? 'the combined target' : 'nothing it can reach'}`);
+  if (stop) parts.push(stop.stop ? `stopping rule met (${stop.reason === 'dominance' ? `u_A ≤ ${stop.fraction} u_c` : stop.target?.basis === 'type-a' ? 'Type A target' : 'combined target'})` : `stopping rule: waiting for ${stop.waitingFor === 'dominance' ? `u_A ≤ ${stop.fraction} u_c` : stop.waitingFor === 'target' ? (stop.target?.basis === 'type-a' ? 'the Type A target' : 'the combined target') : 'nothing it can reach'}`);
   if (f) parts.push(`conformity (${f.rule}): ${f.verdict ?? 'no verdict'}${typeof f.probability === 'number' ? `, p_c = ${trimNumber(f.probability, 3)}` : ''}`);
   setText(p.budgetNote, `${parts.join('; ')}.`);
   replaceChildren(

@@ -319,7 +319,7 @@ function renderReport(report: AnalyzeReport): string {
       lines.push(`  ${c.name}: ${c.combined.budget.map((b) => `${b.component}${b.proposed ? ' (proposed)' : ''} ${formatSignificant(b.contribution, 2)}${b.share === null ? '' : ` (${(100 * b.share).toFixed(1)} %)`}`).join('; ')}`);
       const stop = c.combined.stopping;
       if (stop && !stop.stop) lines.push(`    stopping rule: ${c.verdict.pending.find((p) => p.condition === 'stopping')?.message ?? 'not met'}`);
-      if (stop?.stop) lines.push(`    stopping rule met: ${stop.reason === 'dominance' ? `u_A <= ${stop.fraction} u_c` : 'combined target'}`);
+      if (stop?.stop) lines.push(`    stopping rule met: ${stop.reason === 'dominance' ? `u_A <= ${stop.fraction} u_c` : stop.target?.basis === 'type-a' ? 'Type A target' : 'combined target'}`);
     }
   }
   const waiting = report.channels.filter((c) => !c.verdict.ready);

@@ -327,7 +327,7 @@ ${c.notes.length ? `<p class="note">${escapeHtml(c.notes.join('; '))}</p>` : ''}
   }
   if (c.stopping) {
     const st = c.stopping;
-    html += `<p class="note">Stopping rule: ${escapeHtml(st.stop ? `met (${st.reason === 'dominance' ? `the statistical part u_A <= ${st.fraction} u_c` : 'the target on the combined uncertainty'})` : st.waitingFor === null ? 'cannot be met in this window' : `not met; waiting for ${st.waitingFor === 'dominance' ? `u_A <= ${st.fraction} u_c` : 'the combined target'}`)}${st.typeARatio === null ? '' : escapeHtml(`; u_A = ${st.typeARatio.toFixed(2)} u_c`)}.</p>`;
+    html += `<p class="note">Stopping rule: ${escapeHtml(st.stop ? `met (${st.reason === 'dominance' ? `the statistical part u_A <= ${st.fraction} u_c` : st.target?.basis === 'type-a' ? 'the target on the Type A part' : 'the target on the combined uncertainty'})` : st.waitingFor === null ? 'cannot be met in this window' : `not met; waiting for ${st.waitingFor === 'dominance' ? `u_A <= ${st.fraction} u_c` : st.target?.basis === 'type-a' ? 'the Type A target' : 'the combined target'}`)}${st.typeARatio === null ? '' : escapeHtml(`; u_A = ${st.typeARatio.toFixed(2)} u_c`)}.</p>`;
   }
   if (f !== null) {
     const limits = `${f.lower === null ? '-' : num(f.lower, 8)} to ${f.upper === null ? '-' : num(f.upper, 8)}${unit}`;
