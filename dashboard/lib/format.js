@@ -154,6 +154,7 @@ const EVENT_TEXT = {
   'warmup-extended': ['notice', 'Warm-up longer than it looked: start moved'],
   'steady-withdrawn': ['alert', 'Steady state withdrawn: warm-up not over'],
   'averaging-limit': ['notice', 'Averaging limit: longer runs no longer help'],
+  'conformity-changed': ['notice', 'Conformity outcome changed'],
   stale: ['alert', 'Data stopped'],
   fresh: ['info', 'Data flowing again'],
   'criterion-holds': ['good', 'Stability rule holds'],
@@ -199,6 +200,8 @@ function eventDetail(event) {
       return `${body.derived ? `${trimNumber(body.value, 6)} ${body.unit ?? ''}, ` : ''}U = ${trimNumber(body.expandedUncertainty, 3)} within ${trimNumber(body.bound, 3)}${body.derived && body.unit ? ` ${body.unit}` : ''}`;
     case 'averaging-limit':
       return `beyond m = ${body.m}${body.tauSeconds ? ` (${formatDuration(body.tauSeconds)})` : ''} the Allan deviation stops falling`;
+    case 'conformity-changed':
+      return `${body.previous ?? 'none'} → ${body.verdict ?? '?'} (${body.rule ?? ''} rule${typeof body.probability === 'number' ? `, p_c ${trimNumber(body.probability, 3)}` : ''})`;
     case 'stale':
       return `silent for ${formatDuration(body.silentSeconds)}`;
     case 'criterion-holds':

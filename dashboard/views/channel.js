@@ -42,6 +42,8 @@ export class ChannelView extends DetailView {
       traceNote: h('p', { className: 'chart-note' }),
       cusumNote: h('p', { className: 'chart-note' }),
       estimators: h('tbody'),
+      budget: h('tbody'),
+      budgetNote: h('p', { className: 'chart-note' }),
       verdict: h('ul', { className: 'verdict-list' }),
       estimatorReason: h('p', { className: 'chart-note' }),
       evidence: h('tbody'),
@@ -95,6 +97,8 @@ export class ChannelView extends DetailView {
         h('div', { className: 'panel' }, h('h2', { text: 'Estimators of the uncertainty' }), p.estimatorReason, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['estimator', 'τ_int', 'n_eff', 'u', 'ν', 'window', 'reliable'].map((t) => h('th', { text: t })))), p.estimators)),
         h('div', { className: 'panel' }, h('h2', { text: 'Steady-state evidence' }), h('table', { className: 'table' }, p.evidence), p.notes),
       ),
+      // the combined uncertainty with its budget and the conformity outcome (issue 10)
+      h('div', { className: 'panel budget-panel' }, h('h2', { text: 'Uncertainty budget' }), p.budgetNote, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['quantity', 'source', 'type', 'u', 'distribution', 'sensitivity', 'contribution', 'ν', 'share'].map((t) => h('th', { text: t })))), p.budget)),
     );
     this.charts = [traceChart(traceBox), acfChart(acfBox), allanChart(allanBox), cusumChart(cusumBox)];
     if (summary) this.updateSummary(summary);
@@ -162,6 +166,7 @@ export class ChannelView extends DetailView {
         h('tr', { className: name === d.estimator ? 'used' : '' }, h('td', { text: name === d.estimator ? `${name} (used)` : name }), h('td', { text: trimNumber(e.tauInt, 3) }), h('td', { text: formatEffective(e.nEff) }), h('td', { text: trimNumber(e.standardUncertainty, 2) }), h('td', { text: trimNumber(e.dof, 3) }), h('td', { text: String(e.window) }), h('td', { text: e.reliable ? 'yes' : 'no', title: e.note ?? '' })),
       ),
     );
+    renderBudget(p, d);
     const t = d.stationarity?.tests;
     const rows = [
       ['steady from sample', d.stationarity?.warmupEnd ?? 'not steady'],
@@ -181,4 +186,38 @@ export class ChannelView extends DetailView {
     replaceChildren(p.notes, (d.notes ?? []).map((note) => h('li', { text: note })));
     showEvents(p.events, d.storedEvents ?? [], 'No events yet.');
   }
+}
+
+/** The budget panel: one row per component (covariance lines included), u_c, ν_eff, k, U, stopping rule and conformity. */
+function renderBudget(p, d) {
+  const c = d.combined;
+  if (!c) {
+    setText(p.budgetNote, 'No combined uncertainty yet (too few samples).');
+    replaceChildren(p.budget, []);
+    return;
+  }
+  const f = d.conformity;
+  const stop = c.stopping;
+  const parts = [`u_c = ${trimNumber(c.standardUncertainty, 2)}, ν_eff = ${c.dof === null ? '∞' : trimNumber(c.dof, 3)}, k = ${trimNumber(c.coverageFactor, 3)}, U = ${trimNumber(c.expandedUncertainty, 2)}`];
+  if (stop) parts.push(stop.stop ? `stopping rule met (${stop.reason === 'dominance' ? `u_A ≤ ${stop.fraction} u_c` : stop.target?.basis === 'type-a' ? 'Type A target' : 'combined target'})` : `stopping rule: waiting for ${stop.waitingFor === 'dominance' ? `u_A ≤ ${stop.fraction} u_c` : stop.waitingFor === 'target' ? (stop.target?.basis === 'type-a' ? 'the Type A target' : 'the combined target') : 'nothing it can reach'}`);
+  if (f) parts.push(`conformity (${f.rule}): ${f.verdict ?? 'no verdict'}${typeof f.probability === 'number' ? `, p_c = ${trimNumber(f.probability, 3)}` : ''}`);
+  setText(p.budgetNote, `${parts.join('; ')}.`);
+  replaceChildren(
+    p.budget,
+    c.budget.map((b) =>
+      h(
+        'tr',
+        { className: b.evaluation === 'covariance' ? 'covariance' : '' },
+        h('td', { text: b.quantity }),
+        h('td', { text: `${b.component}${b.proposed ? ' (proposed)' : ''}`, title: b.basis ?? '' }),
+        h('td', { text: b.evaluation === 'covariance' ? '–' : b.evaluation }),
+        h('td', { text: b.standardUncertainty === null ? '–' : trimNumber(b.standardUncertainty, 2) }),
+        h('td', { text: b.distribution }),
+        h('td', { text: b.sensitivity === null ? '–' : trimNumber(b.sensitivity, 3) }),
+        h('td', { text: trimNumber(b.contribution, 2) }),
+        h('td', { text: b.dof === null ? '∞' : trimNumber(b.dof, 3) }),
+        h('td', { text: b.share === null ? '–' : `${trimNumber(b.share * 100, 3)} %` }),
+      ),
+    ),
+  );
 }

@@ -1,29 +1,13 @@
-import { loadConfigFile, settingsFor } from '../config/load-config.js';
-import type { ChannelOptions } from '../engine/channel-options.js';
 import type { ChannelSnapshot } from '../engine/channel-pipeline.js';
 import type { CriterionState } from '../engine/criteria/criteria-tracker.js';
 import { formatDuration, formatSignificant } from './format.js';
 
 /**
  * `plateau analyze --config FILE`: the stability rules the daemon's configuration gives each
- * channel (by its column name, through the same groups), evaluated on the same accept path as the
- * daemon's (the channel pipeline). JSON: `criteria[{name, holds, since, value, tolerance, margin,
+ * channel (by its column name, through the same groups: analyze.ts configuredChannels), evaluated
+ * on the same accept path as the daemon's (the channel pipeline). JSON: `criteria[{name, holds, since, value, tolerance, margin,
  * ...}]` and `readiness` per channel; the table: a rules column and one line per rule.
  */
-export const CRITERIA_HELP = `  --config FILE          the daemon's configuration: each channel (by column name) gets the
-                         stability rules (criteria) and readiness policy it gives; the other
-                         settings still come from these options`;
-
-/** The per-channel options, with the configuration's rules when `--config` is given. */
-export function criteriaOptionsFor(configFile: string | undefined): (name: string, options: ChannelOptions) => ChannelOptions {
-  if (configFile === undefined) return (_name, options) => options;
-  const config = loadConfigFile(configFile, { requireSubscriptions: false });
-  return (name, options) => {
-    const criteria = settingsFor(config, name).criteria;
-    return criteria === null ? options : { ...options, criteria };
-  };
-}
-
 /** The table's rules cell: how many hold, or "-" without rules. */
 export function criteriaCell(channel: ChannelSnapshot): string {
   if (channel.readiness === null || channel.criteria.length === 0) return '-';

@@ -1,7 +1,11 @@
 import type { ChannelPipeline, ChannelSnapshot } from '../engine/channel-pipeline.js';
 import type { ChannelOptions } from '../engine/channel-options.js';
-import { compileDefinitions } from '../engine/derived/derived-definitions.js';
+import { referencedChannels } from '../engine/derived/derived-definitions.js';
+import { compileWithConstants } from '../engine/derived/derived-constants.js';
 import type { DerivedEstimator, DerivedResultSpec } from '../engine/derived/derived-engine.js';
+import type { DerivedConfig } from '../config/plateau-config.js';
+import type { TypeBSpec } from '../core/uncertainty/type-b-component.js';
+import { ConfigError } from '../config/config-reader.js';
 import { derivedReportEntry, derivedVerdict, type DerivedReportEntry } from '../engine/derived/derived-record.js';
 import { DerivedTracker, type ChannelWindowView, type DerivedWindowSource } from '../engine/derived/derived-tracker.js';
 import { DerivedMonitor, type DerivedEvent } from '../engine/derived/derived-monitor.js';
@@ -43,6 +47,12 @@ export interface DeriveRequest {
 
 export interface DeriveOptions {
   requests: DeriveRequest[];
+  /**
+   * `--config`: the configuration's derived results (with their targets, limits, combined targets
+   * and named constants) and the channels' Type B components, which every derived result
+   * propagates. Results over a channel that is not a column are left out, with a note.
+   */
+  configured?: { derived: DerivedConfig[]; typeBOf: (channel: string) => TypeBSpec[] } | undefined;
   /** Cap on the Monte Carlo trials per result (default DEFAULT_MONTE_CARLO_TRIALS; 0 skips). */
   monteCarloTrials?: number | undefined;
 }
@@ -68,6 +78,8 @@ export interface DerivedRecorder {
   afterRow(): void;
   /** The derived results from the final channel windows. */
   finish(snapshots: ChannelSnapshot[]): AnalyzedDerived[];
+  /** Configured derived results left out (a channel that is not a column). */
+  notes: string[];
 }
 
 /**
@@ -77,10 +89,12 @@ export interface DerivedRecorder {
 export function prepareDerived(derive: DeriveOptions, columns: string[], options: ChannelOptions, hasTimeColumn: boolean, pipelines: ChannelPipeline[], steadiness: SteadyHistory[]): DerivedRecorder {
   const requests = derive.requests;
   const monteCarloTrials = derive.monteCarloTrials ?? DEFAULT_MONTE_CARLO_TRIALS;
-  const compiled = compileDefinitions(
+  const configuredSpecs = configuredDerived(derive, columns);
+  const compiled = compileWithConstants(
     requests.map((r) => ({ name: r.name, expression: r.expression })),
     columns.map((name) => ({ name })),
     '--derive',
+    requests.map(() => []),
   );
   if (!compiled.ok) {
     const first = compiled.problems[0] as string;
@@ -90,7 +104,13 @@ export function prepareDerived(derive: DeriveOptions, columns: string[], options
     throw new UsageError(`${request ? `--derive ${JSON.stringify(request.raw)}` : '--derive'}: ${(match ? (match[2] as string) : first).replace(/\s*\n\s*/g, ' ')}${more}`);
   }
   const target = options.target !== null && options.target.relative ? options.target : null;
-  const specs: DerivedResultSpec[] = compiled.result.compiled.map((c) => ({ compiled: c, target, confidence: options.confidence }));
+  const typeBOf = derive.configured?.typeBOf ?? (() => []);
+  const channelTypeB = (inputs: string[]) => Object.fromEntries(inputs.map((name) => [name, typeBOf(name)]));
+  const specs: DerivedResultSpec[] = [
+    ...configuredSpecs.specs,
+    ...compiled.compiled.map((c) => ({ compiled: c, target, confidence: options.confidence, uncertainty: { channelTypeB: channelTypeB(c.inputs), conformity: null, combinedTarget: null } })),
+  ];
+  const withTarget = new Set(specs.filter((spec) => spec.target !== null).map((spec) => spec.compiled.name));
   const estimator: DerivedEstimator = options.estimator === 'iid' ? 'iid' : 'batch-means';
   const tracker = new DerivedTracker(specs, { estimator });
   // One monitor per result, as the daemon keeps them (each on its own inputs' windows).
@@ -131,7 +151,7 @@ export function prepareDerived(derive: DeriveOptions, columns: string[], options
       store.values[store.length++] = hasTimeColumn ? timeSeconds : rowIndex;
     },
     afterRow() {
-      if (target === null) return;
+      if (withTarget.size === 0) return;
       for (const monitor of monitors) {
         monitor.sync(source);
         for (const event of monitor.takeEvents()) events.get(event.source)?.push(event);
@@ -145,7 +165,7 @@ export function prepareDerived(derive: DeriveOptions, columns: string[], options
         const snapshot = hasTimeColumn ? evaluated : { ...evaluated, rowRate: null, target: evaluated.target === null ? null : { ...evaluated.target, secondsToTarget: null } };
         const inputStates: Record<string, string> = {};
         for (const input of snapshot.inputs) inputStates[input] = states.get(input) ?? 'no data';
-        const verdict = derivedVerdict(snapshot, target !== null, inputStates, snapshot.target?.reached === true);
+        const verdict = derivedVerdict(snapshot, withTarget.has(snapshot.name), inputStates, snapshot.target?.reached === true);
         const raised = (events.get(snapshot.name) ?? []).map(({ kind, at, body }) => {
           const { derived: _name, ...fields } = body;
           return { kind, at, ...fields };
@@ -153,7 +173,51 @@ export function prepareDerived(derive: DeriveOptions, columns: string[], options
         return { ...derivedReportEntry(tracker.current, snapshot, verdict, { monteCarloTrials }), events: raised };
       });
     },
+    notes: configuredSpecs.skipped,
   };
+}
+
+/**
+ * The configuration's derived results over the file's columns (`--config`): each compiled with its
+ * named constants; a result over a channel that is not a column (or over such a result) is left
+ * out with a note. Compile problems are configuration errors, one line each.
+ */
+function configuredDerived(derive: DeriveOptions, columns: string[]): { specs: DerivedResultSpec[]; skipped: string[] } {
+  const configured = derive.configured;
+  if (configured === undefined || configured.derived.length === 0) return { specs: [], skipped: [] };
+  const constants = new Set(configured.derived.flatMap((d) => d.constants.map((c) => c.name)));
+  let kept = configured.derived.map((d, i) => ({ d, i }));
+  const skipped: string[] = [];
+  for (let changed = true; changed; ) {
+    changed = false;
+    const names = new Set(kept.map(({ d }) => d.name));
+    const definitions = kept.map(({ d }) => ({ name: d.name, expression: d.expression }));
+    for (const { name, definitions: users } of referencedChannels(definitions)) {
+      if (constants.has(name) || columns.includes(name) || names.has(name)) continue;
+      for (const u of users) {
+        const item = kept[u];
+        if (item === undefined) continue;
+        skipped.push(`derived[${item.i}] ${item.d.name}: left out, its input ${name} is not a column of the file`);
+      }
+      const drop = new Set(users);
+      kept = kept.filter((_, k) => !drop.has(k));
+      changed = true;
+      break;
+    }
+  }
+  if (kept.length === 0) return { specs: [], skipped };
+  const compiled = compileWithConstants(
+    kept.map(({ d }) => ({ name: d.name, expression: d.expression, ...(d.unit !== null ? { unit: d.unit } : {}) })),
+    columns.map((name) => ({ name })),
+    'derived',
+    kept.map(({ d }) => d.constants),
+  );
+  if (!compiled.ok) throw new ConfigError(compiled.problems);
+  const specs = compiled.compiled.map((c, k) => {
+    const d = (kept[k] as { d: DerivedConfig }).d;
+    return { compiled: c, target: d.target, confidence: d.confidence, uncertainty: { channelTypeB: Object.fromEntries(c.inputs.map((name) => [name, configured.typeBOf(name)])), conformity: d.conformity, combinedTarget: d.combinedTarget } };
+  });
+  return { specs, skipped };
 }
 
 /** The derived results as a table, for the text report. */
@@ -178,11 +242,16 @@ export function renderDerived(entries: DerivedReportEntry[]): string[] {
       target,
     ];
   });
+  if (entries.some((d) => d.combined !== null && (d.combined.budget.some((b) => b.evaluation === 'B') || d.conformity !== null))) {
+    header.push('u_c', 'U_c', 'conformity');
+    entries.forEach((d, i) => (rows[i] as string[]).push(formatSignificant(d.combined?.standardUncertainty ?? null, 2), formatSignificant(d.combined?.expandedUncertainty ?? null, 2), d.conformity === null ? '-' : d.conformity.verdict === null ? 'no verdict' : `${d.conformity.verdict}${d.conformity.probability === null ? '' : `, p_c ${d.conformity.probability.toFixed(3)}`}`));
+  }
   const lines = [textTable(header, rows), '', 'Uncertainty budgets (share of u_c^2, covariance terms included):'];
   for (const d of entries) {
     if (d.budget.length === 0) continue;
     lines.push(`  ${d.name}: ${d.budget.map((b) => `${b.channel} ${b.share === null ? '-' : `${(100 * b.share).toFixed(1)} %`}`).join(', ')}`);
     for (const [other, r] of Object.entries(d.correlation)) lines.push(`    r(${d.name}, ${other}) = ${r.toFixed(3)}`);
+    if (d.combined !== null && d.combined.budget.some((b) => b.evaluation === 'B')) lines.push(`    with Type B and constants: ${d.combined.budget.map((b) => `${b.quantity}: ${b.component} ${b.share === null ? '-' : `${(100 * b.share).toFixed(1)} %`}`).join('; ')}`);
   }
   return lines;
 }

@@ -11,7 +11,9 @@ import type { ChannelEvent } from '../engine/channel-events.js';
 import type { WarmupSetting } from '../engine/warmup-detector.js';
 import { prepareDerived, DERIVE_HELP, parseDeriveFlags, renderDerived, type AnalyzedDerived, type DeriveOptions, type DerivedRecorder } from './analyze-derived.js';
 import { SteadyHistory } from '../engine/steadiness.js';
-import { criteriaOptionsFor, criteriaLines, criteriaCell, CRITERIA_HELP } from './analyze-criteria.js';
+import { criteriaLines, criteriaCell } from './analyze-criteria.js';
+import { channelOptionsFromSettings, loadConfigFile, settingsFor } from '../config/load-config.js';
+import type { PlateauConfig } from '../config/plateau-config.js';
 
 const MAX_EVENTS = 10_000;
 
@@ -38,7 +40,12 @@ Options:
                          sample as given; N cuts the first N samples of each channel
   --time-column NAME     the column holding time (default: a column named time, t, timestamp, ...)
   --delimiter C          field separator (default: guessed from the header: , ; or tab)
-${CRITERIA_HELP}
+  --config CFG           apply the channel settings of a plateau configuration file, as \`plateau run\`
+                         does: units, window, estimator, targets, Type B components, specification
+                         limits with the decision rule, combined target and stopping rule,
+                         stability rules (criteria) with the readiness policy, and its derived
+                         results over the file's columns; channel flags given as well
+                         override the configuration for every channel
 ${DERIVE_HELP}`;
 
 export interface AnalyzeReport {
@@ -47,7 +54,7 @@ export interface AnalyzeReport {
   timeColumn: string | null;
   ignoredColumns: string[];
   notes: string[];
-  channels: ChannelSnapshot[];
+  channels: (ChannelSnapshot & { unit?: string | null })[];
   /** Derived results (--derive), empty without any. */
   derived: AnalyzedDerived[];
 }
@@ -86,10 +93,13 @@ export async function runAnalyze(argv: string[], io: Io): Promise<number> {
   }
   if (positionals.length !== 1) throw new UsageError(positionals.length === 0 ? 'analyze needs a CSV file: plateau analyze FILE' : `analyze takes one file, got ${positionals.length}`);
   const file = positionals[0] as string;
-  const { derive: deriveFlags, config: configFile, ...flags } = values;
+  const { derive: deriveFlags, config: configPath, ...flags } = values;
   const options = channelOptionsFromFlags(flags);
   const derive = parseDeriveFlags(deriveFlags ?? [], numberFlag(flags, 'monte-carlo-trials', (v) => Number.isInteger(v) && (v === 0 || (v >= 20_000 && v <= 5_000_000)), 'a whole number of trials, 0 (no Monte Carlo check) or 20000 to 5000000'));
-  const report = await analyzeFile(file, options, { timeColumn: values['time-column'], delimiter: values.delimiter }, derive, criteriaOptionsFor(configFile));
+  const config = configPath === undefined ? null : loadConfigFile(configPath, { requireSubscriptions: false });
+  const settings = config === null ? undefined : configuredChannels(config, flags, options);
+  if (config !== null) derive.configured = { derived: config.derived, typeBOf: (name) => settingsFor(config, name).typeB };
+  const report = await analyzeFile(file, options, { timeColumn: values['time-column'], delimiter: values.delimiter }, derive, settings);
   io.out(values.json ? `${JSON.stringify(report, finiteOrNull, 2)}\n` : renderReport(report));
   return 0;
 }
@@ -148,31 +158,54 @@ export function channelOptionsFromFlags(flags: Flags): ChannelOptions {
   };
 }
 
+/** Per-channel settings from a configuration (`--config`): the engine options and the unit of each channel. */
+export interface ChannelSettingsSource {
+  optionsFor(channel: string): ChannelOptions;
+  unitOf(channel: string): string | null;
+}
+
+/** Channel flags that, given with --config, override the configuration for every channel. */
+const CHANNEL_FLAG_KEYS: Record<string, (keyof ChannelOptions)[]> = {
+  window: ['window'],
+  'window-seconds': ['window'],
+  confidence: ['confidence'],
+  target: ['target'],
+  'target-rel': ['target'],
+  'max-lag': ['maxLag'],
+  rate: ['rate'],
+  estimator: ['estimator'],
+  warmup: ['warmup'],
+};
+
+/** The configuration's settings for each channel, as `plateau run` applies them, with the channel flags given on top. */
+export function configuredChannels(config: PlateauConfig, flags: Flags, fromFlags: ChannelOptions): ChannelSettingsSource {
+  const overridden = new Set(Object.entries(CHANNEL_FLAG_KEYS).filter(([flag]) => flags[flag] !== undefined).flatMap(([, keys]) => keys));
+  return {
+    optionsFor(channel) {
+      const options = channelOptionsFromSettings(settingsFor(config, channel));
+      for (const key of overridden) (options as unknown as Record<string, unknown>)[key] = fromFlags[key];
+      return options;
+    },
+    unitOf: (channel) => settingsFor(config, channel).unit,
+  };
+}
+
 /** Replays a CSV file through one pipeline per channel: the streaming code path, row by row. */
-/**
- * `optionsFor` gives a channel's options from the flags' (`--config`: with the stability rules the
- * configuration gives the channel, src/cli/analyze-criteria.ts).
- */
-export async function analyzeFile(
-  file: string,
-  options: ChannelOptions,
-  csv: { timeColumn?: string | undefined; delimiter?: string | undefined } = {},
-  derive: DeriveOptions = { requests: [] },
-  optionsFor: (name: string, options: ChannelOptions) => ChannelOptions = (_name, o) => o,
-): Promise<AnalyzeReport> {
+export async function analyzeFile(file: string, options: ChannelOptions, csv: { timeColumn?: string | undefined; delimiter?: string | undefined } = {}, derive: DeriveOptions = { requests: [] }, settings?: ChannelSettingsSource): Promise<AnalyzeReport> {
   const layout = await probeCsv(file, {
     ...(csv.timeColumn !== undefined ? { timeColumn: csv.timeColumn } : {}),
     ...(csv.delimiter !== undefined ? { delimiter: csv.delimiter } : {}),
   });
-  if (options.window.seconds !== undefined && !layout.timeColumn) {
-    throw new UsageError(`--window-seconds needs a time column, and ${file} has none (name one with --time-column)`);
+  const channelOptions = layout.channels.map((column) => settings?.optionsFor(column.name) ?? options);
+  if (channelOptions.some((o) => o.window.seconds !== undefined) && !layout.timeColumn) {
+    throw new UsageError(`${options.window.seconds !== undefined ? '--window-seconds' : 'a window in seconds (from --config)'} needs a time column, and ${file} has none (name one with --time-column)`);
   }
-  const pipelines = layout.channels.map((column) => new ChannelPipeline(column.name, optionsFor(column.name, options)));
+  const pipelines = layout.channels.map((column, c) => new ChannelPipeline(column.name, channelOptions[c] as ChannelOptions));
   // When each channel was steady (derived results judge their inputs by it).
   const steadiness = pipelines.map(() => new SteadyHistory());
   // Derived results: compiled against the columns before the rows are read (a bad --derive stops
   // here); the recorder keeps each input sample's time (the time column, else the row index).
-  const recorder: DerivedRecorder | null = derive.requests.length > 0 ? prepareDerived(derive, layout.channels.map((c) => c.name), options, layout.timeColumn !== null && layout.timeColumn !== undefined, pipelines, steadiness) : null;
+  const recorder: DerivedRecorder | null = derive.requests.length > 0 || (derive.configured?.derived.length ?? 0) > 0 ? prepareDerived(derive, layout.channels.map((c) => c.name), options, layout.timeColumn !== null && layout.timeColumn !== undefined, pipelines, steadiness) : null;
   let rowIndex = 0;
   // Every event in order (a snapshot keeps only the most recent); capped so a pathological file
   // cannot exhaust memory, with a note when the cap is reached.
@@ -215,8 +248,9 @@ export async function analyzeFile(
     const column = layout.channels[c];
     snapshot.notes = [...(column ? describeIssues(file, column) : []), ...snapshot.notes];
     if (snapshot.eventCount > MAX_EVENTS) snapshot.notes.push(`${snapshot.eventCount} events: only the first ${MAX_EVENTS} are listed`);
-    return snapshot;
+    return settings === undefined ? snapshot : { ...snapshot, unit: settings.unitOf(snapshot.name) };
   });
+  if (recorder !== null) notes.push(...recorder.notes);
   return {
     file,
     rows,
@@ -226,6 +260,12 @@ export async function analyzeFile(
     channels,
     derived: recorder === null ? [] : recorder.finish(channels),
   };
+}
+
+function conformityText(c: ChannelSnapshot['conformity']): string {
+  if (c === null) return '-';
+  if (c.verdict === null) return 'no verdict';
+  return `${c.verdict}${c.probability === null ? '' : `, p_c ${c.probability >= 0.9995 ? '>0.999' : c.probability.toFixed(3)}`}`;
 }
 
 /** JSON replacer: no NaN or Infinity ever reaches the output. */
@@ -264,6 +304,12 @@ function renderReport(report: AnalyzeReport): string {
     ];
   });
   const confidence = report.channels[0]?.confidence ?? 0.95;
+  // issue 10: the combined uncertainty and conformity, when a channel has more than its Type A part or limits
+  const budgets = report.channels.some((c) => (c.combined?.budget.length ?? 0) > 1 || c.conformity !== null);
+  if (budgets) {
+    header.push('u_c', 'U_c', 'conformity');
+    report.channels.forEach((c, i) => (rows[i] as string[]).push(formatSignificant(c.combined?.standardUncertainty ?? null, 2), formatSignificant(c.combined?.expandedUncertainty ?? null, 2), conformityText(c.conformity)));
+  }
   const lines = [
     `${report.file}: ${report.rows} rows, ${report.channels.length} channel${report.channels.length === 1 ? '' : 's'}${report.timeColumn ? `, time from "${report.timeColumn}"` : ''}`,
     '',
@@ -271,6 +317,16 @@ function renderReport(report: AnalyzeReport): string {
     '',
     `U = k * u at ${(confidence * 100).toPrecision(4).replace(/\.?0+$/, '')} % coverage; k from Student's t at nu_eff; u from the estimator named in each row.`,
   ];
+  if (budgets) {
+    lines.push(`u_c: the Type A u combined with the Type B components (GUM 5.1.2); U_c = k u_c with k at the Welch-Satterthwaite nu_eff; conformity: the decision rule's outcome with the conformance probability p_c (JCGM 106).`, '', 'Uncertainty budgets (contribution c u, share of u_c^2):');
+    for (const c of report.channels) {
+      if (!c.combined) continue;
+      lines.push(`  ${c.name}: ${c.combined.budget.map((b) => `${b.component}${b.proposed ? ' (proposed)' : ''} ${formatSignificant(b.contribution, 2)}${b.share === null ? '' : ` (${(100 * b.share).toFixed(1)} %)`}`).join('; ')}`);
+      const stop = c.combined.stopping;
+      if (stop && !stop.stop) lines.push(`    stopping rule: ${c.verdict.pending.find((p) => p.condition === 'stopping')?.message ?? 'not met'}`);
+      if (stop?.stop) lines.push(`    stopping rule met: ${stop.reason === 'dominance' ? `u_A <= ${stop.fraction} u_c` : stop.target?.basis === 'type-a' ? 'Type A target' : 'combined target'}`);
+    }
+  }
   const waiting = report.channels.filter((c) => !c.verdict.ready);
   if (waiting.length > 0) {
     lines.push('', 'Not ready yet:');

@@ -5,9 +5,10 @@ import type { ChannelGroup, ChannelSettings, DerivedConfig, PlateauConfig, Subsc
 import { DECODER_DEFAULTS, DECODER_FORMATS } from './decoder-spec.js';
 import { ESTIMATOR_NAMES } from '../core/tau/tau-estimate.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
-import { DEFAULT_CHANNEL_OPTIONS, DEFAULT_MAX_SAMPLES, type WindowSpec } from '../engine/channel-options.js';
+import { DEFAULT_CHANNEL_OPTIONS, DEFAULT_MAX_SAMPLES, type ChannelOptions, type WindowSpec } from '../engine/channel-options.js';
 import { readCriteria } from './criteria-config.js';
 import { isNatsUrl, readScale } from './scale-config.js';
+import { readConformity, readDerivedConstants, readTypeBComponents } from './uncertainty-config.js';
 
 export { ConfigError };
 
@@ -24,6 +25,11 @@ export const CHANNEL_DEFAULTS: ChannelSettings = {
   range: null,
   unit: null,
   criteria: null,
+  typeB: [],
+  conformity: null,
+  combinedTarget: null,
+  dominanceFraction: null,
+  proposeResolution: true,
 };
 
 /**
@@ -152,7 +158,7 @@ export function parseConfig(document: unknown, source = 'config', options: { req
 
   const derived: DerivedConfig[] = r.list(root.derived, 'derived').map((item, index) => {
     const path = join('derived', index);
-    const d = r.section(item, path, ['name', 'unit', 'expression', 'target', 'confidence']);
+    const d = r.section(item, path, ['name', 'unit', 'expression', 'target', 'confidence', 'conformity', 'combinedTarget', 'constants']);
     r.require(d, 'name', path, 'the derived result\'s name');
     r.require(d, 'expression', path, 'an expression over channel names, such as "flow * 4.18 * (outlet - inlet)"');
     return {
@@ -161,6 +167,9 @@ export function parseConfig(document: unknown, source = 'config', options: { req
       expression: r.string(d, 'expression', path, '0'),
       target: readTarget(r, d.target, join(path, 'target')),
       confidence: r.number(d, 'confidence', path, { above: 0, below: 1 }, defaults.confidence),
+      conformity: readConformity(d.conformity, join(path, 'conformity'), r),
+      combinedTarget: readTarget(r, d.combinedTarget, join(path, 'combinedTarget')),
+      constants: readDerivedConstants(d.constants, join(path, 'constants'), r),
       keyPath: join(path, 'expression'),
     };
   });
@@ -205,7 +214,7 @@ export function parseConfig(document: unknown, source = 'config', options: { req
   return { source, broker, subscriptions, channels: { defaults, groups }, derived, store, http, topics, log, ...(scale !== null ? { scale } : {}) };
 }
 
-const SETTING_KEYS = ['window', 'maxLag', 'estimator', 'warmup', 'confidence', 'target', 'falseAlarmSamples', 'staleSeconds', 'rate', 'range', 'unit', 'criteria'];
+const SETTING_KEYS = ['window', 'maxLag', 'estimator', 'warmup', 'confidence', 'target', 'falseAlarmSamples', 'staleSeconds', 'rate', 'range', 'unit', 'criteria', 'typeB', 'conformity', 'combinedTarget', 'dominanceFraction', 'proposeResolution'];
 
 function readChannelSettings(r: ConfigReader, value: unknown, path: string): Partial<ChannelSettings> {
   const s = r.section(value, path, SETTING_KEYS);
@@ -246,6 +255,12 @@ function readChannelSettings(r: ConfigReader, value: unknown, path: string): Par
       r.problem(join(path, 'range'), `expected [low, high] with low < high, got ${describe(range)}`);
     } else out.range = [range[0] as number, range[1] as number];
   }
+  // issue 10: Type B components, limits with the decision rule, the combined target, the stopping rule
+  if (s.typeB !== undefined) out.typeB = readTypeBComponents(s.typeB, join(path, 'typeB'), r);
+  if (s.conformity !== undefined) out.conformity = readConformity(s.conformity, join(path, 'conformity'), r);
+  if (s.combinedTarget !== undefined) out.combinedTarget = readTarget(r, s.combinedTarget, join(path, 'combinedTarget'));
+  if (s.dominanceFraction !== undefined) out.dominanceFraction = r.number(s, 'dominanceFraction', path, { above: 0, below: 1 }, null);
+  if (s.proposeResolution !== undefined) out.proposeResolution = r.boolean(s, 'proposeResolution', path, true);
   return out;
 }
 
@@ -271,6 +286,23 @@ function validTopicFilter(topic: string): boolean {
 
 function isLoopback(host: string): boolean {
   return host === '127.0.0.1' || host === '::1' || host === 'localhost' || /^127\./.test(host);
+}
+
+/** A channel's engine options from its settings (the daemon and `plateau analyze --config` share it). */
+export function channelOptionsFromSettings(s: ChannelSettings): ChannelOptions {
+  return {
+    window: s.window,
+    maxLag: s.maxLag,
+    estimator: s.estimator,
+    warmup: s.warmup,
+    confidence: s.confidence,
+    target: s.target,
+    rate: s.rate,
+    falseAlarmSamples: s.falseAlarmSamples,
+    staleSeconds: s.staleSeconds,
+    uncertainty: { typeB: s.typeB, conformity: s.conformity, combinedTarget: s.combinedTarget, dominanceFraction: s.dominanceFraction, proposeResolution: s.proposeResolution },
+    criteria: s.criteria,
+  };
 }
 
 /** Settings for one channel: the defaults, then every matching group in order. */

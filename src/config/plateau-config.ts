@@ -2,9 +2,10 @@ import type { DecoderSpec } from './decoder-spec.js';
 import type { EstimatorName } from '../core/tau/tau-estimate.js';
 import type { WarmupSetting } from '../engine/warmup-detector.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
-import type { WindowSpec } from '../engine/channel-options.js';
+import type { ConformitySpec, WindowSpec } from '../engine/channel-options.js';
 import type { CriteriaSettings } from './criteria-config.js';
 import type { ScaleConfig } from './scale-config.js';
+import type { TypeBSpec } from '../core/uncertainty/type-b-component.js';
 
 /** The daemon's whole configuration, after validation and defaults. Units are in the key names. */
 export interface PlateauConfig {
@@ -61,6 +62,16 @@ export interface ChannelSettings {
   unit: string | null;
   /** Stability rules from the test procedure and the readiness policy (criteria-config.ts); null: none. */
   criteria: CriteriaSettings | null;
+  /** Type B components of the channel (a group's list replaces the defaults' list). */
+  typeB: TypeBSpec[];
+  /** Specification limits and decision rule. */
+  conformity: ConformitySpec | null;
+  /** Target on the combined uncertainty (u_c or U). */
+  combinedTarget: TargetSpec | null;
+  /** f of the stopping rule u_A <= f u_c. */
+  dominanceFraction: number | null;
+  /** Propose the resolution component when the readings lie on a coarse lattice. */
+  proposeResolution: boolean;
 }
 
 export interface ChannelGroup {
@@ -75,6 +86,12 @@ export interface DerivedConfig {
   expression: string;
   target: TargetSpec | null;
   confidence: number;
+  /** Specification limits and decision rule of the result. */
+  conformity: ConformitySpec | null;
+  /** Target on the combined uncertainty of the result. */
+  combinedTarget: TargetSpec | null;
+  /** Named constants with a value and a standard uncertainty (GUM H.1), usable in the expression. */
+  constants: DerivedConstantConfig[];
   /** Key path in the config file, for messages. */
   keyPath: string;
 }
@@ -108,4 +125,12 @@ export interface TopicsConfig {
   status: string;
   /** Commands from a rig sequencer: <command>/test-point/start, .../stop. */
   command: string;
+}
+
+/** A named constant of derived expressions: its value and its uncertainty as a Type B spec. */
+export interface DerivedConstantConfig {
+  name: string;
+  value: number;
+  /** The constant's uncertainty (its `name` is the constant's). */
+  uncertainty: TypeBSpec;
 }

@@ -177,6 +177,38 @@ export function readConformity(value: unknown, path: string, reader: ConfigReade
   return { limits: { lower, upper }, rule };
 }
 
+/**
+ * Named constants of a derived expression (GUM H.1: the reference's length, an expansion
+ * coefficient): `{ name, value, kind, ... }`, the value and the constant's uncertainty as any Type B
+ * kind (`normal` with `standardUncertainty` for a value with its u; `rectangular` for a handbook
+ * value within +/- a; `dof` or `reliability` as for any component).
+ */
+export function readDerivedConstants(value: unknown, path: string, reader: ConfigReader): { name: string; value: number; uncertainty: TypeBSpec }[] {
+  const out: { name: string; value: number; uncertainty: TypeBSpec }[] = [];
+  reader.list(value, path).forEach((entry, i) => {
+    const where = join(path, i);
+    if (entry === null || typeof entry !== 'object' || Array.isArray(entry)) {
+      reader.problem(where, `expected a mapping (name, value, kind and its values), got ${describe(entry)}`);
+      return;
+    }
+    const { value: raw, ...rest } = entry as Plain;
+    const hasValue = reader.require(entry as Plain, 'value', where, 'the constant\'s value');
+    const number = reader.number(entry as Plain, 'value', where, {}, null);
+    const spec = readTypeBComponent(rest, where, reader);
+    if (spec === null || !hasValue || number === null || raw === undefined) return;
+    if (!/^[A-Za-z_][A-Za-z0-9_]*$/.test(spec.name)) {
+      reader.problem(join(where, 'name'), `"${spec.name}" cannot be used in an expression (letters, digits and _, starting with a letter or _)`);
+      return;
+    }
+    if (out.some((c) => c.name === spec.name)) {
+      reader.problem(join(where, 'name'), `"${spec.name}" is already used by another constant`);
+      return;
+    }
+    out.push({ name: spec.name, value: number, uncertainty: spec });
+  });
+  return out;
+}
+
 /** One line per problem in a list of Type B components (empty when it is valid). */
 export function typeBProblems(value: unknown, path: string): string[] {
   const reader = new ConfigReader();

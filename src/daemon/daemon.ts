@@ -1,6 +1,6 @@
 import pino, { type Logger } from 'pino';
 import type { PlateauConfig, SubscriptionConfig } from '../config/plateau-config.js';
-import { settingsFor } from '../config/load-config.js';
+import { channelOptionsFromSettings, settingsFor } from '../config/load-config.js';
 import { DECODER_DEFAULTS } from '../config/decoder-spec.js';
 import { ChannelRegistry } from '../engine/channel-registry.js';
 import type { ChannelOptions } from '../engine/channel-options.js';
@@ -195,8 +195,7 @@ export class Daemon implements DaemonApi {
   }
 
   channelOptions(name: string): ChannelOptions {
-    const s = settingsFor(this.config, name);
-    return { window: s.window, maxLag: s.maxLag, estimator: s.estimator, warmup: s.warmup, confidence: s.confidence, target: s.target, rate: s.rate, falseAlarmSamples: s.falseAlarmSamples, staleSeconds: s.staleSeconds, criteria: s.criteria };
+    return channelOptionsFromSettings(settingsFor(this.config, name));
   }
 
   /** The unit the configuration gives a channel (looked up once per channel). */

@@ -2,14 +2,14 @@ import { ConfigError } from '../config/config-reader.js';
 import { globMatch, settingsFor } from '../config/load-config.js';
 import type { DerivedConfig, PlateauConfig } from '../config/plateau-config.js';
 import type { ChannelRegistry } from '../engine/channel-registry.js';
-import { compileDefinitions, referencedChannels } from '../engine/derived/derived-definitions.js';
+import { referencedChannels } from '../engine/derived/derived-definitions.js';
+import { compileWithConstants } from '../engine/derived/derived-constants.js';
 import type { DerivedResultSpec, DerivedSnapshot } from '../engine/derived/derived-engine.js';
-import { derivedReportEntry, derivedVerdict, type DerivedReportEntry, type DerivedVerdict } from '../engine/derived/derived-record.js';
+import { derivedEntryStatement, derivedReportEntry, derivedStatement, derivedVerdict, type DerivedReportEntry, type DerivedVerdict } from '../engine/derived/derived-record.js';
 import { DerivedMonitor, type DerivedEvent } from '../engine/derived/derived-monitor.js';
 import { DerivedTracker, type ChannelWindowView, type DerivedWindowSource } from '../engine/derived/derived-tracker.js';
 import type { ChannelDeclaration, DerivedDefinition } from '../engine/derived/expression-model.js';
 import type { DerivedStatus } from '../engine/test-points.js';
-import { gumStatement } from '../engine/test-point-record.js';
 import type { DerivedView } from '../ports/daemon-api.js';
 
 /**
@@ -82,7 +82,9 @@ export class DerivedResults implements DerivedStatus {
     const globs = templates.map((t) => t.replace(/\{\w+\}/g, '*'));
     const problems: string[] = [];
     const channels: ChannelDeclaration[] = [];
+    const constantNames = new Set(config.derived.flatMap((d) => d.constants.map((c) => c.name)));
     for (const { name, definitions: users } of referencedChannels(definitions)) {
+      if (constantNames.has(name)) continue;
       if (!globs.some((glob) => globMatch(glob, name))) {
         for (const i of users) problems.push(`derived[${i}].expression: unknown channel '${name}' in "${definitions[i]?.expression}": no subscription gives a channel of that name (channel templates: ${templates.join(', ') || 'none'}; derived results: ${definitions.map((d) => d.name).join(', ')})`);
         continue;
@@ -91,12 +93,13 @@ export class DerivedResults implements DerivedStatus {
       channels.push(range === null ? { name } : { name, range });
     }
     if (problems.length > 0) throw new ConfigError(problems);
-    const compiled = compileDefinitions(definitions, channels, 'derived');
+    const compiled = compileWithConstants(definitions, channels, 'derived', config.derived.map((d) => d.constants));
     if (!compiled.ok) throw new ConfigError(compiled.problems);
     this.channels = channels;
-    compiled.result.compiled.forEach((c, i) => {
+    compiled.compiled.forEach((c, i) => {
       const derivedConfig = config.derived[i] as DerivedConfig;
-      const spec: DerivedResultSpec = { compiled: c, target: derivedConfig.target, confidence: derivedConfig.confidence };
+      const uncertainty = { channelTypeB: Object.fromEntries(c.inputs.map((name) => [name, settingsFor(config, name).typeB])), conformity: derivedConfig.conformity, combinedTarget: derivedConfig.combinedTarget };
+      const spec: DerivedResultSpec = { compiled: c, target: derivedConfig.target, confidence: derivedConfig.confidence, uncertainty };
       const entry: Entry = { config: derivedConfig, spec, monitor: new DerivedMonitor(spec), dirty: true, snapshot: null, rowsSeen: 0, rebuildsSeen: -1, stale: true };
       this.entries.set(c.name, entry);
       for (const input of c.inputs) {
@@ -187,7 +190,11 @@ export class DerivedResults implements DerivedStatus {
    * about 0.1-0.4 s per result and are computed when a test point writes its record.
    */
   views(): DerivedView[] {
-    return this.snapshots().map((state) => ({ ...state, statement: gumStatement(state.name, state.value, state.standardUncertainty, state.expandedUncertainty, state.coverageFactor, state.dof, state.confidence, state.unit) }));
+    // live: the GUM statement of the current value, with the flag a record would carry now
+    return this.snapshots().map((state) => {
+      const { provisional, provisionalReasons } = derivedEntryStatement(state, state);
+      return { ...state, statement: derivedStatement(state), provisional, provisionalReasons };
+    });
   }
 
   /**

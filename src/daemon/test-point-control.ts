@@ -39,7 +39,7 @@ export class TestPointControl {
   start(request: TestPointRequest): TestPointView {
     const { testPoints, registry, derived, ingest, batch, clock } = this.options;
     this.options.requireStore();
-    const change = testPoints.start(request, clock.now(), derived.names());
+    const change = testPoints.start(request, clock.now(), derived.names(), (name) => derived.usesChannel(name));
     if (change.kind === 'test-point-started') {
       const marks = [...change.marks];
       // The inputs of the test point's derived results restart with it, even when they are not

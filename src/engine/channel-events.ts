@@ -1,5 +1,6 @@
 import type { BreakCause } from './stationarity-monitor.js';
 import type { CriterionEvent } from './criteria/criteria-events.js';
+import type { DecisionRuleKind, Verdict } from '../core/conformity/decision-rule.js';
 
 /**
  * What a channel tells the world. Events are edge-triggered: each marks a change of state, once.
@@ -17,6 +18,7 @@ export type ChannelEvent =
   | { kind: 'warmup-extended'; at: number; warmupEnd: number; excluded: number }
   | { kind: 'steady-withdrawn'; at: number; reason: string }
   | { kind: 'averaging-limit'; at: number; m: number; tauSeconds: number | null; adev: number }
+  | { kind: 'conformity-changed'; at: number; verdict: Verdict; previous: Verdict | null; rule: DecisionRuleKind; probability: number | null; value: number; expandedUncertainty: number | null }
   | { kind: 'stale'; at: number; silentSeconds: number }
   | { kind: 'fresh'; at: number }
   /** A stability rule starts or stops holding (src/engine/criteria/criteria-events.ts). */

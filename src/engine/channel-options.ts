@@ -2,6 +2,32 @@ import type { EstimatorName } from '../core/tau/tau-estimate.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
 import type { WarmupSetting } from './warmup-detector.js';
 import type { ChannelCriteriaSettings } from './criteria/channel-criteria.js';
+import type { TypeBSpec } from '../core/uncertainty/type-b-component.js';
+import type { DecisionRule, SpecificationLimits } from '../core/conformity/decision-rule.js';
+
+/** Specification limits with the decision rule that judges a result against them (issue 10). */
+export interface ConformitySpec {
+  limits: SpecificationLimits;
+  rule: DecisionRule;
+}
+
+/**
+ * What turns a channel's Type A uncertainty into the statement a lab signs (channel-combined.ts):
+ * its Type B components, specification limits with a decision rule, a target on the combined
+ * uncertainty and the dominance fraction f of the stopping rule u_A <= f u_c.
+ */
+export interface UncertaintySettings {
+  typeB: TypeBSpec[];
+  conformity: ConformitySpec | null;
+  /** A target on the combined uncertainty (u_c or U = k u_c), absolute or relative to |mean|. */
+  combinedTarget: TargetSpec | null;
+  /** f in (0, 1): stop when u_A <= f u_c; null: no dominance rule. */
+  dominanceFraction: number | null;
+  /** Add the resolution component found from readings on a coarse lattice (default true). */
+  proposeResolution: boolean;
+}
+
+export const DEFAULT_UNCERTAINTY_SETTINGS: UncertaintySettings = { typeB: [], conformity: null, combinedTarget: null, dominanceFraction: null, proposeResolution: true };
 
 /** How a channel's averaging window is bounded. */
 export interface WindowSpec {
@@ -39,6 +65,8 @@ export interface ChannelOptions {
   detectors?: boolean;
   /** Stability rules from the test procedure and the readiness policy (src/engine/criteria/); none when absent. */
   criteria?: ChannelCriteriaSettings | null;
+  /** Type B components, limits, decision rule, combined target and stopping rule (default: none, resolution proposed). */
+  uncertainty?: UncertaintySettings;
 }
 
 /**

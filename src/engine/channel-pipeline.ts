@@ -8,7 +8,7 @@ import { targetStatus, type TargetStatus } from '../core/uncertainty/target-prec
 import { PeriodogramWorkspace, MAX_SEGMENT } from '../core/spectrum/periodogram.js';
 import { diagnoseSpectrum, removeLines, linesBlockVariance, type SpectralDiagnosis } from '../core/spectrum/spectral-diagnosis.js';
 import { fitAutoregression, blockMeanVariance, type ArFit } from '../core/tau/autoregressive-spectrum.js';
-import { detectLattice, type Lattice } from '../core/resolution/lattice.js';
+import { detectLattice, detectLatticeAt, type Lattice } from '../core/resolution/lattice.js';
 import { type ChannelOptions, FEW_SAMPLES, MIN_REPORTED_LAGS } from './channel-options.js';
 import { CaoRhinehartFilter, type CaoRhinehartState } from '../core/stationarity/cao-rhinehart.js';
 import { StationarityMonitor, type MonitorState, type StationarityBreak } from './stationarity-monitor.js';
@@ -22,6 +22,9 @@ import { channelCriteria, type ChannelCriteria, type CriterionBrief } from './cr
 import type { CriterionState, CriteriaTracker } from './criteria/criteria-tracker.js';
 import type { CriterionEvent } from './criteria/criteria-events.js';
 import type { Readiness } from './criteria/readiness-policy.js';
+import { channelCombined, verdictWithStopping, type CombinedReport, type ConformityReport } from './channel-combined.js';
+import { DEFAULT_UNCERTAINTY_SETTINGS } from './channel-options.js';
+import type { Verdict } from '../core/conformity/decision-rule.js';
 
 /** One estimator's result as reported in a snapshot. */
 export interface EstimatorReport {
@@ -105,6 +108,10 @@ export interface ChannelSnapshot {
   criteria: CriterionState[];
   /** Readiness under the policy (the statistical verdict and the rules); null when no criteria are configured. */
   readiness: Readiness | null;
+  /** Type A with the Type B components: u_c, nu_eff, k, U, the budget and the stopping rule (null without a Type A u). */
+  combined: CombinedReport | null;
+  /** Conformity with the configured limits and decision rule (null without limits or without u_c). */
+  conformity: ConformityReport | null;
 }
 
 /** A channel at a glance (live displays, retained status messages). */
@@ -130,14 +137,21 @@ export interface ChannelSummary {
   criteria: CriterionBrief[];
   /** Ready under the readiness policy; null when no criteria are configured (the verdict decides). */
   readyUnderPolicy: boolean | null;
+  /** u_c, nu_eff, k, U and the stopping rule, when Type B components, limits or a stopping rule are configured. */
+  combined?: Pick<CombinedReport, 'value' | 'standardUncertainty' | 'dof' | 'coverageFactor' | 'expandedUncertainty' | 'stopping'> | null;
+  conformity?: Pick<ConformityReport, 'rule' | 'verdict' | 'probability'> | null;
 }
 
 const SHARED_FFT = new AutocovarianceFft();
 const SHARED_PERIODOGRAM = new PeriodogramWorkspace();
 const NO_EVENTS: readonly ChannelEvent[] = Object.freeze([]);
 
-/** The snapshot without the stability rules (added by `snapshot`). */
-type StatisticalSnapshot = Omit<ChannelSnapshot, 'criteria' | 'readiness'>;
+/** The snapshot without the combined uncertainty and the stability rules (added by `snapshot`). */
+type StatisticalSnapshot = Omit<ChannelSnapshot, 'criteria' | 'readiness' | 'combined' | 'conformity'>;
+/** The snapshot with the combined uncertainty, before the stability rules. */
+type CombinedSnapshot = Omit<ChannelSnapshot, 'criteria' | 'readiness'>;
+/** The summary without the stability rules. */
+type SummaryBase = Omit<ChannelSummary, 'criteria' | 'readyUnderPolicy'>;
 
 type SnapshotBase = Pick<ChannelSnapshot, 'name' | 'n' | 'confidence' | 'estimator' | 'window' | 'rate' | 'received' | 'last' | 'state' | 'excluded' | 'events' | 'eventCount'>;
 
@@ -209,6 +223,8 @@ export interface ChannelPipelineState extends StateRecord<'channel-pipeline', ty
   stale: boolean;
   lostBefore: boolean;
   averagingLimitSeen: boolean;
+  /** The conformity outcome last announced (absent in checkpoints written before it existed). */
+  lastConformity?: Verdict | null;
   monitor: MonitorState | null;
   brokenMonitor: MonitorState | null;
   indicator: CaoRhinehartState;
@@ -250,6 +266,8 @@ export class ChannelPipeline {
   private stale = false;
   private lostBefore = false;
   private averagingLimitSeen = false;
+  private lastConformity: Verdict | null = null;
+  private latticeCache: { key: string; lattice: Lattice | null } | null = null;
   private monitor: StationarityMonitor | null = null;
   /** The monitor that raised the last break (its CUSUM trace stays on display). */
   private brokenMonitor: StationarityMonitor | null = null;
@@ -389,6 +407,8 @@ export class ChannelPipeline {
   private raise(event: ChannelEvent): void {
     (this.pendingEvents ??= []).push(event);
     this.remember(event);
+    // conformity is judged afresh once the channel is steady again
+    if (event.kind === 'stationarity-lost' || event.kind === 'steady-withdrawn') this.lastConformity = null;
   }
 
   /**
@@ -422,6 +442,7 @@ export class ChannelPipeline {
     this.regainedAt = -1;
     this.excluded = 0;
     this.averagingLimitSeen = false;
+    this.lastConformity = null;
     this.nextAllanCheck = this.windowOrigin + 256;
     this.diagnosis = null;
     this.nextDiagnosis = this.windowOrigin + DIAGNOSIS_SEGMENT;
@@ -514,6 +535,7 @@ export class ChannelPipeline {
       stale: this.stale,
       lostBefore: this.lostBefore,
       averagingLimitSeen: this.averagingLimitSeen,
+      lastConformity: this.lastConformity,
       monitor: this.monitor ? this.monitor.saveState() : null,
       brokenMonitor: this.brokenMonitor ? this.brokenMonitor.saveState() : null,
       indicator: this.indicator.state(),
@@ -557,6 +579,7 @@ export class ChannelPipeline {
     this.stale = state.stale;
     this.lostBefore = state.lostBefore;
     this.averagingLimitSeen = state.averagingLimitSeen;
+    this.lastConformity = state.lastConformity ?? null;
     this.monitor = state.monitor ? StationarityMonitor.fromState(state.monitor) : null;
     this.brokenMonitor = state.brokenMonitor ? StationarityMonitor.fromState(state.brokenMonitor) : null;
     this.indicator = CaoRhinehartFilter.fromState(state.indicator);
@@ -945,6 +968,7 @@ export class ChannelPipeline {
     }
     const reported = this.options.estimator === 'auto' ? detector : this.estimatorSet.estimate(this.series, this.options.estimator, this.diagnosis);
     this.estimatorSet.maintainLags(this.series, reported);
+    this.checkConformity(index, reported, n);
     const target = this.options.target;
     if (!target) return;
     const u = meanUncertainty(withAnticorrelationFloor(reported, n), this.options.confidence);
@@ -958,6 +982,26 @@ export class ChannelPipeline {
       const achieved = target.on === 'u' ? u.standardUncertainty : (u.expandedUncertainty ?? Number.POSITIVE_INFINITY);
       if (achieved > PRECISION_REARM * status.bound || longMemory) this.precise = false;
     }
+  }
+
+  /**
+   * Conformity on the precision checks' schedule while steady: the outcome of the decision rule
+   * with the combined uncertainty (channel-combined.ts); a `conformity-changed` event when it
+   * differs from the one last announced (edge-triggered; forgotten when stationarity is lost or the
+   * window restarts). Costs one combined evaluation and, with the resolution proposal, O(n) for the
+   * lattice check, every 1/16 of the window.
+   */
+  private checkConformity(index: number, reported: TauEstimate, n: number): void {
+    const settings = this.options.uncertainty;
+    if (!settings?.conformity) return;
+    const u = meanUncertainty(withAnticorrelationFloor(reported, n), this.options.confidence);
+    if (!(u.dof > 0) || !Number.isFinite(u.standardUncertainty)) return;
+    const lattice = settings.proposeResolution ? this.windowLattice() : null;
+    const { conformity } = channelCombined({ name: this.name, mean: this.series.mean, n, standardUncertainty: u.standardUncertainty, dof: u.dof, confidence: this.options.confidence, rate: null, capacity: Number.POSITIVE_INFINITY, lattice, settings: { ...settings, combinedTarget: null, dominanceFraction: null }, typeATarget: null });
+    if (conformity === null || conformity.verdict === null || conformity.verdict === this.lastConformity) return;
+    const previous = this.lastConformity;
+    this.lastConformity = conformity.verdict;
+    this.raise({ kind: 'conformity-changed', at: index, verdict: conformity.verdict, previous, rule: conformity.rule, probability: conformity.probability, value: conformity.value, expandedUncertainty: conformity.expandedUncertainty });
   }
 
   private checkAveragingLimit(index: number): void {
@@ -1032,7 +1076,7 @@ export class ChannelPipeline {
    * deviation, only the reported estimator. Cost: one estimator run (tens of microseconds).
    */
   summary(): ChannelSummary {
-    const summary = this.statisticalSummary();
+    const summary = this.summaryWithCombined(this.statisticalSummary());
     const criteria = this.criteria;
     if (criteria === null) return { ...summary, criteria: [], readyUnderPolicy: null };
     const states = criteria.states();
@@ -1040,7 +1084,38 @@ export class ChannelPipeline {
     return { ...summary, criteria: criteria.briefs(states), readyUnderPolicy: readiness.ready };
   }
 
-  private statisticalSummary(): Omit<ChannelSummary, 'criteria' | 'readyUnderPolicy'> {
+  /**
+   * The summary with the combined uncertainty and conformity when the channel has Type B
+   * components, limits or a stopping rule (the verdict then includes the stopping rule, so a test
+   * point's readiness honours it). O(n) for the lattice check of the resolution component.
+   */
+  private summaryWithCombined(summary: SummaryBase): SummaryBase {
+    const settings = this.options.uncertainty ?? DEFAULT_UNCERTAINTY_SETTINGS;
+    const configured = settings.typeB.length > 0 || settings.conformity !== null || settings.combinedTarget !== null || settings.dominanceFraction !== null;
+    if (!configured || summary.mean === null || summary.standardUncertainty === null || summary.n < 2) return configured ? { ...summary, combined: null, conformity: null } : summary;
+    const lattice = settings.proposeResolution ? this.windowLattice() : null;
+    const growing = this.growing;
+    const capacity = growing ? Math.max(this.series.maxSamples, summary.n) : this.series.maxSamples;
+    const dof = summary.dof !== null && summary.dof > 0 ? summary.dof : summary.n - 1;
+    const { combined, conformity } = channelCombined({ name: this.name, mean: summary.mean, n: summary.n, standardUncertainty: summary.standardUncertainty, dof, confidence: summary.confidence, rate: this.rate(), capacity, lattice, settings, typeATarget: this.options.target });
+    const steady = summary.state === 'steady' || summary.state === 'precise';
+    return {
+      ...summary,
+      verdict: verdictWithStopping(summary.verdict, combined.stopping, steady),
+      combined: { value: combined.value, standardUncertainty: combined.standardUncertainty, dof: combined.dof, coverageFactor: combined.coverageFactor, expandedUncertainty: combined.expandedUncertainty, stopping: combined.stopping },
+      conformity: conformity === null ? null : { rule: conformity.rule, verdict: conformity.verdict, probability: conformity.probability },
+    };
+  }
+
+  /** The window's lattice, cached until the window changes (a summary per commit stays O(1) between samples). */
+  private windowLattice(): Lattice | null {
+    const key = `${this.series.firstIndex}:${this.series.nextIndex}`;
+    const ring = this.series.ring;
+    if (this.latticeCache?.key !== key) this.latticeCache = { key, lattice: detectLatticeAt(this.series.length, (i) => ring.at(i)) };
+    return this.latticeCache.lattice;
+  }
+
+  private statisticalSummary(): SummaryBase {
     const { series, options } = this;
     const n = series.length;
     const base = { name: this.name, state: this.state, n, received: this.received, last: this.received > 0 ? { value: this.lastValue, time: finiteOrNull(this.lastTime) } : null, confidence: options.confidence, excluded: this.excluded };
@@ -1061,13 +1136,13 @@ export class ChannelPipeline {
   snapshot(): ChannelSnapshot {
     const key = `${this.series.firstIndex}:${this.series.nextIndex}:${this.eventCount}:${this.stale}`;
     if (this.snapshotCache?.key === key) return this.snapshotCache.snapshot;
-    const snapshot = this.withCriteria(this.computeSnapshot());
+    const snapshot = this.withCriteria(this.withCombined(this.computeSnapshot()));
     this.snapshotCache = { key, snapshot };
     return snapshot;
   }
 
   /** The rules' live state, and readiness under the policy over the snapshot's window. */
-  private withCriteria(statistical: StatisticalSnapshot): ChannelSnapshot {
+  private withCriteria(statistical: CombinedSnapshot): ChannelSnapshot {
     const criteria = this.criteria;
     if (criteria === null) return { ...statistical, criteria: [], readiness: null };
     const states = criteria.states();
@@ -1075,6 +1150,16 @@ export class ChannelPipeline {
     const window = startTime !== null && endTime !== null ? { startTime, endTime } : null;
     const readiness = criteria.readiness({ ready: statistical.verdict.ready, reasons: statistical.verdict.pending.map((p) => p.message) }, window, states);
     return { ...statistical, criteria: states, readiness };
+  }
+
+  /** The combined uncertainty, the stopping rule and conformity (channel-combined.ts), from the Type A snapshot. */
+  private withCombined(snapshot: StatisticalSnapshot): CombinedSnapshot {
+    const settings = this.options.uncertainty ?? DEFAULT_UNCERTAINTY_SETTINGS;
+    if (snapshot.mean === null || snapshot.standardUncertainty === null || snapshot.dof === null || !(snapshot.dof > 0) || snapshot.n < 2) return { ...snapshot, combined: null, conformity: null };
+    const capacity = snapshot.window.kind === 'growing' ? Math.max(snapshot.window.capacity, snapshot.n) : snapshot.window.capacity;
+    const { combined, conformity } = channelCombined({ name: this.name, mean: snapshot.mean, n: snapshot.n, standardUncertainty: snapshot.standardUncertainty, dof: snapshot.dof, confidence: snapshot.confidence, rate: snapshot.rate, capacity, lattice: snapshot.resolution, settings, typeATarget: this.options.target });
+    const steady = snapshot.state === 'steady' || snapshot.state === 'precise';
+    return { ...snapshot, combined, conformity, verdict: verdictWithStopping(snapshot.verdict, combined.stopping, steady) };
   }
 
   private computeSnapshot(): StatisticalSnapshot {

@@ -20,9 +20,11 @@ import { formatSamples, MIN_EFFECTIVE, type WarmupPending } from './warmup-detec
  *                      calibrated interval
  *   target             the target precision is not met yet (with the samples and time to go,
  *                      only while the channel is steady: before that no time can be promised)
+ *   stopping           the stopping rule of a Type B budget is not met yet: u_A <= f u_c or the
+ *                      target on the combined uncertainty (channel-combined.ts adds it)
  * ready = none pending. O(1).
  */
-export type VerdictConditionName = 'no-data' | 'stale' | 'constant' | 'warm-up' | 'effective-samples' | 'break' | 'long-memory' | 'target';
+export type VerdictConditionName = 'no-data' | 'stale' | 'constant' | 'warm-up' | 'effective-samples' | 'break' | 'long-memory' | 'target' | 'stopping';
 
 export interface VerdictCondition {
   condition: VerdictConditionName;

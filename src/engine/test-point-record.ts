@@ -16,6 +16,7 @@ export interface RecordCriteria {
   rulesReady: boolean;
   rules: CriterionEvidence[];
 }
+import type { CombinedReport, ConformityReport } from './channel-combined.js';
 
 /**
  * The record of a test point: per channel the result as a test report or calibration certificate
@@ -59,10 +60,25 @@ export interface RecordEntry {
   gaps?: { count: number; missingSamples: number; list: { from: string; to: string; missing: number; source: 'time-stamps' | 'sequence' }[] };
   /** The stability rules over the recorded window; null when the channel has none. */
   criteria: RecordCriteria | null;
+  /** Type A with the Type B components: u_c, nu_eff, k, U and the budget (issue 10). */
+  combined?: CombinedReport | null;
+  /** Conformity with the stated decision rule and the conformance probability. */
+  conformity?: ConformityReport | null;
+  /**
+   * The channel was not ready when the record was made (never steady, a break, a target or the
+   * stopping rule not met): the record calls the result provisional and says why, and the
+   * statement is not styled as a GUM statement.
+   */
+  provisional?: boolean;
+  provisionalReasons?: string[];
 }
 
 export interface TestPointRecord {
   testPoint: { id: string; name: string };
+  /** "<test point id>/<n>": 1 for the first record of the test point, 2 for a stop record after a ready one. */
+  recordNumber?: string;
+  /** Some entry was not ready when the record was made (each entry says why). */
+  provisional?: boolean;
   kind: 'ready' | 'stopped';
   createdAt: string;
   entries: RecordEntry[];
@@ -108,8 +124,12 @@ export function recordEntry(snapshot: ChannelSnapshot, unit: string | null): Rec
       kpssStatistic: tests?.kpss?.statistic ?? null,
       kpssPassed: tests?.kpss?.passed ?? null,
     },
-    statement: gumStatement(snapshot.name, snapshot.mean, snapshot.standardUncertainty, snapshot.expandedUncertainty, snapshot.coverageFactor, snapshot.dof, snapshot.confidence, unit),
+    statement: entryStatement(snapshot, unit),
     criteria: recordCriteria(snapshot),
+    combined: snapshot.combined,
+    conformity: snapshot.conformity,
+    provisional: !snapshot.verdict.ready,
+    provisionalReasons: snapshot.verdict.pending.map((p) => p.message),
   };
 }
 
@@ -125,6 +145,25 @@ export function criteriaCell(criteria: RecordCriteria | null): string | null {
   return criteria.rules
     .map((e) => `${e.name}: ${e.heldOverWindow ? 'held over the window' : e.holds ? 'holds, not over the whole window' : 'does not hold'}, value ${number(e.value)}, tolerance ${number(e.tolerance)}, margin ${number(e.margin)}`)
     .join('; ');
+}
+
+/**
+ * The statement of a record entry: the GUM 7.2.4 wording for a ready channel, of the combined
+ * result when Type B components are configured (the Type A one otherwise); for a channel that was
+ * not ready, a provisional line that says why and is not styled as a statement of a result.
+ */
+function entryStatement(snapshot: ChannelSnapshot, unit: string | null): string {
+  const c = snapshot.combined;
+  const withTypeB = c !== null && c.budget.some((b) => b.evaluation === 'B');
+  if (!snapshot.verdict.ready) {
+    const units = unit ? ` ${unit}` : '';
+    const value = withTypeB ? c.value : snapshot.mean;
+    const u = withTypeB ? c.standardUncertainty : snapshot.standardUncertainty;
+    const figures = value === null ? 'no value' : `value ${value}${units}${u === null ? '' : `, standard uncertainty ${u.toPrecision(2)}${units}`}`;
+    return `${snapshot.name}: PROVISIONAL, not a measurement result to report (${snapshot.verdict.pending.map((p) => p.message).join('; ')}); ${figures}`;
+  }
+  if (withTypeB) return gumStatement(snapshot.name, c.value, c.standardUncertainty, c.expandedUncertainty, c.coverageFactor, c.dof ?? Number.POSITIVE_INFINITY, c.confidence, unit);
+  return gumStatement(snapshot.name, snapshot.mean, snapshot.standardUncertainty, snapshot.expandedUncertainty, snapshot.coverageFactor, snapshot.dof, snapshot.confidence, unit);
 }
 
 /**
@@ -150,9 +189,13 @@ function roundPair(value: number, uncertainty: number): { value: string; uncerta
 
 const CSV_COLUMNS: (keyof RecordEntry)[] = ['channel', 'unit', 'mean', 'standardUncertainty', 'dof', 'coverageFactor', 'expandedUncertainty', 'confidence', 'n', 'nEff', 'tauInt', 'estimator', 'state', 'verdict', 'steadyStart', 'excluded', 'windowStartIndex', 'windowEndIndex', 'windowStartTime', 'windowEndTime'];
 
-/** CSV (RFC 4180) of a record's entries; full-precision numbers, one row per channel. */
+/**
+ * CSV (RFC 4180) of a record's entries; full-precision numbers, one row per channel; then the
+ * combined uncertainty, the conformity outcome with its decision rule, whether the entry is
+ * provisional and why, and the caution (in every row, so that no extract of the file loses it).
+ */
 export function recordCsv(record: TestPointRecord): string {
-  const header = [...CSV_COLUMNS, 'heidelbergerWelchPassed', 'gewekeZ', 'kpssStatistic', 'statement', 'criteria'];
+  const header = [...CSV_COLUMNS, 'heidelbergerWelchPassed', 'gewekeZ', 'kpssStatistic', 'statement', 'criteria', 'combinedStandardUncertainty', 'combinedDof', 'combinedCoverageFactor', 'combinedExpandedUncertainty', 'decisionRule', 'lowerLimit', 'upperLimit', 'guardBand', 'conformity', 'conformanceProbability', 'provisional', 'provisionalReasons', 'caution'];
   const rows = record.entries.map((entry) => [
     ...CSV_COLUMNS.map((key) => entry[key] as unknown),
     entry.tests.heidelbergerWelchPassed,
@@ -160,6 +203,19 @@ export function recordCsv(record: TestPointRecord): string {
     entry.tests.kpssStatistic,
     entry.statement,
     criteriaCell(entry.criteria ?? null),
+    entry.combined?.standardUncertainty ?? null,
+    entry.combined?.dof ?? null,
+    entry.combined?.coverageFactor ?? null,
+    entry.combined?.expandedUncertainty ?? null,
+    entry.conformity?.rule ?? null,
+    entry.conformity?.lower ?? null,
+    entry.conformity?.upper ?? null,
+    entry.conformity?.guardBand ?? null,
+    entry.conformity?.verdict ?? null,
+    entry.conformity?.probability ?? null,
+    entry.provisional ?? null,
+    (entry.provisionalReasons ?? []).join('; '),
+    record.caution,
   ]);
   return csvText(header, rows);
 }

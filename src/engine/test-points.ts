@@ -27,7 +27,9 @@ function channelReady(pipeline: ChannelPipeline | undefined): boolean {
     if (criteria.policy === 'rules') return true;
   }
   const state = pipeline.state;
-  if (state !== 'precise' && !(state === 'steady' && !pipeline.options.target)) return false;
+  // a stopping rule (u_A <= f u_c) can make a steady channel ready before its Type A target
+  const stoppingRule = (pipeline.options.uncertainty?.dominanceFraction ?? null) !== null;
+  if (state !== 'precise' && !(state === 'steady' && (!pipeline.options.target || stoppingRule))) return false;
   return pipeline.summary().verdict.ready;
 }
 
@@ -94,7 +96,11 @@ export class TestPoints {
     }
   }
 
-  start(request: { id?: string; name?: string; channels: string[]; derived?: string[]; setPoints?: Record<string, number> }, nowMs: number, knownDerived: string[] = []): TestPointChange {
+  /**
+   * `expected`: channels the configuration names (inputs of derived results), accepted before their
+   * first sample; any other channel that has never had a sample is refused.
+   */
+  start(request: { id?: string; name?: string; channels: string[]; derived?: string[]; setPoints?: Record<string, number> }, nowMs: number, knownDerived: string[] = [], expected: (channel: string) => boolean = () => false): TestPointChange {
     const channels = [...new Set(request.channels)];
     if (channels.length === 0 && (request.derived ?? []).length === 0) throw new PlateauError('ERR_TEST_POINT_EMPTY');
     for (const name of channels) {
@@ -107,6 +113,13 @@ export class TestPoints {
     if (!ID_PATTERN.test(id)) throw new PlateauError('ERR_TEST_POINT_ID', { id: id.slice(0, 80) });
     const existing = this.points.get(id);
     if (existing && existing.state !== 'stopped') throw new PlateauError('ERR_TEST_POINT_RUNNING', { id });
+    // a channel that has never received a sample is refused rather than created empty (a typo would otherwise wait forever)
+    for (const name of channels) {
+      if (this.registry.get(name) === undefined && !expected(name)) {
+        const known = this.registry.all().map((c) => c.name);
+        throw new PlateauError('ERR_TEST_POINT_CHANNEL_UNKNOWN', { name: name.slice(0, 80), known: known.length === 0 ? 'none yet' : `${known.slice(0, 20).join(', ')}${known.length > 20 ? `, ... (${known.length} in all)` : ''}` });
+      }
+    }
     const setPoints = checkSetPoints(request.setPoints, channels);
     const marks: { channel: string; seq: number; kind?: string }[] = [];
     const startSeq: Record<string, number> = {};
@@ -183,17 +196,21 @@ export class TestPoints {
   }
 
   record(point: TestPoint, kind: 'ready' | 'stopped', nowMs: number): TestPointRecord {
+    const entries = point.channels.map((name) => {
+      const channel = this.registry.get(name);
+      if (!channel) throw new Error(`test point ${point.id}: channel ${name} is not in the registry`);
+      const snapshot = channel.pipeline.snapshot();
+      // The stationary bootstrap's standard error beside the analytic one (a cross-check).
+      return { ...recordEntry(snapshot, channel.unit), bootstrap: channelBootstrapCheck(channel.pipeline.series.values(), snapshot) };
+    });
     return {
       testPoint: { id: point.id, name: point.name },
+      // the ready record is the first; the stop record is the second when the point was ready before
+      recordNumber: `${point.id}/${kind === 'stopped' && point.readyMs !== null ? 2 : 1}`,
       kind,
       createdAt: new Date(nowMs).toISOString(),
-      entries: point.channels.map((name) => {
-        const channel = this.registry.get(name);
-        if (!channel) throw new Error(`test point ${point.id}: channel ${name} is not in the registry`);
-        const snapshot = channel.pipeline.snapshot();
-        // The stationary bootstrap's standard error beside the analytic one (a cross-check).
-        return { ...recordEntry(snapshot, channel.unit), bootstrap: channelBootstrapCheck(channel.pipeline.series.values(), snapshot) };
-      }),
+      provisional: entries.some((e) => e.provisional === true),
+      entries,
       derived: this.derived ? this.derived.recordEntries(point.derived) : [],
       caution: RECORD_CAUTION,
     };

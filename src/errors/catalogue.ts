@@ -57,6 +57,7 @@ export const ERRORS = {
   // Test points (HTTP and the MQTT command topic).
   ERR_TEST_POINT_EMPTY: { status: 400, exit: USER, message: 'a test point needs at least one channel or derived result' },
   ERR_TEST_POINT_CHANNEL: { status: 400, exit: USER, message: '"{name}" is not a valid channel name' },
+  ERR_TEST_POINT_CHANNEL_UNKNOWN: { status: 404, exit: USER, message: 'no channel "{name}": no sample of it has arrived (known channels: {known})' },
   ERR_TEST_POINT_DERIVED: { status: 400, exit: USER, message: 'no derived result named "{name}" (known: {known})' },
   ERR_TEST_POINT_SET_POINT: { status: 400, exit: USER, message: 'set point for "{name}": {problem}' },
   ERR_TEST_POINT_ID: { status: 400, exit: USER, message: 'test point id "{id}": letters, digits, _ . - only, up to 64 characters' },

@@ -8,6 +8,7 @@ import { svgBarChart, svgChart, type SvgBar } from './svg-chart.js';
 import { recordDerivedEntries } from './record-derived.js';
 import { criteriaSection } from './report-criteria.js';
 import type { ChannelTrace, CusumTrace, DerivedView } from '../ports/daemon-api.js';
+import type { CombinedReport, ConformityReport } from '../engine/channel-combined.js';
 
 /**
  * The printable test-point report (HTML, for print to PDF): per channel the result in the wording
@@ -88,6 +89,9 @@ th{font-weight:600;color:#394452}
 .meta td:first-child{color:#4a5563}
 .statement{background:#f1f5f8;padding:.6rem .8rem;border-left:4px solid #2f6b8a;font-size:13px;margin:.4rem 0}
 .statement.none{border-left-color:#b5651d}
+.provisional{background:#fbeee0;padding:.5rem .8rem;border-left:4px solid #b5651d;font-size:13px;margin:.4rem 0}
+table.budget tr.covariance td{font-style:italic}
+table.budget tr.total td{font-weight:600;border-top:2px solid #555}
 .grid{display:flex;flex-wrap:wrap;gap:.4rem 1rem}
 .note{color:#4a5563}
 .caution{margin-top:2rem;padding:.7rem .9rem;border:1.5px solid #b5651d;background:#fff8f0}
@@ -95,6 +99,8 @@ th{font-weight:600;color:#394452}
 svg{display:block;margin:.2rem 0}
 footer{margin-top:1.5rem;color:#4a5563;font-size:11px}
 @media print{body{margin:0;max-width:none}h2{break-after:avoid}section{break-inside:avoid-page}.grid{break-inside:avoid}a{color:inherit;text-decoration:none}}
+@page{margin:16mm 12mm 16mm;@top-left{content:"${cssText(`Test point ${point.id}${record?.recordNumber ? `, record ${record.recordNumber}` : ''}`)}";font-size:9px;color:#4a5563}@top-right{content:"plateau ${cssText(input.version)}";font-size:9px;color:#4a5563}@bottom-right{content:"page " counter(page) " of " counter(pages);font-size:9px;color:#4a5563}}
+table.budget{break-inside:avoid}
 </style></head><body>
 <header>
 <h1>Test point report: ${escapeHtml(point.name)}</h1>
@@ -105,6 +111,7 @@ footer{margin-top:1.5rem;color:#4a5563;font-size:11px}
 ${point.readyMs ? `<tr><td>Ready</td><td>${escapeHtml(iso(point.readyMs))}</td></tr>` : ''}
 ${point.stoppedMs ? `<tr><td>Stopped</td><td>${escapeHtml(iso(point.stoppedMs))}</td></tr>` : ''}
 <tr><td>Record</td><td>${record ? `written ${escapeHtml(record.createdAt)} when the test point ${record.kind === 'ready' ? 'became ready' : 'was stopped'}` : 'none yet: the values below are the current ones, not a record'}</td></tr>
+${record?.recordNumber ? `<tr><td>Record number</td><td>${escapeHtml(record.recordNumber)}${record.provisional ? ' (provisional: some channel was not ready, see its section)' : ''}</td></tr>` : ''}
 <tr><td>Report generated</td><td>${escapeHtml(generated)} by plateau ${escapeHtml(input.version)}</td></tr>
 </table>
 </header>
@@ -191,10 +198,11 @@ function channelSection(channel: ReportChannel, entry: RecordEntry | null, recor
     ['averaging limit (Allan deviation)', s.averagingLimit ? `reached at m = ${s.averagingLimit.m}${s.averagingLimit.tauSeconds !== null ? ` (${num(s.averagingLimit.tauSeconds, 3)} s)` : ''}: longer averaging does not reduce the scatter further` : 'none found in this window'],
   ];
   return `<section><h2>${escapeHtml(channel.name)}${channel.unit ? ` (${escapeHtml(channel.unit)})` : ''}</h2>
-<p class="statement${entry ? '' : ' none'}">${escapeHtml(statement)}</p>
+<p class="statement${entry && !entry.provisional ? "" : " none"}">${escapeHtml(statement)}</p>
 <p class="note">${escapeHtml(source)}</p>
-<h3>Result</h3>
+${provisionalBlock(entry)}<h3>Result</h3>
 <table>${rows(result)}</table>
+${combinedBlock(entry ? (entry.combined ?? null) : s.combined, entry ? (entry.conformity ?? null) : s.conformity, unit)}
 <h3>Standard uncertainty of the mean</h3>
 <p>Estimated with ${escapeHtml(ESTIMATOR_TEXT[estimator] ?? estimator)}${s.estimatorReason ? ` (${escapeHtml(s.estimatorReason)})` : ''}. The other estimators on the same window, for comparison${s.n !== values.n ? ` (window now n = ${s.n})` : ''}:</p>
 <table><tr><th>estimator</th><th>tau_int</th><th>n_eff</th><th>u</th><th>nu</th><th>window / batch</th><th>reliable</th></tr>${estimatorRows.join('')}</table>
@@ -273,10 +281,71 @@ ${budgetChart(d)}
 <table><tr><th>input</th><th>state</th><th>mean</th><th>u(x_i)</th><th>sensitivity c_i</th><th>c_i u(x_i)</th><th>c_i² u²(x_i) / u_c²</th><th>share with covariance</th></tr>${budgetRows.join('')}</table>
 ${covarianceRows.length ? `<table><tr><th>covariance term</th><th>r of the means</th><th>2 c_i c_j u(x_i, x_j)</th><th>share of u_c²</th></tr>${covarianceRows.join('')}</table>` : ''}
 <p class="note">${escapeHtml(covarianceText(d))}</p>
+${combinedBlock(d.combined ?? null, d.conformity ?? null, unit)}
 ${correlations.length ? `<h3>Correlation with the other derived results</h3><table><tr><th>derived result</th><th>r</th></tr>${correlations.map(([other, r]) => `<tr><td>${escapeHtml(other)}</td><td>${escapeHtml(num(r, 3))}</td></tr>`).join('')}</table>` : ''}
 ${entry ? monteCarloBlock(entry, unit) + bootstrapBlock(entry, unit) : '<p class="note">The Monte Carlo (JCGM 101) and bootstrap checks are computed when the record is written.</p>'}
 ${otherNotes(d).length ? `<p class="note">Notes: ${escapeHtml(otherNotes(d).join('; '))}</p>` : ''}
 </section>`;
+}
+
+/** Text for a CSS string of the running header: letters, digits and a few marks only (ids are already restricted so). */
+function cssText(text: string): string {
+  return text.replace(/[^A-Za-z0-9 _.,:/-]/g, '?').slice(0, 120);
+}
+
+/** A provisional record entry: said before the result, with the reasons (issue 10, honest records). */
+function provisionalBlock(entry: RecordEntry | null): string {
+  if (!entry?.provisional) return '';
+  const reasons = entry.provisionalReasons ?? [];
+  return `<p class="provisional"><strong>Provisional.</strong> This channel was not ready when the record was made, so its figures are not a measurement result to report${reasons.length ? `: ${escapeHtml(reasons.join('; '))}` : ''}.</p>\n`;
+}
+
+const VERDICT_TEXT: Record<string, string> = { pass: 'pass', 'conditional-pass': 'conditional pass', 'conditional-fail': 'conditional fail', fail: 'fail' };
+const RULE_TEXT: Record<string, string> = {
+  simple: 'simple acceptance: the measured value against the limits, no guard band (ILAC-G8:09/2019 4.2.1)',
+  guarded: 'guarded acceptance, binary: acceptance limits inside the tolerance by the guard band w (ILAC-G8:09/2019 4.2.2)',
+  'non-binary': 'guarded, non-binary: pass, conditional pass, conditional fail, fail (ILAC-G8:09/2019 4.2.3)',
+};
+
+/**
+ * The combined uncertainty with its budget (one line per component, the covariance lines of
+ * correlated or shared sources, the closing u_c, nu_eff, k, U) and conformity with the stated
+ * decision rule and the conformance probability (issue 10).
+ */
+function combinedBlock(c: CombinedReport | null, f: ConformityReport | null, unit: string): string {
+  if (c === null) return '';
+  const hasTypeB = c.budget.some((b) => b.evaluation !== 'A');
+  let html = '';
+  if (hasTypeB || c.budget.length > 1) {
+    const lines = c.budget.map(
+      (b) =>
+        `<tr${b.evaluation === 'covariance' ? ' class="covariance"' : ''}><td>${escapeHtml(b.quantity)}</td><td>${escapeHtml(b.component)}${b.proposed ? ' (proposed from the readings)' : ''}</td><td>${escapeHtml(b.evaluation === 'covariance' ? '-' : b.evaluation)}</td><td>${escapeHtml(num(b.estimate, 6))}</td><td>${escapeHtml(num(b.standardUncertainty, 3))}</td><td>${escapeHtml(b.distribution)}</td><td>${escapeHtml(num(b.sensitivity, 4))}</td><td>${escapeHtml(num(b.contribution, 3))}</td><td>${escapeHtml(b.dof === null ? '∞' : num(b.dof, 3))}</td><td>${escapeHtml(percentText(b.share))}</td></tr>`,
+    );
+    html += `<h3>Uncertainty budget</h3>
+<p>Every source of uncertainty with its evaluation (A: statistical, B: otherwise; GUM 4.2, 4.3), its value, standard uncertainty, assumed distribution, sensitivity coefficient, contribution c u to the result, degrees of freedom and share of u<sub>c</sub>² (covariance lines: sources common to two inputs, fully correlated when they are the same reference).</p>
+<table class="budget"><tr><th>quantity</th><th>source</th><th>type</th><th>value used</th><th>standard uncertainty</th><th>distribution</th><th>sensitivity</th><th>contribution</th><th>degrees of freedom</th><th>share of u_c²</th></tr>${lines.join('')}
+<tr class="total"><td colspan="4">combined: u_c = ${escapeHtml(num(c.standardUncertainty, 3))}${escapeHtml(unit)}</td><td colspan="2">nu_eff = ${escapeHtml(c.dof === null ? '∞' : num(c.dof, 3))} (Welch-Satterthwaite)</td><td colspan="2">k = ${escapeHtml(num(c.coverageFactor, 4))}</td><td colspan="2">U = ${escapeHtml(num(c.expandedUncertainty, 3))}${escapeHtml(unit)} (${escapeHtml(num(c.confidence * 100, 4))} %)</td></tr></table>
+${c.notes.length ? `<p class="note">${escapeHtml(c.notes.join('; '))}</p>` : ''}`;
+  }
+  if (c.stopping) {
+    const st = c.stopping;
+    html += `<p class="note">Stopping rule: ${escapeHtml(st.stop ? `met (${st.reason === 'dominance' ? `the statistical part u_A <= ${st.fraction} u_c` : st.target?.basis === 'type-a' ? 'the target on the Type A part' : 'the target on the combined uncertainty'})` : st.waitingFor === null ? 'cannot be met in this window' : `not met; waiting for ${st.waitingFor === 'dominance' ? `u_A <= ${st.fraction} u_c` : st.target?.basis === 'type-a' ? 'the Type A target' : 'the combined target'}`)}${st.typeARatio === null ? '' : escapeHtml(`; u_A = ${st.typeARatio.toFixed(2)} u_c`)}.</p>`;
+  }
+  if (f !== null) {
+    const limits = `${f.lower === null ? '-' : num(f.lower, 8)} to ${f.upper === null ? '-' : num(f.upper, 8)}${unit}`;
+    const table: [string, string][] = [
+      ['decision rule', RULE_TEXT[f.rule] ?? f.rule],
+      ['specification limits', limits],
+      ['guard band w', f.guardBand === null ? '-' : `${num(f.guardBand, 3)}${unit}${f.rule === 'simple' ? '' : ' on each side'}`],
+      ['acceptance interval', `${f.acceptance.lower === null ? '-' : num(f.acceptance.lower, 8)} to ${f.acceptance.upper === null ? '-' : num(f.acceptance.upper, 8)}${unit}`],
+      ['value judged, with U', `${num(f.value, 10)}${unit}, U = ${num(f.expandedUncertainty, 3)}${unit}`],
+      ['outcome', f.verdict === null ? `no verdict${f.note ? ` (${f.note})` : ''}` : VERDICT_TEXT[f.verdict] ?? f.verdict],
+      ['conformance probability p_c (JCGM 106:2012, clause 7)', f.probability === null ? '-' : num(f.probability, 4)],
+    ];
+    html += `<h3>Conformity</h3><table>${rows(table)}</table>
+<p class="note">The statement of conformity is informative: it follows the decision rule stated above and defers to the laboratory's own procedure, its agreement with the customer and its accreditation.</p>`;
+  }
+  return html;
 }
 
 /** The notes not already shown with the Monte Carlo and bootstrap checks (a record repeats theirs in notes). */

@@ -276,6 +276,9 @@ describe.skipIf(!available)('dashboard in Chromium', () => {
     await untilVisible(page.locator('.view-channel .channel-events li'));
     // The test point restarted this channel's window: the trace shows the samples before it, shaded.
     await untilText(page.locator('.view-channel'), /are outside the averaging window/);
+    // The uncertainty budget (issue 10): the Type A line, and u_c, nu_eff, k and U above it.
+    await untilText(page.locator('.view-channel .budget-panel'), /u_c = [\d.e-]+, ν_eff = [\d.∞]+, k = [\d.]+, U = [\d.e-]+/);
+    await untilText(page.locator('.view-channel .budget-panel tbody'), /Type A: scatter of the readings/);
     await page.waitForTimeout(500);
     await page.screenshot({ path: join(OUTPUT, 'dashboard-channel.png'), fullPage: true });
   });

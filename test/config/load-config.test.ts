@@ -95,3 +95,64 @@ describe('configuration validation', () => {
     expect(globMatch(`${'*a'.repeat(20)}b`, 'a'.repeat(40))).toBe(false);
   });
 });
+
+describe('issue 10 settings in the configuration: Type B, limits, decision rule, combined target, dominance fraction', () => {
+  const certificate = { name: 'reference certificate', kind: 'certificate', expanded: 0.012, coverageFactor: 2, shared: 'ref-prt' };
+
+  it('reads them under channels.defaults and channels.groups[] (a group replaces the list) and under derived[] with constants', () => {
+    const config = parseConfig({
+      subscriptions,
+      channels: {
+        defaults: { typeB: [certificate], dominanceFraction: 0.2, combinedTarget: { U: 0.02 } },
+        groups: [{ match: 'kb4.probe*', typeB: [certificate, { name: 'display', kind: 'resolution', step: 0.01 }], conformity: { lower: 29.9, upper: 30.1, rule: 'guarded' }, proposeResolution: false }],
+      },
+      derived: [{ name: 'kb4.offset', expression: 'kb4.probe1 - kb4.ref + drift_corr', conformity: { upper: 0.05 }, combinedTarget: { u: 0.01 }, constants: [{ name: 'drift_corr', value: 0.001, kind: 'normal', standardUncertainty: 0.0005, dof: 12 }] }],
+    });
+    const ref = settingsFor(config, 'kb4.ref');
+    expect(ref.typeB).toEqual([{ ...certificate }]);
+    expect(ref.dominanceFraction).toBe(0.2);
+    expect(ref.combinedTarget).toEqual({ value: 0.02, relative: false, on: 'U' });
+    expect(ref.conformity).toBeNull();
+    expect(ref.proposeResolution).toBe(true);
+    const probe = settingsFor(config, 'kb4.probe1');
+    expect(probe.typeB.map((c) => c.name)).toEqual(['reference certificate', 'display']);
+    expect(probe.conformity).toEqual({ limits: { lower: 29.9, upper: 30.1 }, rule: { kind: 'guarded', guardFactor: 1 } });
+    expect(probe.proposeResolution).toBe(false);
+    const d = config.derived[0];
+    expect(d?.conformity).toEqual({ limits: { lower: null, upper: 0.05 }, rule: { kind: 'simple' } });
+    expect(d?.combinedTarget).toEqual({ value: 0.01, relative: false, on: 'u' });
+    expect(d?.constants).toEqual([{ name: 'drift_corr', value: 0.001, uncertainty: { name: 'drift_corr', kind: 'normal', standardUncertainty: 0.0005, dof: 12 } }]);
+  });
+
+  it('defaults: no components, no limits, no combined target, no dominance rule, resolution proposed', () => {
+    const s = settingsFor(parseConfig({ subscriptions }), 'any');
+    expect([s.typeB, s.conformity, s.combinedTarget, s.dominanceFraction, s.proposeResolution]).toEqual([[], null, null, null, true]);
+  });
+
+  it('bad input: one line per problem naming the key path (missing and negative values, unknown kind, lower > upper, guard band beyond the interval)', () => {
+    const lines = problems({
+      subscriptions,
+      channels: {
+        defaults: { typeB: [{ name: 'cert', kind: 'certificate', coverageFactor: 2 }, { name: 'bath', kind: 'stability', halfWidth: -0.01 }], dominanceFraction: 1.5 },
+        groups: [{ match: 'kb4.*', typeB: [{ name: 'odd', kind: 'trapezoid', halfWidth: 1 }], conformity: { lower: 30.1, upper: 29.9 } }, { match: 'kb5.*', conformity: { lower: 0, upper: 1, rule: 'guarded', guardBand: 0.6 }, combinedTarget: { U: -1 } }],
+      },
+      derived: [{ name: 'kb4.offset', expression: 'kb4.a - kb4.b', conformity: { lower: 2, upper: 1 }, constants: [{ name: 'c1', kind: 'normal', standardUncertainty: 0.1 }, { name: 'c 2', value: 1, kind: 'normal', standardUncertainty: -0.1 }] }],
+    });
+    expect(lines).toEqual(
+      expect.arrayContaining([
+        'channels.defaults.typeB[0].expanded: missing: the expanded uncertainty U printed on the certificate',
+        'channels.defaults.typeB[1].halfWidth: expected a number at least 0, got -0.01',
+        'channels.defaults.dominanceFraction: expected a number between 0 and 1, got 1.5',
+        'channels.groups[0].typeB[0].kind: unknown kind "trapezoid" (expected one of certificate, resolution, drift, stability, installation, rectangular, triangular, u-shaped, normal)',
+        'channels.groups[0].conformity.lower: the lower limit 30.1 lies above the upper limit 29.9',
+        'channels.groups[1].conformity.guardBand: a guard band of 0.6 on each side leaves no acceptance interval between 0 and 1 (it must be less than 0.5)',
+        'channels.groups[1].combinedTarget.U: expected a number above 0, got -1',
+        'derived[0].conformity.lower: the lower limit 2 lies above the upper limit 1',
+        "derived[0].constants[0].value: missing: the constant's value",
+        'derived[0].constants[1].standardUncertainty: expected a number at least 0, got -0.1',
+      ]),
+    );
+    // one line each: no duplicates
+    expect(new Set(lines).size).toBe(lines.length);
+  });
+});

@@ -4,7 +4,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { startEmbeddedBroker, type EmbeddedBroker } from '../../src/ingest/embedded-broker.js';
 import { Daemon } from '../../src/daemon/daemon.js';
-import { analyzeFile } from '../../src/cli/analyze.js';
+import { analyzeFile, configuredChannels } from '../../src/cli/analyze.js';
 import { DEFAULT_CHANNEL_OPTIONS } from '../../src/engine/channel-options.js';
 import { buildHttpApp } from '../../src/server/http-app.js';
 import { SeededRandom, ar1Series } from '../../src/core/random/seeded-random.js';
@@ -37,9 +37,9 @@ afterAll(async () => {
   await embedded.close();
 });
 
-async function roundTrip(url: string, protocolVersion: 4 | 5) {
+async function roundTrip(url: string, protocolVersion: 4 | 5, channels?: Record<string, unknown>) {
   const prefix = unique('it-equal');
-  const config = testConfig({ url, prefix, clientId: unique('plateau'), extra: { broker: { url, clientId: unique('plateau'), qos: 1, protocolVersion, reconnectPeriodMs: 200 } } });
+  const config = testConfig({ url, prefix, clientId: unique('plateau'), ...(channels ? { channels } : {}), extra: { broker: { url, clientId: unique('plateau'), qos: 1, protocolVersion, reconnectPeriodMs: 200 } } });
   const daemon = new Daemon(config);
   await daemon.start();
   await waitFor(() => daemon.ingest?.connected === true, 5000, 'the daemon to connect');
@@ -66,7 +66,7 @@ async function roundTrip(url: string, protocolVersion: 4 | 5) {
   const dir = mkdtempSync(join(tmpdir(), 'plateau-eq-'));
   const file = join(dir, 'same.csv');
   writeFileSync(file, `${rows.join('\n')}\n`);
-  const report = await analyzeFile(file, DEFAULT_CHANNEL_OPTIONS);
+  const report = channels ? await analyzeFile(file, DEFAULT_CHANNEL_OPTIONS, {}, { requests: [] }, configuredChannels(config, {}, DEFAULT_CHANNEL_OPTIONS)) : await analyzeFile(file, DEFAULT_CHANNEL_OPTIONS);
   publisher.end(true);
   await app.close();
   await daemon.stop();
@@ -96,5 +96,31 @@ describe.each([
       const kinds = (events: unknown) => (events as { kind: string; at: number }[]).filter((e) => e.kind !== 'stale' && e.kind !== 'fresh').map((e) => `${e.kind}@${e.at}`);
       expect(kinds(fromApi.events)).toEqual(kinds(fromFile.events));
     }
+  });
+});
+
+describe('embedded broker, with Type B components, limits and a stopping rule (issue 10)', () => {
+  // The daemon and `plateau analyze --config` (configuredChannels) apply the same settings: the combined
+  // uncertainty, the conformity and the verdict with its stopping condition agree field for field.
+  it('combined, conformity and verdict equal plateau analyze with the same configuration', async () => {
+    const channels = {
+      defaults: {
+        window: { kind: 'growing' },
+        typeB: [
+          { name: 'reference certificate', kind: 'certificate', expanded: 0.02, coverageFactor: 2, shared: 'ref' },
+          { name: 'installation', kind: 'installation', halfWidth: 0.01, reliability: 0.25 },
+        ],
+        dominanceFraction: 0.2,
+      },
+      groups: [{ match: 'inlet_degC', conformity: { lower: 39.9, upper: 40.1, rule: 'non-binary' }, combinedTarget: { U: 0.05 } }],
+    };
+    const { api, report } = await roundTrip(embedded.url, 4, channels);
+    for (const name of ['inlet_degC', 'flow_kg_s']) {
+      const fromApi = api.find((c) => c.name === name) as Record<string, unknown>;
+      const fromFile = report.channels.find((c) => c.name === name) as unknown as Record<string, unknown>;
+      for (const key of ['standardUncertainty', 'dof', 'combined', 'conformity', 'verdict']) expect(fromApi[key], `${name}.${key}`).toEqual(fromFile[key]);
+      expect((fromApi.combined as { budget: unknown[] }).budget).toHaveLength(3);
+    }
+    expect((api.find((c) => c.name === 'inlet_degC')?.conformity as { rule: string }).rule).toBe('non-binary');
   });
 });

@@ -3,7 +3,8 @@ import type { FastifyInstance, InjectOptions } from 'fastify';
 import { buildHttpApp } from '../../src/server/http-app.js';
 import { svgBarChart } from '../../src/server/svg-chart.js';
 import { SeededRandom } from '../../src/core/random/seeded-random.js';
-import { derivedRecordCsv, type DerivedReportEntry } from '../../src/engine/derived/derived-record.js';
+import { derivedRecordCsv, derivedStatement, type DerivedReportEntry } from '../../src/engine/derived/derived-record.js';
+import type { DerivedSnapshot } from '../../src/engine/derived/derived-engine.js';
 import { recordCsv, type TestPointRecord } from '../../src/engine/test-point-record.js';
 import { makeTestDaemon, RIG_START_SECONDS, type TestDaemon } from './harness.js';
 import { assertNoNonFinite } from '../helpers/cli.js';
@@ -80,9 +81,12 @@ describe('GET /api/derived', () => {
     const entry = rig.daemon.derived.recordEntries([NAME])[0] as DerivedReportEntry;
     const expectedKeys = Object.keys(entry).filter((k) => k !== 'monteCarlo' && k !== 'bootstrap').sort();
     expect(Object.keys(view).sort()).toEqual(expectedKeys);
-    // Nothing is lost or altered by the response schema: the daemon's own view, with the statement a record states.
-    const own = rig.daemon.derived.snapshots()[0];
-    expect(view).toEqual(JSON.parse(JSON.stringify({ ...own, statement: entry.statement })));
+    // Nothing is lost or altered by the response schema: the daemon's own view, with the GUM statement of the live
+    // value and the provisional flag a record made now would carry (a record of a result not at target says
+    // PROVISIONAL instead of the GUM statement: issue 10, honest records).
+    const own = rig.daemon.derived.snapshots()[0] as DerivedSnapshot;
+    expect(view).toEqual(JSON.parse(JSON.stringify({ ...own, statement: derivedStatement(own), provisional: entry.provisional, provisionalReasons: entry.provisionalReasons })));
+    expect(entry.statement).toBe(entry.provisional ? `${NAME}: PROVISIONAL, not a measurement result to report (${entry.provisionalReasons.join('; ')}); value ${entry.value} kW` : view.statement);
     expect(view.inputs).toEqual(INPUTS);
     expect((view.budget as { channel: string }[]).map((b) => b.channel)).toEqual(INPUTS);
     assertNoNonFinite(r.body);

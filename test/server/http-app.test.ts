@@ -3,7 +3,7 @@ import fc from 'fast-check';
 import type { FastifyInstance, InjectOptions } from 'fastify';
 import { buildHttpApp } from '../../src/server/http-app.js';
 import { recordCsv, type TestPointRecord } from '../../src/engine/test-point-record.js';
-import { makeTestDaemon, type TestDaemon } from './harness.js';
+import { RIG_START_SECONDS, makeTestDaemon, type TestDaemon } from './harness.js';
 import { assertNoNonFinite } from '../helpers/cli.js';
 
 // Every route of the HTTP API through fastify's inject (no socket), with its good and bad
@@ -147,14 +147,30 @@ describe('GET /api/channels/:name', () => {
   });
 
   it('names with "/" work when percent-encoded', async () => {
-    // A test point over a channel not seen yet registers it (no samples).
+    // The channel exists once a sample of it has arrived (a SenML record named with "/" and ":").
+    t.publishRaw('rig/hx7/senml', JSON.stringify([{ bn: 'hx7.', bt: RIG_START_SECONDS + 1, n: 'bay-2/probe:a', v: 1 }]));
+    t.daemon.commitNow();
     t.daemon.startTestPoint({ id: 'tp-slash', channels: ['hx7.bay-2/probe:a'] });
     t.daemon.stopTestPoint('tp-slash');
     const r = await call({ method: 'GET', url: `/api/channels/${encodeURIComponent('hx7.bay-2/probe:a')}` });
     expect(r.status).toBe(200);
     expect(r.body?.name).toBe('hx7.bay-2/probe:a');
-    expect(r.body?.n).toBe(0);
-    expect((r.body?.trace as { values: number[] }).values).toEqual([]);
+    expect(r.body?.n).toBe(0); // the test point restarted its window after the one sample
+  });
+
+  it('a test point naming a channel that has never had a sample is refused (404 over HTTP, command-refused over MQTT), and no empty channel is made (issue 10)', async () => {
+    const r = await call({ method: 'POST', url: '/api/test-points', payload: { id: 'tp-typo', channels: ['hx7.glycol_flow_kg_s', 'hx7.glycol_flw_kg_s'] } });
+    expectRefusal(r, 404, 'ERR_TEST_POINT_CHANNEL_UNKNOWN');
+    expect(String(r.body?.message)).toMatch(/^no channel "hx7.glycol_flw_kg_s": no sample of it has arrived \(known channels: .*hx7.glycol_flow_kg_s/);
+    expectRefusal(await call({ method: 'GET', url: '/api/channels/hx7.glycol_flw_kg_s' }), 404, 'ERR_CHANNEL_UNKNOWN');
+    expect(t.daemon.testPoints.get('tp-typo')).toBeUndefined();
+    const before = t.daemon.store.lastEventId();
+    t.publishRaw('plateau/hx7/command/test-point/start', JSON.stringify({ id: 'tp-typo-mqtt', channels: ['hx7.nowhere'] }));
+    t.daemon.commitNow();
+    const refused = t.daemon.store.eventsOfKind('command-refused', before, 10);
+    expect(refused).toHaveLength(1);
+    expect(JSON.stringify(refused[0])).toContain('ERR_TEST_POINT_CHANNEL_UNKNOWN');
+    expect(t.daemon.registry.get('hx7.nowhere')).toBeUndefined();
   });
 
   it('an unknown channel is a 404; a name outside the pattern, a bad trace length or an unknown parameter a 400', async () => {

@@ -75,7 +75,42 @@ describe('renderReport', () => {
     expect(html).toContain('reviewed and approved by a competent person');
     expect(html).toContain('Ready: every channel reached steady state and its target precision.');
   });
+
+  it('a test point stopped before its channels were steady: the record and the report call each entry provisional, say why, and give no GUM statement (issue 10)', () => {
+    t.daemon.startTestPoint({ id: 'rep-3', name: 'stopped early', channels: ['hx7.glycol_flow_kg_s', 'hx7.shell_dp_kPa'] });
+    t.feedRig(2); // about 20 samples: far from steady
+    t.daemon.stopTestPoint('rep-3');
+    const record = t.daemon.store.records('rep-3').at(-1)?.body as { recordNumber: string; provisional: boolean; kind: string; entries: { channel: string; statement: string; provisional: boolean; provisionalReasons: string[] }[] };
+    expect(record.kind).toBe('stopped');
+    expect(record.recordNumber).toBe('rep-3/1');
+    expect(record.provisional).toBe(true);
+    for (const entry of record.entries) {
+      expect(entry.provisional).toBe(true);
+      expect(entry.provisionalReasons.length).toBeGreaterThan(0);
+      expect(entry.statement).toMatch(new RegExp(`^${entry.channel.replace(/\./g, '\\.')}: PROVISIONAL, not a measurement result to report \\(`));
+      expect(entry.statement).not.toMatch(/expanded uncertainty U = k·u/);
+    }
+    const html = reportFor('rep-3');
+    expect((html.match(/<p class="provisional"><strong>Provisional\.<\/strong>/g) ?? []).length).toBe(2);
+    expect(html).toContain(escapeForHtml(record.entries[0]?.provisionalReasons[0] ?? ''));
+    expect(html).toContain('Record number</td><td>rep-3/1 (provisional');
+    expect(html).not.toMatch(/expanded uncertainty U = k·u with u/);
+  });
+
+  it('the ready record is not provisional and is record number 1; the stop record after it is number 2', () => {
+    t.daemon.stopTestPoint('rep-2');
+    const records = t.daemon.store.records('rep-2').map((r) => r.body as { recordNumber: string; provisional: boolean; kind: string });
+    expect(records.map((r) => [r.kind, r.recordNumber])).toEqual([
+      ['ready', 'rep-2/1'],
+      ['stopped', 'rep-2/2'],
+    ]);
+    expect(records[0]?.provisional).toBe(false);
+  });
 });
+
+function escapeForHtml(text: string): string {
+  return text.replace(/&/g, '&amp;').replace(/</g, '&lt;').replace(/>/g, '&gt;').replace(/"/g, '&quot;');
+}
 
 describe('svgChart', () => {
   it('draws nothing for fewer than two points and survives constant, zero and non-finite values', () => {

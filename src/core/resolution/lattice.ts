@@ -11,7 +11,8 @@
  *   relative tolerance of 1e-6 (decimal steps are not exact in binary). `coarse` when the step is at
  *   least a quarter of the readings' standard deviation: the resolution then matters for the mean
  *   (finer lattices are reported, not flagged).
- * Cost: O(n) with a set of at most MAX_DISTINCT values, plus O(d log d) for d distinct values.
+ * Cost: O(n) with a set of at most MAX_DISTINCT values, plus O(d log d) for d distinct values; for
+ *   readings that are not on a lattice, the reading stops after MAX_DISTINCT + 1 distinct values.
  */
 export interface Lattice {
   step: number;
@@ -24,19 +25,26 @@ export const MAX_DISTINCT = 256;
 const TOLERANCE = 1e-6;
 
 export function detectLattice(values: ArrayLike<number>): Lattice | null {
-  const n = values.length;
+  return detectLatticeAt(values.length, (i) => values[i] as number);
+}
+
+/** detectLattice over n values read by index (a ring buffer, without copying it). */
+export function detectLatticeAt(n: number, valueAt: (i: number) => number): Lattice | null {
+  const values = { length: n, at: valueAt };
   if (n < 16) return null;
   const seen = new Set<number>();
   let mean = 0;
   for (let i = 0; i < n; i++) {
-    const v = values[i] as number;
+    const v = valueAt(i);
     mean += v;
-    if (seen.size <= MAX_DISTINCT) seen.add(v);
+    seen.add(v);
+    // more distinct values than a lattice has: stop reading (continuous readings cost O(MAX_DISTINCT))
+    if (seen.size > MAX_DISTINCT) return null;
   }
-  if (seen.size > MAX_DISTINCT || seen.size < 2) return null;
+  if (seen.size < 2) return null;
   mean /= n;
   let squares = 0;
-  for (let i = 0; i < n; i++) squares += ((values[i] as number) - mean) ** 2;
+  for (let i = 0; i < n; i++) squares += (values.at(i) - mean) ** 2;
   const sd = Math.sqrt(squares / (n - 1));
   const sorted = [...seen].sort((a, b) => a - b);
   let smallest = Number.POSITIVE_INFINITY;

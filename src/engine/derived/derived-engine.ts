@@ -4,6 +4,11 @@ import { propagateJointly, propagateUncertainty, type PropagationResult } from '
 import { coverageFactor } from '../../core/uncertainty/coverage-factor.js';
 import { targetStatus, type TargetSpec, type TargetStatus } from '../../core/uncertainty/target-precision.js';
 import type { CompiledDerived } from './expression-model.js';
+import type { TypeBSpec } from '../../core/uncertainty/type-b-component.js';
+import { evaluateTypeB, typeAComponent } from '../../core/uncertainty/type-b-component.js';
+import type { ConformitySpec } from '../channel-options.js';
+import { combinedReport, conformityReport, type BudgetLine, type CombinedInput, type CombinedReport, type ConformityReport } from '../channel-combined.js';
+import type { BoundDerived } from './derived-constants.js';
 
 /**
  * The live derived-result engine: the covariance of the channel means over common time buckets,
@@ -82,6 +87,16 @@ export interface DerivedResultSpec {
   target: TargetSpec | null;
   /** Coverage probability of the expanded uncertainty. */
   confidence: number;
+  /** Issue 10: the input channels' Type B components, limits, combined target (constants: `compiled` from bindConstants). */
+  uncertainty?: DerivedUncertainty;
+}
+
+/** What turns a derived result's Type A uncertainty into its combined uncertainty and conformity. */
+export interface DerivedUncertainty {
+  /** Type B components of each input channel, by channel name (a component marked `shared` is fully correlated across channels). */
+  channelTypeB: Record<string, TypeBSpec[]>;
+  conformity: ConformitySpec | null;
+  combinedTarget: TargetSpec | null;
 }
 
 export interface DerivedEngineOptions {
@@ -160,6 +175,13 @@ export interface DerivedSnapshot {
   window: { startSeconds: number; endSeconds: number } | null;
   counts: DerivedCounts;
   notes: string[];
+  /**
+   * The Type A part above with the input channels' Type B components and the named constants
+   * (GUM H.1): u_c, nu_eff, k, U and the budget (null until the Type A part exists).
+   */
+  combined: CombinedReport | null;
+  /** Conformity with the result's limits and decision rule (null without limits). */
+  conformity: ConformityReport | null;
 }
 
 export interface DerivedCounts {
@@ -582,6 +604,8 @@ export class DerivedEngine {
       window,
       counts,
       notes: [...baseNotes, note],
+      combined: null,
+      conformity: null,
     });
     if (snapshot === null || !snapshot.ready) {
       const note = this.width === null ? `waiting for samples of every input channel to decide the bucket width (${WIDTH_SAMPLES} each)` : `${m} complete row(s): at least 2 are needed`;
@@ -714,9 +738,52 @@ export class DerivedEngine {
         });
       }
       if (!(u > 0)) base.notes.push('combined standard uncertainty is zero: the inputs do not vary over the window');
-      return base;
+      return withCombined(base, spec, values, sensitivities, m);
     });
   }
+}
+
+/**
+ * The combined uncertainty of a derived result (channel-combined.ts): the Type A part (the channel
+ * means with their covariances over the common rows, one source with the engine's nu) shown per
+ * channel with its covariance line, the channels' Type B components entering with c_i (shared ones
+ * fully correlated: in a difference they cancel and the budget shows the covariance term), and the
+ * named constants with their c (GUM H.1). The value is corrected, to first order, by c_i times each
+ * channel's correction estimates. Deterministic: numbers of the snapshot and the configuration only.
+ */
+function withCombined(base: DerivedSnapshot, spec: DerivedResultSpec, values: Record<string, number>, sensitivities: Float64Array, rows: number): DerivedSnapshot {
+  if (base.value === null || base.standardUncertainty === null || base.dof === null || !(base.dof > 0)) return base;
+  const u = spec.uncertainty;
+  const compiled = spec.compiled as Partial<BoundDerived> & CompiledDerived;
+  const inputs: CombinedInput[] = [{ name: 'readings', estimate: base.value, sensitivity: 1, components: [typeAComponent({ name: 'Type A: channel means over the common rows', standardUncertainty: base.standardUncertainty, dof: base.dof })] }];
+  let correction = 0;
+  compiled.inputs.forEach((channel, i) => {
+    const specs = u?.channelTypeB[channel] ?? [];
+    if (specs.length === 0) return;
+    const components = specs.map((s) => evaluateTypeB(s));
+    const c = sensitivities[i] as number;
+    for (const component of components) correction += c * component.sensitivity * component.estimate;
+    inputs.push({ name: channel, estimate: values[channel] as number, sensitivity: c, components });
+  });
+  const constants = compiled.constants ?? [];
+  if (constants.length > 0 && compiled.constantSensitivities) {
+    const cs = compiled.constantSensitivities(values);
+    constants.forEach((constant, k) => inputs.push({ name: constant.name, estimate: constant.value, sensitivity: cs[k] as number, components: [{ ...evaluateTypeB(constant.uncertainty), name: 'value of the constant' }] }));
+  }
+  const typeARows: BudgetLine[] = base.budget.map((entry) => ({ quantity: entry.channel, component: 'Type A: mean over the common rows', evaluation: 'A', kind: 'type-a', estimate: entry.mean, standardUncertainty: entry.standardUncertainty, distribution: 'normal', sensitivity: entry.sensitivity, contribution: entry.contribution, dof: base.dof, share: null, shared: null, basis: base.dofMethod === 'batches' ? 'multivariate batch means of the rows' : 'rows taken as independent observations', proposed: false }));
+  const covariance = base.covarianceTerms.filter((t) => t.term !== 0).map((t) => ({ quantity: `${t.channels[0]} / ${t.channels[1]}`, component: 'Type A: covariance of the means', term: t.term }));
+  const combined = combinedReport(inputs, {
+    confidence: spec.confidence,
+    value: base.value + correction,
+    n: rows,
+    mean: base.value,
+    rate: base.rowRate,
+    capacity: Number.POSITIVE_INFINITY,
+    settings: { combinedTarget: u?.combinedTarget ?? null, dominanceFraction: null },
+    typeAOverride: { rows: typeARows, covariance },
+  });
+  if (correction !== 0) combined.notes.push(`corrected, to first order, for the channels' correction estimates: ${correction.toPrecision(4)} added to the value`);
+  return { ...base, combined, conformity: u?.conformity ? conformityReport(u.conformity, combined) : null };
 }
 
 /** The automatic bucket width from the first samples' times of each channel (see the module comment). */

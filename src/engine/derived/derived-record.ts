@@ -1,5 +1,5 @@
 import { SeededRandom } from '../../core/random/seeded-random.js';
-import { gumStatement } from '../test-point-record.js';
+import { gumStatement, RECORD_CAUTION } from '../test-point-record.js';
 import { derivedBootstrapCheck, seedFrom, type BootstrapCheck } from './bootstrap-cross-check.js';
 import type { DerivedEngine, DerivedSnapshot } from './derived-engine.js';
 import { derivedMonteCarlo, type DerivedMonteCarloResult } from './derived-monte-carlo.js';
@@ -25,6 +25,12 @@ export interface DerivedVerdict {
 
 export interface DerivedReportEntry extends DerivedSnapshot, DerivedVerdict {
   statement: string;
+  /**
+   * No value yet, or a target not met (its inputs not steady, or U above it) when the entry was
+   * made: the statement says PROVISIONAL and why instead of taking the GUM form (issue 10).
+   */
+  provisional: boolean;
+  provisionalReasons: string[];
   monteCarlo: DerivedMonteCarloResult | { error: string } | null;
   bootstrap: BootstrapCheck | null;
 }
@@ -39,6 +45,20 @@ export function derivedVerdict(snapshot: DerivedSnapshot, hasTarget: boolean, in
     atTarget = waitingFor.length === 0;
   }
   return { atTarget, inputStates, waitingFor };
+}
+
+/** The GUM 7.2.4 statement of a derived result: of the combined result when Type B components or constants enter it. */
+export function derivedStatement(snapshot: DerivedSnapshot): string {
+  const c = snapshot.combined;
+  if (c !== null && c.budget.some((b) => b.evaluation === 'B')) return gumStatement(snapshot.name, c.value, c.standardUncertainty, c.expandedUncertainty, c.coverageFactor, c.dof ?? Number.POSITIVE_INFINITY, c.confidence, snapshot.unit);
+  return gumStatement(snapshot.name, snapshot.value, snapshot.standardUncertainty, snapshot.expandedUncertainty, snapshot.coverageFactor, snapshot.dof, snapshot.confidence, snapshot.unit);
+}
+
+/** The statement of an entry with its verdict: PROVISIONAL with the reasons, or the GUM statement (records, analyze, the live views). */
+export function derivedEntryStatement(snapshot: DerivedSnapshot, verdict: Pick<DerivedVerdict, 'atTarget' | 'waitingFor'>): { statement: string; provisional: boolean; provisionalReasons: string[] } {
+  const reasons = !snapshot.ready ? ['no value with an uncertainty yet (too few common rows of its inputs)'] : verdict.atTarget === false ? verdict.waitingFor : [];
+  if (reasons.length === 0) return { statement: derivedStatement(snapshot), provisional: false, provisionalReasons: [] };
+  return { statement: `${snapshot.name}: PROVISIONAL, not a measurement result to report (${reasons.join('; ')}); ${snapshot.value === null ? 'no value' : `value ${snapshot.value}${snapshot.unit ? ` ${snapshot.unit}` : ''}`}`, provisional: true, provisionalReasons: reasons };
 }
 
 export interface DerivedReportOptions {
@@ -59,11 +79,14 @@ export function derivedReportEntry(engine: DerivedEngine | null, snapshot: Deriv
   if (monteCarlo !== null && 'validated' in monteCarlo && monteCarlo.validated === false) notes.push(monteCarlo.note);
   if (monteCarlo !== null && 'error' in monteCarlo) notes.push(monteCarlo.error);
   if (bootstrap !== null && bootstrap.agrees === false) notes.push(bootstrap.note);
+  const { statement, provisional, provisionalReasons } = derivedEntryStatement(snapshot, verdict);
   return {
     ...snapshot,
     ...verdict,
     notes,
-    statement: gumStatement(snapshot.name, snapshot.value, snapshot.standardUncertainty, snapshot.expandedUncertainty, snapshot.coverageFactor, snapshot.dof, snapshot.confidence, snapshot.unit),
+    provisional,
+    provisionalReasons,
+    statement,
     monteCarlo,
     bootstrap,
   };
@@ -77,7 +100,7 @@ const CSV_COLUMNS = ['name', 'unit', 'value', 'standardUncertainty', 'dof', 'cov
  * bootstrap agrees, the budget as "channel:share" pairs, and the statement.
  */
 export function derivedRecordCsv(entries: DerivedReportEntry[]): string {
-  const header = [...CSV_COLUMNS, 'monteCarloLow', 'monteCarloHigh', 'monteCarloValidated', 'bootstrapAgrees', 'budget', 'statement'];
+  const header = [...CSV_COLUMNS, 'monteCarloLow', 'monteCarloHigh', 'monteCarloValidated', 'bootstrapAgrees', 'budget', 'statement', 'combinedStandardUncertainty', 'combinedDof', 'combinedCoverageFactor', 'combinedExpandedUncertainty', 'decisionRule', 'lowerLimit', 'upperLimit', 'guardBand', 'conformity', 'conformanceProbability', 'provisional', 'caution'];
   const rows = entries.map((entry) => {
     const mc = entry.monteCarlo !== null && 'validated' in entry.monteCarlo ? entry.monteCarlo : null;
     return [
@@ -88,6 +111,18 @@ export function derivedRecordCsv(entries: DerivedReportEntry[]): string {
       entry.bootstrap?.agrees ?? null,
       entry.budget.map((b) => `${b.channel}:${b.share === null ? '' : b.share.toPrecision(4)}`).join(' '),
       entry.statement,
+      entry.combined?.standardUncertainty ?? null,
+      entry.combined?.dof ?? null,
+      entry.combined?.coverageFactor ?? null,
+      entry.combined?.expandedUncertainty ?? null,
+      entry.conformity?.rule ?? null,
+      entry.conformity?.lower ?? null,
+      entry.conformity?.upper ?? null,
+      entry.conformity?.guardBand ?? null,
+      entry.conformity?.verdict ?? null,
+      entry.conformity?.probability ?? null,
+      entry.provisional ?? null,
+      RECORD_CAUTION,
     ];
   });
   return csvText(header, rows);

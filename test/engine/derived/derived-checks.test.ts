@@ -133,7 +133,7 @@ describe('derived record entries', () => {
     const entry = derivedReportEntry(engine, snapshot, verdict, { monteCarloTrials: 0 });
     expect(entry.statement).toMatch(/^rig\.q = \(1\.\d+ ± 0\.\d+\) kW, where the number following ± is the expanded uncertainty/);
     const csv = derivedRecordCsv([entry]).split('\r\n');
-    expect(csv[0]).toBe('name,unit,value,standardUncertainty,dof,coverageFactor,expandedUncertainty,confidence,estimator,rows,multivariateEss,atTarget,monteCarloLow,monteCarloHigh,monteCarloValidated,bootstrapAgrees,budget,statement');
+    expect(csv[0]).toBe('name,unit,value,standardUncertainty,dof,coverageFactor,expandedUncertainty,confidence,estimator,rows,multivariateEss,atTarget,monteCarloLow,monteCarloHigh,monteCarloValidated,bootstrapAgrees,budget,statement,combinedStandardUncertainty,combinedDof,combinedCoverageFactor,combinedExpandedUncertainty,decisionRule,lowerLimit,upperLimit,guardBand,conformity,conformanceProbability,provisional,caution');
     expect(csv[1]).toMatch(new RegExp(`^rig\\.q,kW,${String(snapshot.value).replace('.', '\\.')},`));
     expect(csv).toHaveLength(3); // header, one row, the final CRLF
   });
