@@ -1,4 +1,4 @@
-import { parseArgs } from 'node:util';
+import { readCommandArgs } from './command-args.js';
 import { ChannelPipeline, type ChannelSnapshot } from '../engine/channel-pipeline.js';
 import { DEFAULT_CHANNEL_OPTIONS, DEFAULT_MAX_SAMPLES, type ChannelOptions } from '../engine/channel-options.js';
 import { ESTIMATOR_NAMES, isEstimatorName } from '../core/tau/tau-estimate.js';
@@ -55,11 +55,8 @@ interface Io {
 }
 
 export async function runAnalyze(argv: string[], io: Io): Promise<number> {
-  const { values, positionals } = parseArgs({
-    args: argv,
-    allowPositionals: true,
-    options: {
-      json: { type: 'boolean', default: false },
+  const { values: parsed, positionals } = readCommandArgs('analyze', argv, {
+      json: { type: 'boolean' },
       window: { type: 'string' },
       'window-seconds': { type: 'string' },
       confidence: { type: 'string' },
@@ -74,9 +71,9 @@ export async function runAnalyze(argv: string[], io: Io): Promise<number> {
       delimiter: { type: 'string' },
       derive: { type: 'string', multiple: true },
       'monte-carlo-trials': { type: 'string' },
-      help: { type: 'boolean', short: 'h', default: false },
-    },
-  });
+      help: { type: 'boolean', short: 'h' },
+  }, true);
+  const values = parsed as Flags & { json?: boolean; help?: boolean; derive?: string[]; 'time-column'?: string; delimiter?: string };
   if (values.help) {
     io.out(ANALYZE_HELP);
     return 0;

@@ -46,6 +46,8 @@ import { TestPointControl } from './test-point-control.js';
  */
 export interface DaemonOptions {
   logger?: Logger;
+  /** Write the structured log to this file instead of standard output (the demo keeps its banner clean). */
+  logFile?: string;
   /** Broker URL to use when the config says "embedded" (the demo starts the broker itself). */
   brokerUrl?: string;
   clock?: Clock;
@@ -97,7 +99,11 @@ export class Daemon implements DaemonApi {
   constructor(config: PlateauConfig, options: DaemonOptions = {}) {
     this.config = config;
     this.options = options;
-    this.log = options.logger ?? pino({ level: config.log.level, base: { service: 'plateau' } });
+    this.log =
+      options.logger ??
+      (options.logFile !== undefined
+        ? pino({ level: config.log.level, base: { service: 'plateau' } }, pino.destination({ dest: options.logFile, sync: true, mkdir: true }))
+        : pino({ level: config.log.level, base: { service: 'plateau' } }));
     this.clock = options.clock ?? new SystemClock();
     this.brokerUrl = config.broker.url === 'embedded' ? options.brokerUrl ?? 'mqtt://127.0.0.1:1883' : config.broker.url;
     this.registry = new ChannelRegistry((name) => this.channelOptions(name));

@@ -1,7 +1,7 @@
-import { access } from 'node:fs/promises';
+import { access, stat } from 'node:fs/promises';
 import { guessDelimiter, readDelimitedLines, readLineBatches, splitFields } from './csv-lines.js';
 import { parseDecimalSpan, parseMeasurement, PROBLEM_TEXT, type ValueProblem } from './cell-value.js';
-import { createReadStream } from 'node:fs';
+import { constants, createReadStream } from 'node:fs';
 import { PlateauError } from '../errors/catalogue.js';
 
 /**
@@ -44,11 +44,17 @@ const PROBE_ROWS = 100;
 const TIME_NAMES = /^(t|time|times|timestamp|datetime|date|date_time|seconds|secs|time_s|time_sec|elapsed|elapsed_s|epoch|unix_time)$/i;
 
 export async function probeCsv(path: string, options: { timeColumn?: string; delimiter?: string } = {}): Promise<CsvLayout> {
+  let info;
   try {
-    await access(path);
-  } catch {
+    await access(path, constants.R_OK);
+    info = await stat(path);
+  } catch (error) {
+    const code = (error as NodeJS.ErrnoException).code;
+    if (code === 'EACCES' || code === 'EPERM') throw new CsvInputError(`${path}: not readable (permission denied)`);
     throw new CsvInputError(`${path}: no such file`);
   }
+  if (info.isDirectory()) throw new CsvInputError(`${path}: is a directory; give a CSV file inside it`);
+  if (!info.isFile() && !info.isFIFO()) throw new CsvInputError(`${path}: not a regular file (a CSV file is needed)`);
   const headerLine = await firstLine(path);
   if (headerLine === null || headerLine.trim() === '') throw new CsvInputError(`${path}: the file is empty (a header row is needed)`);
   const delimiter = options.delimiter ?? guessDelimiter(headerLine);
