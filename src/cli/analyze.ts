@@ -5,7 +5,7 @@ import { ESTIMATOR_NAMES, isEstimatorName } from '../core/tau/tau-estimate.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
 import { probeCsv, forEachCsvRow, describeIssues } from '../ingest/csv-table.js';
 import { UsageError } from './cli-error.js';
-import { formatDuration, formatSignificant, roundWithUncertainty, textTable } from './format.js';
+import { formatDuration, formatSignificant, groupDigits, roundWithUncertainty, textTable } from './format.js';
 import { CAUTION } from './caution.js';
 import type { ChannelEvent } from '../engine/channel-events.js';
 import type { WarmupSetting } from '../engine/warmup-detector.js';
@@ -221,18 +221,20 @@ function renderReport(report: AnalyzeReport): string {
   const rows = report.channels.map((c) => {
     const rounded = c.mean === null ? { value: '-', uncertainty: null } : roundWithUncertainty(c.mean, c.expandedUncertainty ?? c.standardUncertainty);
     const steady = c.state === 'steady' || c.state === 'precise';
+    // The target is judged only on a steady channel: the U of a mean that still moves says
+    // nothing about the quantity, so an unsteady or warming channel is never shown as "met".
     let target = '-';
     if (c.target) {
-      if (c.target.reached) target = steady ? 'met' : 'met, not steady';
-      else if (!steady) target = 'not met';
-      else if (c.target.samplesToTarget !== null) target = `${c.target.samplesToTarget} more${c.target.secondsToTarget !== null ? ` (${formatDuration(c.target.secondsToTarget)})` : ''}`;
+      if (!steady) target = `not judged (${c.state})`;
+      else if (c.target.reached) target = 'met';
+      else if (c.target.samplesToTarget !== null) target = `${groupDigits(c.target.samplesToTarget)} more${c.target.secondsToTarget !== null ? ` (${formatDuration(c.target.secondsToTarget)})` : ''}`;
       else target = 'out of reach';
     }
     return [
       c.name,
       c.verdict.ready ? 'ready' : `waiting: ${c.verdict.pending[0]?.condition ?? '-'}`,
       c.state,
-      String(c.n),
+      groupDigits(c.n),
       rounded.value,
       rounded.uncertainty ?? '-',
       formatSignificant(c.coverageFactor, 3),

@@ -33,6 +33,7 @@ const targetStatus = {
     samplesToTarget: nullableNumber,
     secondsToTarget: nullableNumber,
     progress: { type: 'number' },
+    samplesNeeded: nullableNumber,
     note: { type: 'string' },
   },
   additionalProperties: true,
