@@ -63,6 +63,9 @@ export const ERRORS = {
   ERR_TEST_POINT_UNKNOWN: { status: 404, exit: USER, message: 'no test point {id}' },
   ERR_TEST_POINT_STOPPED: { status: 409, exit: USER, message: 'test point {id} is already stopped' },
   ERR_TEST_POINT_ANNOTATIONS: { status: 409, exit: USER, message: 'test point {id} has {max} annotations, the most it keeps' },
+  // The MQTT command topic (in `command-refused` events).
+  ERR_COMMAND_PAYLOAD: { status: 400, exit: USER, message: 'command {command}: payload is not a JSON object' },
+  ERR_COMMAND_UNKNOWN: { status: 400, exit: USER, message: 'command {command}: unknown command (test-point/start, test-point/stop)' },
   // Defects.
   ERR_INTERNAL: { status: 500, exit: INTERNAL, message: 'internal error (see the daemon log)' },
 } as const satisfies Record<string, ErrorEntry>;
