@@ -313,6 +313,7 @@ export class Daemon implements DaemonApi {
       commands: this.commands.count,
       broker: { url: this.brokerUrl, connected: source?.connected ?? false, reconnects: source?.reconnects ?? 0, heldAcknowledgements: source?.unacknowledged ?? 0 },
       ingestLagMs: c.ingestLagMs,
+      laggingSource: c.laggingSource,
       flush: { count: health.commits, lastMs: health.lastCommitMs, maxMs: health.maxCommitMs, acknowledged: this.commits.acknowledgedCount, failing: health.failing, failedAttempts: health.attempts, pendingSamples: health.pendingSamples, error: health.lastError },
       database: { path: this.storeAdapter?.location ?? this.config.store.path, bytes: this.storeAdapter?.sizeBytes() ?? 0 },
       channels: this.registry.size,

@@ -49,13 +49,46 @@ export interface IngestCounters {
   accepted: number;
   late: number;
   rejected: Record<RejectReason, number>;
+  /** The daemon's ingest lag: the smallest current lag of the sources heard from recently (see noteLag). */
   ingestLagMs: number;
+  /** The source (topic) with the largest current lag, when one lags: a publisher whose clock slips shows here, not in ingestLagMs. */
+  laggingSource: { topic: string; lagMs: number } | null;
 }
 
 /** Log one line per reason at most this often. */
 const REJECT_LOG_INTERVAL_MS = 10_000;
 /** Seconds over which the usual difference between arrival and time stamp is taken. */
 const LAG_BASELINE_SECONDS = 60;
+/** A source counts towards the daemon's lag while it was heard from this recently. */
+const LAG_RECENT_MS = 10_000;
+/** The daemon's lag is worked out over every source at most this often. */
+const LAG_JUDGE_MS = 250;
+/** Sources (topics) followed one by one; beyond this many, the least recently heard is forgotten. */
+const LAG_MAX_SOURCES = 1024;
+
+/** One source's usual difference between arrival and time stamp: per-second minima over LAG_BASELINE_SECONDS. */
+class SourceLag {
+  readonly seconds = new Float64Array(LAG_BASELINE_SECONDS).fill(-Infinity);
+  readonly minima = new Float64Array(LAG_BASELINE_SECONDS);
+  lagMs = 0;
+  lastArrivalMs = 0;
+
+  note(arrivalMs: number, differenceMs: number): number {
+    const second = Math.floor(arrivalMs / 1000);
+    const slot = second % LAG_BASELINE_SECONDS;
+    if (this.seconds[slot] !== second) {
+      this.seconds[slot] = second;
+      this.minima[slot] = differenceMs;
+    } else if (differenceMs < (this.minima[slot] as number)) this.minima[slot] = differenceMs;
+    let baseline = Number.POSITIVE_INFINITY;
+    for (let i = 0; i < LAG_BASELINE_SECONDS; i++) {
+      if (second - (this.seconds[i] as number) < LAG_BASELINE_SECONDS && (this.minima[i] as number) < baseline) baseline = this.minima[i] as number;
+    }
+    this.lagMs = Math.max(0, differenceMs - baseline);
+    this.lastArrivalMs = arrivalMs;
+    return this.lagMs;
+  }
+}
 
 /** What ingest keeps per channel: one look-up per sample. */
 interface Tracked {
@@ -70,15 +103,16 @@ interface Tracked {
 }
 
 export class Ingest {
-  readonly counters: IngestCounters = { messages: 0, accepted: 0, late: 0, rejected: Object.fromEntries(REJECT_REASONS.map((r) => [r, 0])) as Record<RejectReason, number>, ingestLagMs: 0 };
+  readonly counters: IngestCounters = { messages: 0, accepted: 0, late: 0, rejected: Object.fromEntries(REJECT_REASONS.map((r) => [r, 0])) as Record<RejectReason, number>, ingestLagMs: 0, laggingSource: null };
   private readonly options: IngestOptions;
   private readonly commandPrefix: string;
   private readonly tracked = new Map<string, Tracked>();
   private active: Tracked[] = [];
   private readonly lastRejectLog = new Map<string, number>();
-  private readonly lagSeconds = new Float64Array(LAG_BASELINE_SECONDS).fill(-Infinity);
-  private readonly lagMinima = new Float64Array(LAG_BASELINE_SECONDS);
+  /** Per source (topic), in order of the last sample heard (oldest first). */
+  private readonly lags = new Map<string, SourceLag>();
   private lagWarned = false;
+  private lagJudgedMs = Number.NEGATIVE_INFINITY;
 
   constructor(options: IngestOptions) {
     this.options = options;
@@ -177,7 +211,7 @@ export class Ingest {
       for (const event of result.events) this.channelEvent(channel, event);
       if (tracked.derivedInput) this.options.sampled(channel.name);
     }
-    if (latestStamp > 0) this.noteLag(arrival, arrival - latestStamp);
+    if (latestStamp > 0) this.noteLag(topic, arrival, arrival - latestStamp);
   }
 
   /** A channel's event joins the batch, its source the channel. */
@@ -216,28 +250,40 @@ export class Ingest {
   }
 
   /**
-   * Ingest lag: how much later than usual samples are handled, measured against their own time
-   * stamps. The difference arrival - stamp also holds the rig clock's offset (or a replay's age), so
-   * the lag is the excess over the smallest difference seen in the last LAG_BASELINE_SECONDS: a
-   * daemon that falls behind sees it grow, while a constant clock offset cancels out.
+   * Ingest lag, judged per source (the topic a delivery came on): how much later than usual its
+   * samples are handled, against their own time stamps. The difference arrival - stamp also holds
+   * the publisher's clock offset (or a replay's age), so each source's lag is the excess over the
+   * smallest difference it showed in the last LAG_BASELINE_SECONDS: a constant offset cancels, and
+   * one publisher's clock cannot set the baseline of another. The daemon falls behind when every
+   * source is late: its lag is the smallest current lag of the sources heard in the last
+   * LAG_RECENT_MS, and only that raises `ingest-lag`. One publisher whose clock slips behind shows
+   * as `laggingSource` in the counters, not as the daemon falling behind.
    */
-  private noteLag(arrivalMs: number, differenceMs: number): void {
-    const second = Math.floor(arrivalMs / 1000);
-    const slot = second % LAG_BASELINE_SECONDS;
-    if (this.lagSeconds[slot] !== second) {
-      this.lagSeconds[slot] = second;
-      this.lagMinima[slot] = differenceMs;
-    } else if (differenceMs < (this.lagMinima[slot] as number)) this.lagMinima[slot] = differenceMs;
-    let baseline = Number.POSITIVE_INFINITY;
-    for (let i = 0; i < LAG_BASELINE_SECONDS; i++) {
-      if (second - (this.lagSeconds[i] as number) < LAG_BASELINE_SECONDS && (this.lagMinima[i] as number) < baseline) baseline = this.lagMinima[i] as number;
+  private noteLag(topic: string, arrivalMs: number, differenceMs: number): void {
+    let lag = this.lags.get(topic);
+    if (lag === undefined) {
+      if (this.lags.size >= LAG_MAX_SOURCES) this.lags.delete(this.lags.keys().next().value as string);
+      lag = new SourceLag();
+    } else this.lags.delete(topic); // re-inserted: the map stays in order of the last sample heard
+    this.lags.set(topic, lag);
+    lag.note(arrivalMs, differenceMs);
+    // The daemon's lag over every source: at most every LAG_JUDGE_MS (a pass over the sources).
+    if (arrivalMs - this.lagJudgedMs < LAG_JUDGE_MS && this.lags.size > 1) return;
+    this.lagJudgedMs = arrivalMs;
+    let lagMs = Number.POSITIVE_INFINITY;
+    let worst: { topic: string; lagMs: number } | null = null;
+    for (const [name, source] of this.lags) {
+      if (arrivalMs - source.lastArrivalMs > LAG_RECENT_MS) continue;
+      if (source.lagMs < lagMs) lagMs = source.lagMs;
+      if (source.lagMs > 0 && (worst === null || source.lagMs > worst.lagMs)) worst = { topic: name, lagMs: source.lagMs };
     }
-    const lagMs = Math.max(0, differenceMs - baseline);
+    lagMs = Number.isFinite(lagMs) ? lagMs : 0;
     this.counters.ingestLagMs = lagMs;
+    this.counters.laggingSource = worst;
     const warning = this.options.lagWarningMs;
     if (!this.lagWarned && lagMs > warning) {
       this.lagWarned = true;
-      this.options.raise('daemon', 'ingest-lag', null, { lagMs, detail: `samples are being handled ${(lagMs / 1000).toFixed(1)} s later than their time stamps allow: the daemon is falling behind and the broker is queueing` });
+      this.options.raise('daemon', 'ingest-lag', null, { lagMs, detail: `samples from every source are being handled ${(lagMs / 1000).toFixed(1)} s later than their time stamps allow: the daemon is falling behind and the broker is queueing` });
     } else if (this.lagWarned && lagMs < warning / 2) this.lagWarned = false;
   }
 }
