@@ -191,8 +191,6 @@ export class Daemon implements DaemonApi {
 
   /** The unit the configuration gives a channel (looked up once per channel). */
   private configuredUnit(name: string): string | null {
-    const known = this.registry.get(name);
-    if (known) return known.unit;
     return settingsFor(this.config, name).unit;
   }
 

@@ -4,6 +4,7 @@ import type { ChannelRegistry } from '../engine/channel-registry.js';
 import type { AcceptResult, Channel } from '../engine/channel.js';
 import type { ChannelEvent } from '../engine/channel-events.js';
 import { decodePayload } from '../ingest/payload-decoder.js';
+import { sameUnit } from '../engine/unit-label.js';
 import { REJECT_REASONS, type RejectReason } from '../ingest/sample.js';
 import type { Clock } from '../ports/clock.js';
 import type { SourceBatch } from '../ports/sample-source.js';
@@ -30,7 +31,7 @@ export interface IngestOptions {
   log: Logger;
   commandTopic: string;
   lagWarningMs: number;
-  /** The unit the configuration gives a channel (for channels whose payload names none). */
+  /** The unit the configuration gives a channel (it wins over a payload's). */
   configuredUnit(name: string): string | null;
   /** A command message (topic below the command topic, payload). */
   command(action: string, payload: Uint8Array): void;
@@ -100,6 +101,8 @@ interface Tracked {
   /** Wall-clock ms of the last sample (NaN: none since the start). */
   lastArrival: number;
   derivedInput: boolean;
+  /** The unit the configuration gives the channel (null: none). */
+  configured: string | null;
 }
 
 export class Ingest {
@@ -146,14 +149,24 @@ export class Ingest {
     this.options.batch.addChannel(channel.name, channel.unit);
   }
 
-  /** The channel's record, the channel created (with its configured unit) when new. */
+  /**
+   * The channel's record, the channel created when new. Its unit: the configuration's when it
+   * gives one (it wins over a payload's, e.g. a SenML base unit; a payload naming another unit is
+   * noted on the channel, `unitNote`, and logged once), else the first a payload names.
+   */
   private track(name: string, unit: string | null): Tracked {
     let tracked = this.tracked.get(name);
     if (tracked === undefined) {
-      const channel = this.options.registry.ensure(name, unit ?? this.options.configuredUnit(name));
-      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name) };
+      const configured = this.options.configuredUnit(name);
+      const channel = this.options.registry.ensure(name, configured ?? unit);
+      if (configured !== null && channel.unit !== configured) channel.unit = configured; // restored with another unit
+      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name), configured };
       this.tracked.set(name, tracked);
     } else if (unit !== null && tracked.channel.unit === null) tracked.channel.unit = unit;
+    if (unit !== null && tracked.configured !== null && tracked.channel.unitNote === null && !sameUnit(unit, tracked.configured)) {
+      tracked.channel.unitNote = `the payload gives the unit "${unit}", the configuration "${tracked.configured}": the configuration's is used`;
+      this.options.log.warn({ channel: name, payloadUnit: unit, configuredUnit: tracked.configured }, 'unit conflict: the configured unit is used');
+    }
     return tracked;
   }
 

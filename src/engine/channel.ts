@@ -85,6 +85,8 @@ export interface RestoreReport {
 export class Channel {
   readonly name: string;
   unit: string | null;
+  /** Why the unit shown is not the one a payload gave (a conflict with the configuration), or null. */
+  unitNote: string | null = null;
   private readonly options: ChannelOptions;
   /** The options as the checkpoints carry them (computed once: a checkpoint of every channel is written at each stop). */
   private readonly identity: OptionsIdentity;

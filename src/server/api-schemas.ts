@@ -71,6 +71,8 @@ export const channelSummary = {
   properties: {
     name: { type: 'string' },
     unit: nullableString,
+    unitLabel: nullableString,
+    unitNote: nullableString,
     state: channelState,
     n: { type: 'integer' },
     received: { type: 'integer' },
@@ -98,6 +100,8 @@ export const channelSnapshot = {
   properties: {
     name: { type: 'string' },
     unit: nullableString,
+    unitLabel: nullableString,
+    unitNote: nullableString,
     n: { type: 'integer' },
     state: channelState,
     confidence: { type: 'number' },

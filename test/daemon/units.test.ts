@@ -1,0 +1,74 @@
+import { afterEach, describe, expect, it } from 'vitest';
+import pino from 'pino';
+import { Daemon, daemonSubscriptions } from '../../src/daemon/daemon.js';
+import { MemorySampleSource } from '../../src/ingest/memory-sample-source.js';
+import { MemoryStore } from '../../src/store/memory-store.js';
+import { ManualClock } from '../../src/clock/manual-clock.js';
+import { testConfig } from '../helpers/daemon-config.js';
+import { sameUnit, unitLabel } from '../../src/engine/unit-label.js';
+
+// A configured unit wins over a payload's (a SenML base unit); a payload naming another unit is
+// noted on the channel. Units are shown as people write them (SenML codes: RFC 8428, 12.1;
+// printed symbols: the SI Brochure, 9th edition).
+
+const open: Daemon[] = [];
+afterEach(async () => {
+  for (const daemon of open.splice(0)) await daemon.stop().catch(() => undefined);
+});
+
+async function rig() {
+  const config = testConfig({
+    url: 'mqtt://127.0.0.1:9',
+    prefix: 'rig',
+    clientId: 'units-test',
+    channels: { defaults: { window: { kind: 'growing' } }, groups: [{ match: 'bath.*', unit: 'degC' }] },
+    extra: { subscriptions: [{ topic: 'rig/senml', format: 'senml', channel: '{name}' }] },
+  });
+  const source = new MemorySampleSource(daemonSubscriptions(config));
+  const daemon = new Daemon(config, { clock: new ManualClock(1_790_000_000_000), source, store: new MemoryStore(), logger: pino({ level: 'silent' }) });
+  await daemon.start();
+  open.push(daemon);
+  return { daemon, source };
+}
+
+describe('channel units', () => {
+  it('a SenML base unit "Cel" beside a configured "degC": the configured one, no conflict (the same unit)', async () => {
+    const { daemon, source } = await rig();
+    source.publish('rig/senml', JSON.stringify([{ bn: 'bath.', bu: 'Cel', bt: 1_790_000_000, n: 'ref', v: 20.01 }, { n: 'ref', t: 1, v: 20.02 }]));
+    daemon.commitNow();
+    const channel = daemon.channel('bath.ref');
+    expect(channel?.unit).toBe('degC');
+    expect(channel?.unitNote).toBeNull();
+  });
+
+  it('a SenML unit that is another unit ("K"): the configured one is kept, and the conflict noted', async () => {
+    const { daemon, source } = await rig();
+    source.publish('rig/senml', JSON.stringify([{ bn: 'bath.', bu: 'K', bt: 1_790_000_000, n: 'p1', v: 293.16 }]));
+    daemon.commitNow();
+    const channel = daemon.channel('bath.p1');
+    expect(channel?.unit).toBe('degC');
+    expect(channel?.unitNote).toBe('the payload gives the unit "K", the configuration "degC": the configuration\'s is used');
+  });
+
+  it('without a configured unit, the payload\'s', async () => {
+    const { daemon, source } = await rig();
+    source.publish('rig/senml', JSON.stringify([{ bn: 'line.', bu: 'Pa', bt: 1_790_000_000, n: 'p', v: 101_325 }]));
+    daemon.commitNow();
+    expect(daemon.channel('line.p')?.unit).toBe('Pa');
+    expect(daemon.channel('line.p')?.unitNote).toBeNull();
+  });
+
+  it('printed forms: °C for Cel and degC, exponents raised, unknown codes as given', () => {
+    expect(unitLabel('Cel')).toBe('°C');
+    expect(unitLabel('degC')).toBe('°C');
+    expect(unitLabel('m3/s')).toBe('m³/s');
+    expect(unitLabel('m/s2')).toBe('m/s²');
+    expect(unitLabel('Ohm')).toBe('Ω');
+    expect(unitLabel('kg/s')).toBe('kg/s');
+    expect(unitLabel('kPa')).toBe('kPa');
+    expect(unitLabel('cm2')).toBe('cm²');
+    expect(unitLabel(null)).toBe('');
+    expect(sameUnit('Cel', 'degC')).toBe(true);
+    expect(sameUnit('K', 'degC')).toBe(false);
+  });
+});
