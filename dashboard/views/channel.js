@@ -24,7 +24,7 @@ export class ChannelView extends DetailView {
     this.parts = {
       badge: h('span', { className: 'state-word', dataset: { field: 'state' } }),
       headline: h('p', { className: 'view-verdict', dataset: { field: 'verdict' } }),
-      unitNote: h('p', { className: 'chart-note', dataset: { field: 'unitNote' } }),
+      unitNote: h('p', { className: 'unit-note', dataset: { field: 'unitNote' } }),
       unit: h('span', { className: 'unit', dataset: { field: 'unit' }, text: unit }),
       result: f('result', 'result'),
       coverage: f('coverage', 'coverage'),

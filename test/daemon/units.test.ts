@@ -5,7 +5,10 @@ import { MemorySampleSource } from '../../src/ingest/memory-sample-source.js';
 import { MemoryStore } from '../../src/store/memory-store.js';
 import { ManualClock } from '../../src/clock/manual-clock.js';
 import { testConfig } from '../helpers/daemon-config.js';
-import { sameUnit, unitLabel } from '../../src/engine/unit-label.js';
+import { sameUnit, unitLabel, UNIT_LABELS } from '../../src/engine/unit-label.js';
+import { pathToFileURL } from 'node:url';
+import { join } from 'node:path';
+import { ROOT } from '../helpers/reference.js';
 
 // A configured unit wins over a payload's (a SenML base unit); a payload naming another unit is
 // noted on the channel. Units are shown as people write them (SenML codes: RFC 8428, 12.1;
@@ -70,5 +73,12 @@ describe('channel units', () => {
     expect(unitLabel(null)).toBe('');
     expect(sameUnit('Cel', 'degC')).toBe(true);
     expect(sameUnit('K', 'degC')).toBe(false);
+  });
+
+  it('the dashboard prints units with the same table and rule', async () => {
+    const page = (await import(pathToFileURL(join(ROOT, 'dashboard', 'lib', 'format.js')).href)) as { UNIT_LABELS: Record<string, string>; unitText: (u: string | null) => string };
+    expect(page.UNIT_LABELS).toEqual(UNIT_LABELS);
+    for (const code of ['Cel', 'degC', 'm3/s', 'cm2', 'kg/s', 'x-2', '<b>2</b>']) expect(page.unitText(code)).toBe(unitLabel(code));
+    expect(page.unitText(null)).toBe('');
   });
 });
