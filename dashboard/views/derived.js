@@ -136,7 +136,7 @@ export class DerivedView extends DetailView {
     let text = 'no target set';
     const inputsSteady = Object.values(d.inputStates ?? {}).every((s) => s === 'steady' || s === 'precise');
     if (target?.reached) {
-      fraction = 1;
+      fraction = d.atTarget ? 1 : null;
       text = `${d.atTarget ? 'target met' : 'uncertainty within the target, waiting for the inputs'} (${target.on} ≤ ${trimNumber(target.bound, 2)}${unit})`;
     } else if (target) {
       const goal = `${target.on} ≤ ${target.bound === null ? '–' : trimNumber(target.bound, 2)}${unit}${target.relative ? ` (${trimNumber(target.value * 100, 3)} % of the value)` : ''}`;

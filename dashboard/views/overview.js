@@ -294,7 +294,7 @@ function fillDerived(entry, d) {
   let text;
   if (!target) text = 'no target set';
   else if (target.reached) {
-    fraction = 1;
+    fraction = d.atTarget ? 1 : null;
     text = d.atTarget ? `target met: ${target.on} ≤ ${trimNumber(target.bound, 3)}${unit}` : 'uncertainty within the target; waiting for the inputs';
   } else if (provisional) text = `target ${target.on} ≤ ${trimNumber(target.bound, 3)}${unit}: judged once the inputs are steady`;
   else if (target.samplesNeeded > 0) {
