@@ -196,17 +196,17 @@ describe.skipIf(!available)('dashboard in Chromium', () => {
     const entries = page.locator('.entry[data-channel]');
     await entries.nth(DEMO_CHANNELS.length - 1).waitFor();
     await expect.poll(async () => page.locator('.entry[data-channel] [data-field="mean"]').evaluateAll((spans) => spans.every((s) => /^-?[\d.]+ ± [\d.]+ /.test(s.textContent ?? ''))), { timeout: 10_000 }).toBe(true);
-    const rows = await entries.evaluateAll((list) =>
-      list.map((entry) => ({
-        state: entry.querySelector('[data-field="state"]')?.textContent ?? '',
-        glyph: entry.querySelector('.entry-glyph')?.textContent ?? '',
-        rule: getComputedStyle(entry.querySelector('.entry-rule') as Element).borderLeftStyle,
-        verdict: entry.querySelector('[data-field="verdict"]')?.textContent ?? '',
-        coverage: entry.querySelector('[data-field="coverage"]')?.textContent ?? '',
-        ruler: !(entry.querySelector('.ruler') as HTMLElement).hidden,
-        progress: entry.querySelector('[data-field="progress"]')?.textContent ?? '',
-      })),
-    );
+    // Browser-side code as text: this project's type check has no DOM library.
+    const rows = await page.evaluate<{ state: string; glyph: string; rule: string; verdict: string; coverage: string; ruler: boolean; progress: string }[]>(`[...document.querySelectorAll('.entry[data-channel]')].map((entry) => ({
+      state: entry.querySelector('[data-field="state"]')?.textContent ?? '',
+      glyph: entry.querySelector('.entry-glyph')?.textContent ?? '',
+      rule: getComputedStyle(entry.querySelector('.entry-rule')).borderLeftStyle,
+      verdict: entry.querySelector('[data-field="verdict"]')?.textContent ?? '',
+      coverage: entry.querySelector('[data-field="coverage"]')?.textContent ?? '',
+      ruler: !entry.querySelector('.ruler').hidden,
+      progress: entry.querySelector('[data-field="progress"]')?.textContent ?? '',
+    }))`);
+    expect(rows).toHaveLength(await entries.count());
     // The glyph and the rule's style tell the state without colour, one of each per state.
     const byState = new Map<string, { glyph: string; rule: string }>();
     for (const row of rows) {
