@@ -37,6 +37,8 @@ Options:
                          sample as given; N cuts the first N samples of each channel
   --time-column NAME     the column holding time (default: a column named time, t, timestamp, ...)
   --delimiter C          field separator (default: guessed from the header: , ; or tab)
+  --decimal-comma        numbers are written 21,375 (fields separated by ; or tab); found by itself
+                         in the first rows when it can be, and said in the notes
 ${DERIVE_HELP}`;
 
 export interface AnalyzeReport {
@@ -69,21 +71,22 @@ export async function runAnalyze(argv: string[], io: Io): Promise<number> {
       warmup: { type: 'string' },
       'time-column': { type: 'string' },
       delimiter: { type: 'string' },
+      'decimal-comma': { type: 'boolean' },
       derive: { type: 'string', multiple: true },
       'monte-carlo-trials': { type: 'string' },
       help: { type: 'boolean', short: 'h' },
   }, true);
-  const values = parsed as Flags & { json?: boolean; help?: boolean; derive?: string[]; 'time-column'?: string; delimiter?: string };
+  const values = parsed as Flags & { json?: boolean; help?: boolean; derive?: string[]; 'time-column'?: string; delimiter?: string; 'decimal-comma'?: boolean };
   if (values.help) {
     io.out(ANALYZE_HELP);
     return 0;
   }
   if (positionals.length !== 1) throw new UsageError(positionals.length === 0 ? 'analyze needs a CSV file: plateau analyze FILE' : `analyze takes one file, got ${positionals.length}`);
   const file = positionals[0] as string;
-  const { derive: deriveFlags, ...flags } = values;
+  const { derive: deriveFlags, 'decimal-comma': decimalComma, ...flags } = values;
   const options = channelOptionsFromFlags(flags);
   const derive = parseDeriveFlags(deriveFlags ?? [], numberFlag(flags, 'monte-carlo-trials', (v) => Number.isInteger(v) && (v === 0 || (v >= 20_000 && v <= 5_000_000)), 'a whole number of trials, 0 (no Monte Carlo check) or 20000 to 5000000'));
-  const report = await analyzeFile(file, options, { timeColumn: values['time-column'], delimiter: values.delimiter }, derive);
+  const report = await analyzeFile(file, options, { timeColumn: values['time-column'], delimiter: values.delimiter, decimalComma: decimalComma === true }, derive);
   io.out(values.json ? `${JSON.stringify(report, finiteOrNull, 2)}\n` : renderReport(report));
   return 0;
 }
@@ -143,10 +146,11 @@ export function channelOptionsFromFlags(flags: Flags): ChannelOptions {
 }
 
 /** Replays a CSV file through one pipeline per channel: the streaming code path, row by row. */
-export async function analyzeFile(file: string, options: ChannelOptions, csv: { timeColumn?: string | undefined; delimiter?: string | undefined } = {}, derive: DeriveOptions = { requests: [] }): Promise<AnalyzeReport> {
+export async function analyzeFile(file: string, options: ChannelOptions, csv: { timeColumn?: string | undefined; delimiter?: string | undefined; decimalComma?: boolean } = {}, derive: DeriveOptions = { requests: [] }): Promise<AnalyzeReport> {
   const layout = await probeCsv(file, {
     ...(csv.timeColumn !== undefined ? { timeColumn: csv.timeColumn } : {}),
     ...(csv.delimiter !== undefined ? { delimiter: csv.delimiter } : {}),
+    ...(csv.decimalComma ? { decimalComma: true } : {}),
   });
   if (options.window.seconds !== undefined && !layout.timeColumn) {
     throw new UsageError(`--window-seconds needs a time column, and ${file} has none (name one with --time-column)`);
@@ -190,9 +194,12 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
       if (!firstTimeIssue) firstTimeIssue = `${file} row ${line}, column "${layout.timeColumn?.name}": "${text}" is not a time`;
     },
   );
+  const separator = layout.delimiter === '\t' ? 'tab' : `"${layout.delimiter}"`;
+  if (layout.decimalComma === 'detected') notes.push(`${file}: decimal commas detected (numbers such as 21,375; fields separated by ${separator}): every number is read with a decimal comma`);
+  else if (layout.decimalComma === 'asked') notes.push(`${file}: numbers read with a decimal comma (--decimal-comma; fields separated by ${separator})`);
   if (layout.ignored.length > 0) notes.push(`${file}: columns not numeric, ignored: ${layout.ignored.map((n) => `"${n}"`).join(', ')}`);
   if (timeIssues > 0) notes.push(`${firstTimeIssue}${timeIssues > 1 ? ` (${timeIssues} rows in all)` : ''}; those rows have no time`);
-  if (backwards > 0) notes.push(`${file}: time goes backwards at ${backwards} rows; rate estimates may be off`);
+  if (backwards > 0) notes.push(`${file}: time goes backwards at ${backwards} ${backwards === 1 ? 'row' : 'rows'}; rate estimates may be off`);
   const channels = pipelines.map((pipeline, c) => {
     const snapshot = { ...pipeline.snapshot(), events: events[c] as ChannelEvent[] };
     const column = layout.channels[c];

@@ -114,3 +114,36 @@ describe('plateau analyze: bad input', () => {
     expect(report.notes).toContain(`${file} row 4, column "time": "noon" is not a time; those rows have no time`);
   });
 });
+
+describe('plateau analyze: decimal commas', () => {
+  // Invented logger export: ";" between fields, decimal commas (as loggers set to many European
+  // locales write them); the values must equal the same file written with points.
+  const rows = ['Zeit;Temp_degC;Druck_kPa;Bemerkung'];
+  const points = ['time,Temp_degC,Druck_kPa'];
+  for (let i = 0; i < 80; i++) {
+    const t = (21.375 + 0.004 * Math.sin(i / 3)).toFixed(4);
+    const p = (101.3 + 0.05 * Math.cos(i / 5)).toFixed(3);
+    rows.push(`${i};${t.replace('.', ',')};${p.replace('.', ',')};ok`);
+    points.push(`${i},${t},${p}`);
+  }
+
+  it('detected from the first rows and said in a note; the numbers equal those of the same file with points', () => {
+    const file = tempFile('logger.csv', `${rows.join('\n')}\n`);
+    const r = runCli(['analyze', file, '--time-column', 'Zeit', '--json']);
+    expect(r.status).toBe(0);
+    const report = JSON.parse(r.stdout);
+    expect(report.notes).toContain(`${file}: decimal commas detected (numbers such as 21,375; fields separated by ";"): every number is read with a decimal comma`);
+    const reference = JSON.parse(runCli(['analyze', tempFile('points.csv', `${points.join('\n')}\n`), '--json']).stdout);
+    expect(report.channels.map((c: { name: string; n: number; mean: number }) => [c.name, c.n, c.mean])).toEqual(reference.channels.map((c: { name: string; n: number; mean: number }) => [c.name, c.n, c.mean]));
+  });
+
+  it('--decimal-comma asks for it; with "," between fields it is one clear line', () => {
+    const file = tempFile('logger.csv', `${rows.join('\n')}\n`);
+    const r = runCli(['analyze', file, '--decimal-comma', '--json']);
+    expect(JSON.parse(r.stdout).notes).toContain(`${file}: numbers read with a decimal comma (--decimal-comma; fields separated by ";")`);
+    const commas = tempFile('commas.csv', `${points.join('\n')}\n`);
+    const bad = runCli(['analyze', commas, '--decimal-comma']);
+    expect(bad.status).toBe(2);
+    expect(bad.stderr.trim()).toBe(`plateau: ${commas}: --decimal-comma needs fields separated by ";" or tab, and this file's header is separated by ","`);
+  });
+});
