@@ -100,7 +100,8 @@ export class ChannelView extends DetailView {
         h('div', { className: 'panel' }, h('h2', { text: 'Steady-state evidence' }), h('div', { className: 'table-scroll' }, h('table', { className: 'table' }, p.evidence)), p.notes),
       ),
     );
-    this.charts = [traceChart(traceBox), acfChart(acfBox), allanChart(allanBox), cusumChart(cusumBox)];
+    const clock = this.app.state.server?.sampleClock;
+    this.charts = [traceChart(traceBox, clock ? `${clock}, time of day (24 h)` : undefined), acfChart(acfBox), allanChart(allanBox), cusumChart(cusumBox)];
     if (summary) this.updateSummary(summary);
   }
 
@@ -167,7 +168,8 @@ export class ChannelView extends DetailView {
     setText(p.allanNote, d.averagingLimit ? `Averaging limit at m = ${d.averagingLimit.m}${d.averagingLimit.tauSeconds ? ` (${formatDuration(d.averagingLimit.tauSeconds)})` : ''}: beyond it drift dominates and longer averaging does not help.` : 'No averaging limit in this window: the Allan deviation still falls with averaging time.');
     const trace = d.trace;
     const before = trace.windowStartIndex - trace.firstIndex;
-    setText(p.traceNote, `${formatCount(trace.values.length)} most recent samples${before > 0 ? `; the first ${formatCount(before)} (shaded) are outside the averaging window` : ''}. Band: mean ± U over the window.`);
+    const clock = this.app.state.server?.sampleClock;
+    setText(p.traceNote, `${formatCount(trace.values.length)} most recent samples${before > 0 ? `; the first ${formatCount(before)} (shaded) are outside the averaging window` : ''}. Band: mean ± U over the window. Times: ${clock ? `${clock}, ` : ''}time of day, 24 h, this browser's time zone.`);
     setText(p.cusumNote, d.cusumTrace ? `Blocks of ${d.cusumTrace.blockSize} samples; a sum crossing h = ${trimNumber(d.cusumTrace.decisionInterval, 3)} signals a shift.` : 'The CUSUM runs once the channel is steady.');
     replaceChildren(
       p.estimators,

@@ -62,7 +62,7 @@ export async function startDemo(options: DemoOptions): Promise<DemoHandle & { lo
   const demoConfig = { ...config, broker: { ...config.broker, url: broker.url, clientId: `plateau-demo-${process.pid}` }, store: { ...config.store, path: store }, log: { level: (options.logLevel ?? 'info') as 'info' } };
   const daemon = new Daemon(demoConfig, { logFile });
   await daemon.start();
-  const server = await startServer(daemon, { host: '127.0.0.1', port: options.httpPort, token: null, maxBodyBytes: config.http.maxBodyBytes, fallbackPort: true, log: daemon.log });
+  const server = await startServer(daemon, { host: '127.0.0.1', port: options.httpPort, token: null, maxBodyBytes: config.http.maxBodyBytes, fallbackPort: true, log: daemon.log, sampleClock: `simulated time of the demo's rig (${options.speed}x real time)` });
   const publisher = new RigPublisher({ url: broker.url, speed: options.speed });
   await publisher.start();
   return {

@@ -63,6 +63,8 @@ export interface HttpAppOptions {
   log?: Logger;
   /** Where dashboard/ lives (defaults to the package's own). */
   dashboardDir?: string;
+  /** What the samples' time stamps are, when they are not the rig's real time (the demo: "simulated time, 20x real time"). */
+  sampleClock?: string;
 }
 
 const root = join(dirname(fileURLToPath(import.meta.url)), '..', '..');
@@ -198,6 +200,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
               alertKinds: { type: 'array', items: { type: 'string' } },
               lastEventId: { type: 'integer' },
               caution: { type: 'string' },
+              sampleClock: { type: 'string' },
             },
             additionalProperties: false,
           },
@@ -214,6 +217,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
       alertKinds: [...daemon.alertKinds()],
       lastEventId: daemon.lastEventId,
       caution: RECORD_CAUTION,
+      ...(options.sampleClock !== undefined ? { sampleClock: options.sampleClock } : {}),
     }),
   );
 

@@ -408,6 +408,8 @@ describe.skipIf(!available)('dashboard in Chromium', () => {
     await untilVisible(page.locator('.view-channel .channel-events li'));
     // The test point restarted this channel's window: the trace shows the samples before it, shaded.
     await untilText(page.locator('.view-channel'), /are outside the averaging window/);
+    // The demo's time stamps are simulated, and the page says so under the trace.
+    await untilText(page.locator('.view-channel'), /Times: simulated time of the demo's rig \(40x real time\), time of day, 24 h/);
     await page.waitForTimeout(500);
     await page.screenshot({ path: join(OUTPUT, 'dashboard-channel.png'), fullPage: true });
   });
