@@ -170,7 +170,7 @@ export class ChannelView extends DetailView {
     const before = trace.windowStartIndex - trace.firstIndex;
     const clock = this.app.state.server?.sampleClock;
     setText(p.traceNote, `${formatCount(trace.values.length)} most recent samples${before > 0 ? `; the first ${formatCount(before)} (shaded) are outside the averaging window` : ''}. Band: mean ± U over the window. Times: ${clock ? `${clock}, ` : ''}time of day, 24 h, this browser's time zone.`);
-    setText(p.cusumNote, d.cusumTrace ? `Blocks of ${d.cusumTrace.blockSize} samples; a sum crossing h = ${trimNumber(d.cusumTrace.decisionInterval, 3)} signals a shift.` : 'The CUSUM runs once the channel is steady.');
+    setText(p.cusumNote, d.cusumTrace ? `${d.cusumTrace.alarmed ? 'The sums as they stood at the alarm (the monitor starts again once the channel is steady). ' : ''}Blocks of ${d.cusumTrace.blockSize} samples; a sum crossing h = ${trimNumber(d.cusumTrace.decisionInterval, 3)} signals a shift.` : 'The CUSUM runs once the channel is steady.');
     replaceChildren(
       p.estimators,
       Object.entries(d.estimators ?? {}).map(([name, e]) =>
