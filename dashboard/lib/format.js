@@ -167,6 +167,7 @@ const EVENT_TEXT = {
   'test-point-annotated': ['info', 'Note added'],
   'broker-connected': ['info', 'Broker connected'],
   'broker-disconnected': ['alert', 'Broker connection lost'],
+  'broker-session-lost': ['alert', 'Broker lost the session: messages may be missing'],
   'ingest-lag': ['alert', 'Daemon falling behind'],
   'command-refused': ['alert', 'Command refused'],
   'store-recovered': ['alert', 'Samples could not be stored for a while'],
@@ -212,6 +213,7 @@ function eventDetail(event) {
       return `${body.text ?? ''}`;
     case 'broker-connected':
     case 'broker-disconnected':
+    case 'broker-session-lost':
       return `${body.detail ?? ''}`;
     case 'ingest-lag':
       return `${body.detail ?? ''}`;

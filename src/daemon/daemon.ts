@@ -223,11 +223,22 @@ export class Daemon implements DaemonApi {
       this.publishers.push(this.options.publisher ?? new MqttPublisher(connection, this.config.topics));
     }
     this.publishers.push(this.listeners);
+    // The broker should hold this client's session when the daemon has been connected before (in
+    // this process, or in an earlier one that committed a position): a new session then means
+    // messages published meanwhile may never come, and that is a warning, not an information line.
+    const position = store.position(this.source.name);
+    let expectSession = position !== null;
     await this.source.start(
       {
         batch: (batch) => this.ingestion.batch(batch),
         connection: (connected, detail) => {
-          this.log.info({ broker: this.brokerUrl, connected }, `broker ${detail}`);
+          const sessionLost = connected && expectSession && /new session/.test(detail);
+          if (connected) expectSession = true;
+          if (sessionLost) {
+            const warning = `the broker did not keep this client's session (clientId ${this.config.broker.clientId}): messages published while the daemon was away may not come; the broker must persist sessions and stop cleanly, and broker.clientId must stay the same`;
+            this.log.warn({ broker: this.brokerUrl }, warning);
+            this.queueEvent('daemon', 'broker-session-lost', null, { broker: this.brokerUrl, detail: warning });
+          } else this.log.info({ broker: this.brokerUrl, connected }, `broker ${detail}`);
           this.queueEvent('daemon', connected ? 'broker-connected' : 'broker-disconnected', null, { broker: this.brokerUrl, detail });
           // Not while stopping: a publish on a connection that is closing only holds up its end.
           if (!this.stopped) this.publishing.healthChanged(this.health());
