@@ -209,6 +209,8 @@ export class Daemon implements DaemonApi {
     const ingest = this.ingestion.counters;
     ingest.accepted = counters.accepted ?? 0;
     ingest.messages = counters.messages ?? 0;
+    ingest.late = counters.late ?? 0;
+    this.commands.count = counters.commands ?? 0;
     for (const reason of REJECT_REASONS) ingest.rejected[reason] = counters[`rejected.${reason}`] ?? 0;
     this.restored = { samples: summary.replayed, ms: summary.ms };
     this.log.info({ channels: summary.channels, checkpoints: summary.outcomes, replayedSamples: summary.replayed, ms: Math.round(summary.ms) }, 'state rebuilt from the store');
@@ -282,7 +284,9 @@ export class Daemon implements DaemonApi {
     const active = this.ingestion.takeActive();
     this.checkpoints.addDue(final ? this.registry.all() : active, batch, final);
     const c = this.ingestion.counters;
-    const out: Record<string, number> = { accepted: c.accepted, messages: c.messages };
+    // Every counter of the API that counts since the store began is stored with each commit (and so
+    // carries on after a restart): accepted, messages, late, commands, refusals by reason.
+    const out: Record<string, number> = { accepted: c.accepted, messages: c.messages, late: c.late, commands: this.commands.count };
     for (const reason of REJECT_REASONS) out[`rejected.${reason}`] = c.rejected[reason];
     return out;
   }

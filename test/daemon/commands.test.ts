@@ -60,3 +60,34 @@ describe('the MQTT command topic', () => {
     expect(events.some((e) => e.kind === 'test-point-started')).toBe(true);
   });
 });
+
+describe('counters across a restart', () => {
+  it('commands and late samples carry on from the store, as accepted and messages do', async () => {
+    const { mkdtempSync } = await import('node:fs');
+    const { tmpdir } = await import('node:os');
+    const { join } = await import('node:path');
+    const { SqliteStore } = await import('../../src/store/sqlite-store.js');
+    const path = join(mkdtempSync(join(tmpdir(), 'plateau-counters-')), 'state.sqlite');
+    const config = testConfig({ url: 'mqtt://127.0.0.1:9', prefix: 'rig', clientId: 'counters-test', store: path });
+    const first = new MemorySampleSource(daemonSubscriptions(config));
+    const clock = new ManualClock(1_790_000_000_000);
+    const daemon = new Daemon(config, { clock, source: first, store: new SqliteStore(path), logger: pino({ level: 'silent' }) });
+    await daemon.start();
+    // A sample older than the newest but within the remembered times (late), and two commands.
+    first.publish('rig/bath', JSON.stringify({ v: 20.1, t: 1_790_000_000.1 }));
+    first.publish('rig/bath', JSON.stringify({ v: 20.3, t: 1_790_000_000.3 }));
+    first.publish('rig/bath', JSON.stringify({ v: 20.2, t: 1_790_000_000.2 }));
+    first.publish('rig-plateau/command/test-point/stop', '{"id": "nope"}');
+    first.publish('rig-plateau/command/test-point/start', 'text');
+    daemon.commitNow();
+    const before = daemon.counterReport() as { samples: { accepted: number; late: number }; commands: number; messages: number };
+    expect(before.samples.late).toBe(1);
+    expect(before.commands).toBe(2);
+    await daemon.stop();
+    const again = new Daemon(config, { clock, source: new MemorySampleSource(daemonSubscriptions(config)), store: new SqliteStore(path), logger: pino({ level: 'silent' }) });
+    await again.start();
+    open.push(again);
+    const after = again.counterReport() as typeof before;
+    expect([after.samples.accepted, after.samples.late, after.commands, after.messages]).toEqual([before.samples.accepted, 1, 2, before.messages]);
+  });
+});
