@@ -174,9 +174,10 @@ const EVENT_TEXT = {
   'alert-acknowledged': ['info', 'Alert acknowledged'],
 };
 
-export function describeEvent(event) {
+/** An event in words; `unit` is the unit of its source (a channel's), printed after its numbers. */
+export function describeEvent(event, unit = null) {
   const [severity, title] = EVENT_TEXT[event.kind] ?? ['info', event.kind];
-  return { severity, title, detail: eventDetail(event) };
+  return { severity, title, detail: eventDetail(event, unitSuffix(event.body?.unit ?? unit)) };
 }
 
 export const SEVERITY = {
@@ -186,7 +187,7 @@ export const SEVERITY = {
   info: { label: 'INFO', symbol: '·' },
 };
 
-function eventDetail(event) {
+function eventDetail(event, unit) {
   const body = event.body ?? {};
   switch (event.kind) {
     case 'stationarity-lost':
@@ -196,13 +197,13 @@ function eventDetail(event) {
     case 'warmup-extended':
       return `from sample ${body.warmupEnd ?? '?'}; ${formatCount(body.excluded ?? 0)} samples excluded`;
     case 'break-revised':
-      return `${body.cause ?? 'change'} from sample ${body.changePoint ?? '?'}${body.slope ? `, slope ${trimNumber(body.slope.perSample, 2)} ± ${trimNumber(body.slope.standardUncertainty, 2)} per sample` : ''}${body.warmup ? ' (the warm-up still running)' : ''}`;
+      return `${body.cause ?? 'change'} from sample ${body.changePoint ?? '?'}${body.slope ? `, slope ${trimNumber(body.slope.perSample, 2)} ± ${trimNumber(body.slope.standardUncertainty, 2)}${unit} per sample` : ''}${body.warmup ? ' (the warm-up still running)' : ''}`;
     case 'steady-withdrawn':
       return `${body.reason ?? ''}`;
     case 'precision-reached':
-      return `${body.derived ? `${trimNumber(body.value, 6)} ${body.unit ?? ''}, ` : ''}U = ${trimNumber(body.expandedUncertainty, 3)} within ${trimNumber(body.bound, 3)}${body.derived && body.unit ? ` ${body.unit}` : ''}`;
+      return `${body.derived ? `${trimNumber(body.value, 6)}${unit}, ` : ''}U = ${trimNumber(body.expandedUncertainty, 3)}${unit} within ${trimNumber(body.bound, 3)}${unit}`;
     case 'averaging-limit':
-      return `beyond m = ${body.m}${body.tauSeconds ? ` (${formatDuration(body.tauSeconds)})` : ''} the Allan deviation stops falling`;
+      return `beyond m = ${body.m}${body.tauSeconds ? ` (${formatDuration(body.tauSeconds)})` : ''} the Allan deviation stops falling${body.adev ? ` (${trimNumber(body.adev, 3)}${unit})` : ''}`;
     case 'stale':
       return `silent for ${formatDuration(body.silentSeconds)}`;
     case 'test-point-started':

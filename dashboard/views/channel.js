@@ -194,6 +194,6 @@ export class ChannelView extends DetailView {
     ];
     replaceChildren(p.evidence, rows.map(([k, v]) => h('tr', {}, h('th', { text: k }), h('td', { text: String(v) }))));
     replaceChildren(p.notes, (d.notes ?? []).map((note) => h('li', { text: note })));
-    showEvents(p.events, d.storedEvents ?? [], 'No events yet.');
+    showEvents(p.events, d.storedEvents ?? [], 'No events yet.', d.unit ?? null);
   }
 }

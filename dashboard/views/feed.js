@@ -47,7 +47,7 @@ export class FeedView {
     const items = [];
     for (const event of events) {
       if (event.kind === 'alert-acknowledged') continue;
-      const info = describeEvent(event);
+      const info = describeEvent(event, this.app.state.channels.get(event.source)?.unit ?? null);
       const isAlert = alertKinds.has(event.kind) || info.severity === 'alert';
       if (this.alertsOnly && !isAlert) continue;
       items.push(this.item(event, info, isAlert, acknowledgements.get(event.id)));

@@ -81,4 +81,11 @@ describe('channel units', () => {
     for (const code of ['Cel', 'degC', 'm3/s', 'cm2', 'kg/s', 'x-2', '<b>2</b>']) expect(page.unitText(code)).toBe(unitLabel(code));
     expect(page.unitText(null)).toBe('');
   });
+
+  it('the dashboard\'s event texts carry the unit of their source', async () => {
+    const page = (await import(pathToFileURL(join(ROOT, 'dashboard', 'lib', 'format.js')).href)) as { describeEvent: (e: unknown, unit?: string | null) => { detail: string } };
+    const reached = { kind: 'precision-reached', source: 'bath.ref', body: { expandedUncertainty: 0.005, bound: 0.01 } };
+    expect(page.describeEvent(reached, 'degC').detail).toBe('U = 0.005 °C within 0.01 °C');
+    expect(page.describeEvent({ ...reached, body: { ...reached.body, derived: true, value: 12.5, unit: 'kW' } }).detail).toBe('12.5 kW, U = 0.005 kW within 0.01 kW');
+  });
 });
