@@ -11,6 +11,7 @@ import type { ChannelEvent } from '../engine/channel-events.js';
 import type { WarmupSetting } from '../engine/warmup-detector.js';
 import { prepareDerived, DERIVE_HELP, parseDeriveFlags, renderDerived, type AnalyzedDerived, type DeriveOptions, type DerivedRecorder } from './analyze-derived.js';
 import { SteadyHistory } from '../engine/steadiness.js';
+import { unitLabel } from '../engine/unit-label.js';
 
 const MAX_EVENTS = 10_000;
 
@@ -37,6 +38,8 @@ Options:
                          sample as given; N cuts the first N samples of each channel
   --time-column NAME     the column holding time (default: a column named time, t, timestamp, ...)
   --delimiter C          field separator (default: guessed from the header: , ; or tab)
+  --unit NAME=UNIT       the unit of a column (repeatable), e.g. --unit probe_a=degC; shown in
+                         the table as people write it (°C) and given in --json as "unit"
   --decimal-comma        numbers are written 21,375 (fields separated by ; or tab); found by itself
                          in the first rows when it can be, and said in the notes
 ${DERIVE_HELP}`;
@@ -72,21 +75,34 @@ export async function runAnalyze(argv: string[], io: Io): Promise<number> {
       'time-column': { type: 'string' },
       delimiter: { type: 'string' },
       'decimal-comma': { type: 'boolean' },
+      unit: { type: 'string', multiple: true },
       derive: { type: 'string', multiple: true },
       'monte-carlo-trials': { type: 'string' },
       help: { type: 'boolean', short: 'h' },
   }, true);
-  const values = parsed as Flags & { json?: boolean; help?: boolean; derive?: string[]; 'time-column'?: string; delimiter?: string; 'decimal-comma'?: boolean };
+  const values = parsed as Flags & { json?: boolean; help?: boolean; derive?: string[]; 'time-column'?: string; delimiter?: string; 'decimal-comma'?: boolean; unit?: string[] };
   if (values.help) {
     io.out(ANALYZE_HELP);
     return 0;
   }
   if (positionals.length !== 1) throw new UsageError(positionals.length === 0 ? 'analyze needs a CSV file: plateau analyze FILE' : `analyze takes one file, got ${positionals.length}`);
   const file = positionals[0] as string;
-  const { derive: deriveFlags, 'decimal-comma': decimalComma, ...flags } = values;
+  const { derive: deriveFlags, 'decimal-comma': decimalComma, unit: unitFlags, ...flags } = values;
+  const units = new Map<string, string>();
+  for (const raw of unitFlags ?? []) {
+    const at = raw.indexOf('=');
+    const name = at < 0 ? '' : raw.slice(0, at).trim();
+    const unit = at < 0 ? '' : raw.slice(at + 1).trim();
+    if (name === '' || unit === '') throw new UsageError(`--unit ${JSON.stringify(raw)}: expected NAME=UNIT, e.g. --unit probe_a=degC`);
+    units.set(name, unit);
+  }
   const options = channelOptionsFromFlags(flags);
   const derive = parseDeriveFlags(deriveFlags ?? [], numberFlag(flags, 'monte-carlo-trials', (v) => Number.isInteger(v) && (v === 0 || (v >= 20_000 && v <= 5_000_000)), 'a whole number of trials, 0 (no Monte Carlo check) or 20000 to 5000000'));
   const report = await analyzeFile(file, options, { timeColumn: values['time-column'], delimiter: values.delimiter, decimalComma: decimalComma === true }, derive);
+  for (const name of units.keys()) {
+    if (!report.channels.some((c) => c.name === name)) throw new UsageError(`--unit ${name}=${units.get(name)}: no channel column named "${name}" (channels: ${report.channels.map((c) => c.name).join(', ')})`);
+  }
+  for (const channel of report.channels) (channel as ChannelSnapshot & { unit?: string | null }).unit = units.get(channel.name) ?? null;
   io.out(values.json ? `${JSON.stringify(report, finiteOrNull, 2)}\n` : renderReport(report));
   return 0;
 }
@@ -224,7 +240,8 @@ export function finiteOrNull(_key: string, value: unknown): unknown {
 }
 
 function renderReport(report: AnalyzeReport): string {
-  const header = ['channel', 'verdict', 'state', 'n', 'mean', 'U', 'k', 'u', 'nu_eff', 'tau_int', 'n_eff', 'estimator', 'target'];
+  const withUnits = report.channels.some((c) => (c as ChannelSnapshot & { unit?: string | null }).unit);
+  const header = ['channel', 'verdict', 'state', 'n', 'mean', 'U', ...(withUnits ? ['unit'] : []), 'k', 'u', 'nu_eff', 'tau_int', 'n_eff', 'estimator', 'target'];
   const rows = report.channels.map((c) => {
     const rounded = c.mean === null ? { value: '-', uncertainty: null } : roundWithUncertainty(c.mean, c.expandedUncertainty ?? c.standardUncertainty);
     const steady = c.state === 'steady' || c.state === 'precise';
@@ -244,6 +261,7 @@ function renderReport(report: AnalyzeReport): string {
       groupDigits(c.n),
       rounded.value,
       rounded.uncertainty ?? '-',
+      ...(withUnits ? [unitLabel((c as ChannelSnapshot & { unit?: string | null }).unit) || '-'] : []),
       formatSignificant(c.coverageFactor, 3),
       formatSignificant(c.standardUncertainty, 2),
       formatSignificant(c.dof, 3),

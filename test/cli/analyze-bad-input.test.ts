@@ -147,3 +147,22 @@ describe('plateau analyze: decimal commas', () => {
     expect(bad.stderr.trim()).toBe(`plateau: ${commas}: --decimal-comma needs fields separated by ";" or tab, and this file's header is separated by ","`);
   });
 });
+
+describe('plateau analyze --unit', () => {
+  it('a unit per column: in the table as people write it, in --json as given; an unknown column is one line', () => {
+    const rows = ['time,probe_a,line_p'];
+    for (let i = 0; i < 40; i++) rows.push(`${i},${(21 + 0.01 * Math.sin(i)).toFixed(4)},${(101.3 + 0.02 * Math.cos(i)).toFixed(3)}`);
+    const file = tempFile('units.csv', `${rows.join('\n')}\n`);
+    const table = runCli(['analyze', file, '--unit', 'probe_a=Cel', '--unit', 'line_p=kPa']).stdout;
+    const lines = table.split('\n');
+    expect(lines[2]).toMatch(/\bunit\b/);
+    expect(lines.find((l) => l.startsWith('probe_a'))).toMatch(/\s°C\s/);
+    expect(lines.find((l) => l.startsWith('line_p'))).toMatch(/\skPa\s/);
+    const json = JSON.parse(runCli(['analyze', file, '--json', '--unit', 'probe_a=Cel']).stdout);
+    expect(json.channels.map((c: { unit: string | null }) => c.unit)).toEqual(['Cel', null]);
+    const bad = runCli(['analyze', file, '--unit', 'probe_b=K']);
+    expect(bad.status).toBe(2);
+    expect(bad.stderr.trim()).toBe('plateau: --unit probe_b=K: no channel column named "probe_b" (channels: probe_a, line_p)');
+    expect(runCli(['analyze', file, '--unit', 'probe_a']).stderr.trim()).toBe('plateau: --unit "probe_a": expected NAME=UNIT, e.g. --unit probe_a=degC');
+  });
+});
