@@ -70,7 +70,7 @@ export class DerivedView extends DetailView {
         { className: 'stat-grid' },
         stat('u_c (standard)', p.u, 'combined standard uncertainty, with the covariance of the input means'),
         stat('k', p.k, 'coverage factor from the t-distribution'),
-        stat('ν', p.dof, 'degrees of freedom of u_c'),
+        stat('ν_eff', p.dof, 'degrees of freedom of u_c'),
         stat('rows', p.rows, 'common time buckets of the input channels'),
         stat('bucket', p.bucket, 'width of a common time bucket'),
         stat('batches', p.batches, 'batches × rows per batch of the multivariate batch means'),
