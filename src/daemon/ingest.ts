@@ -207,7 +207,7 @@ export class Ingest {
         continue;
       }
       if (!result.accepted) {
-        this.rejected(result.reason, `channel ${sample.channel}: sample at ${new Date(sample.timeMs).toISOString()} ${result.reason === 'duplicate' ? 'repeats an accepted time' : 'is older than every remembered one'}`);
+        this.rejected(result.reason, `channel ${sample.channel}: sample at ${new Date(sample.timeMs).toISOString()} ${result.reason === 'duplicate' ? 'repeats an accepted time' : result.reason === 'redelivered' ? 'was stored before the restart (delivered again)' : 'is older than every remembered one'}`);
         continue;
       }
       this.counters.accepted++;

@@ -25,6 +25,7 @@ export const REJECT_REASONS = [
   'too-many-samples',
   'duplicate',
   'out-of-order',
+  'redelivered',
   'engine-error',
 ] as const;
 export type RejectReason = (typeof REJECT_REASONS)[number];
