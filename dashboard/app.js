@@ -54,7 +54,7 @@ class App {
     const hash = location.hash || '#/';
     const channelMatch = /^#\/channel\/(.+)$/.exec(hash);
     const derivedMatch = /^#\/derived\/(.+)$/.exec(hash);
-    for (const link of document.querySelectorAll('.nav a')) link.classList.toggle('active', link.getAttribute('href') === (channelMatch || derivedMatch ? '#/' : hash));
+    for (const link of document.querySelectorAll('.tabs a')) link.classList.toggle('active', link.getAttribute('href') === (channelMatch || derivedMatch ? '#/' : hash));
     const decoded = (text) => {
       try {
         return decodeURIComponent(text);
