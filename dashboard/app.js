@@ -27,14 +27,14 @@ class App {
     this.firstData = false;
     this.lastUpdateMs = 0;
     this.setupConnectionIndicator();
+    this.setupTheme();
     this.setupWriteKey();
     window.addEventListener('hashchange', () => this.route());
     this.link = new LiveLink({ onMessage: (m) => this.onMessage(m), onStatus: (s) => this.onStatus(s) });
     this.loadServer();
     this.route();
     this.link.start();
-    this.tickClock();
-    setInterval(() => this.tickClock(), 1000);
+    setInterval(() => this.tick(), 1000);
   }
 
   async loadServer() {
@@ -54,7 +54,7 @@ class App {
     const hash = location.hash || '#/';
     const channelMatch = /^#\/channel\/(.+)$/.exec(hash);
     const derivedMatch = /^#\/derived\/(.+)$/.exec(hash);
-    for (const link of document.querySelectorAll('.nav a')) link.classList.toggle('active', link.getAttribute('href') === (channelMatch || derivedMatch ? '#/' : hash));
+    for (const link of document.querySelectorAll('.tabs a')) link.classList.toggle('active', link.getAttribute('href') === (channelMatch || derivedMatch ? '#/' : hash));
     const decoded = (text) => {
       try {
         return decodeURIComponent(text);
@@ -87,7 +87,7 @@ class App {
       this.derived.close();
       this.testPoints.show(false);
       this.overview.show(true);
-      document.title = 'plateau · channels';
+      document.title = 'plateau · sheet';
     }
   }
 
@@ -238,23 +238,61 @@ class App {
     document.body.classList.toggle('disconnected', lost);
     this.banner.hidden = !lost;
     if (status.state === 'live') {
-      this.pill.className = 'pill live';
-      setText(this.pill, '● LIVE');
+      this.pill.className = 'link-state live';
+      setText(this.pill, 'link: receiving');
     } else if (!lost) {
-      this.pill.className = 'pill connecting';
-      setText(this.pill, '◌ CONNECTING…');
+      this.pill.className = 'link-state connecting';
+      setText(this.pill, 'link: connecting…');
     } else {
-      this.pill.className = 'pill lost';
-      setText(this.pill, '✖ CONNECTION LOST');
+      this.pill.className = 'link-state lost';
+      setText(this.pill, '! link lost: values frozen');
       const wait = status.state === 'lost' && status.retryAtMs ? Math.max(0, Math.ceil((status.retryAtMs - Date.now()) / 1000)) : 0;
       const frozen = this.lastUpdateMs ? ` Values shown are frozen as of ${clockTime(this.lastUpdateMs)}.` : '';
       setText(this.bannerText, `Connection to the daemon lost — reconnecting${wait > 0 ? ` in ${wait} s` : ' now'} (attempt ${status.attempt}).${frozen}`);
     }
   }
 
-  tickClock() {
-    setText(byId('clock'), clockTime(Date.now()));
+  /** Once a second: the countdown of a reconnection (there is no clock on the sheet). */
+  tick() {
     if (this.status && this.status.state !== 'live') this.renderStatus();
+  }
+
+  // ---- light and dark sheet -----------------------------------------------------------------
+
+  /** The light sheet by default (print-friendly), the dark one when the system prefers it or the reader chooses it; kept in this browser. */
+  setupTheme() {
+    this.themeButton = byId('theme-toggle');
+    let stored = null;
+    try {
+      stored = localStorage.getItem('plateau.theme');
+    } catch {
+      stored = null;
+    }
+    const prefersDark = window.matchMedia?.('(prefers-color-scheme: dark)').matches;
+    this.applyTheme(stored === 'dark' || stored === 'light' ? stored : prefersDark ? 'dark' : 'light');
+    this.themeButton.addEventListener('click', () => {
+      const next = document.documentElement.dataset.theme === 'dark' ? 'light' : 'dark';
+      this.applyTheme(next);
+      try {
+        localStorage.setItem('plateau.theme', next);
+      } catch {
+        // kept for this page only
+      }
+    });
+  }
+
+  applyTheme(theme) {
+    document.documentElement.dataset.theme = theme;
+    setText(this.themeButton, theme === 'dark' ? 'light sheet' : 'dark sheet');
+    this.themeButton.setAttribute('aria-pressed', String(theme === 'dark'));
+    // Charts take their colours when they are built: an open view is built again.
+    for (const view of [this.channel, this.derived]) {
+      const name = view?.name;
+      if (name) {
+        view.close();
+        view.open(name);
+      }
+    }
   }
 
   // ---- write key ----------------------------------------------------------------------------
@@ -289,7 +327,7 @@ class App {
     const needs = this.state.server?.writesNeedToken;
     const has = Boolean(writeKey());
     setText(this.keyButton, has ? 'write key set' : needs ? 'write key needed' : 'writes open (no key)');
-    this.keyButton.className = `key-button${needs && !has ? ' needed' : ''}`;
+    this.keyButton.className = `quiet key-button${needs && !has ? ' needed' : ''}`;
     this.testPoints.updateLock();
   }
 }

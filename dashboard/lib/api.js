@@ -62,7 +62,7 @@ export const api = {
   startTestPoint: (body) => request('POST', '/api/test-points', body),
   stopTestPoint: (id) => request('POST', `/api/test-points/${encodeURIComponent(id)}/stop`),
   annotate: (id, text) => request('POST', `/api/test-points/${encodeURIComponent(id)}/annotations`, { text }),
-  acknowledge: (eventId) => request('POST', `/api/events/${encodeURIComponent(eventId)}/acknowledge`),
+  acknowledge: (eventId, note) => request('POST', `/api/events/${encodeURIComponent(eventId)}/acknowledge`, note ? { note } : {}),
   eventsAfter: (after) => request('GET', `/api/events?after=${after}&limit=1000`),
 };
 

@@ -9,7 +9,12 @@ const SVG = 'http://www.w3.org/2000/svg';
 const ROW = 26;
 const VALUE_COLUMN = 78;
 const CHARACTER_WIDTH = 7;
-const COLORS = { variance: '#5fb3ff', positive: '#f0a830', negative: '#ff6b5f', total: '#9aa7b4', axis: '#9aa7b4', grid: 'rgba(154,167,180,0.16)', text: '#e9eef3' };
+// The SVG takes its colours from the sheet's CSS variables (light and dark).
+const VARIABLES = { variance: '--chart-mean', positive: '--warming', negative: '--unsteady', total: '--ink-faint', axis: '--ink-soft', grid: '--chart-grid', text: '--ink', rule: '--rule' };
+function colors() {
+  const style = getComputedStyle(document.documentElement);
+  return Object.fromEntries(Object.entries(VARIABLES).map(([key, name]) => [key, style.getPropertyValue(name).trim() || '#555']));
+}
 
 let charts = 0;
 
@@ -100,28 +105,28 @@ export function budgetChart(container) {
     const px = (v) => labelWidth + ((v - low) / (high - low)) * plotWidth;
     const hatch = (name, color) =>
       el('pattern', { id: `budget-${name}-${id}`, patternUnits: 'userSpaceOnUse', width: 7, height: 7, patternTransform: 'rotate(45)' }, el('rect', { width: 7, height: 7, fill: color, 'fill-opacity': 0.35 }), el('line', { x1: 0, y1: 0, x2: 0, y2: 7, stroke: color, 'stroke-width': 3 }));
-    const fills = { variance: COLORS.variance, 'covariance-positive': `url(#budget-positive-${id})`, 'covariance-negative': `url(#budget-negative-${id})`, total: COLORS.total };
-    const strokes = { 'covariance-positive': COLORS.positive, 'covariance-negative': COLORS.negative };
+    const fills = { variance: colors().variance, 'covariance-positive': `url(#budget-positive-${id})`, 'covariance-negative': `url(#budget-negative-${id})`, total: colors().total };
+    const strokes = { 'covariance-positive': colors().positive, 'covariance-negative': colors().negative };
     const svg = el('svg', { class: 'budget-svg', width, height, viewBox: `0 0 ${width} ${height}`, role: 'img', 'aria-label': `Uncertainty budget of ${current.name}: each term as a share of u_c²` });
-    svg.appendChild(el('defs', {}, hatch('positive', COLORS.positive), hatch('negative', COLORS.negative)));
+    svg.appendChild(el('defs', {}, hatch('positive', colors().positive), hatch('negative', colors().negative)));
     // Legend.
     const legend = [
-      ['variance of an input', COLORS.variance, null],
-      ['covariance, adds to u_c²', `url(#budget-positive-${id})`, COLORS.positive],
-      ['covariance, takes away from u_c²', `url(#budget-negative-${id})`, COLORS.negative],
+      ['variance of an input', colors().variance, null],
+      ['covariance, adds to u_c²', `url(#budget-positive-${id})`, colors().positive],
+      ['covariance, takes away from u_c²', `url(#budget-negative-${id})`, colors().negative],
     ];
     let x = labelWidth;
     for (const [text, fill, stroke] of legend) {
       svg.appendChild(el('rect', { x, y: 6, width: 14, height: 11, fill, stroke: stroke ?? undefined }));
-      svg.appendChild(el('text', { x: x + 19, y: 16, 'font-size': 12, fill: COLORS.text }, text));
+      svg.appendChild(el('text', { x: x + 19, y: 16, 'font-size': 12, fill: colors().text }, text));
       x += 34 + text.length * 6.4;
     }
     // Grid and ticks.
-    svg.appendChild(el('rect', { x: labelWidth, y: top, width: plotWidth, height: plotHeight, fill: 'rgba(255,255,255,0.02)', stroke: 'rgba(154,167,180,0.3)' }));
+    svg.appendChild(el('rect', { x: labelWidth, y: top, width: plotWidth, height: plotHeight, fill: 'none', stroke: colors().rule }));
     for (const tick of ticks(low, high)) {
       const tx = px(tick);
-      svg.appendChild(el('line', { x1: tx, x2: tx, y1: top, y2: top + plotHeight, stroke: COLORS.grid }));
-      svg.appendChild(el('text', { x: tx, y: top + plotHeight + 15, 'text-anchor': 'middle', 'font-size': 11, fill: COLORS.axis }, `${trim(tick, 4)} %`));
+      svg.appendChild(el('line', { x1: tx, x2: tx, y1: top, y2: top + plotHeight, stroke: colors().grid }));
+      svg.appendChild(el('text', { x: tx, y: top + plotHeight + 15, 'text-anchor': 'middle', 'font-size': 11, fill: colors().axis }, `${trim(tick, 4)} %`));
     }
     const maxCharacters = Math.max(6, Math.floor((labelWidth - 14) / CHARACTER_WIDTH));
     terms.forEach((term, i) => {
@@ -133,16 +138,16 @@ export function budgetChart(container) {
           'g',
           { class: `budget-row ${term.kind}`, 'data-kind': term.kind, 'data-label': term.label },
           el('title', {}, `${term.label}: ${percentText(term.percent)} of u_c². ${term.detail}`),
-          el('text', { x: labelWidth - 8, y: y + 17, 'text-anchor': 'end', 'font-size': 12, fill: COLORS.text }, shorten(term.label, maxCharacters)),
+          el('text', { x: labelWidth - 8, y: y + 17, 'text-anchor': 'end', 'font-size': 12, fill: colors().text }, shorten(term.label, maxCharacters)),
           el('rect', { class: 'budget-bar', x: a, y: y + 5, width: Math.max(1, b - a), height: ROW - 10, fill: fills[term.kind], stroke: strokes[term.kind], 'stroke-width': strokes[term.kind] ? 1.2 : undefined, 'data-percent': term.percent }),
-          el('text', { x: width - 4, y: y + 17, 'text-anchor': 'end', 'font-size': 12, 'font-weight': term.kind === 'total' ? 700 : 400, fill: term.kind === 'covariance-negative' ? COLORS.negative : COLORS.text }, percentText(term.percent)),
+          el('text', { x: width - 4, y: y + 17, 'text-anchor': 'end', 'font-size': 12, 'font-weight': term.kind === 'total' ? 700 : 400, fill: term.kind === 'covariance-negative' ? colors().negative : colors().text }, percentText(term.percent)),
         ),
       );
     });
-    svg.appendChild(el('line', { x1: px(0), x2: px(0), y1: top, y2: top + plotHeight, stroke: COLORS.text, 'stroke-width': 1.2 }));
-    svg.appendChild(el('line', { x1: px(100), x2: px(100), y1: top - 4, y2: top + plotHeight, stroke: COLORS.total, 'stroke-dasharray': '4 3' }));
-    svg.appendChild(el('text', { x: px(100), y: top - 8, 'text-anchor': 'middle', 'font-size': 11, fill: COLORS.axis }, 'u_c² = 100 %'));
-    svg.appendChild(el('text', { x: labelWidth + plotWidth / 2, y: height - 6, 'text-anchor': 'middle', 'font-size': 12, fill: COLORS.axis }, 'share of u_c² (%)'));
+    svg.appendChild(el('line', { x1: px(0), x2: px(0), y1: top, y2: top + plotHeight, stroke: colors().text, 'stroke-width': 1.2 }));
+    svg.appendChild(el('line', { x1: px(100), x2: px(100), y1: top - 4, y2: top + plotHeight, stroke: colors().total, 'stroke-dasharray': '4 3' }));
+    svg.appendChild(el('text', { x: px(100), y: top - 8, 'text-anchor': 'middle', 'font-size': 11, fill: colors().axis }, 'u_c² = 100 %'));
+    svg.appendChild(el('text', { x: labelWidth + plotWidth / 2, y: height - 6, 'text-anchor': 'middle', 'font-size': 12, fill: colors().axis }, 'share of u_c² (%)'));
     container.appendChild(svg);
   };
   const observer = new ResizeObserver(() => {

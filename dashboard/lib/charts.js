@@ -1,30 +1,109 @@
-// Charts of the channel view, drawn with uPlot (served by the daemon from its own installation).
-// Each builder returns { update(detail), destroy() } and redraws in place; markers (warm-up cut,
-// summation window, averaging limit) are drawn by a small plugin on the canvas.
+import { unitText } from './format.js';
 
-const COLORS = {
-  axis: '#9aa7b4',
-  grid: 'rgba(154,167,180,0.14)',
-  trace: '#c9d3dc',
-  mean: '#5fb3ff',
-  band: 'rgba(95,179,255,0.20)',
-  excluded: 'rgba(240,168,48,0.13)',
-  cut: '#f0a830',
-  acf: '#5fb3ff',
-  noise: 'rgba(201,211,220,0.55)',
-  allan: '#5fb3ff',
-  limit: '#ff6b5f',
-  reference: 'rgba(201,211,220,0.5)',
-  upper: '#5fb3ff',
-  lower: '#f0a830',
-  decision: '#ff6b5f',
-};
+// Charts of the channel view, drawn with uPlot (served by the daemon from its own installation)
+// in the sheet's own style: colours from the page's CSS variables (light and dark sheet), hairline
+// axes in the ink colour, times of day as 24-hour HH:MM:SS on one line, a key drawn as a row of
+// short strokes (style.css, .chart-key), and a readout that follows the cursor with the values
+// under it. Each builder returns { update(detail), destroy() } and redraws in place; markers
+// (warm-up cut, summation window, averaging limit) are drawn by a small plugin on the canvas.
 
-const FONT = '12px system-ui, sans-serif';
+/** The palette, read from the CSS variables of the current sheet (refreshed before each chart is built). */
+const COLORS = {};
+
+function refreshPalette() {
+  const style = getComputedStyle(document.documentElement);
+  const v = (name, fallback) => style.getPropertyValue(name).trim() || fallback;
+  Object.assign(COLORS, {
+    axis: v('--ink-soft', '#4a5560'),
+    grid: v('--chart-grid', 'rgba(40,60,80,0.12)'),
+    trace: v('--chart-trace', '#3b4650'),
+    mean: v('--chart-mean', '#0d5c63'),
+    band: v('--chart-band', 'rgba(13,92,99,0.16)'),
+    bandLine: v('--chart-band-line', 'rgba(13,92,99,0.55)'),
+    excluded: v('--chart-excluded', 'rgba(154,106,0,0.12)'),
+    cut: v('--warming', '#9a6a00'),
+    acf: v('--chart-mean', '#0d5c63'),
+    acfFill: v('--chart-band', 'rgba(13,92,99,0.16)'),
+    noise: v('--ink-faint', '#8a949c'),
+    allan: v('--chart-mean', '#0d5c63'),
+    limit: v('--unsteady', '#b3261e'),
+    reference: v('--ink-faint', '#8a949c'),
+    upper: v('--chart-mean', '#0d5c63'),
+    lower: v('--warming', '#9a6a00'),
+    decision: v('--unsteady', '#b3261e'),
+  });
+}
+
+const FONT = '12px "DejaVu Sans", "Segoe UI", system-ui, sans-serif';
 
 function axis(label, extra = {}) {
-  return { label, stroke: COLORS.axis, grid: { stroke: COLORS.grid, width: 1 }, ticks: { stroke: COLORS.grid, width: 1 }, font: FONT, labelFont: FONT, ...extra };
+  return { label, stroke: COLORS.axis, grid: { stroke: COLORS.grid, width: 1 }, ticks: { stroke: COLORS.axis, width: 1, size: 5 }, border: { show: true, stroke: COLORS.axis, width: 1 }, font: FONT, labelFont: FONT, ...extra };
 }
+
+const pad2 = (n) => String(n).padStart(2, '0');
+
+/** Time-of-day ticks, 24-hour, on one line (seconds when the span is short). */
+function clockTicks(_u, splits, _axisIdx, _space, increment) {
+  return splits.map((v) => {
+    const d = new Date(v * 1000);
+    const hm = `${pad2(d.getHours())}:${pad2(d.getMinutes())}`;
+    return increment < 60 ? `${hm}:${pad2(d.getSeconds())}` : hm;
+  });
+}
+
+/** The time axis: 24-hour local time of day, labelled as such. */
+function timeAxis(label) {
+  return axis(label, { values: clockTicks, space: 70 });
+}
+
+/**
+ * The readout: a small box that follows the cursor with the x value and each shown series' value
+ * (our replacement for a hover legend). `formatX` turns the x value into text.
+ */
+function readoutPlugin(formatX) {
+  let box = null;
+  return {
+    hooks: {
+      init: (u) => {
+        box = document.createElement('div');
+        box.className = 'chart-readout';
+        box.hidden = true;
+        u.over.appendChild(box);
+      },
+      setCursor: (u) => {
+        const i = u.cursor.idx;
+        if (i === null || i === undefined || u.cursor.left < 0) {
+          box.hidden = true;
+          return;
+        }
+        const lines = [formatX(u.data[0][i])];
+        u.series.forEach((series, k) => {
+          if (k === 0 || !series.show) return;
+          const value = u.data[k][i];
+          if (value === null || value === undefined || !Number.isFinite(value)) return;
+          lines.push(`${series.label}: ${Number(value.toPrecision(6))}`);
+        });
+        box.replaceChildren(...lines.map((text, k) => {
+          const line = document.createElement('div');
+          line.textContent = text;
+          if (k === 0) line.className = 'chart-readout-x';
+          return line;
+        }));
+        box.hidden = false;
+        const right = u.cursor.left > u.over.clientWidth * 0.6;
+        box.style.left = right ? '' : `${u.cursor.left + 12}px`;
+        box.style.right = right ? `${u.over.clientWidth - u.cursor.left + 12}px` : '';
+        box.style.top = `${Math.max(0, u.cursor.top - 10)}px`;
+      },
+    },
+  };
+}
+
+const timeText = (v) => {
+  const d = new Date(v * 1000);
+  return `${pad2(d.getHours())}:${pad2(d.getMinutes())}:${pad2(d.getSeconds())}`;
+};
+const plainX = (name) => (v) => `${name} ${Number(Number(v).toPrecision(6))}`;
 
 /** Vertical markers and shaded spans, drawn after (lines) or before (spans) the series. */
 function markerPlugin(getMarkers) {
@@ -48,7 +127,7 @@ function markerPlugin(getMarkers) {
     const { top, height, left, width } = u.bbox;
     const ratio = window.devicePixelRatio || 1;
     ctx.save();
-    ctx.font = `${Math.round(11 * ratio)}px system-ui, sans-serif`;
+    ctx.font = `${Math.round(11 * ratio)}px "DejaVu Sans", system-ui, sans-serif`;
     for (const line of lines ?? []) {
       const x = u.valToPos(line.x, 'x', true);
       if (!(x >= left - 1 && x <= left + width + 1)) continue;
@@ -85,7 +164,7 @@ function sized(container, height) {
 }
 
 function makeChart(container, options, data, height) {
-  const plot = new uPlot({ ...sized(container, height), ...options }, data, container);
+  const plot = new uPlot({ ...sized(container, height), ...options, legend: { show: true, live: false }, class: 'sheet-chart' }, data, container);
   const observer = new ResizeObserver(() => plot.setSize(sized(container, height)));
   observer.observe(container);
   return {
@@ -101,29 +180,29 @@ function makeChart(container, options, data, height) {
  * The trace: samples, the mean over the averaging window with its +/-U band, the samples outside
  * the window shaded (the warm-up, or before the test point) and the cut marked.
  */
-export function traceChart(container) {
+export function traceChart(container, timeLabel = 'time of day (24 h, local)') {
   let unit = null;
   let markers = { spans: [], lines: [] };
   let chart = null;
   let timed = true;
   const build = (data) => {
     chart?.destroy();
+    refreshPalette();
     chart = makeChart(
       container,
       {
-        legend: { show: true, live: false },
         cursor: { drag: { x: true, y: false } },
         scales: { x: { time: timed } },
-        axes: [axis(timed ? '' : 'sample'), axis(unit || 'value', { size: 70 })],
+        axes: [timed ? timeAxis(timeLabel) : axis('sample'), axis(unit || 'value', { size: 70 })],
         series: [
           {},
           { label: 'samples', stroke: COLORS.trace, width: 1, points: { show: false } },
           { label: 'mean', stroke: COLORS.mean, width: 2, points: { show: false } },
-          { label: '+U', stroke: 'rgba(95,179,255,0.5)', width: 1, dash: [4, 4], points: { show: false } },
-          { label: '−U', stroke: 'rgba(95,179,255,0.5)', width: 1, dash: [4, 4], points: { show: false } },
+          { label: '+U', stroke: COLORS.bandLine, width: 1, dash: [4, 4], points: { show: false } },
+          { label: '−U', stroke: COLORS.bandLine, width: 1, dash: [4, 4], points: { show: false } },
         ],
         bands: [{ series: [3, 4], fill: COLORS.band }],
-        plugins: [markerPlugin(() => markers)],
+        plugins: [markerPlugin(() => markers), readoutPlugin(timed ? timeText : plainX('sample'))],
       },
       data,
       300,
@@ -134,7 +213,7 @@ export function traceChart(container) {
       const trace = detail.trace;
       const n = trace.values.length;
       const unitChanged = (detail.unit ?? null) !== unit;
-      unit = detail.unit ?? null;
+      unit = unitText(detail.unit) || null;
       // Time on the x axis when every sample has one and they never go back (late samples can).
       const isTimed = n > 0 && trace.times.every((t, i) => t !== null && (i === 0 || t >= trace.times[i - 1]));
       const x = isTimed ? trace.times.slice() : trace.values.map((_, i) => trace.firstIndex + i);
@@ -179,19 +258,19 @@ export function acfChart(container) {
       markers = { lines: used && used.window > 0 && used.window <= acf.length ? [{ x: used.window, label: `window M = ${used.window}`, color: COLORS.cut }] : [] };
       const data = [lags, acf, lags.map(() => noise), lags.map(() => -noise)];
       if (!chart) {
+        refreshPalette();
         chart = makeChart(
           container,
           {
-            legend: { show: true, live: false },
             scales: { x: { time: false }, y: { range: (_u, min, max) => [Math.min(-0.25, min), Math.max(1, max)] } },
             axes: [axis('lag (samples)'), axis('autocorrelation', { size: 56 })],
             series: [
               {},
-              { label: 'ρ(lag)', stroke: COLORS.acf, fill: 'rgba(95,179,255,0.35)', width: 1, paths: uPlot.paths.bars({ size: [0.7, 24] }), points: { show: false } },
+              { label: 'ρ(lag)', stroke: COLORS.acf, fill: COLORS.acfFill, width: 1, paths: uPlot.paths.bars({ size: [0.7, 24] }), points: { show: false } },
               { label: '+2/√n', stroke: COLORS.noise, width: 1, dash: [3, 3], points: { show: false } },
               { label: '−2/√n', stroke: COLORS.noise, width: 1, dash: [3, 3], points: { show: false } },
             ],
-            plugins: [markerPlugin(() => markers)],
+            plugins: [markerPlugin(() => markers), readoutPlugin(plainX('lag'))],
           },
           data,
           240,
@@ -221,21 +300,22 @@ export function allanChart(container) {
       if (!chart || timed !== isTimed) {
         timed = isTimed;
         chart?.destroy();
+        refreshPalette();
+        const unit = unitText(detail.unit);
         chart = makeChart(
           container,
           {
-            legend: { show: true, live: false },
             scales: { x: { time: false, distr: 3, log: 10 }, y: { distr: 3, log: 10 } },
-            axes: [axis(isTimed ? 'averaging time (s)' : 'averaging factor m', { values: logTicks }), axis('Allan deviation', { size: 70, values: logTicks })],
+            axes: [axis(isTimed ? 'averaging time (s)' : 'averaging factor m', { values: logTicks }), axis(unit ? `Allan deviation (${unit})` : 'Allan deviation', { size: 70, values: logTicks })],
             series: [
               {},
               { label: 'Allan deviation', stroke: COLORS.allan, width: 2, points: { show: true, size: 6 } },
-              { label: '1σ high', stroke: 'rgba(95,179,255,0.35)', width: 1, points: { show: false } },
-              { label: '1σ low', stroke: 'rgba(95,179,255,0.35)', width: 1, points: { show: false } },
+              { label: '1σ high', stroke: COLORS.bandLine, width: 1, points: { show: false } },
+              { label: '1σ low', stroke: COLORS.bandLine, width: 1, points: { show: false } },
               { label: 'white-noise slope', stroke: COLORS.reference, width: 1, dash: [4, 4], points: { show: false } },
             ],
-            bands: [{ series: [2, 3], fill: 'rgba(95,179,255,0.16)' }],
-            plugins: [markerPlugin(() => markers)],
+            bands: [{ series: [2, 3], fill: COLORS.band }],
+            plugins: [markerPlugin(() => markers), readoutPlugin(plainX(isTimed ? 's' : 'm'))],
           },
           data,
           240,
@@ -259,12 +339,13 @@ export function cusumChart(container) {
       const h = cusum?.decisionInterval ?? null;
       const data = [x, upper, (cusum?.lower ?? []).map((v) => -v), x.map(() => h), x.map(() => (h === null ? null : -h))];
       if (!chart) {
+        refreshPalette();
         chart = makeChart(
           container,
           {
-            legend: { show: true, live: false },
             scales: { x: { time: false } },
             axes: [axis('block'), axis('sum (sd)', { size: 56 })],
+            plugins: [readoutPlugin(plainX('block'))],
             series: [
               {},
               { label: 'upward', stroke: COLORS.upper, width: 1.5, points: { show: false } },

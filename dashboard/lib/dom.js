@@ -53,10 +53,10 @@ export function byId(id) {
   return document.getElementById(id);
 }
 
-/** A name as text with line-break opportunities after . _ : / - (long channel names wrap there). */
+/** A name as text with line-break opportunities after . : / (long channel names wrap between their parts, never inside a word such as glycol_in). */
 export function breakable(name) {
   const parts = [];
-  for (const piece of String(name).split(/(?<=[._:/-])/)) {
+  for (const piece of String(name).split(/(?<=[.:/])/)) {
     if (parts.length > 0) parts.push(document.createElement('wbr'));
     parts.push(document.createTextNode(piece));
   }

@@ -88,13 +88,18 @@ export function percent(confidence) {
   return `${trimNumber(confidence * 100, 4)} %`;
 }
 
-/** How each channel state is shown: a word, a symbol and a colour class (never the colour alone). */
+/**
+ * The state vocabulary of the sheet: one name per state, the API's own (warming, steady, precise,
+ * unsteady, stale), each with a text glyph whose shape says it without colour (↗ still moving,
+ * ≈ level and averaging, ✓ level and at its target, ≠ no longer level, ∅ silent), a line of
+ * explanation and a class that sets its colour and the rule drawn at the left of its entry.
+ */
 export const STATES = {
-  warming: { label: 'WARMING UP', symbol: '◔', hint: 'not steady yet: the mean is not used', className: 'st-warming' },
-  steady: { label: 'STEADY', symbol: '●', hint: 'steady, averaging towards the target precision', className: 'st-steady' },
-  precise: { label: 'AT TARGET', symbol: '✔', hint: 'steady and at the target precision', className: 'st-precise' },
-  unsteady: { label: 'NOT STEADY', symbol: '▲', hint: 'a shift, trend or variance change was detected: averaging restarted', className: 'st-unsteady' },
-  stale: { label: 'NO DATA', symbol: '○', hint: 'no sample for a while', className: 'st-stale' },
+  warming: { label: 'WARMING', symbol: '↗', hint: 'still moving towards its level: the mean is not a result yet', className: 'st-warming' },
+  steady: { label: 'STEADY', symbol: '≈', hint: 'level: averaging towards the target uncertainty', className: 'st-steady' },
+  precise: { label: 'PRECISE', symbol: '✓', hint: 'level, and its expanded uncertainty within the target', className: 'st-precise' },
+  unsteady: { label: 'UNSTEADY', symbol: '≠', hint: 'a shift, trend or variance change was found: averaging starts again after it', className: 'st-unsteady' },
+  stale: { label: 'STALE', symbol: '∅', hint: 'no sample for longer than its staleSeconds: the figures are those of the last sample', className: 'st-stale' },
 };
 
 export function stateOf(name) {
@@ -107,11 +112,11 @@ export function stateOf(name) {
  * no target. Read from the daemon's verdict (atTarget, inputStates).
  */
 export const DERIVED_STATES = {
-  'no-value': { label: 'NO VALUE YET', symbol: '○', hint: 'too few common rows of its inputs', className: 'st-stale' },
-  waiting: { label: 'WAITING FOR INPUTS', symbol: '◔', hint: 'an input channel is not steady: the value is provisional', className: 'st-warming' },
-  short: { label: 'NOT YET AT TARGET', symbol: '●', hint: 'inputs steady; the uncertainty is still above the target', className: 'st-steady' },
-  'no-target': { label: 'INPUTS STEADY', symbol: '●', hint: 'inputs steady; no target is set', className: 'st-steady' },
-  'at-target': { label: 'AT TARGET', symbol: '✔', hint: 'inputs steady and the uncertainty within the target', className: 'st-precise' },
+  'no-value': { label: 'NO VALUE YET', symbol: '∅', hint: 'too few common rows of its inputs', className: 'st-stale' },
+  waiting: { label: 'WAITING FOR INPUTS', symbol: '↗', hint: 'an input channel is not steady: the value is provisional', className: 'st-warming' },
+  short: { label: 'STEADY', symbol: '≈', hint: 'inputs steady; the uncertainty is still above the target', className: 'st-steady' },
+  'no-target': { label: 'STEADY', symbol: '≈', hint: 'inputs steady; no target is set', className: 'st-steady' },
+  'at-target': { label: 'PRECISE', symbol: '✓', hint: 'inputs steady and the uncertainty within the target', className: 'st-precise' },
 };
 
 const STEADY_INPUT = new Set(['steady', 'precise']);
@@ -139,23 +144,23 @@ export function signedPercent(share) {
 }
 
 export const POINT_STATES = {
-  running: { label: 'RUNNING', symbol: '▶', className: 'st-steady' },
-  ready: { label: 'READY', symbol: '✔', className: 'st-precise' },
-  stopped: { label: 'STOPPED', symbol: '■', className: 'st-stale' },
+  running: { label: 'RUNNING', symbol: '→', className: 'st-steady' },
+  ready: { label: 'READY', symbol: '✓', className: 'st-precise' },
+  stopped: { label: 'STOPPED', symbol: '□', className: 'st-stale' },
 };
 
 /** Event kinds in words, with a severity: alert, notice, good or info. */
 const EVENT_TEXT = {
-  steady: ['good', 'Steady state reached'],
-  'precision-reached': ['good', 'Target precision met'],
-  'stationarity-lost': ['alert', 'Steady state lost'],
+  steady: ['good', 'Steady: warm-up over'],
+  'precision-reached': ['good', 'Precise: target uncertainty met'],
+  'stationarity-lost': ['alert', 'Unsteady: steady state lost'],
   'stationarity-regained': ['good', 'Steady again'],
   'break-revised': ['notice', 'Break classified again'],
   'warmup-extended': ['notice', 'Warm-up longer than it looked: start moved'],
   'steady-withdrawn': ['alert', 'Steady state withdrawn: warm-up not over'],
   'averaging-limit': ['notice', 'Averaging limit: longer runs no longer help'],
   'conformity-changed': ['notice', 'Conformity outcome changed'],
-  stale: ['alert', 'Data stopped'],
+  stale: ['alert', 'Channel stale: no samples'],
   fresh: ['info', 'Data flowing again'],
   'criterion-holds': ['good', 'Stability rule holds'],
   'criterion-lost': ['notice', 'Stability rule no longer holds'],
@@ -165,25 +170,27 @@ const EVENT_TEXT = {
   'test-point-annotated': ['info', 'Note added'],
   'broker-connected': ['info', 'Broker connected'],
   'broker-disconnected': ['alert', 'Broker connection lost'],
+  'broker-session-lost': ['alert', 'Broker lost the session: messages may be missing'],
   'ingest-lag': ['alert', 'Daemon falling behind'],
   'command-refused': ['alert', 'Command refused'],
   'store-recovered': ['alert', 'Samples could not be stored for a while'],
   'alert-acknowledged': ['info', 'Alert acknowledged'],
 };
 
-export function describeEvent(event) {
+/** An event in words; `unit` is the unit of its source (a channel's), printed after its numbers. */
+export function describeEvent(event, unit = null) {
   const [severity, title] = EVENT_TEXT[event.kind] ?? ['info', event.kind];
-  return { severity, title, detail: eventDetail(event) };
+  return { severity, title, detail: eventDetail(event, unitSuffix(event.body?.unit ?? unit)) };
 }
 
 export const SEVERITY = {
-  alert: { label: 'ALERT', symbol: '▲' },
-  notice: { label: 'NOTICE', symbol: '◆' },
-  good: { label: 'OK', symbol: '✔' },
+  alert: { label: 'ALERT', symbol: '!' },
+  notice: { label: 'NOTE', symbol: '※' },
+  good: { label: 'OK', symbol: '✓' },
   info: { label: 'INFO', symbol: '·' },
 };
 
-function eventDetail(event) {
+function eventDetail(event, unit) {
   const body = event.body ?? {};
   switch (event.kind) {
     case 'stationarity-lost':
@@ -193,13 +200,13 @@ function eventDetail(event) {
     case 'warmup-extended':
       return `from sample ${body.warmupEnd ?? '?'}; ${formatCount(body.excluded ?? 0)} samples excluded`;
     case 'break-revised':
-      return `${body.cause ?? 'change'} from sample ${body.changePoint ?? '?'}${body.slope ? `, slope ${trimNumber(body.slope.perSample, 2)} ± ${trimNumber(body.slope.standardUncertainty, 2)} per sample` : ''}${body.warmup ? ' (the warm-up still running)' : ''}`;
+      return `${body.cause ?? 'change'} from sample ${body.changePoint ?? '?'}${body.slope ? `, slope ${trimNumber(body.slope.perSample, 2)} ± ${trimNumber(body.slope.standardUncertainty, 2)}${unit} per sample` : ''}${body.warmup ? ' (the warm-up still running)' : ''}`;
     case 'steady-withdrawn':
       return `${body.reason ?? ''}`;
     case 'precision-reached':
-      return `${body.derived ? `${trimNumber(body.value, 6)} ${body.unit ?? ''}, ` : ''}U = ${trimNumber(body.expandedUncertainty, 3)} within ${trimNumber(body.bound, 3)}${body.derived && body.unit ? ` ${body.unit}` : ''}`;
+      return `${body.derived ? `${trimNumber(body.value, 6)}${unit}, ` : ''}U = ${trimNumber(body.expandedUncertainty, 3)}${unit} within ${trimNumber(body.bound, 3)}${unit}`;
     case 'averaging-limit':
-      return `beyond m = ${body.m}${body.tauSeconds ? ` (${formatDuration(body.tauSeconds)})` : ''} the Allan deviation stops falling`;
+      return `beyond m = ${body.m}${body.tauSeconds ? ` (${formatDuration(body.tauSeconds)})` : ''} the Allan deviation stops falling${body.adev ? ` (${trimNumber(body.adev, 3)}${unit})` : ''}`;
     case 'conformity-changed':
       return `${body.previous ?? 'none'} → ${body.verdict ?? '?'} (${body.rule ?? ''} rule${typeof body.probability === 'number' ? `, p_c ${trimNumber(body.probability, 3)}` : ''})`;
     case 'stale':
@@ -216,6 +223,7 @@ function eventDetail(event) {
       return `${body.text ?? ''}`;
     case 'broker-connected':
     case 'broker-disconnected':
+    case 'broker-session-lost':
       return `${body.detail ?? ''}`;
     case 'ingest-lag':
       return `${body.detail ?? ''}`;
@@ -226,4 +234,75 @@ function eventDetail(event) {
     default:
       return '';
   }
+}
+
+/**
+ * Units as people write them: the same table as src/engine/unit-label.ts (SenML codes, RFC 8428
+ * 12.1, and ASCII spellings, printed as the SI Brochure writes them); a test checks that the two agree.
+ */
+export const UNIT_LABELS = {
+  Cel: '°C',
+  degC: '°C',
+  deg_C: '°C',
+  celsius: '°C',
+  degF: '°F',
+  deg_F: '°F',
+  K: 'K',
+  kelvin: 'K',
+  Ohm: 'Ω',
+  ohm: 'Ω',
+  kOhm: 'kΩ',
+  MOhm: 'MΩ',
+  uV: 'µV',
+  uA: 'µA',
+  um: 'µm',
+  us: 'µs',
+  '%RH': '% RH',
+  '/': '1',
+  '/s': 's⁻¹',
+  '/min': 'min⁻¹',
+  '/h': 'h⁻¹',
+  deg: '°',
+  m2: 'm²',
+  m3: 'm³',
+  'm/s2': 'm/s²',
+  'm3/s': 'm³/s',
+  'm3/h': 'm³/h',
+  'kg/m3': 'kg/m³',
+  'W/m2': 'W/m²',
+  'J/(kg K)': 'J/(kg·K)',
+  'kJ/(kg K)': 'kJ/(kg·K)',
+  'l/min': 'L/min',
+  'l/h': 'L/h',
+  l: 'L',
+};
+
+/** A unit code as printed (°C for Cel or degC; exponents raised); '' without one. */
+export function unitText(unit) {
+  if (unit === null || unit === undefined || unit === '') return '';
+  const known = Object.prototype.hasOwnProperty.call(UNIT_LABELS, unit) ? UNIT_LABELS[unit] : undefined;
+  if (known !== undefined) return known;
+  return String(unit).replace(/([A-Za-z])(-?[23])(?![0-9])/g, (_m, letter, power) => `${letter}${power.replace('-', '⁻').replace('2', '²').replace('3', '³')}`);
+}
+
+/** " °C" (with the leading space) or ''. */
+export function unitSuffix(unit) {
+  const text = unitText(unit);
+  return text ? ` ${text}` : '';
+}
+
+/**
+ * The progress towards a target on a scale a person reads: the samples taken against the samples
+ * the window needs in all (from the 1/√n law), as "1 200 of 3 400 samples"; null while it cannot
+ * be said (no target, not steady, unknown).
+ */
+export function samplesProgress(n, target) {
+  if (!target || target.reached || !(target.samplesNeeded > 0) || !(n >= 0)) return null;
+  const fraction = Math.max(0, Math.min(1, n / target.samplesNeeded));
+  return { fraction, text: `${formatCount(n)} of ${formatCount(target.samplesNeeded)} samples needed` };
+}
+
+/** The coverage statement that goes with U: "k = 2.03, ≈95 %". */
+export function coverageText(coverageFactor, confidence) {
+  return `k = ${trimNumber(coverageFactor, 3)}, ≈${trimNumber(confidence * 100, 4)} %`;
 }

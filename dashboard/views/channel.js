@@ -6,7 +6,7 @@
 
 import { h, setText, replaceChildren } from '../lib/dom.js';
 import { api } from '../lib/api.js';
-import { decimalsFor, formatValue, formatResult, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber } from '../lib/format.js';
+import { decimalsFor, formatValue, formatResult, formatCount, formatEffective, formatDuration, stateOf, trimNumber, unitSuffix, samplesProgress, coverageText } from '../lib/format.js';
 import { traceChart, acfChart, allanChart, cusumChart } from '../lib/charts.js';
 import { DetailView } from '../lib/detail-view.js';
 import { ProgressBar } from '../lib/progress-bar.js';
@@ -19,11 +19,13 @@ export class ChannelView extends DetailView {
 
   build(name) {
     const summary = this.app.state.channels.get(name);
-    const unit = summary?.unit ?? null;
+    const unit = unitSuffix(summary?.unit);
     const f = (key, className = 'num') => h('span', { className, dataset: { field: key } });
     this.parts = {
-      badge: h('span', { className: 'badge', dataset: { field: 'state' } }),
-      unit: h('span', { className: 'unit', dataset: { field: 'unit' }, text: unit ? ` ${unit}` : '' }),
+      badge: h('span', { className: 'state-word', dataset: { field: 'state' } }),
+      headline: h('p', { className: 'view-verdict', dataset: { field: 'verdict' } }),
+      unitNote: h('p', { className: 'unit-note', dataset: { field: 'unitNote' } }),
+      unit: h('span', { className: 'unit', dataset: { field: 'unit' }, text: unit }),
       result: f('result', 'result'),
       coverage: f('coverage', 'coverage'),
       last: f('last'),
@@ -60,9 +62,11 @@ export class ChannelView extends DetailView {
     const cusumBox = h('div', { className: 'chart', id: 'chart-cusum' });
     replaceChildren(
       this.element,
-      h('div', { className: 'view-head' }, h('a', { className: 'back', href: '#/', text: '← all channels' }), h('h1', { className: 'channel-title' }, h('span', { text: name }), p.unit), p.badge),
+      h('div', { className: 'view-head' }, h('a', { className: 'back', href: '#/', text: '← sheet' }), h('h1', { className: 'channel-title' }, h('span', { text: name }), p.unit), p.badge),
       p.error,
-      h('div', { className: 'result-row' }, h('div', { className: 'result-box' }, h('span', { className: 'label', text: 'mean ± U' }), p.result, p.coverage), h('div', { className: 'tile-progress wide' }, this.progress.element, p.progressText)),
+      p.headline,
+      h('div', { className: 'result-row' }, h('div', { className: 'result-box' }, h('span', { className: 'label', text: 'mean ± U' }), p.result, p.coverage), h('div', { className: 'entry-progress wide' }, this.progress.element, p.progressText)),
+      p.unitNote,
       h('div', { className: 'panel verdict-panel' }, h('h2', { text: 'Verdict' }), p.verdict),
       h(
         'div',
@@ -94,13 +98,14 @@ export class ChannelView extends DetailView {
       h(
         'div',
         { className: 'chart-row' },
-        h('div', { className: 'panel' }, h('h2', { text: 'Estimators of the uncertainty' }), p.estimatorReason, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['estimator', 'τ_int', 'n_eff', 'u', 'ν', 'window', 'reliable'].map((t) => h('th', { text: t })))), p.estimators)),
-        h('div', { className: 'panel' }, h('h2', { text: 'Steady-state evidence' }), h('table', { className: 'table' }, p.evidence), p.notes),
+        h('div', { className: 'panel' }, h('h2', { text: 'Estimators of the uncertainty' }), p.estimatorReason, h('div', { className: 'table-scroll' }, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['estimator', 'τ_int', 'n_eff', 'u', 'ν_eff', 'window', 'reliable'].map((t) => h('th', { text: t })))), p.estimators))),
+        h('div', { className: 'panel' }, h('h2', { text: 'Steady-state evidence' }), h('div', { className: 'table-scroll' }, h('table', { className: 'table' }, p.evidence)), p.notes),
       ),
       // the combined uncertainty with its budget and the conformity outcome (issue 10)
       h('div', { className: 'panel budget-panel' }, h('h2', { text: 'Uncertainty budget' }), p.budgetNote, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['quantity', 'source', 'type', 'u', 'distribution', 'sensitivity', 'contribution', 'ν', 'share'].map((t) => h('th', { text: t })))), p.budget)),
     );
-    this.charts = [traceChart(traceBox), acfChart(acfBox), allanChart(allanBox), cusumChart(cusumBox)];
+    const clock = this.app.state.server?.sampleClock;
+    this.charts = [traceChart(traceBox, clock ? `${clock}, time of day (24 h)` : undefined), acfChart(acfBox), allanChart(allanBox), cusumChart(cusumBox)];
     if (summary) this.updateSummary(summary);
   }
 
@@ -109,14 +114,19 @@ export class ChannelView extends DetailView {
     if (!this.name || s.name !== this.name) return;
     const p = this.parts;
     const state = stateOf(s.state);
-    setText(p.unit, s.unit ? ` ${s.unit}` : '');
-    p.badge.className = `badge ${state.className}`;
+    const unit = unitSuffix(s.unit);
+    setText(p.unit, unit);
+    p.badge.className = `state-word ${state.className}`;
     setText(p.badge, `${state.symbol} ${state.label}`);
     p.badge.title = state.hint;
+    this.element.className = `view view-channel ${state.className}`;
+    const verdict = s.verdict;
+    setText(p.headline, verdict ? (verdict.ready ? 'Ready to record' : `Waiting: ${verdict.summary}`) : state.hint);
+    p.headline.classList.toggle('ready', Boolean(verdict?.ready));
+    setText(p.unitNote, s.unitNote ? `Unit: ${s.unitNote}.` : '');
     const decimals = decimalsFor(s.expandedUncertainty);
-    const unit = s.unit ? ` ${s.unit}` : '';
     setText(p.result, formatResult(s.mean, s.expandedUncertainty, unit));
-    setText(p.coverage, s.coverageFactor === null ? 'no uncertainty yet' : `k = ${trimNumber(s.coverageFactor, 3)}, ${percent(s.confidence)} coverage`);
+    setText(p.coverage, s.coverageFactor === null ? 'no uncertainty yet' : coverageText(s.coverageFactor, s.confidence));
     setText(p.last, s.last ? `${formatValue(s.last.value, decimals)}${unit}` : '–');
     setText(p.u, s.standardUncertainty === null ? '–' : `${trimNumber(s.standardUncertainty, 2)}${unit}`);
     setText(p.k, trimNumber(s.coverageFactor, 3));
@@ -126,19 +136,23 @@ export class ChannelView extends DetailView {
     setText(p.tau, trimNumber(s.tauInt, 3));
     setText(p.excluded, formatCount(s.excluded));
     const target = s.target;
-    let fraction = 0;
+    const steady = s.state === 'steady' || s.state === 'precise';
+    let fraction = null;
     let text = 'no target set';
-    if (target?.reached) {
-      fraction = 1;
-      text = `target met (${target.on} ≤ ${trimNumber(target.bound, 2)}${unit})`;
-    } else if (target) {
-      fraction = Math.max(0, Math.min(1, target.progress ?? 0));
+    if (target) {
       const goal = `${target.on} ≤ ${target.bound === null ? '–' : trimNumber(target.bound, 2)}${unit}`;
-      text = target.secondsToTarget !== null && target.secondsToTarget !== undefined ? `${Math.round(fraction * 100)} % towards ${goal} · ≈ ${formatDuration(target.secondsToTarget)} to go at the current rate` : `${Math.round(fraction * 100)} % towards ${goal}${target.note ? ` · ${target.note}` : ''}`;
+      if (!steady) text = `target ${goal}: judged once the channel is steady (no time to target while it is ${state.label.toLowerCase()})`;
+      else if (target.reached) {
+        fraction = 1;
+        text = `target met (${goal})`;
+      } else {
+        const progress = samplesProgress(s.n, target);
+        fraction = progress?.fraction ?? null;
+        text = progress ? `${progress.text} for ${goal}${target.secondsToTarget !== null && target.secondsToTarget !== undefined ? ` · ≈ ${formatDuration(target.secondsToTarget)} more at the current rate` : ''}` : `towards ${goal}${target.note ? ` · ${target.note}` : ''}`;
+      }
     }
-    this.progress.show(fraction, target?.reached);
+    this.progress.show(fraction, Boolean(target?.reached && steady));
     setText(p.progressText, text);
-    const verdict = s.verdict;
     if (verdict) replaceChildren(p.verdict, verdict.ready ? [h('li', { className: 'ready', text: 'Ready to record: steady, and at the target where one is set.' })] : verdict.pending.map((c) => h('li', {}, h('strong', { text: `${c.condition}: ` }), c.message)));
   }
 
@@ -158,8 +172,9 @@ export class ChannelView extends DetailView {
     setText(p.allanNote, d.averagingLimit ? `Averaging limit at m = ${d.averagingLimit.m}${d.averagingLimit.tauSeconds ? ` (${formatDuration(d.averagingLimit.tauSeconds)})` : ''}: beyond it drift dominates and longer averaging does not help.` : 'No averaging limit in this window: the Allan deviation still falls with averaging time.');
     const trace = d.trace;
     const before = trace.windowStartIndex - trace.firstIndex;
-    setText(p.traceNote, `${formatCount(trace.values.length)} most recent samples${before > 0 ? `; the first ${formatCount(before)} (shaded) are outside the averaging window` : ''}. Band: mean ± U over the window.`);
-    setText(p.cusumNote, d.cusumTrace ? `Blocks of ${d.cusumTrace.blockSize} samples; a sum crossing h = ${trimNumber(d.cusumTrace.decisionInterval, 3)} signals a shift.` : 'The CUSUM runs once the channel is steady.');
+    const clock = this.app.state.server?.sampleClock;
+    setText(p.traceNote, `${formatCount(trace.values.length)} most recent samples${before > 0 ? `; the first ${formatCount(before)} (shaded) are outside the averaging window` : ''}. Band: mean ± U over the window. Times: ${clock ? `${clock}, ` : ''}time of day, 24 h, this browser's time zone.`);
+    setText(p.cusumNote, d.cusumTrace ? `${d.cusumTrace.alarmed ? 'The sums as they stood at the alarm (the monitor starts again once the channel is steady). ' : ''}Blocks of ${d.cusumTrace.blockSize} samples; a sum crossing h = ${trimNumber(d.cusumTrace.decisionInterval, 3)} signals a shift.` : 'The CUSUM runs once the channel is steady.');
     replaceChildren(
       p.estimators,
       Object.entries(d.estimators ?? {}).map(([name, e]) =>
@@ -184,7 +199,7 @@ export class ChannelView extends DetailView {
     ];
     replaceChildren(p.evidence, rows.map(([k, v]) => h('tr', {}, h('th', { text: k }), h('td', { text: String(v) }))));
     replaceChildren(p.notes, (d.notes ?? []).map((note) => h('li', { text: note })));
-    showEvents(p.events, d.storedEvents ?? [], 'No events yet.');
+    showEvents(p.events, d.storedEvents ?? [], 'No events yet.', d.unit ?? null);
   }
 }
 

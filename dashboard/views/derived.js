@@ -7,7 +7,7 @@
 
 import { h, setText, replaceChildren, breakable } from '../lib/dom.js';
 import { api } from '../lib/api.js';
-import { formatResult, formatUncertainty, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber, derivedStateOf, signedPercent } from '../lib/format.js';
+import { formatResult, formatUncertainty, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber, derivedStateOf, signedPercent, unitSuffix, coverageText } from '../lib/format.js';
 import { budgetChart } from '../lib/budget-chart.js';
 import { DetailView } from '../lib/detail-view.js';
 import { ProgressBar } from '../lib/progress-bar.js';
@@ -21,7 +21,7 @@ export class DerivedView extends DetailView {
   build(name) {
     const f = (key, className = 'num') => h('span', { className, dataset: { field: key } });
     this.parts = {
-      badge: h('span', { className: 'badge', dataset: { field: 'state' } }),
+      badge: h('span', { className: 'state-word', dataset: { field: 'state' } }),
       unit: h('span', { className: 'unit', dataset: { field: 'unit' } }),
       result: f('result', 'result'),
       coverage: f('coverage', 'coverage'),
@@ -55,7 +55,7 @@ export class DerivedView extends DetailView {
     const table = (headings, body) => h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...headings.map((t) => h('th', { text: t })))), body);
     replaceChildren(
       this.element,
-      h('div', { className: 'view-head' }, h('a', { className: 'back', href: '#/', text: '← overview' }), h('h1', { className: 'channel-title' }, h('span', { className: 'derived-mark', text: 'ƒ ', 'aria-hidden': 'true' }), h('span', {}, breakable(name)), p.unit), p.badge),
+      h('div', { className: 'view-head' }, h('a', { className: 'back', href: '#/', text: '← sheet' }), h('h1', { className: 'channel-title' }, h('span', { className: 'derived-mark', text: 'ƒ ', 'aria-hidden': 'true' }), h('span', {}, breakable(name)), p.unit), p.badge),
       p.error,
       h(
         'div',
@@ -70,7 +70,7 @@ export class DerivedView extends DetailView {
         { className: 'stat-grid' },
         stat('u_c (standard)', p.u, 'combined standard uncertainty, with the covariance of the input means'),
         stat('k', p.k, 'coverage factor from the t-distribution'),
-        stat('ν', p.dof, 'degrees of freedom of u_c'),
+        stat('ν_eff', p.dof, 'degrees of freedom of u_c'),
         stat('rows', p.rows, 'common time buckets of the input channels'),
         stat('bucket', p.bucket, 'width of a common time bucket'),
         stat('batches', p.batches, 'batches × rows per batch of the multivariate batch means'),
@@ -98,13 +98,14 @@ export class DerivedView extends DetailView {
     if (!this.name || d.name !== this.name) return;
     const p = this.parts;
     const state = derivedStateOf(d);
-    p.badge.className = `badge ${state.className}`;
+    p.badge.className = `state-word ${state.className}`;
+    this.element.className = `view view-derived ${state.className}`;
     setText(p.badge, `${state.symbol} ${state.label}`);
     p.badge.title = state.hint;
-    const unit = d.unit ? ` ${d.unit}` : '';
+    const unit = unitSuffix(d.unit);
     setText(p.unit, unit);
     setText(p.result, formatResult(d.value, d.expandedUncertainty, unit));
-    setText(p.coverage, d.coverageFactor === null ? 'no uncertainty yet' : `k = ${trimNumber(d.coverageFactor, 3)}, ${percent(d.confidence)} coverage`);
+    setText(p.coverage, d.coverageFactor === null ? 'no uncertainty yet' : coverageText(d.coverageFactor, d.confidence));
     const ind = d.independent;
     setText(p.independent, ind?.expandedUncertainty === null || ind?.expandedUncertainty === undefined ? '–' : `± ${formatUncertainty(ind.expandedUncertainty)}${unit}`);
     setText(p.independentNote, ind ? `k = ${trimNumber(ind.coverageFactor, 3)}, ν = ${trimNumber(ind.dof, 3)}${d.expandedUncertainty > 0 && ind.expandedUncertainty > 0 ? ` · ${trimNumber(ind.expandedUncertainty / d.expandedUncertainty, 3)} × the correlated U` : ''}` : '');
@@ -131,15 +132,19 @@ export class DerivedView extends DetailView {
   updateProgress(d, unit) {
     const p = this.parts;
     const target = d.target;
-    let fraction = 0;
+    let fraction = null;
     let text = 'no target set';
+    const inputsSteady = Object.values(d.inputStates ?? {}).every((s) => s === 'steady' || s === 'precise');
     if (target?.reached) {
-      fraction = 1;
+      fraction = d.atTarget ? 1 : null;
       text = `${d.atTarget ? 'target met' : 'uncertainty within the target, waiting for the inputs'} (${target.on} ≤ ${trimNumber(target.bound, 2)}${unit})`;
     } else if (target) {
-      fraction = Math.max(0, Math.min(1, target.progress ?? 0));
       const goal = `${target.on} ≤ ${target.bound === null ? '–' : trimNumber(target.bound, 2)}${unit}${target.relative ? ` (${trimNumber(target.value * 100, 3)} % of the value)` : ''}`;
-      text = target.secondsToTarget !== null && target.secondsToTarget !== undefined ? `${Math.round(fraction * 100)} % towards ${goal} · ≈ ${formatDuration(target.secondsToTarget)} to go at the current rate` : `${Math.round(fraction * 100)} % towards ${goal}${target.note ? ` · ${target.note}` : ''}`;
+      if (!inputsSteady) text = `target ${goal}: judged once every input is steady`;
+      else if (target.samplesNeeded > 0) {
+        fraction = Math.max(0, Math.min(1, d.rows / target.samplesNeeded));
+        text = `${formatCount(d.rows)} of ${formatCount(target.samplesNeeded)} rows needed for ${goal}${target.secondsToTarget !== null && target.secondsToTarget !== undefined ? ` · ≈ ${formatDuration(target.secondsToTarget)} more at the current rate` : ''}`;
+      } else text = `towards ${goal}${target.note ? ` · ${target.note}` : ''}`;
     }
     this.progress.show(fraction, target?.reached);
     setText(p.progressText, text);
@@ -206,7 +211,7 @@ export class DerivedView extends DetailView {
 /** What the budget says, in words: the largest term and what the covariance terms do. */
 function budgetNote(d) {
   if (!(d.standardUncertainty > 0) || d.covarianceShare === null) return '';
-  const unit = d.unit ? ` ${d.unit}` : '';
+  const unit = unitSuffix(d.unit);
   const largest = [...(d.budget ?? [])].filter((b) => b.varianceShare !== null).sort((a, b) => b.varianceShare - a.varianceShare)[0];
   const parts = [];
   if (largest) parts.push(`Largest variance term: ${largest.channel} (${signedPercent(largest.varianceShare)} of u_c²).`);

@@ -125,7 +125,7 @@ export class TestPointsView {
   createCard(point) {
     const parts = {
       title: h('h3', { className: 'tp-title' }),
-      badge: h('span', { className: 'badge' }),
+      badge: h('span', { className: 'state-word' }),
       meta: h('p', { className: 'muted tp-meta' }),
       verdict: h('ul', { className: 'verdict' }),
       actions: h('div', { className: 'tp-actions' }),
@@ -152,7 +152,7 @@ export class TestPointsView {
     const p = card.parts;
     const state = POINT_STATES[point.state] ?? POINT_STATES.running;
     setText(p.title, point.name);
-    p.badge.className = `badge ${state.className}`;
+    p.badge.className = `state-word ${state.className}`;
     setText(p.badge, `${state.symbol} ${state.label}`);
     card.element.dataset.state = point.state;
     setText(p.meta, `${point.id} · started ${dateTime(point.createdMs)}${point.readyMs ? ` · ready ${dateTime(point.readyMs)}` : ''}${point.stoppedMs ? ` · stopped ${dateTime(point.stoppedMs)}` : ''}`);
@@ -180,7 +180,7 @@ export class TestPointsView {
   derivedChips(point) {
     return (point.derived ?? []).map((name) => {
       const d = this.app.state.derived.get(name);
-      const s = d ? derivedStateOf(d) : { symbol: '○', label: 'NO DATA', className: 'st-stale' };
+      const s = d ? derivedStateOf(d) : { symbol: '∅', label: 'NO VALUE YET', className: 'st-stale' };
       return h('li', { className: `chip derived-chip ${s.className}`, dataset: { derived: name } }, h('span', { text: `${s.symbol} ` }), h('span', { className: 'chip-name', text: `ƒ ${name}` }), h('span', { text: ` ${s.label.toLowerCase()}` }));
     });
   }

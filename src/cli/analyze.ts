@@ -1,11 +1,11 @@
-import { parseArgs } from 'node:util';
+import { readCommandArgs } from './command-args.js';
 import { ChannelPipeline, type ChannelSnapshot } from '../engine/channel-pipeline.js';
 import { DEFAULT_CHANNEL_OPTIONS, DEFAULT_MAX_SAMPLES, type ChannelOptions } from '../engine/channel-options.js';
 import { ESTIMATOR_NAMES, isEstimatorName } from '../core/tau/tau-estimate.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
 import { probeCsv, forEachCsvRow, describeIssues } from '../ingest/csv-table.js';
 import { UsageError } from './cli-error.js';
-import { formatDuration, formatSignificant, roundWithUncertainty, textTable } from './format.js';
+import { formatDuration, formatSignificant, groupDigits, roundWithUncertainty, textTable } from './format.js';
 import { CAUTION } from './caution.js';
 import type { ChannelEvent } from '../engine/channel-events.js';
 import type { WarmupSetting } from '../engine/warmup-detector.js';
@@ -14,6 +14,7 @@ import { SteadyHistory } from '../engine/steadiness.js';
 import { criteriaLines, criteriaCell } from './analyze-criteria.js';
 import { channelOptionsFromSettings, loadConfigFile, settingsFor } from '../config/load-config.js';
 import type { PlateauConfig } from '../config/plateau-config.js';
+import { unitLabel } from '../engine/unit-label.js';
 
 const MAX_EVENTS = 10_000;
 
@@ -40,6 +41,10 @@ Options:
                          sample as given; N cuts the first N samples of each channel
   --time-column NAME     the column holding time (default: a column named time, t, timestamp, ...)
   --delimiter C          field separator (default: guessed from the header: , ; or tab)
+  --unit NAME=UNIT       the unit of a column (repeatable), e.g. --unit probe_a=degC; shown in
+                         the table as people write it (°C) and given in --json as "unit"
+  --decimal-comma        numbers are written 21,375 (fields separated by ; or tab); found by itself
+                         in the first rows when it can be, and said in the notes
   --config CFG           apply the channel settings of a plateau configuration file, as \`plateau run\`
                          does: units, window, estimator, targets, Type B components, specification
                          limits with the decision rule, combined target and stopping rule,
@@ -64,11 +69,8 @@ interface Io {
 }
 
 export async function runAnalyze(argv: string[], io: Io): Promise<number> {
-  const { values, positionals } = parseArgs({
-    args: argv,
-    allowPositionals: true,
-    options: {
-      json: { type: 'boolean', default: false },
+  const { values: parsed, positionals } = readCommandArgs('analyze', argv, {
+      json: { type: 'boolean' },
       window: { type: 'string' },
       'window-seconds': { type: 'string' },
       confidence: { type: 'string' },
@@ -82,24 +84,41 @@ export async function runAnalyze(argv: string[], io: Io): Promise<number> {
       'time-column': { type: 'string' },
       delimiter: { type: 'string' },
       config: { type: 'string' },
+      'decimal-comma': { type: 'boolean' },
+      unit: { type: 'string', multiple: true },
       derive: { type: 'string', multiple: true },
       'monte-carlo-trials': { type: 'string' },
-      help: { type: 'boolean', short: 'h', default: false },
-    },
-  });
+      help: { type: 'boolean', short: 'h' },
+  }, true);
+  const values = parsed as Flags & { json?: boolean; help?: boolean; derive?: string[]; 'time-column'?: string; delimiter?: string; config?: string; 'decimal-comma'?: boolean; unit?: string[] };
   if (values.help) {
     io.out(ANALYZE_HELP);
     return 0;
   }
   if (positionals.length !== 1) throw new UsageError(positionals.length === 0 ? 'analyze needs a CSV file: plateau analyze FILE' : `analyze takes one file, got ${positionals.length}`);
   const file = positionals[0] as string;
-  const { derive: deriveFlags, config: configPath, ...flags } = values;
+  const { derive: deriveFlags, config: configPath, 'decimal-comma': decimalComma, unit: unitFlags, ...flags } = values;
+  const units = new Map<string, string>();
+  for (const raw of unitFlags ?? []) {
+    const at = raw.indexOf('=');
+    const name = at < 0 ? '' : raw.slice(0, at).trim();
+    const unit = at < 0 ? '' : raw.slice(at + 1).trim();
+    if (name === '' || unit === '') throw new UsageError(`--unit ${JSON.stringify(raw)}: expected NAME=UNIT, e.g. --unit probe_a=degC`);
+    units.set(name, unit);
+  }
   const options = channelOptionsFromFlags(flags);
   const derive = parseDeriveFlags(deriveFlags ?? [], numberFlag(flags, 'monte-carlo-trials', (v) => Number.isInteger(v) && (v === 0 || (v >= 20_000 && v <= 5_000_000)), 'a whole number of trials, 0 (no Monte Carlo check) or 20000 to 5000000'));
   const config = configPath === undefined ? null : loadConfigFile(configPath, { requireSubscriptions: false });
   const settings = config === null ? undefined : configuredChannels(config, flags, options);
   if (config !== null) derive.configured = { derived: config.derived, typeBOf: (name) => settingsFor(config, name).typeB };
-  const report = await analyzeFile(file, options, { timeColumn: values['time-column'], delimiter: values.delimiter }, derive, settings);
+  const report = await analyzeFile(file, options, { timeColumn: values['time-column'], delimiter: values.delimiter, decimalComma: decimalComma === true }, derive, settings);
+  for (const name of units.keys()) {
+    if (!report.channels.some((c) => c.name === name)) throw new UsageError(`--unit ${name}=${units.get(name)}: no channel column named "${name}" (channels: ${report.channels.map((c) => c.name).join(', ')})`);
+  }
+  for (const channel of report.channels) {
+    const given = units.get(channel.name);
+    if (given !== undefined || (channel as ChannelSnapshot & { unit?: string | null }).unit === undefined) (channel as ChannelSnapshot & { unit?: string | null }).unit = given ?? null;
+  }
   io.out(values.json ? `${JSON.stringify(report, finiteOrNull, 2)}\n` : renderReport(report));
   return 0;
 }
@@ -191,10 +210,11 @@ export function configuredChannels(config: PlateauConfig, flags: Flags, fromFlag
 }
 
 /** Replays a CSV file through one pipeline per channel: the streaming code path, row by row. */
-export async function analyzeFile(file: string, options: ChannelOptions, csv: { timeColumn?: string | undefined; delimiter?: string | undefined } = {}, derive: DeriveOptions = { requests: [] }, settings?: ChannelSettingsSource): Promise<AnalyzeReport> {
+export async function analyzeFile(file: string, options: ChannelOptions, csv: { timeColumn?: string | undefined; delimiter?: string | undefined; decimalComma?: boolean } = {}, derive: DeriveOptions = { requests: [] }, settings?: ChannelSettingsSource): Promise<AnalyzeReport> {
   const layout = await probeCsv(file, {
     ...(csv.timeColumn !== undefined ? { timeColumn: csv.timeColumn } : {}),
     ...(csv.delimiter !== undefined ? { delimiter: csv.delimiter } : {}),
+    ...(csv.decimalComma ? { decimalComma: true } : {}),
   });
   const channelOptions = layout.channels.map((column) => settings?.optionsFor(column.name) ?? options);
   if (channelOptions.some((o) => o.window.seconds !== undefined) && !layout.timeColumn) {
@@ -239,9 +259,12 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
       if (!firstTimeIssue) firstTimeIssue = `${file} row ${line}, column "${layout.timeColumn?.name}": "${text}" is not a time`;
     },
   );
+  const separator = layout.delimiter === '\t' ? 'tab' : `"${layout.delimiter}"`;
+  if (layout.decimalComma === 'detected') notes.push(`${file}: decimal commas detected (numbers such as 21,375; fields separated by ${separator}): every number is read with a decimal comma`);
+  else if (layout.decimalComma === 'asked') notes.push(`${file}: numbers read with a decimal comma (--decimal-comma; fields separated by ${separator})`);
   if (layout.ignored.length > 0) notes.push(`${file}: columns not numeric, ignored: ${layout.ignored.map((n) => `"${n}"`).join(', ')}`);
   if (timeIssues > 0) notes.push(`${firstTimeIssue}${timeIssues > 1 ? ` (${timeIssues} rows in all)` : ''}; those rows have no time`);
-  if (backwards > 0) notes.push(`${file}: time goes backwards at ${backwards} rows; rate estimates may be off`);
+  if (backwards > 0) notes.push(`${file}: time goes backwards at ${backwards} ${backwards === 1 ? 'row' : 'rows'}; rate estimates may be off`);
   if (!layout.timeColumn && pipelines.some((p) => p.criteria !== null && p.criteria.ruleCount > 0)) notes.push(`${file}: stability rules need the time of each sample, and the file has no time column (name one with --time-column): no rule can hold`);
   const channels = pipelines.map((pipeline, c) => {
     const snapshot = { ...pipeline.snapshot(), events: events[c] as ChannelEvent[] };
@@ -275,24 +298,28 @@ export function finiteOrNull(_key: string, value: unknown): unknown {
 
 function renderReport(report: AnalyzeReport): string {
   const withRules = report.channels.some((c) => c.readiness !== null);
-  const header = ['channel', 'verdict', 'state', 'n', 'mean', 'U', 'k', 'u', 'nu_eff', 'tau_int', 'n_eff', 'estimator', 'target', ...(withRules ? ['rules'] : [])];
+  const withUnits = report.channels.some((c) => (c as ChannelSnapshot & { unit?: string | null }).unit);
+  const header = ['channel', 'verdict', 'state', 'n', 'mean', 'U', ...(withUnits ? ['unit'] : []), 'k', 'u', 'nu_eff', 'tau_int', 'n_eff', 'estimator', 'target', ...(withRules ? ['rules'] : [])];
   const rows = report.channels.map((c) => {
     const rounded = c.mean === null ? { value: '-', uncertainty: null } : roundWithUncertainty(c.mean, c.expandedUncertainty ?? c.standardUncertainty);
     const steady = c.state === 'steady' || c.state === 'precise';
+    // The target is judged only on a steady channel: the U of a mean that still moves says
+    // nothing about the quantity, so an unsteady or warming channel is never shown as "met".
     let target = '-';
     if (c.target) {
-      if (c.target.reached) target = steady ? 'met' : 'met, not steady';
-      else if (!steady) target = 'not met';
-      else if (c.target.samplesToTarget !== null) target = `${c.target.samplesToTarget} more${c.target.secondsToTarget !== null ? ` (${formatDuration(c.target.secondsToTarget)})` : ''}`;
+      if (!steady) target = `not judged (${c.state})`;
+      else if (c.target.reached) target = 'met';
+      else if (c.target.samplesToTarget !== null) target = `${groupDigits(c.target.samplesToTarget)} more${c.target.secondsToTarget !== null ? ` (${formatDuration(c.target.secondsToTarget)})` : ''}`;
       else target = 'out of reach';
     }
     return [
       c.name,
       c.verdict.ready ? 'ready' : `waiting: ${c.verdict.pending[0]?.condition ?? '-'}`,
       c.state,
-      String(c.n),
+      groupDigits(c.n),
       rounded.value,
       rounded.uncertainty ?? '-',
+      ...(withUnits ? [unitLabel((c as ChannelSnapshot & { unit?: string | null }).unit) || '-'] : []),
       formatSignificant(c.coverageFactor, 3),
       formatSignificant(c.standardUncertainty, 2),
       formatSignificant(c.dof, 3),

@@ -1,7 +1,7 @@
-import { parseArgs } from 'node:util';
+import { readCommandArgs } from './command-args.js';
 import { fileURLToPath } from 'node:url';
 import { dirname, join } from 'node:path';
-import { mkdtempSync } from 'node:fs';
+import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { loadConfigFile } from '../config/load-config.js';
 import { Daemon } from '../daemon/daemon.js';
@@ -22,8 +22,15 @@ Options:
   --speed X          simulated seconds per second (default 1; 20 shows warm-up and drift quickly)
   --broker-port N    MQTT port to try first (default 1883)
   --http-port N      HTTP port to try first (default 8080)
-  --store FILE       SQLite file (default: a new temporary directory)
+  --store FILE       SQLite file to keep (default: one in a new temporary directory, deleted
+                     with its log when the demo stops)
+  --keep-store       keep the temporary directory (store and log) after the demo stops
   --seconds N        stop after N seconds (default: run until Ctrl-C)
+  -h, --help         this text
+
+The daemon's structured log goes to plateau-demo.log beside the store, not to the terminal.
+If the broker or dashboard port is busy, the next ones (up to 9 after it) are tried, then any
+free port; the banner says which.
 `;
 
 const root = join(dirname(fileURLToPath(import.meta.url)), '..', '..');
@@ -36,14 +43,26 @@ export interface DemoHandle {
   stop(): Promise<void>;
 }
 
-export async function startDemo(options: { speed: number; brokerPort: number; httpPort: number; store?: string; logLevel?: string }): Promise<DemoHandle> {
+export interface DemoOptions {
+  speed: number;
+  brokerPort: number;
+  httpPort: number;
+  /** A SQLite file to use and keep; without it, a temporary directory deleted by stop() unless keepStore. */
+  store?: string;
+  keepStore?: boolean;
+  logLevel?: string;
+}
+
+export async function startDemo(options: DemoOptions): Promise<DemoHandle & { logFile: string; temporary: string | null }> {
   const config = loadConfigFile(join(root, 'config', 'hx7-heat-exchanger.yaml'));
   const broker = await startEmbeddedBroker({ port: options.brokerPort });
-  const store = options.store ?? join(mkdtempSync(join(tmpdir(), 'plateau-demo-')), 'hx7.sqlite');
-  const demoConfig = { ...config, broker: { ...config.broker, url: broker.url, clientId: `plateau-demo-${process.pid}` }, store: { ...config.store, path: store }, log: { level: (options.logLevel ?? 'warn') as 'warn' } };
-  const daemon = new Daemon(demoConfig, {});
+  const temporary = options.store === undefined ? mkdtempSync(join(tmpdir(), 'plateau-demo-')) : null;
+  const store = options.store ?? join(temporary as string, 'hx7.sqlite');
+  const logFile = join(dirname(store), 'plateau-demo.log');
+  const demoConfig = { ...config, broker: { ...config.broker, url: broker.url, clientId: `plateau-demo-${process.pid}` }, store: { ...config.store, path: store }, log: { level: (options.logLevel ?? 'info') as 'info' } };
+  const daemon = new Daemon(demoConfig, { logFile });
   await daemon.start();
-  const server = await startServer(daemon, { host: '127.0.0.1', port: options.httpPort, token: null, maxBodyBytes: config.http.maxBodyBytes, fallbackPort: true, log: daemon.log });
+  const server = await startServer(daemon, { host: '127.0.0.1', port: options.httpPort, token: null, maxBodyBytes: config.http.maxBodyBytes, fallbackPort: true, log: daemon.log, sampleClock: `simulated time of the demo's rig (${options.speed}x real time)` });
   const publisher = new RigPublisher({ url: broker.url, speed: options.speed });
   await publisher.start();
   return {
@@ -51,27 +70,29 @@ export async function startDemo(options: { speed: number; brokerPort: number; ht
     daemon,
     server,
     publisher,
+    logFile,
+    temporary,
     stop: async () => {
       await publisher.stop();
       await server.close();
       await daemon.stop();
       await broker.close();
+      if (temporary !== null && !options.keepStore) rmSync(temporary, { recursive: true, force: true });
     },
   };
 }
 
 export async function runDemoCommand(argv: string[]): Promise<number> {
-  const { values } = parseArgs({
-    args: argv,
-    options: {
+  const { values: parsed } = readCommandArgs('demo', argv, {
       speed: { type: 'string' },
       'broker-port': { type: 'string' },
       'http-port': { type: 'string' },
       store: { type: 'string' },
       seconds: { type: 'string' },
-      help: { type: 'boolean', short: 'h', default: false },
-    },
-  });
+      'keep-store': { type: 'boolean' },
+      help: { type: 'boolean', short: 'h' },
+  }, false);
+  const values = parsed as Record<string, string | undefined> & { help?: boolean; 'keep-store'?: boolean };
   if (values.help) {
     process.stdout.write(DEMO_HELP);
     return 0;
@@ -86,7 +107,7 @@ export async function runDemoCommand(argv: string[]): Promise<number> {
   const brokerPort = number('broker-port', values['broker-port'], 1883, (v) => Number.isInteger(v) && v >= 0 && v < 65536, 'a port number');
   const httpPort = number('http-port', values['http-port'], 8080, (v) => Number.isInteger(v) && v >= 0 && v < 65536, 'a port number');
   const seconds = number('seconds', values.seconds, 0, (v) => v >= 0, 'a number of seconds');
-  const demo = await startDemo({ speed, brokerPort, httpPort, ...(values.store ? { store: values.store } : {}) });
+  const demo = await startDemo({ speed, brokerPort, httpPort, keepStore: values['keep-store'] === true, ...(values.store ? { store: values.store } : {}) });
   const notes: string[] = [];
   if (demo.broker.port !== brokerPort) notes.push(`port ${brokerPort} was busy, the broker took ${demo.broker.port}`);
   if (demo.server.port !== httpPort) notes.push(`port ${httpPort} was busy, the dashboard took ${demo.server.port}`);
@@ -95,7 +116,8 @@ export async function runDemoCommand(argv: string[]): Promise<number> {
       'plateau demo: simulated bench HX-7 (glycol/water heat exchanger), six channels',
       `  dashboard  ${demo.server.url}`,
       `  broker     ${demo.broker.url} (embedded)  topics rig/hx7/#`,
-      `  store      ${demo.daemon.config.store.path}`,
+      `  store      ${demo.daemon.config.store.path}${demo.temporary !== null ? (values['keep-store'] ? ' (kept after exit)' : ' (temporary: deleted on exit; --keep-store keeps it)') : ''}`,
+      `  log        ${demo.logFile}`,
       `  speed      ${speed}x real time`,
       ...notes.map((n) => `  note       ${n}`),
       '  Start a test point from the dashboard, or:',

@@ -38,3 +38,11 @@ export function textTable(header: string[], rows: string[][]): string {
   const line = (cells: string[]) => cells.map((cell, i) => (i === 0 ? cell.padEnd(widths[i] as number) : cell.padStart(widths[i] as number))).join('  ');
   return [line(header), widths.map((w) => '-'.repeat(w)).join('  '), ...rows.map(line)].join('\n');
 }
+
+/** A whole number with thin-space digit groups of three (ISO 80000-1: 1 234 567), as people read long counts. */
+export function groupDigits(value: number): string {
+  if (!Number.isInteger(value)) return String(value);
+  const text = String(Math.abs(value));
+  if (text.length <= 4) return String(value);
+  return `${value < 0 ? '-' : ''}${text.replace(/\B(?=(\d{3})+(?!\d))/g, '\u2009')}`;
+}

@@ -2,8 +2,8 @@ import { readFileSync } from 'node:fs';
 import { UsageError } from './cli-error.js';
 import { errorEntry } from '../errors/catalogue.js';
 import { runAnalyze, ANALYZE_HELP } from './analyze.js';
-import { runDaemonCommand } from './run.js';
-import { runDemoCommand } from './demo.js';
+import { runDaemonCommand, RUN_HELP } from './run.js';
+import { runDemoCommand, DEMO_HELP } from './demo.js';
 
 const HELP = `plateau: live steady-state and uncertainty of windowed means for test and calibration rigs
 
@@ -11,10 +11,15 @@ Usage:
   plateau demo [options]            embedded broker + simulated rig + daemon + dashboard
   plateau run --config FILE         the daemon: MQTT streams in, verdicts out
   plateau analyze FILE [options]    replay a logged CSV file through the same engine
-  plateau help [command]            this text, or a command's options
-  plateau version
+  plateau help [command]            this text, or a command's own help and options
+  plateau version                   the version
 
-${ANALYZE_HELP}`;
+Each command's options: plateau help demo, plateau help run, plateau help analyze
+(or plateau COMMAND --help).
+`;
+
+/** Each command's own help text. */
+const COMMAND_HELP: Record<string, string> = { analyze: ANALYZE_HELP, run: RUN_HELP, demo: DEMO_HELP };
 
 interface Commands {
   [name: string]: (argv: string[]) => Promise<number>;
@@ -32,8 +37,18 @@ export async function main(argv: string[], extra: Commands = {}): Promise<number
         return await runDaemonCommand(rest);
       case 'demo':
         return await runDemoCommand(rest);
+      case 'help': {
+        const topic = rest[0];
+        if (topic === undefined) {
+          out(HELP);
+          return 0;
+        }
+        const text = COMMAND_HELP[topic];
+        if (text === undefined) throw new UsageError(`help: no command "${topic}" (commands: ${Object.keys(COMMAND_HELP).join(', ')}, help, version)`);
+        out(text);
+        return 0;
+      }
       case undefined:
-      case 'help':
       case '--help':
       case '-h':
         out(HELP);

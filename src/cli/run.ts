@@ -1,8 +1,8 @@
-import { parseArgs } from 'node:util';
+import { readCommandArgs } from './command-args.js';
 import type { Logger } from 'pino';
 import { loadConfigFile } from '../config/load-config.js';
 import { Daemon } from '../daemon/daemon.js';
-import { startServer } from '../server/server.js';
+import { startServer, type RunningServer } from '../server/server.js';
 import { startEmbeddedBroker, type EmbeddedBroker } from '../ingest/embedded-broker.js';
 import { UsageError } from './cli-error.js';
 import { CAUTION } from './caution.js';
@@ -12,11 +12,21 @@ export const RUN_HELP = `plateau run --config FILE
 Runs the daemon: subscribes to the configured MQTT topics, keeps every channel's statistics in
 SQLite (a restart continues where it stopped), serves the API and the dashboard, and publishes
 events and a retained status per channel and test point. Stops cleanly on SIGINT or SIGTERM.
+A configuration with problems is refused before anything starts, one line per problem, each
+naming the file and the key path; the exit status is then 2.
+
+Options:
+  -c, --config FILE      the YAML configuration (required; examples in config/:
+                         hx7-heat-exchanger.yaml, bath-calibration.yaml)
+  -h, --help             this text
+
+broker.url: embedded in the file starts an in-process MQTT broker on port 1883.
 `;
 
 /** Starts the daemon from a config file; resolves when it has stopped (on a signal). */
 export async function runDaemonCommand(argv: string[]): Promise<number> {
-  const { values } = parseArgs({ args: argv, options: { config: { type: 'string', short: 'c' }, help: { type: 'boolean', short: 'h', default: false } } });
+  const { values: parsed } = readCommandArgs('run', argv, { config: { type: 'string', short: 'c' }, help: { type: 'boolean', short: 'h' } }, false);
+  const values = parsed as { config?: string; help?: boolean };
   if (values.help) {
     process.stdout.write(RUN_HELP);
     return 0;
@@ -25,14 +35,24 @@ export async function runDaemonCommand(argv: string[]): Promise<number> {
   const config = loadConfigFile(values.config);
   let broker: EmbeddedBroker | null = null;
   if (config.broker.url === 'embedded') broker = await startEmbeddedBroker({ port: 1883 });
-  const daemon = new Daemon(config, broker ? { brokerUrl: broker.url } : {});
-  await daemon.start();
-  const server = await startServer(daemon, { host: config.http.host, port: config.http.port, token: config.http.token, maxBodyBytes: config.http.maxBodyBytes, log: daemon.log });
+  let daemon: Daemon | null = null;
+  let server: RunningServer;
+  try {
+    daemon = new Daemon(config, broker ? { brokerUrl: broker.url } : {});
+    await daemon.start();
+    server = await startServer(daemon, { host: config.http.host, port: config.http.port, token: config.http.token, maxBodyBytes: config.http.maxBodyBytes, log: daemon.log });
+  } catch (error) {
+    // Whatever failed, nothing is left listening: the command ends with the error's exit status.
+    await daemon?.stop().catch(() => undefined);
+    await broker?.close().catch(() => undefined);
+    throw error;
+  }
   daemon.log.info({ url: server.url, broker: broker?.url ?? config.broker.url }, 'plateau is running');
   process.stderr.write(`plateau: dashboard at ${server.url}  (broker ${broker?.url ?? config.broker.url})\n${CAUTION}\n`);
+  const running = daemon;
   return waitForSignal(async () => {
     await server.close();
-    await daemon.stop();
+    await running.stop();
     await broker?.close();
   }, daemon.log);
 }

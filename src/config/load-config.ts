@@ -3,6 +3,7 @@ import { parse as parseYaml } from 'yaml';
 import { ConfigError, ConfigReader, describe, join, type Plain } from './config-reader.js';
 import type { ChannelGroup, ChannelSettings, DerivedConfig, PlateauConfig, SubscriptionConfig } from './plateau-config.js';
 import { DECODER_DEFAULTS, DECODER_FORMATS } from './decoder-spec.js';
+import { checkDerivedDefinitions } from './derived-check.js';
 import { ESTIMATOR_NAMES } from '../core/tau/tau-estimate.js';
 import type { TargetSpec } from '../core/uncertainty/target-precision.js';
 import { DEFAULT_CHANNEL_OPTIONS, DEFAULT_MAX_SAMPLES, type ChannelOptions, type WindowSpec } from '../engine/channel-options.js';
@@ -210,6 +211,14 @@ export function parseConfig(document: unknown, source = 'config', options: { req
   for (const [key, value] of Object.entries(topics)) if (/[+#]/.test(value)) r.problem(`topics.${key}`, `"${value}" must be a plain topic, without + or #`);
   const logSection = r.section(root.log, 'log', ['level']);
   const log = { level: r.oneOf(logSection, 'level', 'log', ['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent'] as const, 'info') };
+  if (derived.length > 0 && options.requireSubscriptions !== false && r.problems.every((line) => !line.startsWith('derived') && !line.startsWith('subscriptions'))) {
+    // The expressions against the channels the subscriptions can produce: every problem listed
+    // with the others, before the daemon opens anything (the daemon compiles them the same way).
+    const definitions = derived.map((d) => ({ name: d.name, expression: d.expression, ...(d.unit !== null ? { unit: d.unit } : {}) }));
+    const partial = { channels: { defaults, groups } } as PlateauConfig;
+    const checked = checkDerivedDefinitions(definitions, subscriptions.map((s) => s.channel), (name) => settingsFor(partial, name).range, globMatch, derived.map((d) => d.constants));
+    if (!checked.ok) for (const line of checked.problems) r.problems.push(line);
+  }
   r.throwIfProblems();
   return { source, broker, subscriptions, channels: { defaults, groups }, derived, store, http, topics, log, ...(scale !== null ? { scale } : {}) };
 }

@@ -14,7 +14,7 @@ import type { Store, StoredEvent } from '../ports/store.js';
 export const ACKNOWLEDGED_KIND = 'alert-acknowledged';
 
 /** Event kinds that call for a person's attention (the dashboard offers to acknowledge them). */
-export const ALERT_KINDS: readonly string[] = ['stationarity-lost', 'stale', 'averaging-limit', 'broker-disconnected', 'ingest-lag', 'command-refused', 'store-recovered'];
+export const ALERT_KINDS: readonly string[] = ['stationarity-lost', 'stale', 'averaging-limit', 'broker-disconnected', 'broker-session-lost', 'ingest-lag', 'command-refused', 'store-recovered'];
 
 const MAX_ACKNOWLEDGEMENTS = 10_000;
 const PAGE = 10_000;

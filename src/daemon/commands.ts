@@ -3,10 +3,12 @@ import type { TestPointControl } from './test-point-control.js';
 
 /**
  * Commands from a rig sequencer on `<topics.command>/<action>` (JSON object payloads):
- * `test-point/start` ({id?, name?, channels, derived?, setPoints?: {channel: number}}) and `test-point/stop` ({id}). A payload that
- * is not a JSON object is refused as `unparseable`, an unknown action as `unknown-topic` (counted
- * like refused samples); a command the daemon refuses (an unknown test point, a failing store) is
- * logged and raises a `command-refused` event naming the reason.
+ * `test-point/start` ({id?, name?, channels, derived?, setPoints?: {channel: number}}) and `test-point/stop` ({id}). Every refused
+ * command raises a `command-refused` event naming the command and the reason, so that a sequencer
+ * waiting on the event topic gets an answer: a payload that is not a JSON object (`reason`
+ * "payload is not a JSON object", code ERR_COMMAND_PAYLOAD, also counted as a refused delivery
+ * `unparseable`), an unknown action (ERR_COMMAND_UNKNOWN, counted as `unknown-topic`), and what the
+ * daemon refuses (an unknown test point, a failing store: the error's own code), also logged.
  */
 export interface CommandsOptions {
   testPoints: TestPointControl;
@@ -32,7 +34,10 @@ export class Commands {
       if (typeof parsed !== 'object' || parsed === null || Array.isArray(parsed)) throw new Error('not an object');
       body = parsed as Record<string, unknown>;
     } catch {
-      return this.options.rejected('unparseable', `command ${action}: payload is not a JSON object`);
+      const command = action.slice(0, 80);
+      this.options.rejected('unparseable', `command ${command}: payload is not a JSON object`);
+      this.options.raise('daemon', 'command-refused', null, { command, reason: 'payload is not a JSON object', code: 'ERR_COMMAND_PAYLOAD' });
+      return;
     }
     try {
       if (action === 'test-point/start') {
@@ -45,7 +50,11 @@ export class Commands {
         });
       } else if (action === 'test-point/stop') {
         this.options.testPoints.stop(String(body.id ?? ''));
-      } else this.options.rejected('unknown-topic', `command ${action.slice(0, 80)}: unknown command (test-point/start, test-point/stop)`);
+      } else {
+        const command = action.slice(0, 80);
+        this.options.rejected('unknown-topic', `command ${command}: unknown command (test-point/start, test-point/stop)`);
+        this.options.raise('daemon', 'command-refused', null, { command, reason: 'unknown command (test-point/start, test-point/stop)', code: 'ERR_COMMAND_UNKNOWN' });
+      }
     } catch (err) {
       this.options.log.warn({ command: action, err }, 'command refused');
       this.options.raise('daemon', 'command-refused', null, { command: action, reason: (err as Error).message, ...(typeof (err as { code?: unknown }).code === 'string' ? { code: (err as { code: string }).code } : {}) });

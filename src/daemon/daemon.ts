@@ -48,6 +48,8 @@ import { TestPointControl } from './test-point-control.js';
  */
 export interface DaemonOptions {
   logger?: Logger;
+  /** Write the structured log to this file instead of standard output (the demo keeps its banner clean). */
+  logFile?: string;
   /** Broker URL to use when the config says "embedded" (the demo starts the broker itself). */
   brokerUrl?: string;
   clock?: Clock;
@@ -104,7 +106,11 @@ export class Daemon implements DaemonApi {
   constructor(config: PlateauConfig, options: DaemonOptions = {}) {
     this.config = config;
     this.options = options;
-    this.log = options.logger ?? pino({ level: config.log.level, base: { service: 'plateau' } });
+    this.log =
+      options.logger ??
+      (options.logFile !== undefined
+        ? pino({ level: config.log.level, base: { service: 'plateau' } }, pino.destination({ dest: options.logFile, sync: true, mkdir: true }))
+        : pino({ level: config.log.level, base: { service: 'plateau' } }));
     this.clock = options.clock ?? new SystemClock();
     this.brokerUrl = config.broker.url === 'embedded' ? options.brokerUrl ?? 'mqtt://127.0.0.1:1883' : config.broker.url;
     this.registry = new ChannelRegistry((name) => this.channelOptions(name));
@@ -200,8 +206,6 @@ export class Daemon implements DaemonApi {
 
   /** The unit the configuration gives a channel (looked up once per channel). */
   private configuredUnit(name: string): string | null {
-    const known = this.registry.get(name);
-    if (known) return known.unit;
     return settingsFor(this.config, name).unit;
   }
 
@@ -220,6 +224,8 @@ export class Daemon implements DaemonApi {
     const ingest = this.ingestion.counters;
     ingest.accepted = counters.accepted ?? 0;
     ingest.messages = counters.messages ?? 0;
+    ingest.late = counters.late ?? 0;
+    this.commands.count = counters.commands ?? 0;
     for (const reason of REJECT_REASONS) ingest.rejected[reason] = counters[`rejected.${reason}`] ?? 0;
     ingest.gaps = counters.gaps ?? 0;
     ingest.missingSamples = counters.missingSamples ?? 0;
@@ -250,11 +256,22 @@ export class Daemon implements DaemonApi {
       this.publishers.push(this.options.publisher ?? new MqttPublisher(connection, this.config.topics));
     }
     this.publishers.push(this.listeners);
+    // The broker should hold this client's session when the daemon has been connected before (in
+    // this process, or in an earlier one that committed a position): a new session then means
+    // messages published meanwhile may never come, and that is a warning, not an information line.
+    const position = store.position(this.source.name);
+    let expectSession = position !== null;
     await this.source.start(
       {
         batch: (batch) => this.ingestion.batch((this.fence as DeliveryFence).filter(batch)),
         connection: (connected, detail) => {
-          this.log.info({ broker: this.brokerUrl, connected }, `broker ${detail}`);
+          const sessionLost = connected && expectSession && /new session/.test(detail);
+          if (connected) expectSession = true;
+          if (sessionLost) {
+            const warning = `the broker did not keep this client's session (clientId ${this.config.broker.clientId}): messages published while the daemon was away may not come; the broker must persist sessions and stop cleanly, and broker.clientId must stay the same`;
+            this.log.warn({ broker: this.brokerUrl }, warning);
+            this.queueEvent('daemon', 'broker-session-lost', null, { broker: this.brokerUrl, detail: warning });
+          } else this.log.info({ broker: this.brokerUrl, connected }, `broker ${detail}`);
           this.queueEvent('daemon', connected ? 'broker-connected' : 'broker-disconnected', null, { broker: this.brokerUrl, detail });
           // Not while stopping: a publish on a connection that is closing only holds up its end.
           if (!this.stopped) this.publishing.healthChanged(this.health());
@@ -300,7 +317,9 @@ export class Daemon implements DaemonApi {
     const active = this.ingestion.takeActive();
     this.checkpoints.addDue(final ? this.registry.all() : active, batch, final);
     const c = this.ingestion.counters;
-    const out: Record<string, number> = { accepted: c.accepted, messages: c.messages };
+    // Every counter of the API that counts since the store began is stored with each commit (and so
+    // carries on after a restart): accepted, messages, late, commands, refusals by reason.
+    const out: Record<string, number> = { accepted: c.accepted, messages: c.messages, late: c.late, commands: this.commands.count };
     for (const reason of REJECT_REASONS) out[`rejected.${reason}`] = c.rejected[reason];
     out.gaps = c.gaps;
     out.missingSamples = c.missingSamples;
@@ -344,6 +363,7 @@ export class Daemon implements DaemonApi {
       commands: this.commands.count,
       broker: { url: this.brokerUrl, connected: source?.connected ?? false, reconnects: source?.reconnects ?? 0, heldAcknowledgements: source?.unacknowledged ?? 0 },
       ingestLagMs: c.ingestLagMs,
+      laggingSource: c.laggingSource,
       flush: { count: health.commits, lastMs: health.lastCommitMs, maxMs: health.maxCommitMs, acknowledged: this.commits.acknowledgedCount, failing: health.failing, failedAttempts: health.attempts, pendingSamples: health.pendingSamples, error: health.lastError },
       database: { path: this.storeAdapter?.location ?? this.config.store.path, bytes: this.storeAdapter?.sizeBytes() ?? 0 },
       channels: this.registry.size,

@@ -2,8 +2,7 @@ import { ConfigError } from '../config/config-reader.js';
 import { globMatch, settingsFor } from '../config/load-config.js';
 import type { DerivedConfig, PlateauConfig } from '../config/plateau-config.js';
 import type { ChannelRegistry } from '../engine/channel-registry.js';
-import { referencedChannels } from '../engine/derived/derived-definitions.js';
-import { compileWithConstants } from '../engine/derived/derived-constants.js';
+import { checkDerivedDefinitions } from '../config/derived-check.js';
 import type { DerivedResultSpec, DerivedSnapshot } from '../engine/derived/derived-engine.js';
 import { derivedEntryStatement, derivedReportEntry, derivedStatement, derivedVerdict, type DerivedReportEntry, type DerivedVerdict } from '../engine/derived/derived-record.js';
 import { DerivedMonitor, type DerivedEvent } from '../engine/derived/derived-monitor.js';
@@ -78,25 +77,11 @@ export class DerivedResults implements DerivedStatus {
     this.registry = registry;
     this.source = registrySource(registry);
     const definitions: DerivedDefinition[] = config.derived.map((d) => ({ name: d.name, expression: d.expression, ...(d.unit !== null ? { unit: d.unit } : {}) }));
-    const templates = config.subscriptions.map((s) => s.channel);
-    const globs = templates.map((t) => t.replace(/\{\w+\}/g, '*'));
-    const problems: string[] = [];
-    const channels: ChannelDeclaration[] = [];
-    const constantNames = new Set(config.derived.flatMap((d) => d.constants.map((c) => c.name)));
-    for (const { name, definitions: users } of referencedChannels(definitions)) {
-      if (constantNames.has(name)) continue;
-      if (!globs.some((glob) => globMatch(glob, name))) {
-        for (const i of users) problems.push(`derived[${i}].expression: unknown channel '${name}' in "${definitions[i]?.expression}": no subscription gives a channel of that name (channel templates: ${templates.join(', ') || 'none'}; derived results: ${definitions.map((d) => d.name).join(', ')})`);
-        continue;
-      }
-      const range = settingsFor(config, name).range;
-      channels.push(range === null ? { name } : { name, range });
-    }
-    if (problems.length > 0) throw new ConfigError(problems);
-    const compiled = compileWithConstants(definitions, channels, 'derived', config.derived.map((d) => d.constants));
+    const compiled = checkDerivedDefinitions(definitions, config.subscriptions.map((s) => s.channel), (name) => settingsFor(config, name).range, globMatch, config.derived.map((d) => d.constants));
     if (!compiled.ok) throw new ConfigError(compiled.problems);
+    const channels = compiled.result.channels;
     this.channels = channels;
-    compiled.compiled.forEach((c, i) => {
+    compiled.result.compiled.forEach((c, i) => {
       const derivedConfig = config.derived[i] as DerivedConfig;
       const uncertainty = { channelTypeB: Object.fromEntries(c.inputs.map((name) => [name, settingsFor(config, name).typeB])), conformity: derivedConfig.conformity, combinedTarget: derivedConfig.combinedTarget };
       const spec: DerivedResultSpec = { compiled: c, target: derivedConfig.target, confidence: derivedConfig.confidence, uncertainty };

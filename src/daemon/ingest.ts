@@ -6,6 +6,7 @@ import type { ChannelEvent } from '../engine/channel-events.js';
 import { GapDetector, type GapRecord } from '../engine/gap-detector.js';
 import { PayloadDecoders } from '../ingest/payload-decoder.js';
 import { REJECT_REASONS, type DecodeEffects, type RejectReason } from '../ingest/sample.js';
+import { sameUnit } from '../engine/unit-label.js';
 import type { Clock } from '../ports/clock.js';
 import type { SourceBatch } from '../ports/sample-source.js';
 import type { PendingBatch } from './pending-batch.js';
@@ -31,7 +32,7 @@ export interface IngestOptions {
   log: Logger;
   commandTopic: string;
   lagWarningMs: number;
-  /** The unit the configuration gives a channel (for channels whose payload names none). */
+  /** The unit the configuration gives a channel (it wins over a payload's). */
   configuredUnit(name: string): string | null;
   /** A command message (topic below the command topic, payload). */
   command(action: string, payload: Uint8Array): void;
@@ -54,7 +55,10 @@ export interface IngestCounters {
   accepted: number;
   late: number;
   rejected: Record<RejectReason, number>;
+  /** The daemon's ingest lag: the smallest current lag of the sources heard from recently (see noteLag). */
   ingestLagMs: number;
+  /** The source (topic) with the largest current lag, when one lags: a publisher whose clock slips shows here, not in ingestLagMs. */
+  laggingSource: { topic: string; lagMs: number } | null;
   /** Gaps found (time stamps and sequence numbers) and the samples they miss. */
   gaps: number;
   missingSamples: number;
@@ -64,6 +68,36 @@ export interface IngestCounters {
 const REJECT_LOG_INTERVAL_MS = 10_000;
 /** Seconds over which the usual difference between arrival and time stamp is taken. */
 const LAG_BASELINE_SECONDS = 60;
+/** A source counts towards the daemon's lag while it was heard from this recently. */
+const LAG_RECENT_MS = 10_000;
+/** The daemon's lag is worked out over every source at most this often. */
+const LAG_JUDGE_MS = 250;
+/** Sources (topics) followed one by one; beyond this many, the least recently heard is forgotten. */
+const LAG_MAX_SOURCES = 1024;
+
+/** One source's usual difference between arrival and time stamp: per-second minima over LAG_BASELINE_SECONDS. */
+class SourceLag {
+  readonly seconds = new Float64Array(LAG_BASELINE_SECONDS).fill(-Infinity);
+  readonly minima = new Float64Array(LAG_BASELINE_SECONDS);
+  lagMs = 0;
+  lastArrivalMs = 0;
+
+  note(arrivalMs: number, differenceMs: number): number {
+    const second = Math.floor(arrivalMs / 1000);
+    const slot = second % LAG_BASELINE_SECONDS;
+    if (this.seconds[slot] !== second) {
+      this.seconds[slot] = second;
+      this.minima[slot] = differenceMs;
+    } else if (differenceMs < (this.minima[slot] as number)) this.minima[slot] = differenceMs;
+    let baseline = Number.POSITIVE_INFINITY;
+    for (let i = 0; i < LAG_BASELINE_SECONDS; i++) {
+      if (second - (this.seconds[i] as number) < LAG_BASELINE_SECONDS && (this.minima[i] as number) < baseline) baseline = this.minima[i] as number;
+    }
+    this.lagMs = Math.max(0, differenceMs - baseline);
+    this.lastArrivalMs = arrivalMs;
+    return this.lagMs;
+  }
+}
 
 /** What ingest keeps per channel: one look-up per sample. */
 interface Tracked {
@@ -79,10 +113,12 @@ interface Tracked {
   gaps: GapDetector;
   /** The durable log (a JetStream partition's) of the channel's latest sample; null: none or not durable. */
   log: string | null;
+  /** The unit the configuration gives the channel (null: none). */
+  configured: string | null;
 }
 
 export class Ingest {
-  readonly counters: IngestCounters = { messages: 0, accepted: 0, late: 0, rejected: Object.fromEntries(REJECT_REASONS.map((r) => [r, 0])) as Record<RejectReason, number>, ingestLagMs: 0, gaps: 0, missingSamples: 0 };
+  readonly counters: IngestCounters = { messages: 0, accepted: 0, late: 0, rejected: Object.fromEntries(REJECT_REASONS.map((r) => [r, 0])) as Record<RejectReason, number>, ingestLagMs: 0, laggingSource: null, gaps: 0, missingSamples: 0 };
   /** The payload decoders, with the Sparkplug B state of each edge node. */
   readonly decoders = new PayloadDecoders();
   private readonly options: IngestOptions;
@@ -90,8 +126,9 @@ export class Ingest {
   private readonly tracked = new Map<string, Tracked>();
   private active: Tracked[] = [];
   private readonly lastRejectLog = new Map<string, number>();
-  private readonly lagSeconds = new Float64Array(LAG_BASELINE_SECONDS).fill(-Infinity);
-  private readonly lagMinima = new Float64Array(LAG_BASELINE_SECONDS);
+  /** Per source (topic), in order of the last sample heard (oldest first). */
+  private readonly lags = new Map<string, SourceLag>();
+  private lagJudgedMs = Number.NEGATIVE_INFINITY;
   private lagWarned = false;
   /** The durable log of the delivery being ingested (null for a source without durable positions). */
   private currentLog: string | null = null;
@@ -133,14 +170,24 @@ export class Ingest {
     this.options.batch.addChannel(channel.name, channel.unit);
   }
 
-  /** The channel's record, the channel created (with its configured unit) when new. */
+  /**
+   * The channel's record, the channel created when new. Its unit: the configuration's when it
+   * gives one (it wins over a payload's, e.g. a SenML base unit; a payload naming another unit is
+   * noted on the channel, `unitNote`, and logged once), else the first a payload names.
+   */
   private track(name: string, unit: string | null): Tracked {
     let tracked = this.tracked.get(name);
     if (tracked === undefined) {
-      const channel = this.options.registry.ensure(name, unit ?? this.options.configuredUnit(name));
-      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name), gaps: new GapDetector(this.options.expectedIntervalMs?.(name) ?? null), log: null };
+      const configured = this.options.configuredUnit(name);
+      const channel = this.options.registry.ensure(name, configured ?? unit);
+      if (configured !== null && channel.unit !== configured) channel.unit = configured; // restored with another unit
+      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name), gaps: new GapDetector(this.options.expectedIntervalMs?.(name) ?? null), log: null, configured };
       this.tracked.set(name, tracked);
     } else if (unit !== null && tracked.channel.unit === null) tracked.channel.unit = unit;
+    if (unit !== null && tracked.configured !== null && tracked.channel.unitNote === null && !sameUnit(unit, tracked.configured)) {
+      tracked.channel.unitNote = `the payload gives the unit "${unit}", the configuration "${tracked.configured}": the configuration's is used`;
+      this.options.log.warn({ channel: name, payloadUnit: unit, configuredUnit: tracked.configured }, 'unit conflict: the configured unit is used');
+    }
     return tracked;
   }
 
@@ -198,7 +245,7 @@ export class Ingest {
         }
       }
     }
-    if (latestStamp > 0) this.noteLag(arrival, arrival - latestStamp);
+    if (latestStamp > 0) this.noteLag(topic, arrival, arrival - latestStamp);
     if (decoded.effects !== undefined) this.effects(decoded.effects);
   }
 
@@ -250,7 +297,7 @@ export class Ingest {
       return false;
     }
     if (!result.accepted) {
-      this.rejected(result.reason, `channel ${channel.name}: sample at ${new Date(timeMs).toISOString()} ${result.reason === 'duplicate' ? 'repeats an accepted time' : 'is older than every remembered one'}`);
+      this.rejected(result.reason, `channel ${channel.name}: sample at ${new Date(timeMs).toISOString()} ${result.reason === 'duplicate' ? 'repeats an accepted time' : result.reason === 'redelivered' ? 'was stored before the restart (delivered again)' : 'is older than every remembered one'}`);
       return false;
     }
     this.counters.accepted++;
@@ -348,28 +395,40 @@ export class Ingest {
   }
 
   /**
-   * Ingest lag: how much later than usual samples are handled, measured against their own time
-   * stamps. The difference arrival - stamp also holds the rig clock's offset (or a replay's age), so
-   * the lag is the excess over the smallest difference seen in the last LAG_BASELINE_SECONDS: a
-   * daemon that falls behind sees it grow, while a constant clock offset cancels out.
+   * Ingest lag, judged per source (the topic a delivery came on): how much later than usual its
+   * samples are handled, against their own time stamps. The difference arrival - stamp also holds
+   * the publisher's clock offset (or a replay's age), so each source's lag is the excess over the
+   * smallest difference it showed in the last LAG_BASELINE_SECONDS: a constant offset cancels, and
+   * one publisher's clock cannot set the baseline of another. The daemon falls behind when every
+   * source is late: its lag is the smallest current lag of the sources heard in the last
+   * LAG_RECENT_MS, and only that raises `ingest-lag`. One publisher whose clock slips behind shows
+   * as `laggingSource` in the counters, not as the daemon falling behind.
    */
-  private noteLag(arrivalMs: number, differenceMs: number): void {
-    const second = Math.floor(arrivalMs / 1000);
-    const slot = second % LAG_BASELINE_SECONDS;
-    if (this.lagSeconds[slot] !== second) {
-      this.lagSeconds[slot] = second;
-      this.lagMinima[slot] = differenceMs;
-    } else if (differenceMs < (this.lagMinima[slot] as number)) this.lagMinima[slot] = differenceMs;
-    let baseline = Number.POSITIVE_INFINITY;
-    for (let i = 0; i < LAG_BASELINE_SECONDS; i++) {
-      if (second - (this.lagSeconds[i] as number) < LAG_BASELINE_SECONDS && (this.lagMinima[i] as number) < baseline) baseline = this.lagMinima[i] as number;
+  private noteLag(topic: string, arrivalMs: number, differenceMs: number): void {
+    let lag = this.lags.get(topic);
+    if (lag === undefined) {
+      if (this.lags.size >= LAG_MAX_SOURCES) this.lags.delete(this.lags.keys().next().value as string);
+      lag = new SourceLag();
+    } else this.lags.delete(topic); // re-inserted: the map stays in order of the last sample heard
+    this.lags.set(topic, lag);
+    lag.note(arrivalMs, differenceMs);
+    // The daemon's lag over every source: at most every LAG_JUDGE_MS (a pass over the sources).
+    if (arrivalMs - this.lagJudgedMs < LAG_JUDGE_MS && this.lags.size > 1) return;
+    this.lagJudgedMs = arrivalMs;
+    let lagMs = Number.POSITIVE_INFINITY;
+    let worst: { topic: string; lagMs: number } | null = null;
+    for (const [name, source] of this.lags) {
+      if (arrivalMs - source.lastArrivalMs > LAG_RECENT_MS) continue;
+      if (source.lagMs < lagMs) lagMs = source.lagMs;
+      if (source.lagMs > 0 && (worst === null || source.lagMs > worst.lagMs)) worst = { topic: name, lagMs: source.lagMs };
     }
-    const lagMs = Math.max(0, differenceMs - baseline);
+    lagMs = Number.isFinite(lagMs) ? lagMs : 0;
     this.counters.ingestLagMs = lagMs;
+    this.counters.laggingSource = worst;
     const warning = this.options.lagWarningMs;
     if (!this.lagWarned && lagMs > warning) {
       this.lagWarned = true;
-      this.options.raise('daemon', 'ingest-lag', null, { lagMs, detail: `samples are being handled ${(lagMs / 1000).toFixed(1)} s later than their time stamps allow: the daemon is falling behind and the broker is queueing` });
+      this.options.raise('daemon', 'ingest-lag', null, { lagMs, detail: `samples from every source are being handled ${(lagMs / 1000).toFixed(1)} s later than their time stamps allow: the daemon is falling behind and the broker is queueing` });
     } else if (this.lagWarned && lagMs < warning / 2) this.lagWarned = false;
   }
 }

@@ -93,6 +93,9 @@ export class Queries {
         get unit() {
           return channel.unit;
         },
+        get unitNote() {
+          return channel.unitNote;
+        },
         get version() {
           return channel.pipeline.totalReceived + channel.pipeline.snapshotKeyEvents * 2 ** 40;
         },

@@ -1231,7 +1231,7 @@ export class ChannelPipeline {
     }
     const values = series.values();
     const allan = allanReport(values, base.rate);
-    const target = options.target
+    let target = options.target
       ? targetStatus(options.target, {
           mean,
           n,
@@ -1242,6 +1242,11 @@ export class ChannelPipeline {
           capacity: this.growing ? Math.max(capacity, n) : capacity,
         })
       : null;
+    // No time to target, and no progress, while the channel is not steady: the mean still moves,
+    // so a count of samples to go would be a promise the data cannot keep.
+    if (target !== null && !target.reached && this.phase !== 'steady') {
+      target = { ...target, samplesToTarget: null, secondsToTarget: null, progress: 0, note: target.note ?? `no time to target while the channel is ${this.phase}` };
+    }
     if (target?.note) notes.push(`target: ${target.note}`);
     const resolution = detectLattice(values);
     if (resolution?.coarse) notes.push(`readings lie on a lattice of step ${resolution.step.toPrecision(3)} (${resolution.distinct} distinct values): the indication's resolution adds a rectangular component of half-width ${(resolution.step / 2).toPrecision(3)} (u = ${(resolution.step / Math.sqrt(12)).toPrecision(3)}) that this Type A uncertainty does not contain`);

@@ -48,7 +48,7 @@ export const RECENT_TIMES = 4096;
 
 export type AcceptResult =
   | { accepted: true; seq: number; timeMs: number; late: boolean; events: readonly ChannelEvent[]; /** The engine failed on the sample after taking it (a defect): it must still be stored. */ engineError: Error | null }
-  | { accepted: false; reason: 'duplicate' | 'out-of-order' };
+  | { accepted: false; reason: 'duplicate' | 'out-of-order' | 'redelivered' };
 
 /**
  * A control mark at sample index `seq`, stored and replayed at that index: a window restart (a test
@@ -90,6 +90,8 @@ export interface RestoreReport {
 export class Channel {
   readonly name: string;
   unit: string | null;
+  /** Why the unit shown is not the one a payload gave (a conflict with the configuration), or null. */
+  unitNote: string | null = null;
   private readonly options: ChannelOptions;
   /** The options as the checkpoints carry them (computed once: a checkpoint of every channel is written at each stop). */
   private readonly identity: OptionsIdentity;
@@ -99,6 +101,8 @@ export class Channel {
   /** When the channel was steady, by pipeline sample index (for derived results). */
   private readonly steadiness = new SteadyHistory();
   private lastStampMs = Number.NEGATIVE_INFINITY;
+  /** The newest stamped time the store held when the channel was rebuilt from it (-Infinity: not rebuilt). */
+  private restoredNewestMs = Number.NEGATIVE_INFINITY;
   /** The last RECENT_TIMES accepted payload times (a ring), for duplicate and lateness checks. */
   private readonly recentTimes = new Float64Array(RECENT_TIMES);
   private recentCount = 0;
@@ -133,6 +137,9 @@ export class Channel {
   /** Applies the time policy and, when it admits the sample, feeds the pipeline. */
   accept(value: number, timeMs: number, stamped: boolean): AcceptResult {
     const verdict = this.classify(timeMs, stamped);
+    // Older than every remembered time, but no newer than what the store held when the channel was
+    // rebuilt: a message committed before a restart that the broker delivers again (at least once).
+    if (verdict === 'out-of-order' && timeMs <= this.restoredNewestMs) return { accepted: false, reason: 'redelivered' };
     if (verdict === 'duplicate' || verdict === 'out-of-order') return { accepted: false, reason: verdict };
     const seq = this.nextSeq;
     let events: readonly ChannelEvent[] = [];
@@ -271,6 +278,7 @@ export class Channel {
     }
     // A mark at the very next sample (a test point started after the last stored sample).
     applyMarks(this.nextSeq);
+    this.restoredNewestMs = this.lastStampMs;
     return { replayed, forced };
   }
 

@@ -68,6 +68,9 @@ export const ERRORS = {
   // Scale-out on NATS JetStream (start-up of a worker).
   ERR_SCALE_UNREACHABLE: { status: 503, exit: USER, message: 'cannot connect to the NATS server at {servers} ({detail})' },
   ERR_SCALE_LAYOUT: { status: 500, exit: USER, message: '{detail}' },
+  // The MQTT command topic (in `command-refused` events).
+  ERR_COMMAND_PAYLOAD: { status: 400, exit: USER, message: 'command {command}: payload is not a JSON object' },
+  ERR_COMMAND_UNKNOWN: { status: 400, exit: USER, message: 'command {command}: unknown command (test-point/start, test-point/stop)' },
   // Defects.
   ERR_INTERNAL: { status: 500, exit: INTERNAL, message: 'internal error (see the daemon log)' },
 } as const satisfies Record<string, ErrorEntry>;

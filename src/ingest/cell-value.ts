@@ -85,3 +85,22 @@ export function parseDecimalSpan(text: string, start: number, end: number): numb
   const value = fraction === 0 ? mantissa : mantissa / (POWERS_OF_TEN[fraction] as number);
   return negative ? -value : value;
 }
+
+const DECIMAL_COMMA = /^\s*[+-]?(\d+,\d*|,\d+)([eE][+-]?\d+)?\s*$/;
+
+/**
+ * Parses a measurement written with a decimal comma ("21,375", "-1,5e-3"), as loggers set to many
+ * European locales write them (with ";" or tab between fields). A cell with a point is read as
+ * written (a point is never taken as a thousands separator: "1.234" stays 1.234); a cell with both a
+ * comma and a point is not a number.
+ */
+export function parseCommaMeasurement(text: string): number | ValueProblem {
+  if (text.indexOf(',') < 0) return parseMeasurement(text);
+  if (!DECIMAL_COMMA.test(text)) return 'not-a-number';
+  return parseMeasurement(text.replace(',', '.'));
+}
+
+/** Whether a cell is a number only when read with a decimal comma. */
+export function isCommaDecimal(text: string): boolean {
+  return DECIMAL_COMMA.test(text);
+}

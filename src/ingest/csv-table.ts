@@ -1,7 +1,7 @@
-import { access } from 'node:fs/promises';
+import { access, stat } from 'node:fs/promises';
 import { guessDelimiter, readDelimitedLines, readLineBatches, splitFields } from './csv-lines.js';
-import { parseDecimalSpan, parseMeasurement, PROBLEM_TEXT, type ValueProblem } from './cell-value.js';
-import { createReadStream } from 'node:fs';
+import { isCommaDecimal, parseCommaMeasurement, parseDecimalSpan, parseMeasurement, PROBLEM_TEXT, type ValueProblem } from './cell-value.js';
+import { constants, createReadStream } from 'node:fs';
 import { PlateauError } from '../errors/catalogue.js';
 
 /**
@@ -11,6 +11,9 @@ import { PlateauError } from '../errors/catalogue.js';
  * Column roles are decided from the first rows (up to PROBE_ROWS): a column is a channel when most
  * of its non-empty cells there are numbers. Later cells that are not finite numbers are skipped,
  * counted per channel with the row of the first few, and never reach a statistic.
+ * Decimal commas ("21,375" in a file whose fields are separated by ";" or tab, as loggers set to many
+ * European locales write) are detected from the same rows, or asked for (`decimalComma: true`);
+ * `layout.decimalComma` says which, and every number is then read with a decimal comma.
  */
 export class CsvInputError extends PlateauError {
   constructor(message: string) {
@@ -38,17 +41,25 @@ export interface CsvLayout {
   channels: CsvChannelColumn[];
   timeColumn: { name: string; index: number; kind: 'seconds' | 'date' } | null;
   ignored: string[];
+  /** Numbers are written with a decimal comma: 'detected' from the first rows, 'asked' by the caller, or false. */
+  decimalComma: 'detected' | 'asked' | false;
 }
 
 const PROBE_ROWS = 100;
 const TIME_NAMES = /^(t|time|times|timestamp|datetime|date|date_time|seconds|secs|time_s|time_sec|elapsed|elapsed_s|epoch|unix_time)$/i;
 
-export async function probeCsv(path: string, options: { timeColumn?: string; delimiter?: string } = {}): Promise<CsvLayout> {
+export async function probeCsv(path: string, options: { timeColumn?: string; delimiter?: string; decimalComma?: boolean } = {}): Promise<CsvLayout> {
+  let info;
   try {
-    await access(path);
-  } catch {
+    await access(path, constants.R_OK);
+    info = await stat(path);
+  } catch (error) {
+    const code = (error as NodeJS.ErrnoException).code;
+    if (code === 'EACCES' || code === 'EPERM') throw new CsvInputError(`${path}: not readable (permission denied)`);
     throw new CsvInputError(`${path}: no such file`);
   }
+  if (info.isDirectory()) throw new CsvInputError(`${path}: is a directory; give a CSV file inside it`);
+  if (!info.isFile() && !info.isFIFO()) throw new CsvInputError(`${path}: not a regular file (a CSV file is needed)`);
   const headerLine = await firstLine(path);
   if (headerLine === null || headerLine.trim() === '') throw new CsvInputError(`${path}: the file is empty (a header row is needed)`);
   const delimiter = options.delimiter ?? guessDelimiter(headerLine);
@@ -61,7 +72,9 @@ export async function probeCsv(path: string, options: { timeColumn?: string; del
     if (seen.has(name)) throw new CsvInputError(`${path} row 1: column name "${name}" appears twice`);
     seen.add(name);
   }
+  if (options.decimalComma && delimiter === ',') throw new CsvInputError(`${path}: --decimal-comma needs fields separated by ";" or tab, and this file's header is separated by ","`);
   const numeric = header.map(() => 0);
+  const commaNumeric = header.map(() => 0);
   const dates = header.map(() => 0);
   const filled = header.map(() => 0);
   let rows = 0;
@@ -72,9 +85,14 @@ export async function probeCsv(path: string, options: { timeColumn?: string; del
       if (i >= header.length || cell.trim() === '') return;
       filled[i]!++;
       if (typeof parseMeasurement(cell) === 'number') numeric[i]!++;
+      else if (delimiter !== ',' && isCommaDecimal(cell)) commaNumeric[i]!++;
       else if (!Number.isNaN(Date.parse(cell.trim()))) dates[i]!++;
     });
   }
+  // Decimal commas: asked for, or found in the first rows (some cell of a column reads as a number
+  // only with a decimal comma, and no other reading of the file's columns explains it).
+  const decimalComma: CsvLayout['decimalComma'] = options.decimalComma ? 'asked' : commaNumeric.some((count) => count > 0) ? 'detected' : false;
+  if (decimalComma) header.forEach((_n, i) => (numeric[i] = numeric[i]! + commaNumeric[i]!));
   if (rows === 0) throw new CsvInputError(`${path}: no data rows after the header`);
   let timeColumn: CsvLayout['timeColumn'] = null;
   if (options.timeColumn !== undefined) {
@@ -97,7 +115,7 @@ export async function probeCsv(path: string, options: { timeColumn?: string; del
   if (channels.length === 0) {
     throw new CsvInputError(`${path}: no numeric column found (columns: ${header.join(', ')})`);
   }
-  return { path, delimiter, header, channels, timeColumn, ignored };
+  return { path, delimiter, header, channels, timeColumn, ignored, decimalComma };
 }
 
 async function firstLine(path: string): Promise<string | null> {
@@ -130,6 +148,7 @@ export async function forEachCsvRow(
   onTimeIssue: (line: number, text: string) => void,
 ): Promise<number> {
   const { channels, timeColumn, delimiter, path } = layout;
+  const parseCell = layout.decimalComma ? parseCommaMeasurement : parseMeasurement;
   const values = new Float64Array(channels.length);
   // Role of each column: a channel's index, TIME, or UNUSED.
   const columnRole = new Int32Array(layout.header.length).fill(UNUSED);
@@ -146,7 +165,7 @@ export async function forEachCsvRow(
     if (!timeColumn) return Number.NaN;
     const cell = fields[timeColumn.index] ?? '';
     if (timeColumn.kind === 'seconds') {
-      const parsed = parseMeasurement(cell);
+      const parsed = parseCell(cell);
       if (typeof parsed === 'number') return parsed;
     } else {
       const ms = Date.parse(cell.trim());
@@ -175,7 +194,7 @@ export async function forEachCsvRow(
             let value = parseDecimalSpan(text, start, end);
             let problem: ValueProblem | null = null;
             if (value !== value) {
-              const parsed = parseMeasurement(text.slice(start, end));
+              const parsed = parseCell(text.slice(start, end));
               if (typeof parsed === 'number') value = parsed;
               else problem = parsed;
             }
@@ -209,7 +228,7 @@ export async function forEachCsvRow(
             noteIssue(column, 'missing', line);
             continue;
           }
-          const parsed = parseMeasurement(cell);
+          const parsed = parseCell(cell);
           if (typeof parsed === 'number') values[c] = parsed;
           else {
             values[c] = Number.NaN;

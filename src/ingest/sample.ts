@@ -29,6 +29,7 @@ export const REJECT_REASONS = [
   'stale-death',
   'duplicate',
   'out-of-order',
+  'redelivered',
   'engine-error',
 ] as const;
 export type RejectReason = (typeof REJECT_REASONS)[number];

@@ -69,6 +69,8 @@ export interface CusumTrace {
 export interface ChannelView {
   readonly name: string;
   readonly unit: string | null;
+  /** A conflict between a payload's unit and the configured one (the configured one is used), or null. */
+  readonly unitNote: string | null;
   /** Changes whenever the summary may have (a sample or an event). */
   readonly version: number;
   summary(): ChannelSummary;

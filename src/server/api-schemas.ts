@@ -33,6 +33,7 @@ const targetStatus = {
     samplesToTarget: nullableNumber,
     secondsToTarget: nullableNumber,
     progress: { type: 'number' },
+    samplesNeeded: nullableNumber,
     note: { type: 'string' },
   },
   additionalProperties: true,
@@ -87,6 +88,8 @@ export const channelSummary = {
   properties: {
     name: { type: 'string' },
     unit: nullableString,
+    unitLabel: nullableString,
+    unitNote: nullableString,
     state: channelState,
     n: { type: 'integer' },
     received: { type: 'integer' },
@@ -116,6 +119,8 @@ export const channelSnapshot = {
   properties: {
     name: { type: 'string' },
     unit: nullableString,
+    unitLabel: nullableString,
+    unitNote: nullableString,
     n: { type: 'integer' },
     state: channelState,
     confidence: { type: 'number' },

@@ -1,3 +1,4 @@
+import { unitLabel } from '../engine/unit-label.js';
 import Fastify, { type FastifyInstance, type FastifyReply, type FastifyRequest, type RouteOptions } from 'fastify';
 import { existsSync, readFileSync, realpathSync, statSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
@@ -62,6 +63,8 @@ export interface HttpAppOptions {
   log?: Logger;
   /** Where dashboard/ lives (defaults to the package's own). */
   dashboardDir?: string;
+  /** What the samples' time stamps are, when they are not the rig's real time (the demo: "simulated time, 20x real time"). */
+  sampleClock?: string;
 }
 
 const root = join(dirname(fileURLToPath(import.meta.url)), '..', '..');
@@ -197,6 +200,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
               alertKinds: { type: 'array', items: { type: 'string' } },
               lastEventId: { type: 'integer' },
               caution: { type: 'string' },
+              sampleClock: { type: 'string' },
             },
             additionalProperties: false,
           },
@@ -213,6 +217,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
       alertKinds: [...daemon.alertKinds()],
       lastEventId: daemon.lastEventId,
       caution: RECORD_CAUTION,
+      ...(options.sampleClock !== undefined ? { sampleClock: options.sampleClock } : {}),
     }),
   );
 
@@ -231,7 +236,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
     },
     async (request) => {
       const view = (request.query as { view?: string }).view ?? 'full';
-      const channels = daemon.channels().map((channel) => (view === 'summary' ? { ...channel.summary(), unit: channel.unit } : { ...channel.snapshot(), unit: channel.unit }));
+      const channels = daemon.channels().map((channel) => (view === 'summary' ? { ...channel.summary(), ...unitFields(channel) } : { ...channel.snapshot(), ...unitFields(channel) }));
       return { channels };
     },
   );
@@ -267,7 +272,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
       const snapshot = channel.snapshot();
       return {
         ...snapshot,
-        unit: channel.unit,
+        ...unitFields(channel),
         trace: channel.trace(query.trace ?? 2000),
         cusumTrace: channel.cusumTrace(),
         storedEvents: channel.storedEvents(query.events ?? 200),
@@ -602,4 +607,9 @@ function readVersion(): string {
   } catch {
     return '0.0.0';
   }
+}
+
+/** A channel's unit as configured or given (`unit`), as people write it (`unitLabel`: °C for Cel or degC), and a conflict note. */
+function unitFields(channel: { unit: string | null; unitNote: string | null }): { unit: string | null; unitLabel: string | null; unitNote: string | null } {
+  return { unit: channel.unit, unitLabel: channel.unit === null ? null : unitLabel(channel.unit), unitNote: channel.unitNote };
 }

@@ -1,3 +1,4 @@
+import { unitLabel } from '../engine/unit-label.js';
 import type { TestPoint } from '../engine/test-points.js';
 import type { RecordEntry, TestPointRecord } from '../engine/test-point-record.js';
 import { RECORD_CAUTION, gumStatement } from '../engine/test-point-record.js';
@@ -150,8 +151,8 @@ function verdictText(point: TestPoint): string {
 
 function channelSection(channel: ReportChannel, entry: RecordEntry | null, record: TestPointRecord | null): string {
   const s = channel.snapshot;
-  const unit = channel.unit ? ` ${channel.unit}` : '';
-  const statement = entry?.statement ?? gumStatement(s.name, s.mean, s.standardUncertainty, s.expandedUncertainty, s.coverageFactor, s.dof, s.confidence, channel.unit);
+  const unit = channel.unit ? ` ${unitLabel(channel.unit)}` : '';
+  const statement = entry?.statement ?? gumStatement(s.name, s.mean, s.standardUncertainty, s.expandedUncertainty, s.coverageFactor, s.dof, s.confidence, channel.unit === null ? null : unitLabel(channel.unit));
   const source = entry ? `Recorded ${record?.createdAt ?? ''}.` : 'Current value (no record for this channel yet).';
   const values = entry ?? {
     mean: s.mean,
@@ -197,8 +198,8 @@ function channelSection(channel: ReportChannel, entry: RecordEntry | null, recor
     ['last break', s.stationarity?.lastBreak ? `${s.stationarity.lastBreak.cause} at sample ${s.stationarity.lastBreak.changePoint}${s.stationarity.lastBreak.detail ? `: ${s.stationarity.lastBreak.detail}` : ''}` : 'none'],
     ['averaging limit (Allan deviation)', s.averagingLimit ? `reached at m = ${s.averagingLimit.m}${s.averagingLimit.tauSeconds !== null ? ` (${num(s.averagingLimit.tauSeconds, 3)} s)` : ''}: longer averaging does not reduce the scatter further` : 'none found in this window'],
   ];
-  return `<section><h2>${escapeHtml(channel.name)}${channel.unit ? ` (${escapeHtml(channel.unit)})` : ''}</h2>
-<p class="statement${entry && !entry.provisional ? "" : " none"}">${escapeHtml(statement)}</p>
+  return `<section><h2>${escapeHtml(channel.name)}${channel.unit ? ` (${escapeHtml(unitLabel(channel.unit))})` : ''}</h2>
+<p class="statement${entry && !entry.provisional ? '' : ' none'}">${escapeHtml(statement)}</p>
 <p class="note">${escapeHtml(source)}</p>
 ${provisionalBlock(entry)}<h3>Result</h3>
 <table>${rows(result)}</table>
@@ -242,7 +243,7 @@ function derivedSections(point: TestPoint, record: TestPointRecord | null, live:
 function derivedSection(name: string, entry: DerivedReportEntry | null, current: DerivedView | null, record: TestPointRecord | null): string {
   const d: (DerivedReportEntry | DerivedView) | null = entry ?? current;
   if (d === null) return `<section><h2>${escapeHtml(name)} (derived)</h2><p class="statement none">${escapeHtml(`${name}: no value (the derived result is not known to this daemon and not in the record)`)}</p></section>`;
-  const unit = d.unit ? ` ${d.unit}` : '';
+  const unit = d.unit ? ` ${unitLabel(d.unit)}` : '';
   const source = entry ? `Recorded ${record?.createdAt ?? ''}.` : 'Current value (no record of this derived result yet).';
   const independent = d.independent;
   const result: [string, string][] = [
@@ -270,7 +271,7 @@ function derivedSection(name: string, entry: DerivedReportEntry | null, current:
     (c) => `<tr><td>${escapeHtml(`${c.channels[0]} × ${c.channels[1]}`)}</td><td>${escapeHtml(num(c.correlation, 3))}</td><td>${escapeHtml(num(c.term, 3))}</td><td>${escapeHtml(percentText(u2 === null ? null : c.term / u2))}</td></tr>`,
   );
   const correlations = Object.entries(d.correlation ?? {});
-  return `<section><h2>${escapeHtml(name)}${d.unit ? ` (${escapeHtml(d.unit)})` : ''}: derived result</h2>
+  return `<section><h2>${escapeHtml(name)}${d.unit ? ` (${escapeHtml(unitLabel(d.unit))})` : ''}: derived result</h2>
 <p class="statement${entry ? '' : ' none'}">${escapeHtml(entry?.statement ?? current?.statement ?? '')}</p>
 <p class="note">${escapeHtml(source)}</p>
 <h3>Result</h3>
@@ -370,7 +371,7 @@ function percentText(share: number | null | undefined): string {
 function covarianceText(d: DerivedReportEntry | DerivedView): string {
   if (d.covarianceShare === null || d.standardUncertainty === null) return 'No budget: the combined standard uncertainty is zero or not known yet.';
   const share = d.covarianceShare;
-  const unit = d.unit ? ` ${d.unit}` : '';
+  const unit = d.unit ? ` ${unitLabel(d.unit)}` : '';
   const against = d.independent ? ` As if the inputs were uncorrelated, u_c would be ${num(d.independent.standardUncertainty, 3)}${unit} instead of ${num(d.standardUncertainty, 3)}${unit}.` : '';
   if (Math.abs(share) < 0.01) return `The covariance terms are negligible (${percentText(share)} of u_c²).${against}`;
   return share < 0
@@ -474,7 +475,7 @@ function traceChart(channel: ReportChannel): string {
     height: 210,
     title: `Samples, mean and expanded uncertainty U${s.mean !== null ? '' : ' (no mean yet)'}`,
     xLabel: timed ? (trace.originIndex >= trace.firstIndex ? 'seconds since the test point started' : 'seconds since the first sample shown') : 'sample index',
-    yLabel: channel.unit ?? 'value',
+    yLabel: channel.unit === null ? 'value' : unitLabel(channel.unit),
     series,
     bands,
     spans,

@@ -14,8 +14,8 @@ export interface RunningServer {
   close(): Promise<void>;
 }
 
-export async function startServer(daemon: DaemonApi, options: { host: string; port: number; token: string | null; maxBodyBytes: number; fallbackPort?: boolean; log?: Logger }): Promise<RunningServer> {
-  const app = buildHttpApp(daemon, { token: options.token, maxBodyBytes: options.maxBodyBytes, ...(options.log ? { log: options.log } : {}) });
+export async function startServer(daemon: DaemonApi, options: { host: string; port: number; token: string | null; maxBodyBytes: number; fallbackPort?: boolean; log?: Logger; sampleClock?: string }): Promise<RunningServer> {
+  const app = buildHttpApp(daemon, { token: options.token, maxBodyBytes: options.maxBodyBytes, ...(options.log ? { log: options.log } : {}), ...(options.sampleClock !== undefined ? { sampleClock: options.sampleClock } : {}) });
   const hub = new WsHub(daemon);
   app.server.on('upgrade', (request, socket, head) => {
     const path = (request.url ?? '').split('?')[0];

@@ -1,3 +1,4 @@
+import { unitLabel } from '../engine/unit-label.js';
 import { WebSocketServer, type WebSocket } from 'ws';
 import type { IncomingMessage } from 'node:http';
 import type { Duplex } from 'node:stream';
@@ -92,7 +93,7 @@ export class WsHub {
   private readonly daemon: DaemonApi;
   private readonly settings: Required<WsHubOptions>;
   private readonly timers: NodeJS.Timeout[] = [];
-  private readonly summaries = new Map<string, { version: number; summary: ChannelSummary & { unit: string | null } }>();
+  private readonly summaries = new Map<string, { version: number; summary: ChannelSummary & { unit: string | null; unitLabel?: string | null; unitNote?: string | null } }>();
   private readonly unsubscribe: (() => void)[];
   private testPointsChanged = false;
   private closed = false;
@@ -217,7 +218,7 @@ export class WsHub {
       const version = channel.version;
       const entry = this.summaries.get(channel.name);
       if (entry && entry.version === version && entry.summary.unit === channel.unit) continue;
-      this.summaries.set(channel.name, { version, summary: { ...channel.summary(), unit: channel.unit } });
+      this.summaries.set(channel.name, { version, summary: { ...channel.summary(), unit: channel.unit, unitLabel: channel.unit === null ? null : unitLabel(channel.unit), unitNote: channel.unitNote } });
     }
   }
 

@@ -80,4 +80,23 @@ describe('plateau analyze: the verdict explains itself', () => {
     expect(bad.status).toBe(2);
     expect(bad.stderr.trim()).toBe('plateau: --warmup soon: expected auto, none or a whole number of samples');
   });
+
+  it('an unsteady channel whose U is under a loose target: the table never calls the target met, and gives no time to it', () => {
+    // Invented series: AR(1) noise, then a step of 6 and a ramp from sample 5000 on.
+    const x = F.ar1(new SeededRandom(11), 0.3, 8000);
+    for (let i = 5000; i < 8000; i++) (x as Float64Array)[i] = (x[i] as number) + 6 + (i - 5000) * 0.004;
+    const file = tempFile('ramp.csv', `oil_degC\n${Array.from(x).join('\n')}\n`);
+    const json = JSON.parse(runCli(['analyze', file, '--json', '--target', '50']).stdout).channels[0];
+    expect(json.state).toBe('unsteady');
+    expect(json.target.reached).toBe(true); // U itself is under 50 ...
+    const table = runCli(['analyze', file, '--target', '50']).stdout;
+    const row = table.split('\n').find((line) => line.startsWith('oil_degC')) as string;
+    expect(row).toMatch(/not judged \(unsteady\)$/); // ... but an unsteady mean is not judged against it
+    expect(row).not.toMatch(/\bmet\b|reached/);
+    const tight = JSON.parse(runCli(['analyze', file, '--json', '--target', '0.01']).stdout).channels[0];
+    expect(tight.target.reached).toBe(false);
+    expect(tight.target.samplesToTarget).toBeNull();
+    expect(tight.target.secondsToTarget).toBeNull();
+    expect(tight.target.progress).toBe(0);
+  });
 });

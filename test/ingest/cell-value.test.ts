@@ -50,3 +50,18 @@ describe('parseDecimalSpan (fast path)', () => {
     for (const i of [2, 3, 4, 5, 6, 7]) expect(Number.isNaN(got[i])).toBe(true); // word, empty, exponent, lone dot, lone sign, >15 digits
   });
 });
+
+describe('parseCommaMeasurement: numbers with a decimal comma', () => {
+  it('reads "21,375", signs, exponents and blanks; a point as written; both, or two commas, are not numbers', async () => {
+    const { parseCommaMeasurement } = await import('../../src/ingest/cell-value.js');
+    expect(parseCommaMeasurement('21,375')).toBe(21.375);
+    expect(parseCommaMeasurement(' -1,5e-3 ')).toBe(-0.0015);
+    expect(parseCommaMeasurement(',5')).toBe(0.5);
+    expect(parseCommaMeasurement('12')).toBe(12);
+    expect(parseCommaMeasurement('1.234')).toBe(1.234);
+    expect(parseCommaMeasurement('1.234,5')).toBe('not-a-number');
+    expect(parseCommaMeasurement('1,2,3')).toBe('not-a-number');
+    expect(parseCommaMeasurement('NaN')).toBe('nan');
+    expect(parseCommaMeasurement('')).toBe('empty');
+  });
+});

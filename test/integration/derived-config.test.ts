@@ -1,5 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { join } from 'node:path';
+import { mkdtempSync, writeFileSync } from 'node:fs';
+import { tmpdir } from 'node:os';
 import { loadConfigFile, parseConfig } from '../../src/config/load-config.js';
 import { ConfigError } from '../../src/config/config-reader.js';
 import { ChannelRegistry } from '../../src/engine/channel-registry.js';
@@ -67,8 +69,9 @@ describe('derived results: configuration errors at load time, one line each with
       { name: 'division', expression: 'rig.a / rig.flow_b' },
       { name: 'function', expression: 'max(rig.a, rig.b)' },
     ]);
-    // The unknown channel is found before compiling; the others come from the compiler.
-    expect(lines.map((l) => l.slice(0, l.indexOf(':')))).toEqual(['derived[1].expression']);
+    // The unknown channel and the compiler's findings, together, in the order of the definitions.
+    expect(lines.map((l) => l.slice(0, l.indexOf(':')))).toEqual(['derived[1].expression', 'derived[2].expression', 'derived[3].expression', 'derived[4].expression']);
+    expect(lines[0]).toMatch(/unknown channel 'lab\.x'/);
     const compiled = problems([
       { name: 'ok', expression: 'rig.a + rig.b' },
       { name: 'syntax', expression: 'rig.a +* rig.b' },
@@ -97,8 +100,23 @@ describe('derived results: configuration errors at load time, one line each with
     expect(lines).toEqual([expect.stringMatching(/^derived\[\d\]\.expression: derived results refer to each other in a cycle: rig\.(x|y) -> rig\.(x|y) -> rig\.(x|y)/)]);
   });
 
-  it('the Daemon constructor surfaces the ConfigError', () => {
-    expect(() => new Daemon(config([{ name: 'q', expression: 'lab.t' }]))).toThrow(ConfigError);
+  it('the configuration reader and the Daemon constructor both refuse it', () => {
+    expect(() => config([{ name: 'q', expression: 'lab.t' }])).toThrow(ConfigError);
+    const accepted = config([{ name: 'q', expression: 'rig.t' }]);
+    // A configuration object edited after reading is checked again by the daemon.
+    expect(() => new Daemon({ ...accepted, derived: [{ ...(accepted.derived[0] as (typeof accepted.derived)[number]), expression: 'lab.t' }] })).toThrow(ConfigError);
+  });
+
+  it('a file with several bad definitions: every problem at once, each line naming the file', () => {
+    const dir = mkdtempSync(join(tmpdir(), 'plateau-derived-'));
+    const file = join(dir, 'rig.yaml');
+    writeFileSync(file, 'subscriptions:\n  - topic: rig/+\n    channel: "rig.{2}"\nderived:\n  - name: a\n    expression: "rig.x +"\n  - name: b\n    expression: "lab.y"\n');
+    try {
+      loadConfigFile(file);
+      throw new Error('expected a ConfigError');
+    } catch (err) {
+      expect((err as ConfigError).problems).toEqual([expect.stringMatching(new RegExp(`^${file.replace(/[.*+?^${}()|[\]\\/]/g, '\\$&')}: derived\\[0\\]\\.expression: syntax error`)), expect.stringContaining(`${file}: derived[1].expression: unknown channel 'lab.y'`)]);
+    }
   });
 
   it('the shipped configurations compile: heat duty over dotted hx7 channel names, bath corrections over cb2 names', () => {

@@ -84,8 +84,11 @@ describe('GET /api/channels', () => {
     expect(channels.map((c) => c.name).sort()).toEqual(['hx7.ambient_degC', 'hx7.glycol_flow_kg_s', 'hx7.glycol_in_degC', 'hx7.glycol_out_degC', 'hx7.shell_dp_kPa', 'hx7.water_flow_kg_s']);
     const flow = channels.find((c) => c.name === 'hx7.glycol_flow_kg_s') as Record<string, unknown>;
     // The response schema passes the snapshot through untouched: equal to the pipeline's own.
-    const own = JSON.parse(JSON.stringify({ ...t.daemon.registry.get('hx7.glycol_flow_kg_s')?.pipeline.snapshot(), unit: 'kg/s' }));
+    const own = JSON.parse(JSON.stringify({ ...t.daemon.registry.get('hx7.glycol_flow_kg_s')?.pipeline.snapshot(), unit: 'kg/s', unitLabel: 'kg/s', unitNote: null }));
     expect(flow).toEqual(own);
+    // The unit as configured, and as people write it.
+    const inlet = channels.find((c) => c.name === 'hx7.glycol_in_degC') as Record<string, unknown>;
+    expect([inlet.unit, inlet.unitLabel]).toEqual(['degC', '°C']);
     for (const key of ['acf', 'tauInt', 'nEff', 'standardUncertainty', 'dof', 'coverageFactor', 'expandedUncertainty', 'confidence', 'target', 'stationarity', 'allan', 'events']) expect(flow).toHaveProperty(key);
     assertNoNonFinite(r.body);
   });
@@ -94,7 +97,7 @@ describe('GET /api/channels', () => {
     const r = await call({ method: 'GET', url: '/api/channels?view=summary' });
     expect(r.status).toBe(200);
     const flow = (r.body?.channels as Record<string, unknown>[]).find((c) => c.name === 'hx7.glycol_flow_kg_s') as Record<string, unknown>;
-    expect(flow).toEqual(JSON.parse(JSON.stringify({ ...t.daemon.registry.get('hx7.glycol_flow_kg_s')?.pipeline.summary(), unit: 'kg/s' })));
+    expect(flow).toEqual(JSON.parse(JSON.stringify({ ...t.daemon.registry.get('hx7.glycol_flow_kg_s')?.pipeline.summary(), unit: 'kg/s', unitLabel: 'kg/s', unitNote: null })));
     expect(flow).not.toHaveProperty('acf');
   });
 

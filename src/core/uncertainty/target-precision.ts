@@ -35,8 +35,13 @@ export interface TargetStatus {
   samplesToTarget: number | null;
   /** samplesToTarget divided by the sample rate (null without a rate). */
   secondsToTarget: number | null;
-  /** Fraction of the way there on a log scale of n: 1 when reached. */
+  /**
+   * Samples taken over samples needed in the window, n / (n + samplesToTarget): a plain fraction
+   * of the samples (and, at a steady rate, of the time), 1 when reached; 0 when unknown.
+   */
   progress: number;
+  /** Samples the window needs in all to meet the target (n when reached; null when unknown). */
+  samplesNeeded?: number | null;
   note?: string;
 }
 
@@ -57,14 +62,14 @@ export function targetStatus(spec: TargetSpec, input: TargetInput): TargetStatus
   const bound = spec.relative ? spec.value * Math.abs(input.mean) : spec.value;
   const { n, standardUncertainty: u, dof, confidence } = input;
   if (!(bound > 0)) {
-    return { ...base, bound: spec.relative && input.mean === 0 ? null : bound, reached: false, samplesToTarget: null, secondsToTarget: null, progress: 0, note: spec.relative ? 'relative target with a zero mean cannot be met' : 'target must be positive' };
+    return { ...base, bound: spec.relative && input.mean === 0 ? null : bound, reached: false, samplesToTarget: null, secondsToTarget: null, progress: 0, samplesNeeded: null, note: spec.relative ? 'relative target with a zero mean cannot be met' : 'target must be positive' };
   }
   if (n < 2 || !(dof > 0)) {
-    return { ...base, bound, reached: false, samplesToTarget: null, secondsToTarget: null, progress: 0, note: 'not enough samples to estimate the uncertainty' };
+    return { ...base, bound, reached: false, samplesToTarget: null, secondsToTarget: null, progress: 0, samplesNeeded: null, note: 'not enough samples to estimate the uncertainty' };
   }
   const achieved = spec.on === 'u' ? u : u * (coverageFactor(confidence, dof) ?? Number.POSITIVE_INFINITY);
   if (achieved <= bound) {
-    return { ...base, bound, reached: true, samplesToTarget: 0, secondsToTarget: 0, progress: 1 };
+    return { ...base, bound, reached: true, samplesToTarget: 0, secondsToTarget: 0, progress: 1, samplesNeeded: n };
   }
   let needed: number;
   if (spec.on === 'u') {
@@ -84,10 +89,10 @@ export function targetStatus(spec: TargetSpec, input: TargetInput): TargetStatus
   }
   const total = Math.ceil(needed);
   const more = Math.max(0, total - n);
-  const progress = Math.max(0, Math.min(1, Math.log(n) / Math.log(total)));
+  const progress = Math.max(0, Math.min(1, n / total));
   if (total > input.capacity) {
-    return { ...base, bound, reached: false, samplesToTarget: null, secondsToTarget: null, progress, note: `needs about ${total} samples in the window, more than it holds (${input.capacity})` };
+    return { ...base, bound, reached: false, samplesToTarget: null, secondsToTarget: null, progress, samplesNeeded: total, note: `needs about ${total} samples in the window, more than it holds (${input.capacity})` };
   }
   const seconds = input.rate && input.rate > 0 ? more / input.rate : null;
-  return { ...base, bound, reached: false, samplesToTarget: more, secondsToTarget: seconds, progress };
+  return { ...base, bound, reached: false, samplesToTarget: more, secondsToTarget: seconds, progress, samplesNeeded: total };
 }

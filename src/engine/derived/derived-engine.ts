@@ -574,7 +574,7 @@ export class DerivedEngine {
     const baseNotes: string[] = [];
     if (this.widthNote) baseNotes.push(this.widthNote);
     if (counts.incompleteBuckets > 0) baseNotes.push(`${counts.incompleteBuckets} bucket(s) without a sample of every channel were left out`);
-    if (counts.merges > 0) baseNotes.push(`rows merged in pairs ${counts.merges} time(s) to keep the window whole (bucket width now ${formatNumber(this.width)} s)`);
+    if (counts.merges > 0) baseNotes.push(`rows merged in pairs ${counts.merges === 1 ? 'once' : `${counts.merges} times`} to keep the window whole (bucket width now ${formatNumber(this.width)} s)`);
     const window = m > 0 && this.width !== null ? { startSeconds: (this.rowBuckets[0] as number) * this.width, endSeconds: ((this.rowBuckets[m - 1] as number) + 1) * this.width } : null;
     const rowRate = window !== null && window.endSeconds > window.startSeconds ? m / (window.endSeconds - window.startSeconds) : null;
     const snapshot = m >= 2 ? this.covariance.snapshot() : null;
