@@ -29,6 +29,9 @@ async function rig() {
     source.publish(`rig-plateau/command/${action}`, payload);
     daemon.commitNow();
   };
+  // A test point names channels the daemon has heard from (an unseen one is refused).
+  source.publish('rig/bath.t', JSON.stringify({ v: 20.01, t: 1_790_000_000 }));
+  daemon.commitNow();
   return { daemon, events, send };
 }
 

@@ -132,6 +132,9 @@ describe('stability rules in the daemon', () => {
 
   it('the MQTT command topic takes set points too', async () => {
     const { daemon, source } = await start();
+    // A test point names channels the daemon has heard from (an unseen one is refused).
+    source.publish('rig/cl3/supply_degC', JSON.stringify({ v: 7, t: T0 }));
+    daemon.commitNow();
     source.publish('plateau/command/test-point/start', JSON.stringify({ id: 'tp-mqtt', channels: ['cl3.supply_degC'], setPoints: { 'cl3.supply_degC': 6.5 } }));
     daemon.commitNow();
     expect(daemon.testPoint('tp-mqtt')?.setPoints).toEqual({ 'cl3.supply_degC': 6.5 });
@@ -179,7 +182,9 @@ describe('stability rules in the daemon', () => {
   });
 
   it('a set point for a channel that is not in the test point is refused', async () => {
-    const { daemon } = await start();
+    const { daemon, source } = await start();
+    source.publish('rig/cl3/supply_degC', JSON.stringify({ v: 7, t: T0 }));
+    daemon.commitNow();
     expect(() => daemon.startTestPoint({ channels: ['cl3.supply_degC'], setPoints: { 'cl3.return_degC': 7 } })).toThrow(/set point for "cl3.return_degC": not a channel of this test point/);
   });
 });
