@@ -189,13 +189,33 @@ function roundPair(value: number, uncertainty: number): { value: string; uncerta
 
 const CSV_COLUMNS: (keyof RecordEntry)[] = ['channel', 'unit', 'mean', 'standardUncertainty', 'dof', 'coverageFactor', 'expandedUncertainty', 'confidence', 'n', 'nEff', 'tauInt', 'estimator', 'state', 'verdict', 'steadyStart', 'excluded', 'windowStartIndex', 'windowEndIndex', 'windowStartTime', 'windowEndTime'];
 
+/** The CSV columns of the combined uncertainty and conformity, in records of channels and of derived results. */
+export const COMBINED_CSV_COLUMNS = ['combinedStandardUncertainty', 'combinedDof', 'combinedCoverageFactor', 'combinedExpandedUncertainty', 'decisionRule', 'lowerLimit', 'upperLimit', 'guardBand', 'conformity', 'conformanceProbability'];
+
+/** The cells of COMBINED_CSV_COLUMNS for one record entry (null where not configured). */
+export function combinedCells(entry: { combined?: CombinedReport | null; conformity?: ConformityReport | null }): unknown[] {
+  const { combined, conformity } = entry;
+  return [
+    combined?.standardUncertainty ?? null,
+    combined?.dof ?? null,
+    combined?.coverageFactor ?? null,
+    combined?.expandedUncertainty ?? null,
+    conformity?.rule ?? null,
+    conformity?.lower ?? null,
+    conformity?.upper ?? null,
+    conformity?.guardBand ?? null,
+    conformity?.verdict ?? null,
+    conformity?.probability ?? null,
+  ];
+}
+
 /**
  * CSV (RFC 4180) of a record's entries; full-precision numbers, one row per channel; then the
  * combined uncertainty, the conformity outcome with its decision rule, whether the entry is
  * provisional and why, and the caution (in every row, so that no extract of the file loses it).
  */
 export function recordCsv(record: TestPointRecord): string {
-  const header = [...CSV_COLUMNS, 'heidelbergerWelchPassed', 'gewekeZ', 'kpssStatistic', 'statement', 'criteria', 'combinedStandardUncertainty', 'combinedDof', 'combinedCoverageFactor', 'combinedExpandedUncertainty', 'decisionRule', 'lowerLimit', 'upperLimit', 'guardBand', 'conformity', 'conformanceProbability', 'provisional', 'provisionalReasons', 'caution'];
+  const header = [...CSV_COLUMNS, 'heidelbergerWelchPassed', 'gewekeZ', 'kpssStatistic', 'statement', 'criteria', ...COMBINED_CSV_COLUMNS, 'provisional', 'provisionalReasons', 'caution'];
   const rows = record.entries.map((entry) => [
     ...CSV_COLUMNS.map((key) => entry[key] as unknown),
     entry.tests.heidelbergerWelchPassed,
@@ -203,16 +223,7 @@ export function recordCsv(record: TestPointRecord): string {
     entry.tests.kpssStatistic,
     entry.statement,
     criteriaCell(entry.criteria ?? null),
-    entry.combined?.standardUncertainty ?? null,
-    entry.combined?.dof ?? null,
-    entry.combined?.coverageFactor ?? null,
-    entry.combined?.expandedUncertainty ?? null,
-    entry.conformity?.rule ?? null,
-    entry.conformity?.lower ?? null,
-    entry.conformity?.upper ?? null,
-    entry.conformity?.guardBand ?? null,
-    entry.conformity?.verdict ?? null,
-    entry.conformity?.probability ?? null,
+    ...combinedCells(entry),
     entry.provisional ?? null,
     (entry.provisionalReasons ?? []).join('; '),
     record.caution,

@@ -1,5 +1,5 @@
 import { SeededRandom } from '../../core/random/seeded-random.js';
-import { gumStatement, RECORD_CAUTION } from '../test-point-record.js';
+import { combinedCells, COMBINED_CSV_COLUMNS, gumStatement, RECORD_CAUTION } from '../test-point-record.js';
 import { derivedBootstrapCheck, seedFrom, type BootstrapCheck } from './bootstrap-cross-check.js';
 import type { DerivedEngine, DerivedSnapshot } from './derived-engine.js';
 import { derivedMonteCarlo, type DerivedMonteCarloResult } from './derived-monte-carlo.js';
@@ -100,7 +100,7 @@ const CSV_COLUMNS = ['name', 'unit', 'value', 'standardUncertainty', 'dof', 'cov
  * bootstrap agrees, the budget as "channel:share" pairs, and the statement.
  */
 export function derivedRecordCsv(entries: DerivedReportEntry[]): string {
-  const header = [...CSV_COLUMNS, 'monteCarloLow', 'monteCarloHigh', 'monteCarloValidated', 'bootstrapAgrees', 'budget', 'statement', 'combinedStandardUncertainty', 'combinedDof', 'combinedCoverageFactor', 'combinedExpandedUncertainty', 'decisionRule', 'lowerLimit', 'upperLimit', 'guardBand', 'conformity', 'conformanceProbability', 'provisional', 'caution'];
+  const header = [...CSV_COLUMNS, 'monteCarloLow', 'monteCarloHigh', 'monteCarloValidated', 'bootstrapAgrees', 'budget', 'statement', ...COMBINED_CSV_COLUMNS, 'provisional', 'caution'];
   const rows = entries.map((entry) => {
     const mc = entry.monteCarlo !== null && 'validated' in entry.monteCarlo ? entry.monteCarlo : null;
     return [
@@ -111,16 +111,7 @@ export function derivedRecordCsv(entries: DerivedReportEntry[]): string {
       entry.bootstrap?.agrees ?? null,
       entry.budget.map((b) => `${b.channel}:${b.share === null ? '' : b.share.toPrecision(4)}`).join(' '),
       entry.statement,
-      entry.combined?.standardUncertainty ?? null,
-      entry.combined?.dof ?? null,
-      entry.combined?.coverageFactor ?? null,
-      entry.combined?.expandedUncertainty ?? null,
-      entry.conformity?.rule ?? null,
-      entry.conformity?.lower ?? null,
-      entry.conformity?.upper ?? null,
-      entry.conformity?.guardBand ?? null,
-      entry.conformity?.verdict ?? null,
-      entry.conformity?.probability ?? null,
+      ...combinedCells(entry),
       entry.provisional ?? null,
       RECORD_CAUTION,
     ];
