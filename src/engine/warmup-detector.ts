@@ -231,6 +231,9 @@ export function detectWarmup(input: WarmupInput): WarmupVerdict {
         const toGo = tail.decays ? samplesUntilAdmissible(tail, start, next, minKept) : null;
         return { ...none, transient, heidelbergerWelch: whole ?? null, mser: proposal, steady: false, start, method, reason: 'the tail of the warm-up is still decaying', pending: { condition: 'warm-up', message: `the tail of the warm-up is still decaying (time constant about ${formatSamples(tail.timeConstant)} samples)${toGo === null ? '' : `: about ${formatSamples(toGo)} more samples`}`, samplesToGo: toGo } };
       }
+      if (!input.growing && admissible > start) {
+        return { ...none, transient, heidelbergerWelch: whole ?? null, mser: proposal, steady: false, start: admissible, method, reason: 'warm-up still in the sliding window', pending: { condition: 'warm-up', message: `the tail of the warm-up slides out of the window in about ${formatSamples(admissible - start)} samples`, samplesToGo: admissible - start } };
+      }
       if (admissible > start) {
         start = admissible;
         reason += `; a slower tail fitted after the cut (time constant about ${formatSamples(tail.timeConstant)} samples) moves the start on`;
@@ -263,8 +266,9 @@ export function detectWarmup(input: WarmupInput): WarmupVerdict {
 
 /**
  * Transient check of a steady growing window: when the record since the window began now shows a
- * significant exponential transient (or a level still moving since it began, which no cut can
- * settle) whose remaining bias at the current start exceeds the
+ * significant transient that describes it (one or two lags; or, failing that, a first-order tail
+ * of the record kept: tailFit), or a level still moving since it began, which no cut can settle,
+ * whose remaining bias at the current start exceeds the
  * trigger (BIAS_TRIGGER by default; at least BIAS_TOLERANCE), the earliest admissible start
  * (later than the current one), or null when none leaves enough samples (the warm-up is not over
  * after all). Undefined when nothing changes.
@@ -273,9 +277,8 @@ export function recheckTransient(history: BlockHistory, longRunVariance: number,
   const whole = warmupFit({ means: history.means(), blockSize: history.blockSize, origin: history.start, longRunVariance, tauInt });
   // The whole record's fit first; then the record kept on its own, where a warm-up of another
   // shape, or a second and slower lag, leaves a first-order tail the whole fit does not describe.
-  const found = (whole && fitDescribesWarmup(whole) ? movedStart(whole, tauInt, firstIndex, next, trigger) : undefined)
+  return (whole && fitDescribesWarmup(whole) ? movedStart(whole, tauInt, firstIndex, next, trigger) : undefined)
     ?? (firstIndex > history.start ? movedStart(tailFit(history, firstIndex, { longRunVariance, tauInt }), tauInt, firstIndex, next, trigger) : undefined);
-  return found;
 }
 
 function movedStart(fit: TransientFit | null, tauInt: number, firstIndex: number, next: number, trigger: number): { start: number | null; fit: TransientFit } | undefined {
