@@ -1,6 +1,6 @@
 import { mser, batchSizeFromTau, type MserResult } from '../core/stationarity/mser.js';
 import { heidelbergerWelch, type HeidelbergerWelchResult } from '../core/stationarity/heidelberger-welch.js';
-import { fitTransient, admissibleStart, transientBias, warmupExplains, MIN_FIT_BLOCKS, type TransientFit, type TransientFitInput } from '../core/stationarity/transient-fit.js';
+import { fitTransient, admissibleStart, transientBias, warmupExplains, rampAndHoldRss, MIN_FIT_BLOCKS, type TransientFit, type TransientFitInput } from '../core/stationarity/transient-fit.js';
 import { fitTwoLags } from '../core/stationarity/two-lag-fit.js';
 import { autoregressiveSpectrumOfValues } from '../core/tau/autoregressive-spectrum.js';
 import type { BlockHistory } from '../core/window/block-history.js';
@@ -107,7 +107,8 @@ export function transientSummary(fit: TransientFit): TransientSummary {
 }
 
 export function fitDescribesWarmup(fit: TransientFit): boolean {
-  return fit.significant && fit.lackOfFit <= LACK_OF_FIT_LIMIT && fit.rss <= fit.rampAndHoldRss + RAMP_MARGIN * fit.noiseVariance;
+  // The ramp's O(K^2) fit last, and only for a fit that passes the cheap checks.
+  return fit.significant && fit.lackOfFit <= LACK_OF_FIT_LIMIT && fit.rss <= rampAndHoldRss(fit.means) + RAMP_MARGIN * fit.noiseVariance;
 }
 
 /**

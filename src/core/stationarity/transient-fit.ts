@@ -70,12 +70,6 @@ export interface TransientFit {
    * record, far above it when the warm-up has another shape (a ramp and hold, a step, an S-curve).
    */
   lackOfFit: number;
-  /**
-   * Residual sum of squares of the best ramp that ends and then holds (a straight approach to the
-   * set point, then steady: y = a + s max(0, c - k)), three parameters like the exponential, so
-   * the two compare directly (changeFits on the reversed record; O(K^2)).
-   */
-  rampAndHoldRss: number;
   /** Variance of one block mean told by the successive differences (see lackOfFit). */
   noiseVariance: number;
   /**
@@ -156,7 +150,7 @@ export function fitTransient(input: TransientFitInput): TransientFit | null {
   const at = (T: number, direct = false): { T: number; A: number; mu: number; rss: number } | null => {
     // g_k = q^(k b) (1 - q^b) / (b (1 - q)), q = exp(-1/T); computed by recurrence.
     const stepDecay = Math.exp(-b / T);
-    const g0 = -Math.expm1(-b / T) / (b * -Math.expm1(-1 / T));
+    const g0 = firstBlockDecay(T, b);
     let g = g0;
     let sg = 0;
     let sgg = 0;
@@ -246,12 +240,36 @@ export function fitTransient(input: TransientFitInput): TransientFit | null {
     longRunVariance: blockVariance * b,
     means: y,
     lackOfFit: residualVariance / noiseVariance,
-    rampAndHoldRss: changeFits(y.slice().reverse()).ramp.rss,
     noiseVariance,
     second: null,
     slowest,
     fastest,
   };
+}
+
+/**
+ * Residual sum of squares of the best ramp that ends and then holds (a straight approach to the set
+ * point, then steady: y = a + s max(0, c - k)) fitted to block means: three parameters like the
+ * exponential, so the two compare directly (changeFits on the reversed record). O(K^2).
+ */
+export function rampAndHoldRss(means: Float64Array): number {
+  return changeFits(means.slice().reverse()).ramp.rss;
+}
+
+/** The mean of exp(-t / T) over the first block (t = 0 .. b - 1); block k's is this times exp(-k b / T). */
+export function firstBlockDecay(T: number, b: number): number {
+  return -Math.expm1(-b / T) / (b * -Math.expm1(-1 / T));
+}
+
+/** out[k] = the mean of exp(-t / T) over block k (b samples from t = k b), by recurrence. */
+export function blockDecays(T: number, b: number, out: Float64Array): Float64Array {
+  const stepDecay = Math.exp(-b / T);
+  let g = firstBlockDecay(T, b);
+  for (let k = 0; k < out.length; k++) {
+    out[k] = g;
+    g *= stepDecay;
+  }
+  return out;
 }
 
 /** Variance of one value of y from the median squared successive difference (2 sigma^2 chi-square(1), median 0.4549). */

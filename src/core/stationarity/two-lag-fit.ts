@@ -1,5 +1,4 @@
-import { changeFits } from './change-point-fits.js';
-import { DECAYED_SPANS, DEFAULT_THRESHOLD, differenceVariance, fitBlocks, type TransientFit, type TransientFitInput } from './transient-fit.js';
+import { blockDecays, DECAYED_SPANS, DEFAULT_THRESHOLD, differenceVariance, fitBlocks, type TransientFit, type TransientFitInput } from './transient-fit.js';
 
 /**
  * Warm-up transient of two lags: the record since the window began, as block means, fitted by a
@@ -44,15 +43,6 @@ export function fitTwoLags(input: TransientFitInput): TransientFit | null {
   const shortest = b / 2;
   if (longest < 1.5 * shortest) return null;
 
-  const decays = (T: number, out: Float64Array): Float64Array => {
-    const stepDecay = Math.exp(-b / T);
-    let g = -Math.expm1(-b / T) / (b * -Math.expm1(-1 / T));
-    for (let k = 0; k < K; k++) {
-      out[k] = g;
-      g *= stepDecay;
-    }
-    return out;
-  };
   // Least squares of d on the centred g1 and g2; the residual summed directly (a transient far
   // above the noise leaves rss a millionth of rss0).
   const solve = (g1: Float64Array, g2: Float64Array): { A: number; B: number; mu: number; rss: number } | null => {
@@ -81,7 +71,7 @@ export function fitTwoLags(input: TransientFitInput): TransientFit | null {
   const MAX_STEPS = 400;
   const grid: number[] = [];
   for (let T = shortest; T <= longest; T *= GRID) grid.push(T);
-  const curves = grid.map((T) => decays(T, new Float64Array(K)));
+  const curves = grid.map((T) => blockDecays(T, b, new Float64Array(K)));
   let best: { T: number; T2: number; A: number; B: number; mu: number; rss: number } | null = null;
   for (let i = 0; i < grid.length; i++) {
     for (let j = 0; j < i; j++) {
@@ -101,7 +91,7 @@ export function fitTwoLags(input: TransientFitInput): TransientFit | null {
     const T = Math.exp(p[0]);
     const T2 = Math.exp(p[1]);
     if (T < 1.5 * T2 || T > longest || T2 < shortest / 2) return null;
-    return solve(decays(T, g1), decays(T2, g2));
+    return solve(blockDecays(T, b, g1), blockDecays(T2, b, g2));
   };
   const start = best as NonNullable<typeof best>;
   const simplex: { p: [number, number]; f: number }[] = [
@@ -161,7 +151,6 @@ export function fitTwoLags(input: TransientFitInput): TransientFit | null {
     longRunVariance: blockVariance * b,
     means: y,
     lackOfFit: residualVariance / noiseVariance,
-    rampAndHoldRss: changeFits(y.slice().reverse()).ramp.rss,
     noiseVariance,
     second: { timeConstant: fit.T2, amplitude: fit.B },
     slowest: main,
