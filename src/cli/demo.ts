@@ -10,28 +10,10 @@ import { startEmbeddedBroker, type EmbeddedBroker } from '../ingest/embedded-bro
 import { RigPublisher } from '../sim/rig-publisher.js';
 import { UsageError } from './cli-error.js';
 import { CAUTION } from './caution.js';
+import { DEMO_HELP } from './daemon-help.js';
 import { waitForSignal } from './run.js';
 
-export const DEMO_HELP = `plateau demo [options]
-
-Everything on one machine, no other service: an in-process MQTT broker, the simulated "bench
-HX-7" heat exchanger publishing six channels, the daemon and the dashboard. Free ports are taken
-when the usual ones are busy, and printed.
-
-Options:
-  --speed X          simulated seconds per second (default 1; 20 shows warm-up and drift quickly)
-  --broker-port N    MQTT port to try first (default 1883)
-  --http-port N      HTTP port to try first (default 8080)
-  --store FILE       SQLite file to keep (default: one in a new temporary directory, deleted
-                     with its log when the demo stops)
-  --keep-store       keep the temporary directory (store and log) after the demo stops
-  --seconds N        stop after N seconds (default: run until Ctrl-C)
-  -h, --help         this text
-
-The daemon's structured log goes to plateau-demo.log beside the store, not to the terminal.
-If the broker or dashboard port is busy, the next ones (up to 9 after it) are tried, then any
-free port; the banner says which.
-`;
+export { DEMO_HELP };
 
 const root = join(dirname(fileURLToPath(import.meta.url)), '..', '..');
 

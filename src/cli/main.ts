@@ -2,8 +2,7 @@ import { readFileSync } from 'node:fs';
 import { UsageError } from './cli-error.js';
 import { errorEntry } from '../errors/catalogue.js';
 import { runAnalyze, ANALYZE_HELP } from './analyze.js';
-import { runDaemonCommand, RUN_HELP } from './run.js';
-import { runDemoCommand, DEMO_HELP } from './demo.js';
+import { RUN_HELP, DEMO_HELP } from './daemon-help.js';
 
 const HELP = `plateau: live steady-state and uncertainty of windowed means for test and calibration rigs
 
@@ -34,9 +33,10 @@ export async function main(argv: string[], extra: Commands = {}): Promise<number
       case 'analyze':
         return await runAnalyze(rest, { out });
       case 'run':
-        return await runDaemonCommand(rest);
+        // The daemon's modules (broker, store, server) load only for the commands that use them.
+        return await (await import('./run.js')).runDaemonCommand(rest);
       case 'demo':
-        return await runDemoCommand(rest);
+        return await (await import('./demo.js')).runDemoCommand(rest);
       case 'help': {
         const topic = rest[0];
         if (topic === undefined) {

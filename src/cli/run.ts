@@ -6,22 +6,9 @@ import { startServer, type RunningServer } from '../server/server.js';
 import { startEmbeddedBroker, type EmbeddedBroker } from '../ingest/embedded-broker.js';
 import { UsageError } from './cli-error.js';
 import { CAUTION } from './caution.js';
+import { RUN_HELP } from './daemon-help.js';
 
-export const RUN_HELP = `plateau run --config FILE
-
-Runs the daemon: subscribes to the configured MQTT topics, keeps every channel's statistics in
-SQLite (a restart continues where it stopped), serves the API and the dashboard, and publishes
-events and a retained status per channel and test point. Stops cleanly on SIGINT or SIGTERM.
-A configuration with problems is refused before anything starts, one line per problem, each
-naming the file and the key path; the exit status is then 2.
-
-Options:
-  -c, --config FILE      the YAML configuration (required; examples in config/:
-                         hx7-heat-exchanger.yaml, bath-calibration.yaml)
-  -h, --help             this text
-
-broker.url: embedded in the file starts an in-process MQTT broker on port 1883.
-`;
+export { RUN_HELP };
 
 /** Starts the daemon from a config file; resolves when it has stopped (on a signal). */
 export async function runDaemonCommand(argv: string[]): Promise<number> {

@@ -393,5 +393,6 @@ function variance(values: Float64Array): number {
 export function formatSamples(count: number): string {
   if (!Number.isFinite(count)) return 'unbounded';
   const rounded = count >= 1000 ? Number(count.toPrecision(2)) : Math.round(count);
-  return rounded.toLocaleString('en-US').replace(/,/g, '\u202f');
+  // Grouped by hand: toLocaleString goes through ICU, and this runs on every warm-up check.
+  return String(rounded).replace(/\B(?=(\d{3})+(?!\d))/g, '\u202f');
 }

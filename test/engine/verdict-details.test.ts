@@ -3,6 +3,7 @@ import { SeededRandom } from '../../src/core/random/seeded-random.js';
 import * as F from '../../src/sim/signal-families.js';
 import { ChannelPipeline } from '../../src/engine/channel-pipeline.js';
 import { DEFAULT_CHANNEL_OPTIONS, type ChannelOptions } from '../../src/engine/channel-options.js';
+import { formatSamples } from '../../src/engine/warmup-detector.js';
 
 // Smaller promises of the verdict, each on data whose truth is built in.
 
@@ -118,5 +119,17 @@ describe('reading never changes the state (results and checkpoints do not depend
       expect(read.maxLag).toBe(never.maxLag);
       expect(structuredClone(read.state)).toEqual(structuredClone(never.state));
     }
+  });
+});
+
+describe('sample counts in the verdict\'s words', () => {
+  it('are grouped by thin spaces, two significant figures from 1000 on, and say unbounded for no finite count', () => {
+    expect(formatSamples(0)).toBe('0');
+    expect(formatSamples(999.4)).toBe('999');
+    expect(formatSamples(1000)).toBe('1\u202f000');
+    expect(formatSamples(12_345)).toBe('12\u202f000');
+    expect(formatSamples(1_234_567)).toBe('1\u202f200\u202f000');
+    expect(formatSamples(Number.POSITIVE_INFINITY)).toBe('unbounded');
+    expect(formatSamples(Number.NaN)).toBe('unbounded');
   });
 });
