@@ -1,4 +1,4 @@
-import chisquareQuantile from '@stdlib/stats-base-dists-chisquare-quantile';
+import { chiSquareQuantile as chisquareQuantile } from '../numeric/chi-square-quantile.js';
 
 /**
  * Allan deviation (two-sample deviation) of fractional-frequency data, overlapping and
