@@ -32,31 +32,54 @@ export interface LinearResiduals {
   scale: number;
 }
 
+/** The mean, the OLS slope on t = 1..n about tbar (0 without a trend) and max |x_t|. */
+function lineFit(values: ArrayLike<number>, trend: boolean): { mean: number; slope: number; scale: number } {
+  const n = values.length;
+  if (n < 2) throw new RangeError('linearResiduals requires at least 2 samples');
+  const mean = correctedMean(values);
+  let scale = 0;
+  let sxt = 0;
+  const tMean = (n + 1) / 2;
+  for (let i = 0; i < n; i++) {
+    const x = values[i] as number;
+    const a = Math.abs(x);
+    if (a > scale) scale = a;
+    if (trend) sxt += (i + 1 - tMean) * (x - mean);
+  }
+  return { mean, slope: trend ? sxt / ((n * (n * n - 1)) / 12) : 0, scale };
+}
+
 /**
  * Residuals about the mean (`trend = false`) or about the OLS line on t = 1..n (`trend = true`).
  * @throws RangeError when fewer than 2 values are given.
  */
 export function linearResiduals(values: ArrayLike<number>, trend: boolean): LinearResiduals {
   const n = values.length;
-  if (n < 2) throw new RangeError('linearResiduals requires at least 2 samples');
-  const mean = correctedMean(values);
+  const { mean, slope, scale } = lineFit(values, trend);
+  const tMean = (n + 1) / 2;
   const residuals = new Float64Array(n);
-  let scale = 0;
-  for (let i = 0; i < n; i++) {
-    const x = values[i] as number;
-    residuals[i] = x - mean;
-    const a = Math.abs(x);
-    if (a > scale) scale = a;
-  }
-  if (trend) {
-    const tMean = (n + 1) / 2;
-    let sxt = 0;
-    for (let i = 0; i < n; i++) sxt += (i + 1 - tMean) * (residuals[i] as number);
-    const stt = (n * (n * n - 1)) / 12;
-    const slope = sxt / stt;
-    for (let i = 0; i < n; i++) residuals[i] = (residuals[i] as number) - slope * (i + 1 - tMean);
-  }
   let sumSquares = 0;
-  for (let i = 0; i < n; i++) sumSquares += (residuals[i] as number) ** 2;
+  for (let i = 0; i < n; i++) {
+    const e = ((values[i] as number) - mean) - slope * (i + 1 - tMean);
+    residuals[i] = e;
+    sumSquares += e * e;
+  }
   return { residuals, residualSd: Math.sqrt(sumSquares / (n - 1)), scale };
+}
+
+/**
+ * The residual standard deviation and scale of linearResiduals, without keeping the residuals:
+ * the same arithmetic, no allocation (the constant check of every S(0) estimate).
+ * @throws RangeError when fewer than 2 values are given.
+ */
+export function linearResidualSd(values: ArrayLike<number>, trend: boolean): Omit<LinearResiduals, 'residuals'> {
+  const n = values.length;
+  const { mean, slope, scale } = lineFit(values, trend);
+  const tMean = (n + 1) / 2;
+  let sumSquares = 0;
+  for (let i = 0; i < n; i++) {
+    const e = ((values[i] as number) - mean) - slope * (i + 1 - tMean);
+    sumSquares += e * e;
+  }
+  return { residualSd: Math.sqrt(sumSquares / (n - 1)), scale };
 }

@@ -1,5 +1,5 @@
 import { laggedProductSums } from '../acf/direct-autocovariance.js';
-import { correctedMean, linearResiduals } from './linear-residuals.js';
+import { correctedMean, linearResidualSd } from './linear-residuals.js';
 import { levinsonDurbin } from '../tau/autoregressive-spectrum.js';
 
 /**
@@ -70,7 +70,7 @@ export const RELATIVE_CONSTANT_TOLERANCE = 1e-13;
 /** True when the values are constant (or exactly linear in t) under the chosen check. */
 export function isConstantSeries(values: ArrayLike<number>, options: Spectrum0ArOptions = {}): boolean {
   if (values.length < 3) return true; // a line passes exactly through any two points
-  const { residualSd, scale } = linearResiduals(values, true);
+  const { residualSd, scale } = linearResidualSd(values, true);
   if (options.constantCheck === 'absolute') {
     return residualSd <= (options.constantTolerance ?? CODA_CONSTANT_TOLERANCE);
   }
