@@ -14,7 +14,7 @@ import { SqliteStore } from '../store/sqlite-store.js';
 import { SystemClock } from '../clock/system-clock.js';
 import { PlateauError } from '../errors/catalogue.js';
 import type { Clock } from '../ports/clock.js';
-import type { Acknowledgement, ChannelView, DaemonApi, DaemonHealth, DerivedView, TestPointRequest, TestPointView } from '../ports/daemon-api.js';
+import type { Acknowledgement, ChannelView, DaemonApi, DaemonHealth, DerivedView, TestPointRequest, TestPointView, TestPointWindowView } from '../ports/daemon-api.js';
 import type { Publisher, VolatileEvent } from '../ports/publisher.js';
 import type { SampleSource, SourceStatus } from '../ports/sample-source.js';
 import type { Store, StoredEvent, StoredRecord } from '../ports/store.js';
@@ -29,6 +29,7 @@ import { ListenerPublisher } from './listener-publisher.js';
 import type { PendingBatch } from './pending-batch.js';
 import { Publishing } from './publishing.js';
 import { Queries } from './queries.js';
+import { channelTrace } from './channel-trace.js';
 import { restoreChannels, restoreTestPoints } from './restore.js';
 import { TestPointControl } from './test-point-control.js';
 
@@ -169,6 +170,10 @@ export class Daemon implements DaemonApi {
       commit: () => this.commits.commit(false),
       raise,
       configuredUnit: (name) => this.configuredUnit(name),
+      trace: (name, pipeline, count) => {
+        const channel = this.registry.get(name);
+        return channel === undefined ? null : channelTrace(this.storeAdapter, channel, count, pipeline, this.commits.batch.pendingSamples(name));
+      },
     });
     this.commands = new Commands({ testPoints: this.control, log: this.log, rejected: (reason, detail) => this.ingestion.rejected(reason, detail), raise });
     this.publishing = new Publishing({ publishers: () => this.publishers, registry: this.registry, testPoints: this.testPoints, clock: this.clock });
@@ -217,7 +222,7 @@ export class Daemon implements DaemonApi {
     this.storeAdapter = store;
     const summary = restoreChannels(store, this.registry, this.ingestion, this.log);
     for (const [channel, seq] of summary.checkpointAt) this.checkpoints.stored(channel, seq);
-    restoreTestPoints(store, this.testPoints);
+    restoreTestPoints(store, this.testPoints, this.registry);
     this.derived.restored();
     this.publishing.lastEventId = store.lastEventId();
     const counters = store.counters();
@@ -455,6 +460,10 @@ export class Daemon implements DaemonApi {
 
   records(testPointId: string): StoredRecord[] {
     return this.queries.records(testPointId);
+  }
+
+  testPointWindows(id: string, count: number): TestPointWindowView[] {
+    return this.queries.testPointWindows(id, count);
   }
 
   startTestPoint(request: TestPointRequest): TestPointView {

@@ -71,6 +71,71 @@ export interface RecordEntry {
    */
   provisional?: boolean;
   provisionalReasons?: string[];
+  /**
+   * What the report shows of this entry, frozen when the record was made (issue 10: the record and
+   * its report describe the same window): the window's snapshot (estimators, evidence, ACF, Allan
+   * deviation; its event list left out), the CUSUM sums and a decimated trace of the window.
+   */
+  evidence?: RecordEvidence;
+}
+
+/** A record's trace: the recorded window's samples (with the warm-up before it, when the store still had it), decimated. */
+export interface RecordTrace {
+  /** Channel sample index of each point kept. */
+  indices: number[];
+  /** Seconds since the epoch (null when unknown). */
+  times: (number | null)[];
+  values: number[];
+  windowStartIndex: number;
+  originIndex: number;
+  /** Samples the trace stood for before decimation. */
+  samples: number;
+  /** How it was thinned, or null when every sample is kept. */
+  decimation: string | null;
+}
+
+export interface RecordEvidence {
+  snapshot: ChannelSnapshot;
+  cusum: { blockSize: number; decisionInterval: number; upper: number[]; lower: number[]; alarmed?: boolean } | null;
+  trace: RecordTrace | null;
+}
+
+/** Most points a record's trace keeps (pairs of the lowest and highest sample of equal runs). */
+export const RECORD_TRACE_POINTS = 2000;
+
+/**
+ * Thins a trace of consecutive samples to at most `maxPoints`: the samples are cut into equal runs
+ * and each run keeps its lowest and its highest sample, in their order, so the drawn envelope keeps
+ * every spike and step (a mean per run would hide them). Runs never straddle the window's start.
+ */
+export function decimateTrace(trace: { firstIndex: number; times: (number | null)[]; values: number[]; windowStartIndex: number; originIndex: number }, maxPoints = RECORD_TRACE_POINTS): RecordTrace {
+  const n = trace.values.length;
+  const base = { windowStartIndex: trace.windowStartIndex, originIndex: trace.originIndex, samples: n };
+  if (n <= maxPoints) return { ...base, indices: trace.values.map((_, i) => trace.firstIndex + i), times: [...trace.times], values: [...trace.values], decimation: null };
+  const run = Math.ceil((2 * n) / maxPoints);
+  const indices: number[] = [];
+  const times: (number | null)[] = [];
+  const values: number[] = [];
+  const keep = (i: number) => {
+    indices.push(trace.firstIndex + i);
+    times.push(trace.times[i] ?? null);
+    values.push(trace.values[i] as number);
+  };
+  const split = Math.min(n, Math.max(0, trace.windowStartIndex - trace.firstIndex));
+  for (const [from, to] of [[0, split], [split, n]] as const) {
+    for (let start = from; start < to; start += run) {
+      const end = Math.min(to, start + run);
+      let lo = start;
+      let hi = start;
+      for (let i = start + 1; i < end; i++) {
+        if ((trace.values[i] as number) < (trace.values[lo] as number)) lo = i;
+        if ((trace.values[i] as number) > (trace.values[hi] as number)) hi = i;
+      }
+      keep(Math.min(lo, hi));
+      if (hi !== lo) keep(Math.max(lo, hi));
+    }
+  }
+  return { ...base, indices, times, values, decimation: `the lowest and highest sample of each run of ${run}` };
 }
 
 export interface TestPointRecord {

@@ -103,6 +103,15 @@ export interface TestPointRequest {
   setPoints?: Record<string, number>;
 }
 
+/** A test point's own window over one of its channels, now (src/engine/channel.ts). */
+export interface TestPointWindowView {
+  name: string;
+  unit: string | null;
+  snapshot: ChannelSnapshot;
+  trace: ChannelTrace;
+  cusum: CusumTrace | null;
+}
+
 export interface DaemonQueries {
   health(): DaemonHealth;
   counterReport(): Record<string, unknown>;
@@ -125,6 +134,8 @@ export interface DaemonQueries {
   testPointViews(): TestPointView[];
   testPoint(id: string): TestPointView | null;
   records(testPointId: string): StoredRecord[];
+  /** The test point's window over each of its channels now (its report before a record). */
+  testPointWindows(id: string, count: number): TestPointWindowView[];
 }
 
 export interface DaemonCommands {

@@ -7,7 +7,7 @@ import pino, { type Logger } from 'pino';
 import type { DaemonApi } from '../ports/daemon-api.js';
 import { PlateauError, type ErrorCode, type ErrorDetails } from '../errors/catalogue.js';
 import { recordCsv, RECORD_CAUTION, type TestPointRecord } from '../engine/test-point-record.js';
-import { renderReport } from './report.js';
+import { renderReport, reportTrace } from './report.js';
 import { openApiDocument, type DocumentedRoute } from './openapi.js';
 import { recordDerivedEntries } from './record-derived.js';
 import { derivedRecordCsv } from '../engine/derived/derived-record.js';
@@ -507,14 +507,16 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
       const point = daemon.testPoint(id);
       if (!point) return unknownTestPoint(reply, id);
       const record = latestRecord(id);
-      const channels = point.channels.map((name) => daemon.channel(name)).filter((c) => c !== null);
+      // The record's frozen evidence for each channel it holds; the test point's own window only where it holds none.
+      const recorded = new Set((record?.entries ?? []).filter((e) => e.evidence).map((e) => e.channel));
+      const live = point.channels.every((name) => recorded.has(name)) ? [] : daemon.testPointWindows(id, 4000).filter((w) => !recorded.has(w.name));
       const html = renderReport({
         point,
         record,
         generatedMs: Date.now(),
         version: VERSION,
-        channels: channels.map((c) => ({ name: c.name, unit: c.unit, snapshot: c.snapshot(), trace: c.trace(4000), cusum: c.cusumTrace() })),
-        derived: point.derived.length > 0 ? daemon.derivedResults().filter((d) => point.derived.includes(d.name)) : [],
+        live: live.map((w) => ({ name: w.name, unit: w.unit, snapshot: w.snapshot, trace: reportTrace(w.trace), cusum: w.cusum })),
+        derived: record === null && point.derived.length > 0 ? daemon.derivedResults().filter((d) => point.derived.includes(d.name)) : [],
       });
       return reply.header('content-type', 'text/html; charset=utf-8').header('content-security-policy', REPORT_POLICY).send(html);
     },
