@@ -118,6 +118,7 @@ export class Daemon implements DaemonApi {
     this.testPoints = new TestPoints(this.registry);
     this.derived = new DerivedResults(config, this.registry);
     this.testPoints.useDerived(this.derived);
+    this.testPoints.useRig(config.rig ?? { id: null, name: null });
     this.listeners = new ListenerPublisher((err) => this.log.warn({ err }, 'event listener failed'));
     this.checkpoints = new CheckpointSchedule(config.store.checkpointSamples);
     this.commits = new CommitCycle({

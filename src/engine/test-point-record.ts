@@ -139,7 +139,10 @@ export function decimateTrace(trace: { firstIndex: number; times: (number | null
 }
 
 export interface TestPointRecord {
-  testPoint: { id: string; name: string };
+  /** The test point, with its times in ISO 8601 (UTC, zone Z). */
+  testPoint: { id: string; name: string; startedAt?: string; readyAt?: string | null; stoppedAt?: string | null; setPoints?: Record<string, number> };
+  /** The rig as the configuration names it (null parts when it does not). */
+  rig?: { id: string | null; name: string | null };
   /** "<test point id>/<n>": 1 for the first record of the test point, 2 for a stop record after a ready one. */
   recordNumber?: string;
   /** Some entry was not ready when the record was made (each entry says why). */
@@ -274,13 +277,20 @@ export function combinedCells(entry: { combined?: CombinedReport | null; conform
   ];
 }
 
+/** The rig in one cell: "id (name)", either alone, or null when the configuration names none. */
+export function rigText(rig: TestPointRecord['rig']): string | null {
+  if (!rig || (rig.id === null && rig.name === null)) return null;
+  if (rig.id !== null && rig.name !== null) return `${rig.id} (${rig.name})`;
+  return rig.id ?? rig.name;
+}
+
 /**
  * CSV (RFC 4180) of a record's entries; full-precision numbers, one row per channel; then the
  * combined uncertainty, the conformity outcome with its decision rule, whether the entry is
  * provisional and why, and the caution (in every row, so that no extract of the file loses it).
  */
 export function recordCsv(record: TestPointRecord): string {
-  const header = [...CSV_COLUMNS, 'heidelbergerWelchPassed', 'gewekeZ', 'kpssStatistic', 'statement', 'criteria', ...COMBINED_CSV_COLUMNS, 'provisional', 'provisionalReasons', 'caution'];
+  const header = [...CSV_COLUMNS, 'heidelbergerWelchPassed', 'gewekeZ', 'kpssStatistic', 'statement', 'criteria', ...COMBINED_CSV_COLUMNS, 'provisional', 'provisionalReasons', 'rig', 'testPoint', 'recordNumber', 'recordKind', 'recordCreatedAt', 'caution'];
   const rows = record.entries.map((entry) => [
     ...CSV_COLUMNS.map((key) => entry[key] as unknown),
     entry.tests.heidelbergerWelchPassed,
@@ -291,6 +301,11 @@ export function recordCsv(record: TestPointRecord): string {
     ...combinedCells(entry),
     entry.provisional ?? null,
     (entry.provisionalReasons ?? []).join('; '),
+    rigText(record.rig),
+    `${record.testPoint.id} (${record.testPoint.name})`,
+    record.recordNumber ?? null,
+    record.kind,
+    record.createdAt,
     record.caution,
   ]);
   return csvText(header, rows);

@@ -71,6 +71,7 @@ export class TestPoints {
   private readonly registry: ChannelRegistry;
   private derived: DerivedStatus | null = null;
   private sequence = 0;
+  private rig: { id: string | null; name: string | null } = { id: null, name: null };
 
   constructor(registry: ChannelRegistry) {
     this.registry = registry;
@@ -78,6 +79,11 @@ export class TestPoints {
 
   useDerived(derived: DerivedStatus): void {
     this.derived = derived;
+  }
+
+  /** The rig every record names (from the configuration). */
+  useRig(rig: { id: string | null; name: string | null }): void {
+    this.rig = { ...rig };
   }
 
   list(): TestPoint[] {
@@ -229,7 +235,15 @@ export class TestPoints {
       return { ...recordEntry(snapshot, channel.unit), bootstrap: channelBootstrapCheck(pipeline.series.values(), snapshot), evidence };
     });
     return {
-      testPoint: { id: point.id, name: point.name },
+      testPoint: {
+        id: point.id,
+        name: point.name,
+        startedAt: new Date(point.createdMs).toISOString(),
+        readyAt: point.readyMs === null ? null : new Date(point.readyMs).toISOString(),
+        stoppedAt: point.stoppedMs === null ? null : new Date(point.stoppedMs).toISOString(),
+        ...(point.setPoints ? { setPoints: { ...point.setPoints } } : {}),
+      },
+      rig: { ...this.rig },
       // the ready record is the first; the stop record is the second when the point was ready before
       recordNumber: `${point.id}/${kind === 'stopped' && point.readyMs !== null ? 2 : 1}`,
       kind,

@@ -205,3 +205,80 @@ describe('two test points sharing a channel each have their own window', () => {
     }
   }, 240_000);
 });
+
+const ISO_WITH_ZONE = /^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d(\.\d+)?(Z|[+-]\d\d:\d\d)$/;
+
+describe('a channel never steady, or short of its target, when its test point stops', () => {
+  it('gets a provisional record and report that say why, with no GUM statement styled as a result; the record names the rig, the test point, its number, the times with their zone and the caution (CSV too)', async () => {
+    const path = freshFile();
+    const rig = new RigSimulator({ seed: 3, rate: 10, startSeconds: START });
+    const time = { nowMs: START * 1000 };
+    const d = await open(path, rig, time);
+    d.feed(15);
+    // Never steady: stopped 3 s after the start. Short of its target: the flow, steady after 40 s but
+    // not within its relative target of 0.05 % (the configuration's) by then.
+    d.daemon.startTestPoint({ id: 'early', name: 'stopped early', channels: [DP] });
+    d.feed(3);
+    d.daemon.stopTestPoint('early');
+    d.daemon.startTestPoint({ id: 'short', name: 'short of target', channels: [FLOW] });
+    d.feed(25);
+    d.daemon.stopTestPoint('short');
+    for (const [id, reason] of [['early', /steady state not confirmed/], ['short', /^target U <= [0-9.]+ not met yet/]] as const) {
+      const record = (await d.get(`/api/test-points/${id}/record.json`)).json() as TestPointRecord;
+      expect(record.provisional, id).toBe(true);
+      expect(record.rig).toEqual({ id: 'HX-7', name: 'bench HX-7, glycol/water plate heat exchanger' });
+      expect(record.recordNumber).toBe(`${id}/1`);
+      expect(record.caution).toMatch(/not a safety system/);
+      for (const at of [record.createdAt, record.testPoint.startedAt, record.testPoint.stoppedAt]) expect(at).toMatch(ISO_WITH_ZONE);
+      const entry = record.entries[0] as RecordEntry;
+      expect(entry.windowStartTime).toMatch(ISO_WITH_ZONE);
+      expect(entry.provisional).toBe(true);
+      expect((entry.provisionalReasons ?? []).join('; ')).toMatch(reason);
+      expect(entry.state).toBe(id === 'early' ? 'warming' : 'steady');
+      expect(entry.statement).toMatch(/PROVISIONAL, not a measurement result to report/);
+      expect(entry.statement).not.toMatch(/expanded uncertainty U = k·u/);
+      const html = (await d.get(`/api/test-points/${id}/report`)).body;
+      expect(html).toContain('<strong>Provisional.</strong>');
+      expect(html).toContain(`<p class="statement none">${entry.statement.replace(/&/g, '&amp;').replace(/'/g, '&#39;').replace(/"/g, '&quot;').replace(/</g, '&lt;').replace(/>/g, '&gt;')}</p>`);
+      expect(html).not.toMatch(/<p class="statement">/);
+      expect(html).toContain('HX-7 (bench HX-7, glycol/water plate heat exchanger)');
+      const csv = (await d.get(`/api/test-points/${id}/record.csv`)).body;
+      const [header, row] = csv.trim().split('\r\n') as [string, string];
+      const columns = header.split(',');
+      for (const column of ['provisional', 'provisionalReasons', 'rig', 'testPoint', 'recordNumber', 'recordCreatedAt', 'caution', 'decisionRule']) expect(columns, column).toContain(column);
+      expect(row).toContain(`${id}/1`);
+      expect(row).toContain('not a safety system');
+      expect(row).toContain(',true,');
+    }
+    await d.close();
+  }, 120_000);
+});
+
+describe('a test point naming an unknown channel', () => {
+  it('is refused over HTTP (404) and over MQTT (command-refused), and no channel is made, before or after a restart', async () => {
+    const path = freshFile();
+    const rig = new RigSimulator({ seed: 4, rate: 10, startSeconds: START });
+    const time = { nowMs: START * 1000 };
+    let d = await open(path, rig, time);
+    d.feed(2);
+    const refused = await d.app.inject({ method: 'POST', url: '/api/test-points', payload: { id: 'typo', channels: [FLOW, 'hx7.glycol_flw_kg_s'] } });
+    expect(refused.statusCode).toBe(404);
+    expect(refused.json()).toMatchObject({ error: 'ERR_TEST_POINT_CHANNEL_UNKNOWN' });
+    const before = d.daemon.store.lastEventId();
+    d.source.publish(`${d.daemon.config.topics.command}/test-point/start`, JSON.stringify({ id: 'typo-mqtt', channels: ['hx7.nowhere'] }));
+    d.daemon.commitNow();
+    const events = d.daemon.store.eventsOfKind('command-refused', before, 10);
+    expect(events).toHaveLength(1);
+    expect(events[0]?.body).toMatchObject({ code: 'ERR_TEST_POINT_CHANNEL_UNKNOWN' });
+    for (let round = 0; round < 2; round++) {
+      expect(d.daemon.registry.get('hx7.nowhere')).toBeUndefined();
+      expect(d.daemon.registry.get('hx7.glycol_flw_kg_s')).toBeUndefined();
+      const names = ((await d.get('/api/channels')).json() as { channels: { name: string }[] }).channels.map((c) => c.name);
+      expect(names).not.toContain('hx7.nowhere');
+      expect(d.daemon.testPoint('typo')).toBeNull();
+      expect(d.daemon.testPoint('typo-mqtt')).toBeNull();
+      await d.close();
+      if (round === 0) d = await open(path, rig, time, d.source);
+    }
+  }, 120_000);
+});
