@@ -245,7 +245,7 @@ function channelSection(channel: ReportChannel, entry: RecordEntry | null, recor
   return `<section><h2>${escapeHtml(channel.name)}${channel.unit ? ` (${escapeHtml(unitLabel(channel.unit))})` : ''}</h2>
 <p class="statement${entry && !entry.provisional ? '' : ' none'}">${escapeHtml(statement)}</p>
 <p class="note">${escapeHtml(source)}</p>
-${provisionalBlock(entry)}<h3>Result</h3>
+${provisionalBlock(entry)}<h3>${entry?.provisional ? 'Figures of the window (provisional: not a result to report)' : 'Result'}</h3>
 <table>${rows(result)}</table>
 ${combinedBlock(entry ? (entry.combined ?? null) : s.combined, entry ? (entry.conformity ?? null) : s.conformity, unit)}
 <h3>Standard uncertainty of the mean</h3>
