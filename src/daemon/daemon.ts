@@ -1,6 +1,7 @@
 import pino, { type Logger } from 'pino';
 import type { PlateauConfig, SubscriptionConfig } from '../config/plateau-config.js';
 import { channelOptionsFromSettings, settingsFor } from '../config/load-config.js';
+import { parseTypeB } from '../config/uncertainty-config.js';
 import { DECODER_DEFAULTS } from '../config/decoder-spec.js';
 import { ChannelRegistry } from '../engine/channel-registry.js';
 import type { ChannelOptions } from '../engine/channel-options.js';
@@ -477,6 +478,24 @@ export class Daemon implements DaemonApi {
 
   annotateTestPoint(id: string, text: string): TestPointView {
     return this.control.annotate(id, text);
+  }
+
+  setChannelTypeB(name: string, typeB: unknown): { channel: string; typeB: unknown[] } {
+    const channel = this.registry.get(name);
+    if (channel === undefined) throw new PlateauError('ERR_CHANNEL_UNKNOWN', { name: name.slice(0, 80) });
+    const parsed = parseTypeB(typeB, 'typeB');
+    if (parsed.problems.length > 0) throw new PlateauError('ERR_TYPE_B_INVALID', { detail: parsed.problems.join('\n') });
+    this.requireStore();
+    const mark = channel.setTypeB(parsed.typeB);
+    this.commits.batch.addMark({ channel: channel.name, seq: mark.seq, kind: mark.kind });
+    this.queueEvent(channel.name, 'type-b-changed', null, { typeB: parsed.typeB });
+    if (!this.commits.commit(false)) this.requireStore();
+    return { channel: channel.name, typeB: [...channel.typeB] };
+  }
+
+  channelTypeB(name: string): { channel: string; typeB: unknown[] } | null {
+    const channel = this.registry.get(name);
+    return channel === undefined ? null : { channel: channel.name, typeB: [...channel.typeB] };
   }
 
   acknowledgeEvent(id: number, note: string | null): { acknowledgement: Acknowledgement; already: boolean } {

@@ -1,6 +1,7 @@
 import { ChannelPipeline, type ChannelPipelineState } from './channel-pipeline.js';
 import type { ChannelCriteriaState } from './criteria/channel-criteria.js';
-import type { ChannelOptions } from './channel-options.js';
+import { DEFAULT_UNCERTAINTY_SETTINGS, type ChannelOptions, type UncertaintySettings } from './channel-options.js';
+import type { TypeBSpec } from '../core/uncertainty/type-b-component.js';
 import type { ChannelEvent } from './channel-events.js';
 import { channelRecord, decideCheckpoint, optionsIdentity, type ChannelRecord, type ChannelWindowsState, type OptionsIdentity } from './channel-state.js';
 import { SteadyHistory } from './steadiness.js';
@@ -58,8 +59,11 @@ export type AcceptResult =
  */
 export interface WindowMark {
   seq: number;
-  kind: 'restart-window' | `set-point:${string}` | `open:${string}` | `close:${string}`;
+  kind: 'restart-window' | `set-point:${string}` | `open:${string}` | `close:${string}` | `type-b:${string}`;
 }
+
+/** The mark of the channel's Type B components set through the API: `type-b:<JSON list>`. */
+const TYPE_B_MARK = 'type-b:';
 
 /**
  * A test point's own window over the channel (issue 10: two test points sharing a channel do not
@@ -275,6 +279,36 @@ export class Channel {
     this.current.setSetPoint(value);
   }
 
+  /**
+   * Replaces the channel's Type B components (from the API) from the next sample on; returns the
+   * mark to store, replayed at its index (and the latest one before a checkpoint applied at load),
+   * so a restart keeps them. Every window over the channel (test points' forks too) takes them.
+   */
+  setTypeB(typeB: readonly TypeBSpec[]): WindowMark {
+    this.applyTypeB(typeB);
+    return { seq: this.nextSeq, kind: `${TYPE_B_MARK}${JSON.stringify(typeB)}` };
+  }
+
+  /** The Type B components in force. */
+  get typeB(): readonly TypeBSpec[] {
+    return this.options.uncertainty?.typeB ?? [];
+  }
+
+  private applyTypeB(typeB: readonly TypeBSpec[]): void {
+    // One options object is shared by the pipeline and every fork: each reads it at its next snapshot.
+    (this.options as { uncertainty?: UncertaintySettings }).uncertainty = { ...(this.options.uncertainty ?? DEFAULT_UNCERTAINTY_SETTINGS), typeB: typeB.map((c) => ({ ...c })) };
+    this.current.settingsChanged();
+    for (const fork of this.forks.values()) fork.settingsChanged();
+  }
+
+  private applyTypeBMark(kind: string): void {
+    try {
+      this.applyTypeB(JSON.parse(kind.slice(TYPE_B_MARK.length)) as TypeBSpec[]);
+    } catch {
+      // A mark this plateau did not write: ignored (the configured components stay).
+    }
+  }
+
   /** Whether the channel was steady when it took its sample of pipeline index `index` (see src/engine/steadiness.ts). */
   steadyAt(index: number): boolean {
     return this.steadiness.steadyAt(index);
@@ -321,6 +355,9 @@ export class Channel {
         detail = decision.reason;
       }
     }
+    // Type B components set through the API before the checkpoint: the latest one is in force at it.
+    const settings = history.marksFrom(0).filter((m) => m.kind.startsWith(TYPE_B_MARK) && m.seq < from);
+    if (settings.length > 0 && outcome === 'loaded') this.applyTypeBMark((settings.at(-1) as { kind: string }).kind);
     if (outcome === 'replayed' || outcome === 'fresh') {
       // Every stored sample, from the first one kept.
       const runs = history.samplesFrom(0)[Symbol.iterator]();
@@ -376,6 +413,7 @@ export class Channel {
         if (setPoint !== undefined) this.applySetPoint(setPoint);
       }
       for (const mark of due) if (mark.kind.startsWith('open:')) this.applyOpen(mark.kind.slice(5));
+      for (const mark of due) if (mark.kind.startsWith(TYPE_B_MARK)) this.applyTypeBMark(mark.kind);
     };
     for (const run of samples) {
       for (let i = 0; i < run.values.length; i++) {

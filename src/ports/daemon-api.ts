@@ -142,6 +142,14 @@ export interface DaemonCommands {
   startTestPoint(request: TestPointRequest): TestPointView;
   stopTestPoint(id: string): TestPointView;
   annotateTestPoint(id: string, text: string): TestPointView;
+  /**
+   * Replaces a channel's Type B components (validated as the configuration's `typeB`: one line per
+   * problem naming its key path, ERR_TYPE_B_INVALID); stored, so a restart keeps them. Returns the
+   * components now in force.
+   */
+  setChannelTypeB(name: string, typeB: unknown): { channel: string; typeB: unknown[] };
+  /** A channel's Type B components in force (null: no such channel). */
+  channelTypeB(name: string): { channel: string; typeB: unknown[] } | null;
   /** Records an acknowledgement of a stored alert; acknowledging again returns the first. */
   acknowledgeEvent(id: number, note: string | null): { acknowledgement: Acknowledgement; already: boolean };
 }

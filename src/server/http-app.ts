@@ -241,6 +241,39 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
     },
   );
 
+  const typeBParams = { type: 'object', properties: { name: { type: 'string', pattern: NAME_PATTERN } }, required: ['name'] } as const;
+  const typeBReply = { type: 'object', required: ['channel', 'typeB'], properties: { channel: { type: 'string' }, typeB: { type: 'array', items: { type: 'object', additionalProperties: true } } }, additionalProperties: false } as const;
+  app.get(
+    '/api/channels/:name/type-b',
+    { schema: { summary: "a channel's Type B components in force (from the configuration, or as last set through the API)", params: typeBParams, response: { 200: typeBReply, ...errors(400, 404) } } },
+    async (request, reply) => {
+      const { name } = request.params as { name: string };
+      const found = daemon.channelTypeB(name);
+      if (!found) return send(reply, 'ERR_CHANNEL_UNKNOWN', { name: name.slice(0, 80) });
+      return found;
+    },
+  );
+
+  app.put(
+    '/api/channels/:name/type-b',
+    {
+      onRequest: requireWriteAccess,
+      schema: {
+        summary: "replace a channel's Type B components (the configuration's `typeB` list): from its next sample, stored, kept across restarts",
+        description: 'The body is `{"typeB": [...]}`, each component as under `channels.*.typeB` in the configuration. A list with problems is refused whole (ERR_TYPE_B_INVALID, 400) with one line per problem naming its key path (`typeB[0].U`); records already written keep the budget they were written with.',
+        security: [{ token: [] }],
+        params: typeBParams,
+        body: { type: 'object', properties: { typeB: {} }, required: ['typeB'], additionalProperties: false },
+        response: { 200: typeBReply, ...errors(400, 401, 403, 404, 413, 415) },
+      },
+    },
+    async (request) => {
+      const { name } = request.params as { name: string };
+      const { typeB } = request.body as { typeB: unknown };
+      return daemon.setChannelTypeB(name, typeB);
+    },
+  );
+
   app.get(
     '/api/channels/:name',
     {

@@ -108,8 +108,9 @@ describe.skipIf(!available)('honest records in Chromium', () => {
     expect(await dpSection.locator('p.provisional').textContent()).toBe(`Provisional. This channel was not ready when the record was made, so its figures are not a measurement result to report: ${dp?.provisionalReasons?.join('; ')}.`);
     expect(await dpSection.locator('h3').first().textContent()).toBe('Figures of the window (provisional: not a result to report)');
     expect(await flowSection.locator('h3').first().textContent()).toBe('Result');
-    const statementStyle = await dpSection.locator('p.statement').evaluate((el) => getComputedStyle(el).borderLeftColor);
-    const validStyle = await flowSection.locator('p.statement').evaluate((el) => getComputedStyle(el).borderLeftColor);
+    const borderOf = (section: typeof flowSection) => section.locator('p.statement').evaluate((el) => (globalThis as unknown as { getComputedStyle(e: unknown): Record<string, string> }).getComputedStyle(el).borderLeftColor);
+    const statementStyle = await borderOf(dpSection);
+    const validStyle = await borderOf(flowSection);
     expect(statementStyle).not.toBe(validStyle);
     // The rig and the record number in the head.
     expect(await page.locator('table.meta').textContent()).toContain('HX-7 (bench HX-7, glycol/water plate heat exchanger)');
@@ -118,16 +119,12 @@ describe.skipIf(!available)('honest records in Chromium', () => {
 
     // Print: the page rule with its margin boxes as Chromium parsed it, each channel's charts kept
     // with it (the chart grid is not split and the heading stays with what follows), and a PDF.
-    const printRules = await page.evaluate(() => {
-      const out: string[] = [];
-      for (const sheet of [...document.styleSheets]) for (const rule of [...sheet.cssRules]) if (rule instanceof CSSPageRule) out.push(rule.cssText);
-      return out;
-    });
+    const printRules = (await page.evaluate('[...document.styleSheets].flatMap((sheet) => [...sheet.cssRules]).filter((rule) => rule instanceof CSSPageRule).map((rule) => rule.cssText)')) as string[];
     expect(printRules.join('\n')).toMatch(/@bottom-right \{[^}]*content: "page " counter\(page\) " of " counter\(pages\)/);
     expect(printRules.join('\n')).toMatch(/@top-left \{[^}]*content: "HX-7 \(bench HX-7, glycol\/water plate heat exchanger\), test point sp-5, record sp-5\/\d"/);
     await page.emulateMedia({ media: 'print' });
-    expect(await flowSection.locator('.grid').evaluate((el) => getComputedStyle(el).breakInside)).toBe('avoid');
-    expect(await flowSection.locator('h2').evaluate((el) => getComputedStyle(el).breakAfter)).toBe('avoid');
+    expect(await flowSection.locator('.grid').evaluate((el) => (globalThis as unknown as { getComputedStyle(e: unknown): Record<string, string> }).getComputedStyle(el).breakInside)).toBe('avoid');
+    expect(await flowSection.locator('h2').evaluate((el) => (globalThis as unknown as { getComputedStyle(e: unknown): Record<string, string> }).getComputedStyle(el).breakAfter)).toBe('avoid');
     await page.screenshot({ path: join(OUTPUT, 'report-print-media.png'), fullPage: false });
     const pdf = await page.pdf({ format: 'A4', printBackground: true });
     const pages = (pdf.toString('latin1').match(/\/Type\s*\/Page[^s]/g) ?? []).length;

@@ -282,3 +282,35 @@ describe('a test point naming an unknown channel', () => {
     }
   }, 120_000);
 });
+
+describe("a channel's Type B components set through the API", () => {
+  it('are kept across restarts: from the checkpoint, and by replay from the marks', async () => {
+    const path = freshFile();
+    const rig = new RigSimulator({ seed: 6, rate: 10, startSeconds: START });
+    const time = { nowMs: START * 1000 };
+    let d = await open(path, rig, time);
+    d.feed(10);
+    const typeB = [{ name: 'reference certificate', kind: 'certificate', expanded: 0.004, coverageFactor: 2 }];
+    const put = await d.app.inject({ method: 'PUT', url: `/api/channels/${FLOW}/type-b`, payload: { typeB } });
+    expect(put.statusCode).toBe(200);
+    const refused = await d.app.inject({ method: 'PUT', url: `/api/channels/${FLOW}/type-b`, payload: { typeB: [{ name: 'bad', kind: 'certificate', expanded: -0.004, coverageFactor: 2 }] } });
+    expect(refused.statusCode).toBe(400);
+    expect((refused.json() as { message: string }).message).toBe('typeB[0].expanded: expected a number at least 0, got -0.004');
+    d.feed(10);
+    const budget = () => d.daemon.channel(FLOW)?.snapshot().combined?.budget.filter((b) => b.evaluation === 'B').map((b) => [b.component, b.standardUncertainty]);
+    const expected = budget();
+    expect(expected).toEqual([['reference certificate', 0.002]]);
+    for (const restart of ['checkpoint', 'replay'] as const) {
+      await d.close();
+      if (restart === 'replay') {
+        const db = new Database(path);
+        db.prepare('DELETE FROM checkpoints').run();
+        db.close();
+      }
+      d = await open(path, rig, time, d.source);
+      expect((await d.get(`/api/channels/${FLOW}/type-b`)).json(), restart).toEqual(put.json());
+      expect(budget(), restart).toEqual(expected);
+    }
+    await d.close();
+  }, 120_000);
+});
