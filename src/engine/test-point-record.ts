@@ -101,7 +101,7 @@ export interface RecordEvidence {
 }
 
 /** Most points a record's trace keeps (pairs of the lowest and highest sample of equal runs). */
-export const RECORD_TRACE_POINTS = 2000;
+export const RECORD_TRACE_POINTS = 1200;
 
 /**
  * Thins a trace of consecutive samples to at most `maxPoints`: the samples are cut into equal runs
