@@ -17,17 +17,20 @@ export class TestPointsView {
     this.message = h('p', { className: 'form-message', role: 'status', id: 'tp-message' });
     this.lock = h('p', { className: 'lock-note', hidden: true });
     this.startButton = h('button', { type: 'submit', className: 'primary', id: 'tp-start', text: 'Start test point' });
+    // What the start will take, said in words (a selection is never carried over silently).
+    this.chosen = h('p', { className: 'chosen muted', id: 'tp-chosen', 'aria-live': 'polite' });
     const form = h(
       'form',
-      { className: 'panel start-form', id: 'tp-form', on: { submit: (e) => this.start(e) } },
+      { className: 'panel start-form', id: 'tp-form', on: { submit: (e) => this.start(e), change: () => this.updateChosen() } },
       h('h2', { text: 'Start a test point' }),
-      h('p', { className: 'muted', text: 'Starting restarts the averaging window of each chosen channel; the test point is ready when all of them are steady at their target precision.' }),
+      h('p', { className: 'muted', text: 'The test point averages each chosen channel from its start, in a window of its own (another test point on the same channel is not disturbed); it is ready when all of them are steady at their target precision.' }),
       h('label', { for: 'tp-name', text: 'Name' }),
       this.nameInput,
       h('div', { className: 'form-row' }, h('span', { className: 'label', text: 'Channels' }), h('button', { type: 'button', className: 'link', text: 'all', on: { click: () => this.selectAll(true) } }), h('button', { type: 'button', className: 'link', text: 'none', on: { click: () => this.selectAll(false) } })),
       this.channelList,
       h('div', { className: 'derived-block' }, h('span', { className: 'label', text: 'Derived results' }), this.derivedList),
       this.lock,
+      this.chosen,
       h('div', { className: 'form-row' }, this.startButton),
       this.message,
     );
@@ -67,10 +70,23 @@ export class TestPointsView {
     }
     this.derivedList.parentElement.hidden = derived.length === 0;
     this.updateLock();
+    this.updateChosen();
   }
 
   selectAll(on) {
     for (const input of this.channelList.querySelectorAll('input')) input.checked = on;
+    this.updateChosen();
+  }
+
+  /** The channels and derived results the start would take, in one line. */
+  updateChosen() {
+    const channels = [...this.channelList.querySelectorAll('input:checked')].map((i) => i.value);
+    const derived = [...this.derivedList.querySelectorAll('input:checked')].map((i) => i.value);
+    const parts = [];
+    if (channels.length) parts.push(`${channels.length} channel${channels.length === 1 ? '' : 's'}: ${channels.join(', ')}`);
+    if (derived.length) parts.push(`${derived.length} derived: ${derived.join(', ')}`);
+    setText(this.chosen, parts.length ? `Will start over ${parts.join('; ')}.` : 'Nothing chosen yet.');
+    this.chosen.classList.toggle('none', parts.length === 0);
   }
 
   async start(event) {
@@ -85,9 +101,12 @@ export class TestPointsView {
     this.startButton.disabled = true;
     try {
       const { testPoint } = await api.startTestPoint({ channels, ...(derived.length ? { derived } : {}), ...(name ? { name } : {}) });
-      this.say(`Started ${testPoint.name}.`, false);
+      // The form starts empty for the next test point: nothing of this one's choice is carried over.
+      this.say(`Started ${testPoint.name} over ${[...channels, ...derived].join(', ')}. The form is cleared for the next test point.`, false);
       this.app.upsertTestPoint(testPoint);
       this.nameInput.value = '';
+      for (const input of this.derivedList.querySelectorAll('input')) input.checked = false;
+      this.selectAll(false);
     } catch (error) {
       this.refused(error);
     } finally {

@@ -63,7 +63,12 @@ export function loadConfigFile(path: string, options: { requireSubscriptions?: b
 /** Validates a parsed configuration document and fills in defaults. */
 export function parseConfig(document: unknown, source = 'config', options: { requireSubscriptions?: boolean } = {}): PlateauConfig {
   const r = new ConfigReader();
-  const root = r.section(document ?? {}, '', ['broker', 'subscriptions', 'channels', 'derived', 'store', 'http', 'topics', 'log', 'scale']);
+  const root = r.section(document ?? {}, '', ['rig', 'broker', 'subscriptions', 'channels', 'derived', 'store', 'http', 'topics', 'log', 'scale']);
+  // The rig a record names (its identification on every record and report).
+  const rigSection = r.section(root.rig, 'rig', ['id', 'name']);
+  const rig = { id: r.string(rigSection, 'id', 'rig', null), name: r.string(rigSection, 'name', 'rig', null) };
+  if (rig.id !== null && !/^[\p{L}\p{N}_.:\-/ ]{1,64}$/u.test(rig.id)) r.problem('rig.id', `expected 1 to 64 letters, digits, spaces or _ . : - /, got "${rig.id.slice(0, 80)}"`);
+  if (rig.name !== null && rig.name.length > 200) r.problem('rig.name', `expected at most 200 characters, got ${rig.name.length}`);
   const brokerSection = r.section(root.broker, 'broker', ['url', 'clientId', 'username', 'password', 'tls', 'protocolVersion', 'qos', 'sessionExpirySeconds', 'keepaliveSeconds', 'reconnectPeriodMs']);
   // A list of URLs is a NATS cluster (JetStream ingest, see scale-config.ts); one nats:// URL too.
   const urlList = Array.isArray(brokerSection.url) ? (brokerSection.url as unknown[]) : null;
@@ -220,7 +225,7 @@ export function parseConfig(document: unknown, source = 'config', options: { req
     if (!checked.ok) for (const line of checked.problems) r.problems.push(line);
   }
   r.throwIfProblems();
-  return { source, broker, subscriptions, channels: { defaults, groups }, derived, store, http, topics, log, ...(scale !== null ? { scale } : {}) };
+  return { source, rig, broker, subscriptions, channels: { defaults, groups }, derived, store, http, topics, log, ...(scale !== null ? { scale } : {}) };
 }
 
 const SETTING_KEYS = ['window', 'maxLag', 'estimator', 'warmup', 'confidence', 'target', 'falseAlarmSamples', 'staleSeconds', 'rate', 'range', 'unit', 'criteria', 'typeB', 'conformity', 'combinedTarget', 'dominanceFraction', 'proposeResolution'];

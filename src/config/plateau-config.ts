@@ -12,6 +12,8 @@ export interface PlateauConfig {
   /** Where the file came from, for messages. */
   source: string;
   broker: BrokerConfig;
+  /** The rig: its identification on every record (null when the configuration names none). */
+  rig?: { id: string | null; name: string | null };
   subscriptions: SubscriptionConfig[];
   channels: { defaults: ChannelSettings; groups: ChannelGroup[] };
   derived: DerivedConfig[];

@@ -209,6 +209,13 @@ export function readDerivedConstants(value: unknown, path: string, reader: Confi
   return out;
 }
 
+/** A list of Type B components and one line per problem (the list is to be used only when there is none). */
+export function parseTypeB(value: unknown, path: string): { typeB: TypeBSpec[]; problems: string[] } {
+  const reader = new ConfigReader();
+  const typeB = readTypeBComponents(value, path, reader);
+  return { typeB, problems: reader.problems };
+}
+
 /** One line per problem in a list of Type B components (empty when it is valid). */
 export function typeBProblems(value: unknown, path: string): string[] {
   const reader = new ConfigReader();

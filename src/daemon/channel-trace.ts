@@ -1,4 +1,5 @@
 import type { Channel } from '../engine/channel.js';
+import type { ChannelPipeline } from '../engine/channel-pipeline.js';
 import type { ChannelTrace } from '../ports/daemon-api.js';
 import type { Store } from '../ports/store.js';
 
@@ -16,11 +17,12 @@ import type { Store } from '../ports/store.js';
  *   originIndex   first sample of the current window run (the test point's start): for a growing
  *                 window the excluded samples lie between it and windowStartIndex
  *   windowStartIndex  first sample averaged now (the warm-up cut, or the change point of a break)
+ * `pending`: the channel's samples not yet committed, read after the stored ones.
+ * `pipeline`: the channel's own, or a test point's window over it (src/engine/channel.ts; its indices are the channel's).
  * Cost: O(count) from the window; reading the store scans the channel's chunk keys (SQLite), so it
  * happens only when the window holds fewer than `count` samples.
  */
-export function channelTrace(store: Store | null, channel: Channel, count: number): ChannelTrace {
-  const pipeline = channel.pipeline;
+export function channelTrace(store: Store | null, channel: Channel, count: number, pipeline: ChannelPipeline = channel.pipeline, pending: { firstSeq: number; times: ArrayLike<number>; values: ArrayLike<number> } | null = null): ChannelTrace {
   const window = pipeline.recentTrace(count);
   const windowStartIndex = window.values.length > 0 ? window.firstIndex : pipeline.totalReceived;
   const excluded = pipeline.options.window.kind === 'growing' ? pipeline.snapshot().excluded : 0;
@@ -35,7 +37,9 @@ export function channelTrace(store: Store | null, channel: Channel, count: numbe
     let expected = from;
     // Store indices are the pipeline's plus the channel's offset (not 0 only after a rebuild from a shortened history).
     const offset = channel.seqOffset;
-    for (const chunk of store.samplesFrom(channel.name, from + offset)) {
+    // The samples not yet committed follow the stored ones (a record made before the commit that holds them).
+    const chunks = pending === null ? store.samplesFrom(channel.name, from + offset) : [...store.samplesFrom(channel.name, from + offset), pending];
+    for (const chunk of chunks) {
       if (chunk.firstSeq - offset >= windowStartIndex) break;
       for (let i = 0; i < chunk.values.length; i++) {
         const seq = chunk.firstSeq - offset + i;

@@ -1,6 +1,7 @@
 import pino, { type Logger } from 'pino';
 import type { PlateauConfig, SubscriptionConfig } from '../config/plateau-config.js';
 import { channelOptionsFromSettings, settingsFor } from '../config/load-config.js';
+import { parseTypeB } from '../config/uncertainty-config.js';
 import { DECODER_DEFAULTS } from '../config/decoder-spec.js';
 import { ChannelRegistry } from '../engine/channel-registry.js';
 import type { ChannelOptions } from '../engine/channel-options.js';
@@ -14,7 +15,7 @@ import { SqliteStore } from '../store/sqlite-store.js';
 import { SystemClock } from '../clock/system-clock.js';
 import { PlateauError } from '../errors/catalogue.js';
 import type { Clock } from '../ports/clock.js';
-import type { Acknowledgement, ChannelView, DaemonApi, DaemonHealth, DerivedView, TestPointRequest, TestPointView } from '../ports/daemon-api.js';
+import type { Acknowledgement, ChannelView, DaemonApi, DaemonHealth, DerivedView, TestPointRequest, TestPointView, TestPointWindowView } from '../ports/daemon-api.js';
 import type { Publisher, VolatileEvent } from '../ports/publisher.js';
 import type { SampleSource, SourceStatus } from '../ports/sample-source.js';
 import type { Store, StoredEvent, StoredRecord } from '../ports/store.js';
@@ -29,6 +30,7 @@ import { ListenerPublisher } from './listener-publisher.js';
 import type { PendingBatch } from './pending-batch.js';
 import { Publishing } from './publishing.js';
 import { Queries } from './queries.js';
+import { channelTrace } from './channel-trace.js';
 import { restoreChannels, restoreTestPoints } from './restore.js';
 import { TestPointControl } from './test-point-control.js';
 
@@ -117,6 +119,7 @@ export class Daemon implements DaemonApi {
     this.testPoints = new TestPoints(this.registry);
     this.derived = new DerivedResults(config, this.registry);
     this.testPoints.useDerived(this.derived);
+    this.testPoints.useRig(config.rig ?? { id: null, name: null });
     this.listeners = new ListenerPublisher((err) => this.log.warn({ err }, 'event listener failed'));
     this.checkpoints = new CheckpointSchedule(config.store.checkpointSamples);
     this.commits = new CommitCycle({
@@ -169,6 +172,10 @@ export class Daemon implements DaemonApi {
       commit: () => this.commits.commit(false),
       raise,
       configuredUnit: (name) => this.configuredUnit(name),
+      trace: (name, pipeline, count) => {
+        const channel = this.registry.get(name);
+        return channel === undefined ? null : channelTrace(this.storeAdapter, channel, count, pipeline, this.commits.batch.pendingSamples(name));
+      },
     });
     this.commands = new Commands({ testPoints: this.control, log: this.log, rejected: (reason, detail) => this.ingestion.rejected(reason, detail), raise });
     this.publishing = new Publishing({ publishers: () => this.publishers, registry: this.registry, testPoints: this.testPoints, clock: this.clock });
@@ -217,7 +224,7 @@ export class Daemon implements DaemonApi {
     this.storeAdapter = store;
     const summary = restoreChannels(store, this.registry, this.ingestion, this.log);
     for (const [channel, seq] of summary.checkpointAt) this.checkpoints.stored(channel, seq);
-    restoreTestPoints(store, this.testPoints);
+    restoreTestPoints(store, this.testPoints, this.registry);
     this.derived.restored();
     this.publishing.lastEventId = store.lastEventId();
     const counters = store.counters();
@@ -457,6 +464,10 @@ export class Daemon implements DaemonApi {
     return this.queries.records(testPointId);
   }
 
+  testPointWindows(id: string, count: number): TestPointWindowView[] {
+    return this.queries.testPointWindows(id, count);
+  }
+
   startTestPoint(request: TestPointRequest): TestPointView {
     return this.control.start(request);
   }
@@ -467,6 +478,24 @@ export class Daemon implements DaemonApi {
 
   annotateTestPoint(id: string, text: string): TestPointView {
     return this.control.annotate(id, text);
+  }
+
+  setChannelTypeB(name: string, typeB: unknown): { channel: string; typeB: unknown[] } {
+    const channel = this.registry.get(name);
+    if (channel === undefined) throw new PlateauError('ERR_CHANNEL_UNKNOWN', { name: name.slice(0, 80) });
+    const parsed = parseTypeB(typeB, 'typeB');
+    if (parsed.problems.length > 0) throw new PlateauError('ERR_TYPE_B_INVALID', { detail: parsed.problems.join('\n') });
+    this.requireStore();
+    const mark = channel.setTypeB(parsed.typeB);
+    this.commits.batch.addMark({ channel: channel.name, seq: mark.seq, kind: mark.kind });
+    this.queueEvent(channel.name, 'type-b-changed', null, { typeB: parsed.typeB });
+    if (!this.commits.commit(false)) this.requireStore();
+    return { channel: channel.name, typeB: [...channel.typeB] };
+  }
+
+  channelTypeB(name: string): { channel: string; typeB: unknown[] } | null {
+    const channel = this.registry.get(name);
+    return channel === undefined ? null : { channel: channel.name, typeB: [...channel.typeB] };
   }
 
   acknowledgeEvent(id: number, note: string | null): { acknowledgement: Acknowledgement; already: boolean } {

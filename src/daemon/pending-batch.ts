@@ -74,6 +74,11 @@ export class PendingBatch {
     this.samples++;
   }
 
+  /** The channel's samples waiting for a commit (they follow the stored ones), or null. */
+  pendingSamples(channel: string): { firstSeq: number; times: readonly number[]; values: readonly number[] } | null {
+    return this.chunks.get(channel) ?? null;
+  }
+
   addEvent(event: EventToWrite): void {
     this.events.push(event);
   }

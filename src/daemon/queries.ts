@@ -1,6 +1,6 @@
 import type { ChannelRegistry } from '../engine/channel-registry.js';
 import type { Channel } from '../engine/channel.js';
-import type { ChannelView, DerivedView, TestPointView, TraceGap } from '../ports/daemon-api.js';
+import type { ChannelView, DerivedView, TestPointView, TestPointWindowView, TraceGap } from '../ports/daemon-api.js';
 import type { Store, StoredEvent, StoredRecord } from '../ports/store.js';
 import { channelTrace } from './channel-trace.js';
 import type { DerivedResults } from './derived-results.js';
@@ -78,6 +78,15 @@ export class Queries {
 
   testPoint(id: string): TestPointView | null {
     return this.options.testPoints.view(id);
+  }
+
+  /** Test point `id`'s window over each of its channels now: snapshot, trace (`count` samples at most) and CUSUM sums. */
+  testPointWindows(id: string, count: number): TestPointWindowView[] {
+    return this.options.testPoints.windows(id).flatMap(({ name, pipeline }) => {
+      const channel = this.options.registry.get(name);
+      if (channel === undefined) return [];
+      return [{ name, unit: channel.unit, snapshot: pipeline.snapshot(), trace: channelTrace(this.options.store(), channel, count, pipeline), cusum: pipeline.cusumTrace() }];
+    });
   }
 
   records(testPointId: string): StoredRecord[] {

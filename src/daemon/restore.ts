@@ -48,6 +48,9 @@ export function restoreChannels(store: Store, registry: ChannelRegistry, ingest:
 }
 
 /** The stored test points (their windows were restored with the channels, by the marks). */
-export function restoreTestPoints(store: Store, testPoints: TestPoints): void {
+export function restoreTestPoints(store: Store, testPoints: TestPoints, registry: ChannelRegistry): void {
   testPoints.load(store.testPoints() as TestPoint[]);
+  // A window whose close was not replayed (a test point stopped at the index it started at): only running test points keep theirs.
+  const running = new Set(testPoints.list().filter((p) => p.state !== 'stopped').map((p) => p.id));
+  for (const channel of registry.all()) channel.keepWindows((id) => running.has(id));
 }

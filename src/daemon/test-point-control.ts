@@ -1,5 +1,7 @@
 import type { ChannelRegistry } from '../engine/channel-registry.js';
 import type { TestPointChange, TestPoints } from '../engine/test-points.js';
+import type { ChannelPipeline } from '../engine/channel-pipeline.js';
+import { decimateTrace } from '../engine/test-point-record.js';
 import type { Clock } from '../ports/clock.js';
 import type { TestPointRequest, TestPointView } from '../ports/daemon-api.js';
 import type { DerivedResults } from './derived-results.js';
@@ -27,7 +29,12 @@ export interface TestPointControlOptions {
   commit(): void;
   raise(source: string, kind: string, at: number | null, body: Record<string, unknown>): void;
   configuredUnit(name: string): string | null;
+  /** The trace of `pipeline` (a test point's window over channel `name`), `count` samples at most, completed from the store before the window. */
+  trace(name: string, pipeline: ChannelPipeline, count: number): { firstIndex: number; times: (number | null)[]; values: number[]; windowStartIndex: number; originIndex: number } | null;
 }
+
+/** Most samples a record's trace is read from (then decimated to RECORD_TRACE_POINTS). */
+const RECORD_TRACE_SAMPLES = 400_000;
 
 export class TestPointControl {
   private readonly options: TestPointControlOptions;
@@ -64,7 +71,9 @@ export class TestPointControl {
 
   stop(id: string): TestPointView {
     this.options.requireStore();
-    this.apply(this.options.testPoints.stop(id, this.options.clock.now()));
+    const change = this.options.testPoints.stop(id, this.options.clock.now());
+    this.apply(change);
+    for (const mark of this.options.testPoints.closeWindows(change.point)) this.options.batch.addMark(mark);
     this.options.commit();
     return this.view(id) as TestPointView;
   }
@@ -88,6 +97,16 @@ export class TestPointControl {
     return point ? { ...point, verdict: this.options.testPoints.verdict(point) } : null;
   }
 
+  /** The test point's window over each of its channels now (for a report before any record). */
+  windows(id: string): { name: string; pipeline: ChannelPipeline }[] {
+    const point = this.options.testPoints.get(id);
+    if (!point) return [];
+    return point.channels.flatMap((name) => {
+      const pipeline = this.options.testPoints.windowOf(point, name);
+      return pipeline ? [{ name, pipeline }] : [];
+    });
+  }
+
   views(): TestPointView[] {
     return this.options.testPoints.list().map((point) => ({ ...point, verdict: this.options.testPoints.verdict(point) }));
   }
@@ -98,9 +117,18 @@ export class TestPointControl {
     const body: Record<string, unknown> = { testPoint: change.point.id, name: change.point.name, channels: change.point.channels, state: change.point.state };
     if (change.kind !== 'test-point-started') {
       // Samples missing within each channel's window (the gap detectors are the daemon's).
-      for (const entry of change.record.entries) entry.gaps = this.options.ingest.gapsWithin(entry.channel, entry.windowStartTime, entry.windowEndTime);
+      for (const entry of change.record.entries) {
+        entry.gaps = this.options.ingest.gapsWithin(entry.channel, entry.windowStartTime, entry.windowEndTime);
+        // The recorded window's trace, frozen with the record (the report draws it, never the live channel).
+        const pipeline = this.options.testPoints.windowOf(change.point, entry.channel);
+        if (entry.evidence && pipeline) {
+          const trace = this.options.trace(entry.channel, pipeline, Math.min(RECORD_TRACE_SAMPLES, entry.n + entry.excluded));
+          entry.evidence.trace = trace === null ? null : decimateTrace(trace);
+        }
+      }
       batch.addRecord(change.point.id, change.record);
-      body.record = change.record;
+      // The event carries the record without what only its report draws (the API has the whole record).
+      body.record = { ...change.record, entries: change.record.entries.map(({ evidence: _evidence, ...entry }) => entry) };
     }
     this.options.raise(change.point.id, change.kind, null, body);
   }

@@ -397,6 +397,12 @@ export class ChannelPipeline {
     }
   }
 
+  /** The options' uncertainty settings were replaced (Type B components from the API): read them afresh. */
+  settingsChanged(): void {
+    this.snapshotCache = null;
+    this.latticeCache = null;
+  }
+
   /** The test point's set point for the rules that take it (null: none), from the next sample on. */
   setSetPoint(value: number | null): void {
     if (this.criteria === null) return;

@@ -21,7 +21,14 @@ import type { ChannelCriteriaState } from './criteria/channel-criteria.js';
  * confidence, the target, the rate and the stale time (they decide later verdicts, and a replay
  * would only rewrite events already published).
  */
-export interface ChannelRecord extends StateRecord<'channel', 1 | 2> {
+/** Version 3: the test points' windows over the channel (src/engine/channel.ts). */
+export interface ChannelWindowsState {
+  attached: string[];
+  lastRestartAt: number;
+  forks: { id: string; pipeline: ChannelPipelineState; criteria: ChannelCriteriaState | null }[];
+}
+
+export interface ChannelRecord extends StateRecord<'channel', 1 | 2 | 3> {
   /** Every option the state was built under (for the log, when they differ). */
   options: Record<string, unknown>;
   /** Fingerprint of the shaping options. */
@@ -37,10 +44,16 @@ export interface ChannelRecord extends StateRecord<'channel', 1 | 2> {
    * rules, replayed from the stored samples when it has (the rules need the readings).
    */
   criteria?: ChannelCriteriaState | null;
+  /**
+   * Version 3: the test points' own windows (attached to the pipeline, or forked from it). Versions
+   * 1 and 2 have none, which is what they were: before version 3 no test point had a window of its
+   * own (a test point started then reads the channel's pipeline).
+   */
+  windows?: ChannelWindowsState;
 }
 
 /** The channel record this plateau writes. */
-export const CHANNEL_RECORD_VERSION = 2;
+export const CHANNEL_RECORD_VERSION = 3;
 
 export const SHAPING_OPTIONS = ['window', 'maxLag', 'estimator', 'warmup', 'falseAlarmSamples', 'detectors'] as const;
 
@@ -64,8 +77,8 @@ export function optionsIdentity(options: ChannelOptions): OptionsIdentity {
   return { plain: plainOptions(options), fingerprint: shapingFingerprint(options) };
 }
 
-export function channelRecord(identity: OptionsIdentity, seqOffset: number, pipeline: ChannelPipelineState, steadiness: SteadinessState, criteria: ChannelCriteriaState | null = null): ChannelRecord {
-  return { record: 'channel', version: CHANNEL_RECORD_VERSION, options: identity.plain, fingerprint: identity.fingerprint, seqOffset, pipeline, steadiness, criteria };
+export function channelRecord(identity: OptionsIdentity, seqOffset: number, pipeline: ChannelPipelineState, steadiness: SteadinessState, criteria: ChannelCriteriaState | null = null, windows: ChannelWindowsState = { attached: [], lastRestartAt: -1, forks: [] }): ChannelRecord {
+  return { record: 'channel', version: CHANNEL_RECORD_VERSION, options: identity.plain, fingerprint: identity.fingerprint, seqOffset, pipeline, steadiness, criteria, windows };
 }
 
 export type CheckpointDecision =
@@ -79,6 +92,8 @@ export type CheckpointDecision =
       carriedOver: string[];
       /** The stability rules' state (null: none saved); the channel replays when it does not fit its rules. */
       criteria: ChannelCriteriaState | null;
+      /** The test points' windows (null before version 3: none). */
+      windows: ChannelWindowsState | null;
     }
   | { action: 'replay'; reason: string };
 
@@ -98,7 +113,7 @@ export function decideCheckpoint(raw: unknown, options: ChannelOptions, identity
   if (isLegacyPipeline(raw)) return { action: 'replay', reason: EARLIER_ENGINE(1) };
   const record = raw as Partial<ChannelRecord> | null;
   if (record === null || typeof record !== 'object' || record.record !== 'channel') return { action: 'replay', reason: 'the checkpoint is not a channel record' };
-  if (record.version !== 1 && record.version !== CHANNEL_RECORD_VERSION) return { action: 'replay', reason: `the checkpoint is a channel record of version ${String(record.version)}, which this plateau does not know (it knows versions 1 and ${CHANNEL_RECORD_VERSION})` };
+  if (record.version !== 1 && record.version !== 2 && record.version !== CHANNEL_RECORD_VERSION) return { action: 'replay', reason: `the checkpoint is a channel record of version ${String(record.version)}, which this plateau does not know (it knows versions 1 to ${CHANNEL_RECORD_VERSION})` };
   if (record.fingerprint !== identity.fingerprint) {
     const changed = differingKeys(pick(record.options ?? {}, SHAPING_OPTIONS), pick(identity.plain, SHAPING_OPTIONS));
     return { action: 'replay', reason: `the checkpoint was made under other options (${changed.join(', ') || 'fingerprint'})` };
@@ -115,6 +130,7 @@ export function decideCheckpoint(raw: unknown, options: ChannelOptions, identity
     steadiness: record.steadiness ?? null,
     carriedOver: differingKeys(record.options ?? {}, identity.plain),
     criteria: record.criteria ?? null,
+    windows: record.windows ?? null,
   };
 }
 

@@ -1,7 +1,9 @@
-import { ChannelPipeline } from './channel-pipeline.js';
-import type { ChannelOptions } from './channel-options.js';
+import { ChannelPipeline, type ChannelPipelineState } from './channel-pipeline.js';
+import type { ChannelCriteriaState } from './criteria/channel-criteria.js';
+import { DEFAULT_UNCERTAINTY_SETTINGS, type ChannelOptions, type UncertaintySettings } from './channel-options.js';
+import type { TypeBSpec } from '../core/uncertainty/type-b-component.js';
 import type { ChannelEvent } from './channel-events.js';
-import { channelRecord, decideCheckpoint, optionsIdentity, type ChannelRecord, type OptionsIdentity } from './channel-state.js';
+import { channelRecord, decideCheckpoint, optionsIdentity, type ChannelRecord, type ChannelWindowsState, type OptionsIdentity } from './channel-state.js';
 import { SteadyHistory } from './steadiness.js';
 import { parseSetPointMark, setPointMark } from './criteria/set-point-mark.js';
 
@@ -57,7 +59,27 @@ export type AcceptResult =
  */
 export interface WindowMark {
   seq: number;
-  kind: 'restart-window' | `set-point:${string}`;
+  kind: 'restart-window' | `set-point:${string}` | `open:${string}` | `close:${string}` | `type-b:${string}`;
+}
+
+/** The mark of the channel's Type B components set through the API: `type-b:<JSON list>`. */
+const TYPE_B_MARK = 'type-b:';
+
+/**
+ * A test point's own window over the channel (issue 10: two test points sharing a channel do not
+ * disturb each other). While nothing has changed the channel's pipeline since the test point
+ * started, its window IS the channel's pipeline (attached: no cost). The moment another window
+ * restart or set point would change the channel's pipeline, every attached window is forked first:
+ * it becomes a pipeline of its own, a copy of the channel's state at that sample, fed every sample
+ * after it. So each test point's window is exactly what the channel's pipeline would have been had
+ * only that test point started, at no cost while one test point holds the channel. Marks
+ * `open:<id>` and `close:<id>` are stored beside the window restarts and replayed at their index;
+ * forked windows are part of the channel's checkpoint.
+ */
+export interface WindowState {
+  id: string;
+  pipeline: ChannelPipelineState;
+  criteria: ChannelCriteriaState | null;
 }
 
 /** A stored sample run, as the store hands it back (times in epoch ms). */
@@ -106,6 +128,10 @@ export class Channel {
   /** The last RECENT_TIMES accepted payload times (a ring), for duplicate and lateness checks. */
   private readonly recentTimes = new Float64Array(RECENT_TIMES);
   private recentCount = 0;
+  /** Test points whose window is the channel's pipeline (nothing has restarted it since they started). */
+  private readonly attached = new Set<string>();
+  /** Test points whose window was forked from the channel's pipeline when something else changed it. */
+  private readonly forks = new Map<string, ChannelPipeline>();
 
   constructor(name: string, unit: string | null, options: ChannelOptions) {
     this.name = name;
@@ -157,9 +183,79 @@ export class Channel {
   /** Starts a new growing window at the next sample (a test point starts); returns the mark to store. */
   restartWindow(): WindowMark {
     const mark: WindowMark = { seq: this.nextSeq, kind: 'restart-window' };
+    this.applyRestart();
+    return mark;
+  }
+
+  private applyRestart(): void {
+    // A restart of a window that has taken no sample since the last one changes nothing (a mark replayed twice).
+    if (this.current.totalReceived > this.lastRestartAt) this.detachAll();
+    this.lastRestartAt = this.current.totalReceived;
     this.steadiness.restart(this.current.totalReceived);
     this.current.restartWindow();
-    return mark;
+  }
+
+  /** Pipeline sample count at the last window restart (-1: none yet). */
+  private lastRestartAt = -1;
+
+  /** Forks every attached test-point window: it keeps the channel's state as it is now. */
+  private detachAll(): void {
+    for (const id of this.attached) this.forks.set(id, this.fork());
+    this.attached.clear();
+  }
+
+  private fork(): ChannelPipeline {
+    const copy = new ChannelPipeline(this.name, this.options);
+    copy.loadState(structuredClone(this.current.saveState()));
+    const criteria = this.current.criteria;
+    if (criteria !== null) copy.criteria?.loadState(structuredClone(criteria.saveState()));
+    return copy;
+  }
+
+  /**
+   * Opens test point `id`'s window at the next sample: the channel's pipeline as it is now (call it
+   * after the restart and the set point of the test point's start). Returns the mark to store.
+   */
+  openWindow(id: string): WindowMark {
+    this.applyOpen(id);
+    return { seq: this.nextSeq, kind: `open:${id}` };
+  }
+
+  private applyOpen(id: string): void {
+    this.forks.delete(id);
+    this.attached.add(id);
+  }
+
+  /** Closes test point `id`'s window (the test point stopped); null when it had none. */
+  closeWindow(id: string): WindowMark | null {
+    if (!this.hasWindow(id)) return null;
+    this.applyClose(id);
+    return { seq: this.nextSeq, kind: `close:${id}` };
+  }
+
+  private applyClose(id: string): void {
+    this.forks.delete(id);
+    this.attached.delete(id);
+  }
+
+  hasWindow(id: string): boolean {
+    return this.attached.has(id) || this.forks.has(id);
+  }
+
+  /** Test point `id`'s window: the channel's pipeline while attached, its fork after; null when it has none. */
+  windowOf(id: string): ChannelPipeline | null {
+    if (this.attached.has(id)) return this.current;
+    return this.forks.get(id) ?? null;
+  }
+
+  /** The test points with a window on this channel (attached or forked). */
+  windowIds(): string[] {
+    return [...this.attached, ...this.forks.keys()];
+  }
+
+  /** Drops the windows of test points not in `keep` (after a restore: test points stopped meanwhile). */
+  keepWindows(keep: (id: string) => boolean): void {
+    for (const id of this.windowIds()) if (!keep(id)) this.applyClose(id);
   }
 
   /**
@@ -172,8 +268,45 @@ export class Channel {
     if (criteria === null) return null;
     const next = value !== null && Number.isFinite(value) ? value : null;
     if (next === criteria.setPoint) return null; // unchanged: nothing to replay
-    this.current.setSetPoint(next);
+    this.applySetPoint(next);
     return { seq: this.nextSeq, kind: setPointMark(value) };
+  }
+
+  private applySetPoint(value: number | null): void {
+    const criteria = this.current.criteria;
+    if (criteria === null || value === criteria.setPoint) return;
+    this.detachAll();
+    this.current.setSetPoint(value);
+  }
+
+  /**
+   * Replaces the channel's Type B components (from the API) from the next sample on; returns the
+   * mark to store, replayed at its index (and the latest one before a checkpoint applied at load),
+   * so a restart keeps them. Every window over the channel (test points' forks too) takes them.
+   */
+  setTypeB(typeB: readonly TypeBSpec[]): WindowMark {
+    this.applyTypeB(typeB);
+    return { seq: this.nextSeq, kind: `${TYPE_B_MARK}${JSON.stringify(typeB)}` };
+  }
+
+  /** The Type B components in force. */
+  get typeB(): readonly TypeBSpec[] {
+    return this.options.uncertainty?.typeB ?? [];
+  }
+
+  private applyTypeB(typeB: readonly TypeBSpec[]): void {
+    // One options object is shared by the pipeline and every fork: each reads it at its next snapshot.
+    (this.options as { uncertainty?: UncertaintySettings }).uncertainty = { ...(this.options.uncertainty ?? DEFAULT_UNCERTAINTY_SETTINGS), typeB: typeB.map((c) => ({ ...c })) };
+    this.current.settingsChanged();
+    for (const fork of this.forks.values()) fork.settingsChanged();
+  }
+
+  private applyTypeBMark(kind: string): void {
+    try {
+      this.applyTypeB(JSON.parse(kind.slice(TYPE_B_MARK.length)) as TypeBSpec[]);
+    } catch {
+      // A mark this plateau did not write: ignored (the configured components stay).
+    }
   }
 
   /** Whether the channel was steady when it took its sample of pipeline index `index` (see src/engine/steadiness.ts). */
@@ -183,7 +316,8 @@ export class Channel {
 
   /** The checkpoint to store: the channel record and the index of the next sample. */
   checkpoint(): { seq: number; state: ChannelRecord } {
-    return { seq: this.nextSeq, state: channelRecord(this.identity, this.offset, this.current.saveState(), this.steadiness.state(), this.current.criteria?.saveState() ?? null) };
+    const windows = { attached: [...this.attached], lastRestartAt: this.lastRestartAt, forks: [...this.forks].map(([id, fork]): WindowState => ({ id, pipeline: fork.saveState(), criteria: fork.criteria?.saveState() ?? null })) };
+    return { seq: this.nextSeq, state: channelRecord(this.identity, this.offset, this.current.saveState(), this.steadiness.state(), this.current.criteria?.saveState() ?? null, windows) };
   }
 
   /** Rebuilds a new channel from its checkpoint (or none) and its stored samples and marks. */
@@ -203,6 +337,7 @@ export class Channel {
             outcome = 'replayed';
             detail = 'the stability rules changed since the checkpoint (or it holds no state of them)';
           } else {
+            this.loadWindows(decision.windows);
             if (decision.steadiness !== null) this.steadiness.load(decision.steadiness);
             else this.steadiness.noteEvents(decision.pipeline.recentEvents);
             this.offset = decision.seqOffset;
@@ -220,6 +355,9 @@ export class Channel {
         detail = decision.reason;
       }
     }
+    // Type B components set through the API before the checkpoint: the latest one is in force at it.
+    const settings = history.marksFrom(0).filter((m) => m.kind.startsWith(TYPE_B_MARK) && m.seq < from);
+    if (settings.length > 0 && outcome === 'loaded') this.applyTypeBMark((settings.at(-1) as { kind: string }).kind);
     if (outcome === 'replayed' || outcome === 'fresh') {
       // Every stored sample, from the first one kept.
       const runs = history.samplesFrom(0)[Symbol.iterator]();
@@ -236,6 +374,19 @@ export class Channel {
     return { outcome, detail, ...this.replay(history.samplesFrom(Math.max(this.offset, from - RECENT_TIMES)), history.marksFrom(from), from) };
   }
 
+  /** The test-point windows of a checkpoint (none before channel record version 3). */
+  private loadWindows(windows: ChannelWindowsState | null): void {
+    if (windows === null) return;
+    for (const id of windows.attached) this.attached.add(id);
+    this.lastRestartAt = windows.lastRestartAt;
+    for (const w of windows.forks) {
+      const fork = new ChannelPipeline(this.name, this.options);
+      fork.loadState(w.pipeline);
+      if (fork.criteria !== null && !fork.criteria.loadState(w.criteria)) throw new Error(`the window of test point ${w.id} holds no state of the stability rules now configured`);
+      this.forks.set(w.id, fork);
+    }
+  }
+
   /**
    * `fromSeq` is the store index of the first sample the pipeline has not seen; `samples` start at
    * or before max(offset, fromSeq - RECENT_TIMES) when they still exist; `marks` are the window
@@ -246,17 +397,23 @@ export class Channel {
     let replayed = 0;
     let forced = 0;
     const applyMarks = (seq: number) => {
+      // The marks of one index in one order whatever order the store returns them in: closes, the
+      // restart, the set point, then opens (a test point's start stores restart, set point, open).
+      const due: { seq: number; kind: string }[] = [];
       while (markIndex < marks.length && (marks[markIndex] as { seq: number }).seq <= seq) {
         const mark = marks[markIndex] as { seq: number; kind: string };
-        if (mark.seq === seq && mark.kind === 'restart-window') {
-          this.steadiness.restart(this.current.totalReceived);
-          this.current.restartWindow();
-        } else if (mark.seq === seq) {
-          const setPoint = parseSetPointMark(mark.kind);
-          if (setPoint !== undefined) this.current.setSetPoint(setPoint);
-        }
+        if (mark.seq === seq) due.push(mark);
         markIndex++;
       }
+      if (due.length === 0) return;
+      for (const mark of due) if (mark.kind.startsWith('close:')) this.applyClose(mark.kind.slice(6));
+      if (due.some((m) => m.kind === 'restart-window')) this.applyRestart();
+      for (const mark of due) {
+        const setPoint = parseSetPointMark(mark.kind);
+        if (setPoint !== undefined) this.applySetPoint(setPoint);
+      }
+      for (const mark of due) if (mark.kind.startsWith('open:')) this.applyOpen(mark.kind.slice(5));
+      for (const mark of due) if (mark.kind.startsWith(TYPE_B_MARK)) this.applyTypeBMark(mark.kind);
     };
     for (const run of samples) {
       for (let i = 0; i < run.values.length; i++) {
@@ -307,6 +464,8 @@ export class Channel {
     this.admitted = time;
     const events = this.current.push(value, time / 1000);
     if (events.length > 0) this.steadiness.noteEvents(events);
+    // A forked test-point window takes every sample too; its events are its own (the test point reads its verdict).
+    for (const fork of this.forks.values()) fork.push(value, time / 1000);
     return events;
   }
 

@@ -71,10 +71,78 @@ export interface RecordEntry {
    */
   provisional?: boolean;
   provisionalReasons?: string[];
+  /**
+   * What the report shows of this entry, frozen when the record was made (issue 10: the record and
+   * its report describe the same window): the window's snapshot (estimators, evidence, ACF, Allan
+   * deviation; its event list left out), the CUSUM sums and a decimated trace of the window.
+   */
+  evidence?: RecordEvidence;
+}
+
+/** A record's trace: the recorded window's samples (with the warm-up before it, when the store still had it), decimated. */
+export interface RecordTrace {
+  /** Channel sample index of each point kept. */
+  indices: number[];
+  /** Seconds since the epoch (null when unknown). */
+  times: (number | null)[];
+  values: number[];
+  windowStartIndex: number;
+  originIndex: number;
+  /** Samples the trace stood for before decimation. */
+  samples: number;
+  /** How it was thinned, or null when every sample is kept. */
+  decimation: string | null;
+}
+
+export interface RecordEvidence {
+  snapshot: ChannelSnapshot;
+  cusum: { blockSize: number; decisionInterval: number; upper: number[]; lower: number[]; alarmed?: boolean } | null;
+  trace: RecordTrace | null;
+}
+
+/** Most points a record's trace keeps (pairs of the lowest and highest sample of equal runs). */
+export const RECORD_TRACE_POINTS = 1200;
+
+/**
+ * Thins a trace of consecutive samples to at most `maxPoints`: the samples are cut into equal runs
+ * and each run keeps its lowest and its highest sample, in their order, so the drawn envelope keeps
+ * every spike and step (a mean per run would hide them). Runs never straddle the window's start.
+ */
+export function decimateTrace(trace: { firstIndex: number; times: (number | null)[]; values: number[]; windowStartIndex: number; originIndex: number }, maxPoints = RECORD_TRACE_POINTS): RecordTrace {
+  const n = trace.values.length;
+  const base = { windowStartIndex: trace.windowStartIndex, originIndex: trace.originIndex, samples: n };
+  if (n <= maxPoints) return { ...base, indices: trace.values.map((_, i) => trace.firstIndex + i), times: [...trace.times], values: [...trace.values], decimation: null };
+  const run = Math.ceil((2 * n) / maxPoints);
+  const indices: number[] = [];
+  const times: (number | null)[] = [];
+  const values: number[] = [];
+  const keep = (i: number) => {
+    indices.push(trace.firstIndex + i);
+    times.push(trace.times[i] ?? null);
+    values.push(trace.values[i] as number);
+  };
+  const split = Math.min(n, Math.max(0, trace.windowStartIndex - trace.firstIndex));
+  for (const [from, to] of [[0, split], [split, n]] as const) {
+    for (let start = from; start < to; start += run) {
+      const end = Math.min(to, start + run);
+      let lo = start;
+      let hi = start;
+      for (let i = start + 1; i < end; i++) {
+        if ((trace.values[i] as number) < (trace.values[lo] as number)) lo = i;
+        if ((trace.values[i] as number) > (trace.values[hi] as number)) hi = i;
+      }
+      keep(Math.min(lo, hi));
+      if (hi !== lo) keep(Math.max(lo, hi));
+    }
+  }
+  return { ...base, indices, times, values, decimation: `the lowest and highest sample of each run of ${run}` };
 }
 
 export interface TestPointRecord {
-  testPoint: { id: string; name: string };
+  /** The test point, with its times in ISO 8601 (UTC, zone Z). */
+  testPoint: { id: string; name: string; startedAt?: string; readyAt?: string | null; stoppedAt?: string | null; setPoints?: Record<string, number> };
+  /** The rig as the configuration names it (null parts when it does not). */
+  rig?: { id: string | null; name: string | null };
   /** "<test point id>/<n>": 1 for the first record of the test point, 2 for a stop record after a ready one. */
   recordNumber?: string;
   /** Some entry was not ready when the record was made (each entry says why). */
@@ -209,13 +277,20 @@ export function combinedCells(entry: { combined?: CombinedReport | null; conform
   ];
 }
 
+/** The rig in one cell: "id (name)", either alone, or null when the configuration names none. */
+export function rigText(rig: TestPointRecord['rig']): string | null {
+  if (!rig || (rig.id === null && rig.name === null)) return null;
+  if (rig.id !== null && rig.name !== null) return `${rig.id} (${rig.name})`;
+  return rig.id ?? rig.name;
+}
+
 /**
  * CSV (RFC 4180) of a record's entries; full-precision numbers, one row per channel; then the
  * combined uncertainty, the conformity outcome with its decision rule, whether the entry is
  * provisional and why, and the caution (in every row, so that no extract of the file loses it).
  */
 export function recordCsv(record: TestPointRecord): string {
-  const header = [...CSV_COLUMNS, 'heidelbergerWelchPassed', 'gewekeZ', 'kpssStatistic', 'statement', 'criteria', ...COMBINED_CSV_COLUMNS, 'provisional', 'provisionalReasons', 'caution'];
+  const header = [...CSV_COLUMNS, 'heidelbergerWelchPassed', 'gewekeZ', 'kpssStatistic', 'statement', 'criteria', ...COMBINED_CSV_COLUMNS, 'provisional', 'provisionalReasons', 'rig', 'testPoint', 'recordNumber', 'recordKind', 'recordCreatedAt', 'caution'];
   const rows = record.entries.map((entry) => [
     ...CSV_COLUMNS.map((key) => entry[key] as unknown),
     entry.tests.heidelbergerWelchPassed,
@@ -226,6 +301,11 @@ export function recordCsv(record: TestPointRecord): string {
     ...combinedCells(entry),
     entry.provisional ?? null,
     (entry.provisionalReasons ?? []).join('; '),
+    rigText(record.rig),
+    `${record.testPoint.id} (${record.testPoint.name})`,
+    record.recordNumber ?? null,
+    record.kind,
+    record.createdAt,
     record.caution,
   ]);
   return csvText(header, rows);

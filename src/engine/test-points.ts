@@ -1,13 +1,14 @@
 import type { ChannelPipeline } from './channel-pipeline.js';
 import type { ChannelRegistry } from './channel-registry.js';
 import { PlateauError } from '../errors/catalogue.js';
-import { recordEntry, RECORD_CAUTION, type TestPointRecord } from './test-point-record.js';
+import { recordEntry, RECORD_CAUTION, type RecordEvidence, type TestPointRecord } from './test-point-record.js';
 import { channelBootstrapCheck } from './derived/bootstrap-cross-check.js';
 
 /**
  * Test points: a set of channels held at one set point. Starting one restarts the growing window of
  * each of its channels at its next sample (a mark the store keeps, so a replay restarts it at the
- * same sample); the test point is ready when every channel's verdict is ready (steady, at its
+ * same sample) and opens the test point's own window over each (src/engine/channel.ts: a later test
+ * point on the same channel forks it, never restarts it; its verdict and records read it); the test point is ready when every channel's verdict is ready (steady, at its
  * target precision when it has one) and every derived result it holds is at target. Readiness is edge-triggered: the
  * record is written once, when it becomes ready, and again when the test point stops.
  */
@@ -70,6 +71,7 @@ export class TestPoints {
   private readonly registry: ChannelRegistry;
   private derived: DerivedStatus | null = null;
   private sequence = 0;
+  private rig: { id: string | null; name: string | null } = { id: null, name: null };
 
   constructor(registry: ChannelRegistry) {
     this.registry = registry;
@@ -77,6 +79,11 @@ export class TestPoints {
 
   useDerived(derived: DerivedStatus): void {
     this.derived = derived;
+  }
+
+  /** The rig every record names (from the configuration). */
+  useRig(rig: { id: string | null; name: string | null }): void {
+    this.rig = { ...rig };
   }
 
   list(): TestPoint[] {
@@ -130,6 +137,9 @@ export class TestPoints {
       // The stability rules that take their set point from the test point: this one's, or none.
       const setPoint = channel.setSetPoint(setPoints[name] ?? null);
       if (setPoint !== null) marks.push({ channel: name, seq: setPoint.seq, kind: setPoint.kind });
+      // Its own window from here: another test point's start later forks it rather than restarting it.
+      const open = channel.openWindow(id);
+      marks.push({ channel: name, seq: open.seq, kind: open.kind });
     }
     const point: TestPoint = {
       id,
@@ -148,11 +158,29 @@ export class TestPoints {
     return { kind: 'test-point-started', point, marks };
   }
 
+  /** Stops a test point and makes its record; the caller closes its windows (`closeWindows`) once it has read what it needs of them. */
   stop(id: string, nowMs: number): TestPointChange {
     const point = this.requireRunning(id);
     point.state = 'stopped';
     point.stoppedMs = nowMs;
     return { kind: 'test-point-stopped', point, record: this.record(point, 'stopped', nowMs) };
+  }
+
+  /** Closes a stopped test point's windows; returns the marks to store. */
+  closeWindows(point: TestPoint): { channel: string; seq: number; kind: string }[] {
+    const marks: { channel: string; seq: number; kind: string }[] = [];
+    for (const name of point.channels) {
+      const close = this.registry.get(name)?.closeWindow(point.id) ?? null;
+      if (close !== null) marks.push({ channel: name, seq: close.seq, kind: close.kind });
+    }
+    return marks;
+  }
+
+  /** The window of test point `point` over `name`: its own, or the channel's pipeline (a test point from before windows of their own). */
+  windowOf(point: TestPoint, name: string): ChannelPipeline | undefined {
+    const channel = this.registry.get(name);
+    if (!channel) return undefined;
+    return channel.windowOf(point.id) ?? channel.pipeline;
   }
 
   annotate(id: string, text: string, nowMs: number): TestPoint {
@@ -168,7 +196,7 @@ export class TestPoints {
     const changes: TestPointChange[] = [];
     for (const point of this.points.values()) {
       if (point.state !== 'running') continue;
-      const channelsReady = point.channels.every((name) => channelReady(this.registry.get(name)?.pipeline));
+      const channelsReady = point.channels.every((name) => channelReady(this.windowOf(point, name)));
       const derivedReady = point.derived.every((name) => this.derived?.atTarget(name) !== false);
       if (channelsReady && derivedReady) {
         point.state = 'ready';
@@ -182,7 +210,7 @@ export class TestPoints {
   /** The verdict per channel, for display: its state, whether it is ready, and what it waits for. */
   verdict(point: TestPoint): { channel: string; state: string; reached: boolean; pending: string[] }[] {
     return point.channels.map((name) => {
-      const pipeline = this.registry.get(name)?.pipeline;
+      const pipeline = this.windowOf(point, name);
       if (!pipeline) return { channel: name, state: 'no data', reached: false, pending: ['no samples yet'] };
       const summary = pipeline.summary();
       const verdict = summary.verdict;
@@ -198,13 +226,24 @@ export class TestPoints {
   record(point: TestPoint, kind: 'ready' | 'stopped', nowMs: number): TestPointRecord {
     const entries = point.channels.map((name) => {
       const channel = this.registry.get(name);
-      if (!channel) throw new Error(`test point ${point.id}: channel ${name} is not in the registry`);
-      const snapshot = channel.pipeline.snapshot();
-      // The stationary bootstrap's standard error beside the analytic one (a cross-check).
-      return { ...recordEntry(snapshot, channel.unit), bootstrap: channelBootstrapCheck(channel.pipeline.series.values(), snapshot) };
+      const pipeline = this.windowOf(point, name);
+      if (!channel || !pipeline) throw new Error(`test point ${point.id}: channel ${name} is not in the registry`);
+      const snapshot = pipeline.snapshot();
+      // The stationary bootstrap's standard error beside the analytic one (a cross-check); what the
+      // report shows, frozen with the record (the daemon adds the trace, read with the store).
+      const evidence: RecordEvidence = { snapshot: { ...snapshot, events: [] }, cusum: pipeline.cusumTrace(), trace: null };
+      return { ...recordEntry(snapshot, channel.unit), bootstrap: channelBootstrapCheck(pipeline.series.values(), snapshot), evidence };
     });
     return {
-      testPoint: { id: point.id, name: point.name },
+      testPoint: {
+        id: point.id,
+        name: point.name,
+        startedAt: new Date(point.createdMs).toISOString(),
+        readyAt: point.readyMs === null ? null : new Date(point.readyMs).toISOString(),
+        stoppedAt: point.stoppedMs === null ? null : new Date(point.stoppedMs).toISOString(),
+        ...(point.setPoints ? { setPoints: { ...point.setPoints } } : {}),
+      },
+      rig: { ...this.rig },
       // the ready record is the first; the stop record is the second when the point was ready before
       recordNumber: `${point.id}/${kind === 'stopped' && point.readyMs !== null ? 2 : 1}`,
       kind,

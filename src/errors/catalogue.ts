@@ -49,6 +49,7 @@ export const ERRORS = {
   ERR_ORIGIN: { status: 403, exit: USER, message: 'writes from another site are refused (origin {origin})' },
   ERR_NOT_FOUND: { status: 404, exit: USER, message: '{detail}' },
   ERR_CHANNEL_UNKNOWN: { status: 404, exit: USER, message: 'no channel named "{name}"' },
+  ERR_TYPE_B_INVALID: { status: 400, exit: USER, message: '{detail}' },
   ERR_DERIVED_UNKNOWN: { status: 404, exit: USER, message: 'no derived result named "{name}" (known: {known})' },
   ERR_EVENT_UNKNOWN: { status: 404, exit: USER, message: 'no stored event {id}' },
   ERR_EVENT_ACKNOWLEDGEMENT: { status: 409, exit: USER, message: 'event {id} is itself an acknowledgement' },

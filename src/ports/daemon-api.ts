@@ -103,6 +103,15 @@ export interface TestPointRequest {
   setPoints?: Record<string, number>;
 }
 
+/** A test point's own window over one of its channels, now (src/engine/channel.ts). */
+export interface TestPointWindowView {
+  name: string;
+  unit: string | null;
+  snapshot: ChannelSnapshot;
+  trace: ChannelTrace;
+  cusum: CusumTrace | null;
+}
+
 export interface DaemonQueries {
   health(): DaemonHealth;
   counterReport(): Record<string, unknown>;
@@ -125,12 +134,22 @@ export interface DaemonQueries {
   testPointViews(): TestPointView[];
   testPoint(id: string): TestPointView | null;
   records(testPointId: string): StoredRecord[];
+  /** The test point's window over each of its channels now (its report before a record). */
+  testPointWindows(id: string, count: number): TestPointWindowView[];
 }
 
 export interface DaemonCommands {
   startTestPoint(request: TestPointRequest): TestPointView;
   stopTestPoint(id: string): TestPointView;
   annotateTestPoint(id: string, text: string): TestPointView;
+  /**
+   * Replaces a channel's Type B components (validated as the configuration's `typeB`: one line per
+   * problem naming its key path, ERR_TYPE_B_INVALID); stored, so a restart keeps them. Returns the
+   * components now in force.
+   */
+  setChannelTypeB(name: string, typeB: unknown): { channel: string; typeB: unknown[] };
+  /** A channel's Type B components in force (null: no such channel). */
+  channelTypeB(name: string): { channel: string; typeB: unknown[] } | null;
   /** Records an acknowledgement of a stored alert; acknowledging again returns the first. */
   acknowledgeEvent(id: number, note: string | null): { acknowledgement: Acknowledgement; already: boolean };
 }

@@ -7,7 +7,7 @@ import pino, { type Logger } from 'pino';
 import type { DaemonApi } from '../ports/daemon-api.js';
 import { PlateauError, type ErrorCode, type ErrorDetails } from '../errors/catalogue.js';
 import { recordCsv, RECORD_CAUTION, type TestPointRecord } from '../engine/test-point-record.js';
-import { renderReport } from './report.js';
+import { renderReport, reportTrace } from './report.js';
 import { openApiDocument, type DocumentedRoute } from './openapi.js';
 import { recordDerivedEntries } from './record-derived.js';
 import { derivedRecordCsv } from '../engine/derived/derived-record.js';
@@ -238,6 +238,39 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
       const view = (request.query as { view?: string }).view ?? 'full';
       const channels = daemon.channels().map((channel) => (view === 'summary' ? { ...channel.summary(), ...unitFields(channel) } : { ...channel.snapshot(), ...unitFields(channel) }));
       return { channels };
+    },
+  );
+
+  const typeBParams = { type: 'object', properties: { name: { type: 'string', pattern: NAME_PATTERN } }, required: ['name'] } as const;
+  const typeBReply = { type: 'object', required: ['channel', 'typeB'], properties: { channel: { type: 'string' }, typeB: { type: 'array', items: { type: 'object', additionalProperties: true } } }, additionalProperties: false } as const;
+  app.get(
+    '/api/channels/:name/type-b',
+    { schema: { summary: "a channel's Type B components in force (from the configuration, or as last set through the API)", params: typeBParams, response: { 200: typeBReply, ...errors(400, 404) } } },
+    async (request, reply) => {
+      const { name } = request.params as { name: string };
+      const found = daemon.channelTypeB(name);
+      if (!found) return send(reply, 'ERR_CHANNEL_UNKNOWN', { name: name.slice(0, 80) });
+      return found;
+    },
+  );
+
+  app.put(
+    '/api/channels/:name/type-b',
+    {
+      onRequest: requireWriteAccess,
+      schema: {
+        summary: "replace a channel's Type B components (the configuration's `typeB` list): from its next sample, stored, kept across restarts",
+        description: 'The body is `{"typeB": [...]}`, each component as under `channels.*.typeB` in the configuration. A list with problems is refused whole (ERR_TYPE_B_INVALID, 400) with one line per problem naming its key path (`typeB[0].U`); records already written keep the budget they were written with.',
+        security: [{ token: [] }],
+        params: typeBParams,
+        body: { type: 'object', properties: { typeB: {} }, required: ['typeB'], additionalProperties: false },
+        response: { 200: typeBReply, ...errors(400, 401, 403, 404, 413, 415) },
+      },
+    },
+    async (request) => {
+      const { name } = request.params as { name: string };
+      const { typeB } = request.body as { typeB: unknown };
+      return daemon.setChannelTypeB(name, typeB);
     },
   );
 
@@ -507,14 +540,16 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
       const point = daemon.testPoint(id);
       if (!point) return unknownTestPoint(reply, id);
       const record = latestRecord(id);
-      const channels = point.channels.map((name) => daemon.channel(name)).filter((c) => c !== null);
+      // The record's frozen evidence for each channel it holds; the test point's own window only where it holds none.
+      const recorded = new Set((record?.entries ?? []).filter((e) => e.evidence).map((e) => e.channel));
+      const live = point.channels.every((name) => recorded.has(name)) ? [] : daemon.testPointWindows(id, 4000).filter((w) => !recorded.has(w.name));
       const html = renderReport({
         point,
         record,
         generatedMs: Date.now(),
         version: VERSION,
-        channels: channels.map((c) => ({ name: c.name, unit: c.unit, snapshot: c.snapshot(), trace: c.trace(4000), cusum: c.cusumTrace() })),
-        derived: point.derived.length > 0 ? daemon.derivedResults().filter((d) => point.derived.includes(d.name)) : [],
+        live: live.map((w) => ({ name: w.name, unit: w.unit, snapshot: w.snapshot, trace: reportTrace(w.trace), cusum: w.cusum })),
+        derived: record === null && point.derived.length > 0 ? daemon.derivedResults().filter((d) => point.derived.includes(d.name)) : [],
       });
       return reply.header('content-type', 'text/html; charset=utf-8').header('content-security-policy', REPORT_POLICY).send(html);
     },

@@ -1,7 +1,7 @@
 import { unitLabel } from '../engine/unit-label.js';
 import type { TestPoint } from '../engine/test-points.js';
-import type { RecordEntry, TestPointRecord } from '../engine/test-point-record.js';
-import { RECORD_CAUTION, gumStatement } from '../engine/test-point-record.js';
+import type { RecordEntry, RecordTrace, TestPointRecord } from '../engine/test-point-record.js';
+import { RECORD_CAUTION, decimateTrace, gumStatement, rigText } from '../engine/test-point-record.js';
 import type { ChannelSnapshot } from '../engine/channel-pipeline.js';
 import type { DerivedReportEntry } from '../engine/derived/derived-record.js';
 import { escapeHtml } from './html-text.js';
@@ -27,26 +27,51 @@ import type { CombinedReport, ConformityReport } from '../engine/channel-combine
  * and, from the record, the Monte Carlo check (JCGM 101:2008) and the bootstrap check. Then the
  * cautions. Every text from the network (names, units, notes) is escaped.
  *
- * When a record exists its values are the result (they are what was recorded when the test point
- * became ready or stopped); the evidence and charts show the channel's window when the report was
- * generated, which may have grown since, and the report says so.
+ * One window throughout (issue 10, honest records): when a record exists, everything a channel's
+ * section shows (the result, the estimators, the evidence, the charts) is what the record froze when
+ * it was written (`RecordEntry.evidence`), never the channel as it is when the report is opened. A
+ * test point with no record yet shows its own window now, and says so. A record written before
+ * records carried their evidence shows the live window for the evidence and says that too.
  */
 export interface ReportChannel {
   name: string;
   unit: string | null;
   snapshot: ChannelSnapshot;
-  trace: ChannelTrace;
+  trace: RecordTrace | null;
   cusum: CusumTrace | null;
 }
 
 export interface ReportInput {
-  point: TestPoint;
+  point: TestPoint & { verdict?: { channel: string; state: string; reached: boolean }[] };
   record: TestPointRecord | null;
-  channels: ReportChannel[];
+  /** The test point's windows now, for the channels the record has no evidence of (none recorded yet, or an older record). */
+  live: ReportChannel[];
   /** The current view of the test point's derived results (shown where the record has none). */
   derived?: DerivedView[];
   generatedMs: number;
   version: string;
+  /** The rig as the configuration names it (records carry it too). */
+  rig?: string | null;
+}
+
+/** A live trace (consecutive samples) in the form a record keeps. */
+export function reportTrace(trace: ChannelTrace): RecordTrace {
+  return decimateTrace(trace);
+}
+
+/** The sections' sources: the record's evidence per channel, else the live window. */
+function reportChannels(input: ReportInput): { channel: ReportChannel; fromRecord: boolean }[] {
+  const out: { channel: ReportChannel; fromRecord: boolean }[] = [];
+  for (const name of input.point.channels) {
+    const entry = input.record?.entries.find((e) => e.channel === name);
+    if (entry?.evidence) {
+      out.push({ channel: { name, unit: entry.unit, snapshot: entry.evidence.snapshot, trace: entry.evidence.trace, cusum: entry.evidence.cusum }, fromRecord: true });
+      continue;
+    }
+    const live = input.live.find((c) => c.name === name);
+    if (live) out.push({ channel: live, fromRecord: false });
+  }
+  return out;
 }
 
 const ESTIMATOR_TEXT: Record<string, string> = {
@@ -64,18 +89,22 @@ const ESTIMATOR_TEXT: Record<string, string> = {
 export function renderReport(input: ReportInput): string {
   const { point, record } = input;
   const generated = new Date(input.generatedMs).toISOString();
-  const sections = input.channels.map((channel) => channelSection(channel, record?.entries.find((e) => e.channel === channel.name) ?? null, record));
-  const missing = point.channels.filter((name) => !input.channels.some((c) => c.name === name));
+  const channels = reportChannels(input);
+  const sections = channels.map(({ channel, fromRecord }) => channelSection(channel, record?.entries.find((e) => e.channel === channel.name) ?? null, record, fromRecord));
+  const missing = point.channels.filter((name) => !channels.some((c) => c.channel.name === name));
+  // The state now only while the test point runs (its own window); a stopped one has only its record.
+  const running = point.state !== 'stopped';
   const verdictRows = point.channels.map((name) => {
-    const channel = input.channels.find((c) => c.name === name);
-    const state = channel?.snapshot.state ?? 'no data';
-    return `<tr><td>${escapeHtml(name)}</td><td>${escapeHtml(STATE_TEXT[state] ?? state)}</td><td>${escapeHtml(record?.entries.find((e) => e.channel === name)?.state ?? '-')}</td></tr>`;
+    const now = point.verdict?.find((v) => v.channel === name)?.state ?? 'no data';
+    const recorded = record?.entries.find((e) => e.channel === name);
+    const recordedText = recorded ? `${STATE_TEXT[recorded.state] ?? recorded.state}${recorded.provisional ? ' (provisional)' : ''}` : '-';
+    return `<tr><td>${escapeHtml(name)}</td>${running ? `<td>${escapeHtml(STATE_TEXT[now] ?? now)}</td>` : ''}<td>${escapeHtml(recordedText)}</td></tr>`;
   });
   const recordedDerived = recordDerivedEntries(record?.derived);
   for (const name of point.derived ?? []) {
     const live = input.derived?.find((d) => d.name === name);
     const recorded = recordedDerived.find((d) => d.name === name);
-    verdictRows.push(`<tr><td>${escapeHtml(name)} (derived)</td><td>${escapeHtml(live ? derivedStateText(live) : 'no data')}</td><td>${escapeHtml(recorded ? derivedStateText(recorded) : '-')}</td></tr>`);
+    verdictRows.push(`<tr><td>${escapeHtml(name)} (derived)</td>${running ? `<td>${escapeHtml(live ? derivedStateText(live) : 'no data')}</td>` : ''}<td>${escapeHtml(recorded ? derivedStateText(recorded) : '-')}</td></tr>`);
   }
   return `<!doctype html>
 <html lang="en"><head><meta charset="utf-8"><meta name="viewport" content="width=device-width, initial-scale=1">
@@ -100,12 +129,13 @@ table.budget tr.total td{font-weight:600;border-top:2px solid #555}
 svg{display:block;margin:.2rem 0}
 footer{margin-top:1.5rem;color:#4a5563;font-size:11px}
 @media print{body{margin:0;max-width:none}h2{break-after:avoid}section{break-inside:avoid-page}.grid{break-inside:avoid}a{color:inherit;text-decoration:none}}
-@page{margin:16mm 12mm 16mm;@top-left{content:"${cssText(`Test point ${point.id}${record?.recordNumber ? `, record ${record.recordNumber}` : ''}`)}";font-size:9px;color:#4a5563}@top-right{content:"plateau ${cssText(input.version)}";font-size:9px;color:#4a5563}@bottom-right{content:"page " counter(page) " of " counter(pages);font-size:9px;color:#4a5563}}
+@page{margin:16mm 12mm 16mm;@top-left{content:"${cssText(`${rigText(record?.rig) ? `${rigText(record?.rig)}, ` : ''}test point ${point.id}${record?.recordNumber ? `, record ${record.recordNumber}` : ', no record yet'}`)}";font-size:9px;color:#4a5563}@top-right{content:"plateau ${cssText(input.version)}";font-size:9px;color:#4a5563}@bottom-right{content:"page " counter(page) " of " counter(pages);font-size:9px;color:#4a5563}}
 table.budget{break-inside:avoid}
 </style></head><body>
 <header>
 <h1>Test point report: ${escapeHtml(point.name)}</h1>
 <table class="meta">
+${rigText(record?.rig) ? `<tr><td>Rig</td><td>${escapeHtml(rigText(record?.rig) as string)}</td></tr>` : ''}
 <tr><td>Test point</td><td>${escapeHtml(point.id)}</td></tr>
 <tr><td>State</td><td>${escapeHtml(POINT_STATE_TEXT[point.state] ?? point.state)}</td></tr>
 <tr><td>Started</td><td>${escapeHtml(iso(point.createdMs))}</td></tr>
@@ -118,14 +148,14 @@ ${record?.recordNumber ? `<tr><td>Record number</td><td>${escapeHtml(record.reco
 </header>
 <h2>Verdict</h2>
 <p>${escapeHtml(verdictText(point))}</p>
-<table><tr><th>channel</th><th>state now</th><th>state in the record</th></tr>${verdictRows.join('')}</table>
+<table><tr><th>channel</th>${running ? '<th>state now (its window in this test point)</th>' : ''}<th>state in the record</th></tr>${verdictRows.join('')}</table>
 ${missing.length ? `<p class="note">No data received for: ${escapeHtml(missing.join(', '))}.</p>` : ''}
 ${point.annotations.length ? `<h2>Notes</h2><ul>${point.annotations.map((a) => `<li>${escapeHtml(iso(a.timeMs))}: ${escapeHtml(a.text)}</li>`).join('')}</ul>` : ''}
 ${sections.join('\n')}
 ${derivedSections(point, record, input.derived ?? [])}
 <section class="caution"><strong>Cautions</strong><ul>
 <li>${escapeHtml(RECORD_CAUTION)}</li>
-<li>The uncertainties stated here are the Type A (statistical) standard uncertainty of each mean, allowing for autocorrelation. They do not include Type B contributions (sensor calibration, resolution, installation, reference values): combine those according to the applicable procedure before stating a calibration or test result.</li>
+<li>${escapeHtml(typeBCaution(record))}</li>
 <li>The coverage probability holds only while the channel is stationary over the averaging window; the evidence above is statistical and can miss a slow drift that an engineer would recognise.</li>
 <li>This report was generated by software. It must be reviewed and approved by a competent person before it is issued.</li>
 </ul></section>
@@ -143,17 +173,31 @@ const STATE_TEXT: Record<string, string> = {
 
 const POINT_STATE_TEXT: Record<string, string> = { running: 'running (not yet ready)', ready: 'ready', stopped: 'stopped' };
 
+/** Who the figures are for and what they do not cover: Type A alone, or the budget's components and nothing else. */
+function typeBCaution(record: TestPointRecord | null): string {
+  const withBudget = (record?.entries ?? []).filter((e) => e.combined?.budget.some((b) => b.evaluation === 'B')).map((e) => e.channel);
+  const typeA = 'The uncertainties stated here are the Type A (statistical) standard uncertainty of each mean, allowing for autocorrelation';
+  if (withBudget.length === 0) return `${typeA}. They do not include Type B contributions (sensor calibration, resolution, installation, reference values): combine those according to the applicable procedure before stating a calibration or test result.`;
+  return `${typeA}, combined for ${withBudget.join(', ')} with the Type B components listed in its budget and nothing else. Any contribution not listed there (for the other channels, every Type B contribution) must be combined according to the applicable procedure before stating a calibration or test result.`;
+}
+
+function chartNote(channel: ReportChannel, fromRecord: boolean, record: TestPointRecord | null): string {
+  const t = channel.trace;
+  const thinned = t?.decimation ? `; the trace draws ${t.values.length} of its ${t.samples} samples (${t.decimation})` : '';
+  return fromRecord ? `Charts show the recorded window (n = ${channel.snapshot.n}, record ${record?.recordNumber ?? record?.createdAt ?? ''})${thinned}.` : `Charts show this test point's window when the report was generated (n = ${channel.snapshot.n})${thinned}.`;
+}
+
 function verdictText(point: TestPoint): string {
   if (point.state === 'ready') return 'Ready: every channel reached steady state and its target precision.';
   if (point.state === 'running') return 'Not ready yet: not every channel is steady at its target precision.';
   return point.readyMs ? 'Stopped after it was ready.' : 'Stopped before every channel was steady at its target precision.';
 }
 
-function channelSection(channel: ReportChannel, entry: RecordEntry | null, record: TestPointRecord | null): string {
+function channelSection(channel: ReportChannel, entry: RecordEntry | null, record: TestPointRecord | null, fromRecord: boolean): string {
   const s = channel.snapshot;
   const unit = channel.unit ? ` ${unitLabel(channel.unit)}` : '';
   const statement = entry?.statement ?? gumStatement(s.name, s.mean, s.standardUncertainty, s.expandedUncertainty, s.coverageFactor, s.dof, s.confidence, channel.unit === null ? null : unitLabel(channel.unit));
-  const source = entry ? `Recorded ${record?.createdAt ?? ''}.` : 'Current value (no record for this channel yet).';
+  const source = entry ? `Recorded ${record?.createdAt ?? ''}${fromRecord ? '; everything in this section (the result, the estimators, the evidence and the charts) is of the recorded window' : '; the estimators, evidence and charts below are of the window now (this record was written before records kept them)'}.` : "Current value of this test point's window (no record for this channel yet).";
   const values = entry ?? {
     mean: s.mean,
     standardUncertainty: s.standardUncertainty,
@@ -187,7 +231,7 @@ function channelSection(channel: ReportChannel, entry: RecordEntry | null, recor
   );
   const tests = s.stationarity?.tests;
   const evidence: [string, string][] = [
-    ['state when the report was generated', STATE_TEXT[s.state] ?? s.state],
+    [fromRecord ? 'state when the record was made' : 'state now', STATE_TEXT[s.state] ?? s.state],
     ['steady from sample', s.stationarity?.warmupEnd === null || !s.stationarity ? 'not steady' : String(s.stationarity.warmupEnd)],
     ['MSER truncation (batch means)', tests?.mser ? `${tests.mser.truncation} samples, batches of ${tests.mser.batchSize}${tests.mser.tooShort ? ' (window too short)' : ''}` : '-'],
     ['Heidelberger-Welch stationarity test', tests?.heidelbergerWelch ? `${tests.heidelbergerWelch.passed ? 'passed' : 'failed'} (p = ${num(tests.heidelbergerWelch.pValue, 3)})` : '-'],
@@ -201,7 +245,7 @@ function channelSection(channel: ReportChannel, entry: RecordEntry | null, recor
   return `<section><h2>${escapeHtml(channel.name)}${channel.unit ? ` (${escapeHtml(unitLabel(channel.unit))})` : ''}</h2>
 <p class="statement${entry && !entry.provisional ? '' : ' none'}">${escapeHtml(statement)}</p>
 <p class="note">${escapeHtml(source)}</p>
-${provisionalBlock(entry)}<h3>Result</h3>
+${provisionalBlock(entry)}<h3>${entry?.provisional ? 'Figures of the window (provisional: not a result to report)' : 'Result'}</h3>
 <table>${rows(result)}</table>
 ${combinedBlock(entry ? (entry.combined ?? null) : s.combined, entry ? (entry.conformity ?? null) : s.conformity, unit)}
 <h3>Standard uncertainty of the mean</h3>
@@ -213,7 +257,7 @@ ${s.disagreement.length ? `<p class="note">Disagreement: ${escapeHtml(s.disagree
 ${criteriaSection(entry?.criteria, s)}
 ${s.notes.length ? `<p class="note">Notes: ${escapeHtml(s.notes.join('; '))}</p>` : ''}
 <div class="grid">${traceChart(channel)}${acfChart(s)}${allanChart(s)}${cusumChart(channel.cusum)}</div>
-<p class="note">Charts show the window when this report was generated (n = ${s.n}).</p>
+<p class="note">${escapeHtml(chartNote(channel, fromRecord, record))}</p>
 </section>`;
 }
 
@@ -291,7 +335,7 @@ ${otherNotes(d).length ? `<p class="note">Notes: ${escapeHtml(otherNotes(d).join
 
 /** Text for a CSS string of the running header: letters, digits and a few marks only (ids are already restricted so). */
 function cssText(text: string): string {
-  return text.replace(/[^A-Za-z0-9 _.,:/-]/g, '?').slice(0, 120);
+  return text.replace(/[^A-Za-z0-9 _.,:/()-]/g, '?').slice(0, 120);
 }
 
 /** A provisional record entry: said before the result, with the reasons (issue 10, honest records). */
@@ -454,27 +498,39 @@ function isoSeconds(seconds: number | null): string | null {
 /** The trace with the mean and U band, the excluded samples shaded, against seconds (or sample index). */
 function traceChart(channel: ReportChannel): string {
   const { trace, snapshot: s } = channel;
-  if (trace.values.length < 2) return '';
+  if (trace === null || trace.values.length < 2) return '';
   // Seconds on the x axis when every sample has a time and they never go back (late samples can).
   const timed = trace.times.every((t, i) => t !== null && (i === 0 || t >= (trace.times[i - 1] as number)));
-  const zeroIndex = trace.originIndex >= trace.firstIndex ? trace.originIndex : trace.firstIndex;
-  const t0 = timed ? (trace.times[zeroIndex - trace.firstIndex] as number) : 0;
-  const xAt = (index: number) => (timed ? (trace.times[Math.min(trace.values.length - 1, Math.max(0, index - trace.firstIndex))] as number) - t0 : index);
-  const x = trace.values.map((_, i) => xAt(trace.firstIndex + i));
+  const first = trace.indices[0] as number;
+  const zeroAt = trace.originIndex >= first ? trace.originIndex : first;
+  // The position of sample index `index` among the points kept (the nearest kept point at or after it).
+  const pointAt = (index: number) => {
+    let lo = 0;
+    let hi = trace.indices.length - 1;
+    while (lo < hi) {
+      const mid = (lo + hi) >> 1;
+      if ((trace.indices[mid] as number) < index) lo = mid + 1;
+      else hi = mid;
+    }
+    return lo;
+  };
+  const t0 = timed ? (trace.times[pointAt(zeroAt)] as number) : 0;
+  const xAt = (index: number) => (timed ? (trace.times[pointAt(index)] as number) - t0 : index);
+  const x = trace.indices.map((index, i) => (timed ? (trace.times[i] as number) - t0 : index));
   const firstWindow = trace.windowStartIndex;
-  const windowX = x.slice(Math.max(0, firstWindow - trace.firstIndex));
-  const spans = firstWindow > trace.firstIndex ? [{ from: x[0] as number, to: xAt(firstWindow), fill: '#f3d9a6', label: 'excluded' }] : [];
+  const windowX = x.slice(firstWindow > first ? pointAt(firstWindow) : 0);
+  const spans = firstWindow > first ? [{ from: x[0] as number, to: xAt(firstWindow), fill: '#f3d9a6', label: 'excluded' }] : [];
   const bands = s.mean !== null && s.expandedUncertainty !== null && windowX.length > 1
     ? [{ x: [windowX[0] as number, windowX.at(-1) as number], low: [s.mean - s.expandedUncertainty, s.mean - s.expandedUncertainty], high: [s.mean + s.expandedUncertainty, s.mean + s.expandedUncertainty], fill: '#2f6b8a', opacity: 0.22 }]
     : [];
   const series = [{ x, y: trace.values, stroke: '#5b6573', width: 0.8 }];
   if (s.mean !== null && windowX.length > 1) series.push({ x: [windowX[0] as number, windowX.at(-1) as number], y: [s.mean, s.mean], stroke: '#2f6b8a', width: 1.4 });
-  const vlines = firstWindow > trace.firstIndex ? [{ x: xAt(firstWindow), label: 'warm-up cut', stroke: '#9a5b00' }] : [];
+  const vlines = firstWindow > first ? [{ x: xAt(firstWindow), label: 'warm-up cut', stroke: '#9a5b00' }] : [];
   return svgChart({
     width: 620,
     height: 210,
     title: `Samples, mean and expanded uncertainty U${s.mean !== null ? '' : ' (no mean yet)'}`,
-    xLabel: timed ? (trace.originIndex >= trace.firstIndex ? 'seconds since the test point started' : 'seconds since the first sample shown') : 'sample index',
+    xLabel: timed ? (trace.originIndex >= first ? 'seconds since the test point started' : 'seconds since the first sample shown') : 'sample index',
     yLabel: channel.unit === null ? 'value' : unitLabel(channel.unit),
     series,
     bands,

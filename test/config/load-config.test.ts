@@ -21,6 +21,13 @@ function problems(document: unknown): string[] {
 const subscriptions = [{ topic: 'rig/+', format: 'json' }];
 
 describe('configuration validation', () => {
+  it('rig: its id and name, none by default; a bad one is one line naming rig.id or rig.name', () => {
+    expect(parseConfig({ subscriptions: [{ topic: 'a/#' }] }, 'test').rig).toEqual({ id: null, name: null });
+    expect(parseConfig({ rig: { id: 'HX-7', name: 'bench HX-7' }, subscriptions: [{ topic: 'a/#' }] }, 'test').rig).toEqual({ id: 'HX-7', name: 'bench HX-7' });
+    const lines = problems({ rig: { id: 'a"b', name: 'x'.repeat(201), colour: 1 }, subscriptions: [{ topic: 'a/#' }] });
+    expect(lines).toEqual(expect.arrayContaining(['rig.colour: unknown key (expected one of id, name)', expect.stringMatching(/^rig\.id: expected 1 to 64 letters, digits, spaces or _ \. : - \/, got "a"b"$/), 'rig.name: expected at most 200 characters, got 201']));
+  });
+
   it('the example configurations load', () => {
     for (const file of readdirSync(join(ROOT, 'config')).filter((f) => f.endsWith('.yaml'))) {
       expect(() => loadConfigFile(join(ROOT, 'config', file))).not.toThrow();
@@ -39,7 +46,7 @@ describe('configuration validation', () => {
     });
     expect(lines).toEqual(
       expect.arrayContaining([
-        'extra: unknown key (expected one of broker, subscriptions, channels, derived, store, http, topics, log, scale)',
+        'extra: unknown key (expected one of rig, broker, subscriptions, channels, derived, store, http, topics, log, scale)',
         'broker.url: expected "embedded", a URL such as mqtt://127.0.0.1:1883, or nats://host:port (JetStream), got "http://nowhere"',
         'broker.protocolVersion: expected one of 4, 5, got 3',
         'broker.qos: expected one of 0, 1, got 2',

@@ -59,7 +59,7 @@ describe('channel checkpoints', () => {
     const { channel } = live();
     const { seq, state } = channel.checkpoint();
     expect(seq).toBe(N);
-    expect(state).toMatchObject({ record: 'channel', version: 2, criteria: null, fingerprint: shapingFingerprint(OPTIONS), seqOffset: 0, pipeline: { record: 'channel-pipeline', version: 3 } });
+    expect(state).toMatchObject({ record: 'channel', version: 3, criteria: null, windows: { attached: [], forks: [] }, fingerprint: shapingFingerprint(OPTIONS), seqOffset: 0, pipeline: { record: 'channel-pipeline', version: 3 } });
     expect(state.pipeline.history).toMatchObject({ record: 'block-history', version: 1 });
     expect(state.pipeline.series).toMatchObject({ record: 'windowed-series', version: 1, ring: { record: 'sample-ring' }, moments: { record: 'shifted-moments' }, lags: { record: 'lagged-products' }, pyramid: { record: 'block-pyramid' } });
     expect(state.pipeline.monitor).toMatchObject({ record: 'stationarity-monitor', version: 1 });
@@ -151,8 +151,8 @@ describe('channel checkpoints', () => {
     const full = live();
     const checkpoint = first.channel.checkpoint();
     const newer = new Channel('fixture.loop_degC', 'degC', OPTIONS);
-    const r1 = newer.restore({ ...checkpoint, state: { ...checkpoint.state, version: 3 } }, full.history);
-    expect(r1).toMatchObject({ outcome: 'replayed', detail: 'the checkpoint is a channel record of version 3, which this plateau does not know (it knows versions 1 and 2)', replayed: N });
+    const r1 = newer.restore({ ...checkpoint, state: { ...checkpoint.state, version: 4 } }, full.history);
+    expect(r1).toMatchObject({ outcome: 'replayed', detail: 'the checkpoint is a channel record of version 4, which this plateau does not know (it knows versions 1 to 3)', replayed: N });
     const broken = new Channel('fixture.loop_degC', 'degC', OPTIONS);
     const r2 = broken.restore({ ...checkpoint, state: { ...checkpoint.state, pipeline: { ...checkpoint.state.pipeline, series: { record: 'windowed-series', version: 9 } } } }, full.history);
     expect(r2.outcome).toBe('replayed');

@@ -60,7 +60,7 @@ describe('GET /api/openapi.json', () => {
     const doc = await document();
     for (const [path, operations] of Object.entries(doc.paths)) {
       for (const [method, operation] of Object.entries(operations)) {
-        if (method === 'post') expect(operation.security, `${method} ${path}`).toEqual([{ token: [] }]);
+        if (method === 'post' || method === 'put') expect(operation.security, `${method} ${path}`).toEqual([{ token: [] }]);
         else expect(operation.security, `${method} ${path}`).toBeUndefined();
       }
     }

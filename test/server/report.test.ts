@@ -1,5 +1,5 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { renderReport } from '../../src/server/report.js';
+import { renderReport, reportTrace } from '../../src/server/report.js';
 import { svgChart } from '../../src/server/svg-chart.js';
 import { gumStatement } from '../../src/engine/test-point-record.js';
 import { makeTestDaemon, RIG_START_SECONDS, type TestDaemon } from './harness.js';
@@ -24,13 +24,12 @@ function reportFor(id: string): string {
   if (!point) throw new Error(`no test point ${id}`);
   const records = t.daemon.store.records(id);
   const record = (records.at(-1)?.body ?? null) as Parameters<typeof renderReport>[0]['record'];
-  const channels = point.channels.map((name) => t.daemon.registry.get(name)).filter((c) => c !== undefined);
   return renderReport({
-    point,
+    point: { ...point, verdict: t.daemon.testPoints.verdict(point) },
     record,
     generatedMs: RIG_START_SECONDS * 1000,
     version: '0.1.0',
-    channels: channels.map((c) => ({ name: c.name, unit: c.unit, snapshot: c.pipeline.snapshot(), trace: (t.daemon.channel(c.name) as NonNullable<ReturnType<typeof t.daemon.channel>>).trace(4000), cusum: c.pipeline.cusumTrace() })),
+    live: t.daemon.testPointWindows(id, 4000).map((w) => ({ name: w.name, unit: w.unit, snapshot: w.snapshot, trace: reportTrace(w.trace), cusum: w.cusum })),
   });
 }
 
