@@ -238,11 +238,8 @@ export class Ingest {
           this.rejected('engine-error', `channel ${block.channel}: ${(error as Error).message}`, error);
           continue;
         }
-        const { times, values, length, stamped } = block;
-        for (let i = 0; i < length; i++) {
-          const timeMs = times[i] as number;
-          if (this.take(tracked, values[i] as number, timeMs, stamped, arrival) && stamped && timeMs > latestStamp) latestStamp = timeMs;
-        }
+        const newest = this.takeBlock(tracked, block.times, block.values, block.length, block.stamped, arrival);
+        if (newest > latestStamp) latestStamp = newest;
       }
     }
     if (latestStamp > 0) this.noteLag(topic, arrival, arrival - latestStamp);
@@ -297,7 +294,7 @@ export class Ingest {
       return false;
     }
     if (!result.accepted) {
-      this.rejected(result.reason, `channel ${channel.name}: sample at ${new Date(timeMs).toISOString()} ${result.reason === 'duplicate' ? 'repeats an accepted time' : result.reason === 'redelivered' ? 'was stored before the restart (delivered again)' : 'is older than every remembered one'}`);
+      this.refused(channel, result.reason, timeMs);
       return false;
     }
     this.counters.accepted++;
@@ -317,6 +314,58 @@ export class Ingest {
     }
     if (tracked.derivedInput) this.options.sampled(channel.name);
     return true;
+  }
+
+  /**
+   * A block of one channel's samples (binary frames, SenML packs): what `take` does per sample, with
+   * the bookkeeping that is the same for every sample of the block (arrival, log, introduction,
+   * activity, derived inputs) done once, and the accepted samples written straight into the
+   * channel's pending chunk. Returns the newest stamped time taken (0: none).
+   */
+  private takeBlock(tracked: Tracked, times: Float64Array, values: Float64Array, length: number, stamped: boolean, arrival: number): number {
+    const channel = tracked.channel;
+    const batch = this.options.batch;
+    let taken = 0;
+    let latest = 0;
+    for (let i = 0; i < length; i++) {
+      const value = values[i] as number;
+      const timeMs = times[i] as number;
+      let result: AcceptResult;
+      try {
+        result = channel.accept(value, timeMs, stamped);
+      } catch (error) {
+        this.rejected('engine-error', `channel ${channel.name}: ${(error as Error).message}`, error);
+        continue;
+      }
+      if (!result.accepted) {
+        this.refused(channel, result.reason, timeMs);
+        continue;
+      }
+      if (taken === 0) {
+        tracked.lastArrival = arrival;
+        tracked.log = this.currentLog;
+        if (!tracked.introduced) this.introduce(channel);
+        if (!tracked.active) this.activate(tracked);
+      }
+      taken++;
+      if (result.late) this.counters.late++;
+      batch.addSample(channel.name, result.seq, result.timeMs, value, stamped);
+      if (result.engineError !== null) this.rejected('engine-error', `channel ${channel.name}: sample ${result.seq} stored, but the engine failed on it: ${result.engineError.message}`, result.engineError);
+      const events = result.events;
+      for (let e = 0; e < events.length; e++) this.channelEvent(channel, events[e] as ChannelEvent);
+      if (stamped && !result.late) {
+        const gap = tracked.gaps.push(timeMs);
+        if (gap !== null) this.gap(channel.name, result.seq, gap);
+        if (timeMs > latest) latest = timeMs;
+      } else if (stamped && timeMs > latest) latest = timeMs;
+    }
+    this.counters.accepted += taken;
+    if (taken > 0 && tracked.derivedInput) this.options.sampled(channel.name);
+    return latest;
+  }
+
+  private refused(channel: Channel, reason: 'duplicate' | 'out-of-order' | 'redelivered', timeMs: number): void {
+    this.rejected(reason, `channel ${channel.name}: sample at ${new Date(timeMs).toISOString()} ${reason === 'duplicate' ? 'repeats an accepted time' : reason === 'redelivered' ? 'was stored before the restart (delivered again)' : 'is older than every remembered one'}`);
   }
 
   /** A gap: counted, and an event on the channel at the index of the first sample after it. */

@@ -9,16 +9,49 @@ import type { CheckpointToWrite, CommitBatch, EventToWrite, MarkToWrite, SampleC
  * commits both, and the tokens are acknowledged only once a commit holding their samples succeeded.
  *
  * Samples of one channel are consecutive (the channel numbers them), so one chunk per channel holds
- * them all. Cost: O(1) per sample (two array pushes); building the store's batch copies the samples
- * into typed arrays once per attempt.
+ * them all. Cost: O(1) per sample, no object per sample: the samples go straight into typed arrays
+ * (doubled when full) and the store's batch gets views of them, not copies. The arrays are kept for
+ * the channel's next chunk after a commit (the store copies what it keeps: SQLite writes blobs, the
+ * memory store copies), unless they grew beyond KEEP_CAPACITY.
  */
-interface OpenChunk {
-  firstSeq: number;
-  times: number[];
-  values: number[];
-  /** Offsets (within the chunk) of the samples that carried no time of their own. */
-  unstamped: number[];
+class OpenChunk {
+  firstSeq = 0;
+  length = 0;
+  times: Float64Array;
+  values: Float64Array;
+  /** Bit i set: sample i carried no time of its own (null while every sample did). */
+  unstamped: Uint8Array | null = null;
+
+  constructor(capacity: number) {
+    this.times = new Float64Array(capacity);
+    this.values = new Float64Array(capacity);
+  }
+
+  grow(): void {
+    const capacity = this.values.length * 2;
+    const times = new Float64Array(capacity);
+    times.set(this.times);
+    const values = new Float64Array(capacity);
+    values.set(this.values);
+    this.times = times;
+    this.values = values;
+    if (this.unstamped !== null) {
+      const bits = new Uint8Array(capacity >> 3);
+      bits.set(this.unstamped);
+      this.unstamped = bits;
+    }
+  }
+
+  markUnstamped(i: number): void {
+    if (this.unstamped === null) this.unstamped = new Uint8Array(this.values.length >> 3);
+    this.unstamped[i >> 3] = (this.unstamped[i >> 3] as number) | (1 << (i & 7));
+  }
 }
+
+/** A chunk's first capacity (a multiple of 8: the unstamped bitmap has a bit per slot). */
+const FIRST_CAPACITY = 64;
+/** Arrays larger than this (samples) are not kept for the channel's next chunk after a commit. */
+const KEEP_CAPACITY = 1 << 16;
 
 export class PendingBatch {
   private readonly channels = new Map<string, string | null>();
@@ -62,15 +95,21 @@ export class PendingBatch {
 
   addSample(channel: string, seq: number, timeMs: number, value: number, stamped: boolean): void {
     let chunk = this.chunks.get(channel);
-    if (chunk === undefined) {
-      chunk = { firstSeq: seq, times: [], values: [], unstamped: [] };
-      this.chunks.set(channel, chunk);
-    } else if (seq !== chunk.firstSeq + chunk.values.length) {
-      throw new RangeError(`channel ${channel}: sample ${seq} does not follow sample ${chunk.firstSeq + chunk.values.length - 1}`);
+    if (chunk === undefined || chunk.length === 0) {
+      if (chunk === undefined) {
+        chunk = new OpenChunk(FIRST_CAPACITY);
+        this.chunks.set(channel, chunk);
+      }
+      chunk.firstSeq = seq;
+    } else if (seq !== chunk.firstSeq + chunk.length) {
+      throw new RangeError(`channel ${channel}: sample ${seq} does not follow sample ${chunk.firstSeq + chunk.length - 1}`);
     }
-    if (!stamped) chunk.unstamped.push(chunk.values.length);
-    chunk.times.push(timeMs);
-    chunk.values.push(value);
+    const i = chunk.length;
+    if (i === chunk.values.length) chunk.grow();
+    chunk.times[i] = timeMs;
+    chunk.values[i] = value;
+    if (!stamped) chunk.markUnstamped(i);
+    chunk.length = i + 1;
     this.samples++;
   }
 
@@ -109,12 +148,10 @@ export class PendingBatch {
     const channels: StoredChannel[] = [...this.channels].map(([name, unit]) => ({ name, unit }));
     const chunks: SampleChunk[] = [];
     for (const [channel, chunk] of this.chunks) {
-      let unstamped: Uint8Array | null = null;
-      if (chunk.unstamped.length > 0) {
-        unstamped = new Uint8Array(Math.ceil(chunk.values.length / 8));
-        for (const i of chunk.unstamped) unstamped[i >> 3] = (unstamped[i >> 3] as number) | (1 << (i & 7));
-      }
-      chunks.push({ channel, firstSeq: chunk.firstSeq, times: Float64Array.from(chunk.times), values: Float64Array.from(chunk.values), unstamped });
+      const n = chunk.length;
+      if (n === 0) continue;
+      const unstamped = chunk.unstamped === null ? null : chunk.unstamped.subarray(0, Math.ceil(n / 8));
+      chunks.push({ channel, firstSeq: chunk.firstSeq, times: chunk.times.subarray(0, n), values: chunk.values.subarray(0, n), unstamped });
     }
     return {
       channels,
@@ -133,7 +170,14 @@ export class PendingBatch {
   clear(): AckToken[] {
     const tokens = this.tokens;
     this.channels.clear();
-    this.chunks.clear();
+    // Each channel's arrays serve its next chunk (a channel that took nothing since is let go).
+    for (const [channel, chunk] of this.chunks) {
+      if (chunk.length === 0 || chunk.values.length > KEEP_CAPACITY) this.chunks.delete(channel);
+      else {
+        chunk.length = 0;
+        chunk.unstamped = null;
+      }
+    }
     this.events = [];
     this.marks = [];
     this.checkpoints.clear();
