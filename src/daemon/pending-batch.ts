@@ -12,7 +12,8 @@ import type { CheckpointToWrite, CommitBatch, EventToWrite, MarkToWrite, SampleC
  * them all. Cost: O(1) per sample, no object per sample: the samples go straight into typed arrays
  * (doubled when full) and the store's batch gets views of them, not copies. The arrays are kept for
  * the channel's next chunk after a commit (the store copies what it keeps: SQLite writes blobs, the
- * memory store copies), unless they grew beyond KEEP_CAPACITY.
+ * memory store copies); arrays that grew beyond KEEP_CAPACITY are let go and the next chunk starts at
+ * their size.
  */
 class OpenChunk {
   firstSeq = 0;
@@ -21,6 +22,8 @@ class OpenChunk {
   values: Float64Array;
   /** Bit i set: sample i carried no time of its own (null while every sample did). */
   unstamped: Uint8Array | null = null;
+  /** The capacity the channel's last chunk reached (its arrays were let go): the next one starts there. */
+  hint = 0;
 
   constructor(capacity: number) {
     this.times = new Float64Array(capacity);
@@ -28,7 +31,7 @@ class OpenChunk {
   }
 
   grow(): void {
-    const capacity = this.values.length * 2;
+    const capacity = Math.max(FIRST_CAPACITY, this.values.length * 2, this.length === 0 ? this.hint : 0);
     const times = new Float64Array(capacity);
     times.set(this.times);
     const values = new Float64Array(capacity);
@@ -42,11 +45,22 @@ class OpenChunk {
     }
   }
 
+  /** Lets the arrays go, remembering their size for the next chunk. */
+  release(): void {
+    this.hint = this.values.length;
+    this.times = EMPTY;
+    this.values = EMPTY;
+    this.unstamped = null;
+    this.length = 0;
+  }
+
   markUnstamped(i: number): void {
     if (this.unstamped === null) this.unstamped = new Uint8Array(this.values.length >> 3);
     this.unstamped[i >> 3] = (this.unstamped[i >> 3] as number) | (1 << (i & 7));
   }
 }
+
+const EMPTY = new Float64Array(0);
 
 /** A chunk's first capacity (a multiple of 8: the unstamped bitmap has a bit per slot). */
 const FIRST_CAPACITY = 64;
@@ -170,9 +184,11 @@ export class PendingBatch {
   clear(): AckToken[] {
     const tokens = this.tokens;
     this.channels.clear();
-    // Each channel's arrays serve its next chunk (a channel that took nothing since is let go).
+    // Each channel's arrays serve its next chunk (a channel that took nothing since is let go;
+    // arrays beyond KEEP_CAPACITY are let go too, their size kept for the next chunk).
     for (const [channel, chunk] of this.chunks) {
-      if (chunk.length === 0 || chunk.values.length > KEEP_CAPACITY) this.chunks.delete(channel);
+      if (chunk.length === 0) this.chunks.delete(channel);
+      else if (chunk.values.length > KEEP_CAPACITY) chunk.release();
       else {
         chunk.length = 0;
         chunk.unstamped = null;
