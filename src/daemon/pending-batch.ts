@@ -1,5 +1,5 @@
 import type { AckToken, SourcePosition } from '../ports/sample-source.js';
-import type { CheckpointToWrite, CommitBatch, EventToWrite, MarkToWrite, SampleChunk, StoredChannel } from '../ports/store.js';
+import type { CheckpointToWrite, CommitBatch, EventToWrite, MarkToWrite, SampleChunk, StateEntry, StoredChannel } from '../ports/store.js';
 
 /**
  * Everything accepted since the last successful commit: the samples (one growing chunk per
@@ -77,6 +77,7 @@ export class PendingBatch {
   private records: { testPointId: string; body: unknown }[] = [];
   private tokens: AckToken[] = [];
   private readonly positions = new Map<string, SourcePosition>();
+  private readonly state = new Map<string, string | null>();
   private samples = 0;
 
   /** Samples waiting for a commit. */
@@ -99,7 +100,7 @@ export class PendingBatch {
   }
 
   get empty(): boolean {
-    return this.samples === 0 && this.channels.size === 0 && this.events.length === 0 && this.marks.length === 0 && this.checkpoints.size === 0 && this.testPoints.size === 0 && this.records.length === 0 && this.tokens.length === 0;
+    return this.samples === 0 && this.channels.size === 0 && this.events.length === 0 && this.marks.length === 0 && this.checkpoints.size === 0 && this.testPoints.size === 0 && this.records.length === 0 && this.tokens.length === 0 && this.state.size === 0;
   }
 
   /** A channel the store has not seen yet (written with the batch, before its samples). */
@@ -152,6 +153,11 @@ export class PendingBatch {
     this.tokens.push(token);
   }
 
+  /** An ingest state entry (a later body for the key replaces one still waiting; null deletes). */
+  setState(key: string, body: string | null): void {
+    this.state.set(key, body);
+  }
+
   /** The newest position of a source (durable sources store it with the batch). */
   setPosition(position: SourcePosition): void {
     this.positions.set(position.source, position);
@@ -177,6 +183,7 @@ export class PendingBatch {
       records: this.records.slice(),
       counters,
       positions: [...this.positions.values()],
+      state: [...this.state].map(([key, body]): StateEntry => ({ key, body })),
     };
   }
 
@@ -201,6 +208,7 @@ export class PendingBatch {
     this.records = [];
     this.tokens = [];
     this.positions.clear();
+    this.state.clear();
     this.samples = 0;
     return tokens;
   }
