@@ -1,6 +1,10 @@
 // Load generator for bench/e2e.js, run in its own process: publishes COUNT messages as fast as the
 // client allows (QoS 0 or 1), each one sample or a pack of PACK samples, with payload time stamps.
-// Usage: node bench/e2e-publisher.js URL QOS COUNT PACK PREFIX CHANNELS [RATE messages/s]
+// Usage: node bench/e2e-publisher.js URL QOS COUNT PACK PREFIX CHANNELS [RATE messages/s] [ACK_WAIT_MS]
+// Every wait is bounded: the connection (10 s), and the acknowledgements of QoS 1 messages after the
+// last publish (ACK_WAIT_MS, default 60 s). It always prints what happened: messages published,
+// how many the broker has not acknowledged, and the client's reconnections (a stall then shows which
+// side lost the acknowledgements: the harness compares with what its subscriber received).
 import mqtt from 'mqtt';
 
 const [url, qosText, countText, packText, prefix, channelsText] = process.argv.slice(2);
@@ -9,8 +13,18 @@ const count = Number(countText);
 const pack = Number(packText);
 const channels = Number(channelsText ?? 8);
 const rate = Number(process.argv[8] ?? 0);
-const client = mqtt.connect(url, { clientId: `bench-pub-${process.pid}`, clean: true });
-await new Promise((resolve) => client.once('connect', resolve));
+const ackWaitMs = Number(process.argv[9] ?? 60_000);
+const client = mqtt.connect(url, { clientId: `bench-pub-${process.pid}`, clean: true, connectTimeout: 10_000 });
+let reconnects = 0;
+client.on('reconnect', () => reconnects++);
+const connected = await new Promise((resolve) => {
+  const timer = setTimeout(() => resolve(false), 10_000);
+  client.once('connect', () => (clearTimeout(timer), resolve(true)));
+});
+if (!connected) {
+  process.stdout.write(JSON.stringify({ published: 0, unacknowledged: 0, reconnects, failed: `no connection to ${url} within 10 s` }) + '\n');
+  process.exit(0);
+}
 // Many publishes wait for the socket to drain at once: that is the point of a load generator.
 client.stream?.setMaxListeners?.(0);
 const start = Date.now();
@@ -40,6 +54,15 @@ for (let i = 0; i < count; i++) {
     if (wait > 0) await new Promise((resolve) => setTimeout(resolve, wait));
   }
 }
-while (inflight > 0) await new Promise((resolve) => setTimeout(resolve, 5));
-process.stdout.write(JSON.stringify({ published: count, ms: Date.now() - start }) + '\n');
+const published = Date.now();
+const deadline = published + ackWaitMs;
+while (inflight > 0 && Date.now() < deadline) await new Promise((resolve) => setTimeout(resolve, 5));
+const result = { published: count, unacknowledged: inflight, reconnects, ms: Date.now() - start };
+if (inflight > 0) {
+  // What the client still holds: messages it sent and got no PUBACK for (its outgoing store), and
+  // whether its connection is up; a broker that dropped acknowledgements leaves them here.
+  result.failed = `${inflight} QoS ${qos} messages without an acknowledgement ${ackWaitMs / 1000} s after the last publish (client connected: ${client.connected}, reconnections: ${reconnects}, outgoing held by the client: ${Object.keys(client.outgoing ?? {}).length})`;
+}
+process.stdout.write(JSON.stringify(result) + '\n');
 client.end(true);
+process.exit(0);
