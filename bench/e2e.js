@@ -286,8 +286,8 @@ if (embedded.url !== null) {
   await new Promise((resolve) => setTimeout(resolve, 500));
   latencies.sort((a, b) => a - b);
   const p = (q) => latencies[Math.min(latencies.length - 1, Math.floor(q * latencies.length))];
-  line(`alert latency p50 (background ${loadRate.toLocaleString('en')} msgs/s, QoS 1)`, p(0.5)?.toFixed(1), 'ms', `${latencies.length} of ${probes} alerts seen`);
-  line('alert latency p99', p(0.99)?.toFixed(1), 'ms', `goal p99 < 50 ms: ${verdict(p(0.99) < 50)}; longest flush ${daemon.health().store.maxCommitMs.toFixed(1)} ms${latencies.length < probes ? `; FAILED: ${probes - latencies.length} of ${probes} alerts never seen` : ''}`);
+  line(`alert latency p50 (background ${loadRate.toLocaleString('en')} msgs/s, QoS 1)`, p(0.5)?.toFixed(1), 'ms', `${latencies.length} of ${probes - 1} alerts seen (the first probe creates the channel: no alert)`);
+  line('alert latency p99', p(0.99)?.toFixed(1), 'ms', `goal p99 < 50 ms: ${verdict(p(0.99) < 50)}; longest flush ${daemon.health().store.maxCommitMs.toFixed(1)} ms${latencies.length < probes - 1 ? `; FAILED: ${probes - 1 - latencies.length} of ${probes - 1} alerts never seen` : ''}`);
   const loaded = await load;
   if (loaded.failed) line('alert latency: background load', loaded.published ?? 0, 'messages', `FAILED: ${loaded.failed}`);
   probe.end(true);
