@@ -236,8 +236,9 @@ export class Daemon implements DaemonApi {
     for (const reason of REJECT_REASONS) ingest.rejected[reason] = counters[`rejected.${reason}`] ?? 0;
     ingest.gaps = counters.gaps ?? 0;
     ingest.missingSamples = counters.missingSamples ?? 0;
+    const ingestState = this.ingestion.restoreState((prefix) => store.stateEntries(prefix));
     this.restored = { samples: summary.replayed, ms: summary.ms };
-    this.log.info({ channels: summary.channels, checkpoints: summary.outcomes, replayedSamples: summary.replayed, ms: Math.round(summary.ms) }, 'state rebuilt from the store');
+    this.log.info({ channels: summary.channels, checkpoints: summary.outcomes, replayedSamples: summary.replayed, gapDetectors: ingestState.gapDetectors, sparkplugNodes: ingestState.edgeNodes, ms: Math.round(summary.ms) }, 'state rebuilt from the store');
 
     this.fence = new DeliveryFence((source) => store.position(source)?.sequence ?? 0);
     if (this.options.source) {
@@ -321,6 +322,7 @@ export class Daemon implements DaemonApi {
     const now = this.clock.now();
     this.control.evaluate(now);
     for (const event of this.derived.drainEvents()) batch.addEvent({ timeMs: now, source: event.source, kind: event.kind, at: event.at, body: event.body });
+    this.ingestion.saveState();
     const active = this.ingestion.takeActive();
     this.checkpoints.addDue(final ? this.registry.all() : active, batch, final);
     const c = this.ingestion.counters;

@@ -113,6 +113,8 @@ interface Tracked {
   gaps: GapDetector;
   /** The durable log (a JetStream partition's) of the channel's latest sample; null: none or not durable. */
   log: string | null;
+  /** The gap detector took something since its state was last saved. */
+  gapsDirty: boolean;
   /** The unit the configuration gives the channel (null: none). */
   configured: string | null;
 }
@@ -125,6 +127,8 @@ export class Ingest {
   private readonly commandPrefix: string;
   private readonly tracked = new Map<string, Tracked>();
   private active: Tracked[] = [];
+  /** Channels whose gap detector changed since the last saveState. */
+  private gapsChanged: Tracked[] = [];
   private readonly lastRejectLog = new Map<string, number>();
   /** Per source (topic), in order of the last sample heard (oldest first). */
   private readonly lags = new Map<string, SourceLag>();
@@ -181,7 +185,7 @@ export class Ingest {
       const configured = this.options.configuredUnit(name);
       const channel = this.options.registry.ensure(name, configured ?? unit);
       if (configured !== null && channel.unit !== configured) channel.unit = configured; // restored with another unit
-      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name), gaps: new GapDetector(this.options.expectedIntervalMs?.(name) ?? null), log: null, configured };
+      tracked = { channel, introduced: false, active: false, lastArrival: Number.NaN, derivedInput: this.options.isDerivedInput(name), gaps: new GapDetector(this.options.expectedIntervalMs?.(name) ?? null), log: null, gapsDirty: false, configured };
       this.tracked.set(name, tracked);
     } else if (unit !== null && tracked.channel.unit === null) tracked.channel.unit = unit;
     if (unit !== null && tracked.configured !== null && tracked.channel.unitNote === null && !sameUnit(unit, tracked.configured)) {
@@ -238,11 +242,8 @@ export class Ingest {
           this.rejected('engine-error', `channel ${block.channel}: ${(error as Error).message}`, error);
           continue;
         }
-        const { times, values, length, stamped } = block;
-        for (let i = 0; i < length; i++) {
-          const timeMs = times[i] as number;
-          if (this.take(tracked, values[i] as number, timeMs, stamped, arrival) && stamped && timeMs > latestStamp) latestStamp = timeMs;
-        }
+        const newest = this.takeBlock(tracked, block.times, block.values, block.length, block.stamped, arrival);
+        if (newest > latestStamp) latestStamp = newest;
       }
     }
     if (latestStamp > 0) this.noteLag(topic, arrival, arrival - latestStamp);
@@ -258,7 +259,9 @@ export class Ingest {
     for (const lost of effects.sequenceGaps) {
       for (const name of lost.channels) {
         if (this.options.registry.get(name) === undefined) continue;
-        this.gap(name, null, this.track(name, null).gaps.noteSequenceGap(lost.missing, lost.timeMs));
+        const tracked = this.track(name, null);
+        if (!tracked.gapsDirty) this.gapsTouched(tracked);
+        this.gap(name, null, tracked.gaps.noteSequenceGap(lost.missing, lost.timeMs));
       }
     }
   }
@@ -297,7 +300,7 @@ export class Ingest {
       return false;
     }
     if (!result.accepted) {
-      this.rejected(result.reason, `channel ${channel.name}: sample at ${new Date(timeMs).toISOString()} ${result.reason === 'duplicate' ? 'repeats an accepted time' : result.reason === 'redelivered' ? 'was stored before the restart (delivered again)' : 'is older than every remembered one'}`);
+      this.refused(channel, result.reason, timeMs);
       return false;
     }
     this.counters.accepted++;
@@ -312,11 +315,115 @@ export class Ingest {
     if (!tracked.active) this.activate(tracked);
     for (const event of result.events) this.channelEvent(channel, event);
     if (stamped && !result.late) {
+      if (!tracked.gapsDirty) this.gapsTouched(tracked);
       const gap = tracked.gaps.push(timeMs);
       if (gap !== null) this.gap(channel.name, result.seq, gap);
     }
     if (tracked.derivedInput) this.options.sampled(channel.name);
     return true;
+  }
+
+  /**
+   * A block of one channel's samples (binary frames, SenML packs): what `take` does per sample, with
+   * the bookkeeping that is the same for every sample of the block (arrival, log, introduction,
+   * activity, derived inputs) done once, and the accepted samples written straight into the
+   * channel's pending chunk. Returns the newest stamped time taken (0: none).
+   */
+  private takeBlock(tracked: Tracked, times: Float64Array, values: Float64Array, length: number, stamped: boolean, arrival: number): number {
+    const channel = tracked.channel;
+    const batch = this.options.batch;
+    let taken = 0;
+    let latest = 0;
+    for (let i = 0; i < length; i++) {
+      const value = values[i] as number;
+      const timeMs = times[i] as number;
+      let result: AcceptResult;
+      try {
+        result = channel.accept(value, timeMs, stamped);
+      } catch (error) {
+        this.rejected('engine-error', `channel ${channel.name}: ${(error as Error).message}`, error);
+        continue;
+      }
+      if (!result.accepted) {
+        this.refused(channel, result.reason, timeMs);
+        continue;
+      }
+      if (taken === 0) {
+        tracked.lastArrival = arrival;
+        tracked.log = this.currentLog;
+        if (!tracked.introduced) this.introduce(channel);
+        if (!tracked.active) this.activate(tracked);
+      }
+      taken++;
+      if (result.late) this.counters.late++;
+      batch.addSample(channel.name, result.seq, result.timeMs, value, stamped);
+      if (result.engineError !== null) this.rejected('engine-error', `channel ${channel.name}: sample ${result.seq} stored, but the engine failed on it: ${result.engineError.message}`, result.engineError);
+      const events = result.events;
+      for (let e = 0; e < events.length; e++) this.channelEvent(channel, events[e] as ChannelEvent);
+      if (stamped && !result.late) {
+        if (!tracked.gapsDirty) this.gapsTouched(tracked);
+        const gap = tracked.gaps.push(timeMs);
+        if (gap !== null) this.gap(channel.name, result.seq, gap);
+        if (timeMs > latest) latest = timeMs;
+      } else if (stamped && timeMs > latest) latest = timeMs;
+    }
+    this.counters.accepted += taken;
+    if (taken > 0 && tracked.derivedInput) this.options.sampled(channel.name);
+    return latest;
+  }
+
+  private refused(channel: Channel, reason: 'duplicate' | 'out-of-order' | 'redelivered', timeMs: number): void {
+    this.rejected(reason, `channel ${channel.name}: sample at ${new Date(timeMs).toISOString()} ${reason === 'duplicate' ? 'repeats an accepted time' : reason === 'redelivered' ? 'was stored before the restart (delivered again)' : 'is older than every remembered one'}`);
+  }
+
+  private gapsTouched(tracked: Tracked): void {
+    tracked.gapsDirty = true;
+    this.gapsChanged.push(tracked);
+  }
+
+  /**
+   * Before each commit: the state that must survive a restart, as entries of the pending batch, for
+   * what changed since the last call. Each gap detector fed since (`gaps/<channel>`, and its list of
+   * kept gaps when one was added, `gap-list/<channel>`), and the Sparkplug B decoder's edge nodes
+   * and counters (`sparkplug/...`). They are committed with the samples that changed them, so after
+   * a restart (or a crash: what the commit did not hold comes again from the broker) the detectors
+   * and the edge nodes continue exactly where the committed samples left them.
+   */
+  saveState(): void {
+    const batch = this.options.batch;
+    for (const tracked of this.gapsChanged) {
+      tracked.gapsDirty = false;
+      const name = tracked.channel.name;
+      batch.setState(`gaps/${name}`, JSON.stringify(tracked.gaps.saveState()));
+      if (tracked.gaps.keptDirty) batch.setState(`gap-list/${name}`, JSON.stringify(tracked.gaps.takeKept()));
+    }
+    this.gapsChanged = [];
+    this.decoders.sparkplug.saveChanges((key, body) => batch.setState(`sparkplug/${key}`, body));
+  }
+
+  /**
+   * At start, after the channels are restored: the gap detectors and the Sparkplug B edge nodes as
+   * the last commit left them. An entry that cannot be read is logged and left out (that detector
+   * learns again; that edge node needs a rebirth).
+   */
+  restoreState(entries: (prefix: string) => { key: string; body: string }[]): { gapDetectors: number; edgeNodes: number } {
+    const lists = new Map<string, string>();
+    for (const entry of entries('gap-list/')) lists.set(entry.key.slice('gap-list/'.length), entry.body);
+    let gapDetectors = 0;
+    for (const entry of entries('gaps/')) {
+      const name = entry.key.slice('gaps/'.length);
+      if (this.options.registry.get(name) === undefined) continue;
+      try {
+        const list = lists.get(name);
+        this.track(name, null).gaps.loadState(JSON.parse(entry.body), list === undefined ? null : JSON.parse(list));
+        gapDetectors++;
+      } catch (error) {
+        this.options.log.warn({ channel: name, err: error }, `the gap detector's saved state could not be read: it learns the interval again`);
+      }
+    }
+    const sparkplug = entries('sparkplug/').map((e) => ({ key: e.key.slice('sparkplug/'.length), body: e.body }));
+    for (const problem of this.decoders.sparkplug.restore(sparkplug)) this.options.log.warn({ problem }, 'a Sparkplug B edge node\'s saved state could not be read: it needs a rebirth');
+    return { gapDetectors, edgeNodes: sparkplug.filter((e) => e.key.startsWith('node/')).length };
   }
 
   /** A gap: counted, and an event on the channel at the index of the first sample after it. */

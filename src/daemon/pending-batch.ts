@@ -1,5 +1,5 @@
 import type { AckToken, SourcePosition } from '../ports/sample-source.js';
-import type { CheckpointToWrite, CommitBatch, EventToWrite, MarkToWrite, SampleChunk, StoredChannel } from '../ports/store.js';
+import type { CheckpointToWrite, CommitBatch, EventToWrite, MarkToWrite, SampleChunk, StateEntry, StoredChannel } from '../ports/store.js';
 
 /**
  * Everything accepted since the last successful commit: the samples (one growing chunk per
@@ -9,16 +9,63 @@ import type { CheckpointToWrite, CommitBatch, EventToWrite, MarkToWrite, SampleC
  * commits both, and the tokens are acknowledged only once a commit holding their samples succeeded.
  *
  * Samples of one channel are consecutive (the channel numbers them), so one chunk per channel holds
- * them all. Cost: O(1) per sample (two array pushes); building the store's batch copies the samples
- * into typed arrays once per attempt.
+ * them all. Cost: O(1) per sample, no object per sample: the samples go straight into typed arrays
+ * (doubled when full) and the store's batch gets views of them, not copies. The arrays are kept for
+ * the channel's next chunk after a commit (the store copies what it keeps: SQLite writes blobs, the
+ * memory store copies); arrays that grew beyond KEEP_CAPACITY are let go and the next chunk starts at
+ * their size.
  */
-interface OpenChunk {
-  firstSeq: number;
-  times: number[];
-  values: number[];
-  /** Offsets (within the chunk) of the samples that carried no time of their own. */
-  unstamped: number[];
+class OpenChunk {
+  firstSeq = 0;
+  length = 0;
+  times: Float64Array;
+  values: Float64Array;
+  /** Bit i set: sample i carried no time of its own (null while every sample did). */
+  unstamped: Uint8Array | null = null;
+  /** The capacity the channel's last chunk reached (its arrays were let go): the next one starts there. */
+  hint = 0;
+
+  constructor(capacity: number) {
+    this.times = new Float64Array(capacity);
+    this.values = new Float64Array(capacity);
+  }
+
+  grow(): void {
+    const capacity = Math.max(FIRST_CAPACITY, this.values.length * 2, this.length === 0 ? this.hint : 0);
+    const times = new Float64Array(capacity);
+    times.set(this.times);
+    const values = new Float64Array(capacity);
+    values.set(this.values);
+    this.times = times;
+    this.values = values;
+    if (this.unstamped !== null) {
+      const bits = new Uint8Array(capacity >> 3);
+      bits.set(this.unstamped);
+      this.unstamped = bits;
+    }
+  }
+
+  /** Lets the arrays go, remembering their size for the next chunk. */
+  release(): void {
+    this.hint = this.values.length;
+    this.times = EMPTY;
+    this.values = EMPTY;
+    this.unstamped = null;
+    this.length = 0;
+  }
+
+  markUnstamped(i: number): void {
+    if (this.unstamped === null) this.unstamped = new Uint8Array(this.values.length >> 3);
+    this.unstamped[i >> 3] = (this.unstamped[i >> 3] as number) | (1 << (i & 7));
+  }
 }
+
+const EMPTY = new Float64Array(0);
+
+/** A chunk's first capacity (a multiple of 8: the unstamped bitmap has a bit per slot). */
+const FIRST_CAPACITY = 64;
+/** Arrays larger than this (samples) are not kept for the channel's next chunk after a commit. */
+const KEEP_CAPACITY = 1 << 16;
 
 export class PendingBatch {
   private readonly channels = new Map<string, string | null>();
@@ -30,6 +77,7 @@ export class PendingBatch {
   private records: { testPointId: string; body: unknown }[] = [];
   private tokens: AckToken[] = [];
   private readonly positions = new Map<string, SourcePosition>();
+  private readonly state = new Map<string, string | null>();
   private samples = 0;
 
   /** Samples waiting for a commit. */
@@ -52,7 +100,7 @@ export class PendingBatch {
   }
 
   get empty(): boolean {
-    return this.samples === 0 && this.channels.size === 0 && this.events.length === 0 && this.marks.length === 0 && this.checkpoints.size === 0 && this.testPoints.size === 0 && this.records.length === 0 && this.tokens.length === 0;
+    return this.samples === 0 && this.channels.size === 0 && this.events.length === 0 && this.marks.length === 0 && this.checkpoints.size === 0 && this.testPoints.size === 0 && this.records.length === 0 && this.tokens.length === 0 && this.state.size === 0;
   }
 
   /** A channel the store has not seen yet (written with the batch, before its samples). */
@@ -62,15 +110,21 @@ export class PendingBatch {
 
   addSample(channel: string, seq: number, timeMs: number, value: number, stamped: boolean): void {
     let chunk = this.chunks.get(channel);
-    if (chunk === undefined) {
-      chunk = { firstSeq: seq, times: [], values: [], unstamped: [] };
-      this.chunks.set(channel, chunk);
-    } else if (seq !== chunk.firstSeq + chunk.values.length) {
-      throw new RangeError(`channel ${channel}: sample ${seq} does not follow sample ${chunk.firstSeq + chunk.values.length - 1}`);
+    if (chunk === undefined || chunk.length === 0) {
+      if (chunk === undefined) {
+        chunk = new OpenChunk(FIRST_CAPACITY);
+        this.chunks.set(channel, chunk);
+      }
+      chunk.firstSeq = seq;
+    } else if (seq !== chunk.firstSeq + chunk.length) {
+      throw new RangeError(`channel ${channel}: sample ${seq} does not follow sample ${chunk.firstSeq + chunk.length - 1}`);
     }
-    if (!stamped) chunk.unstamped.push(chunk.values.length);
-    chunk.times.push(timeMs);
-    chunk.values.push(value);
+    const i = chunk.length;
+    if (i === chunk.values.length) chunk.grow();
+    chunk.times[i] = timeMs;
+    chunk.values[i] = value;
+    if (!stamped) chunk.markUnstamped(i);
+    chunk.length = i + 1;
     this.samples++;
   }
 
@@ -104,6 +158,11 @@ export class PendingBatch {
     this.tokens.push(token);
   }
 
+  /** An ingest state entry (a later body for the key replaces one still waiting; null deletes). */
+  setState(key: string, body: string | null): void {
+    this.state.set(key, body);
+  }
+
   /** The newest position of a source (durable sources store it with the batch). */
   setPosition(position: SourcePosition): void {
     this.positions.set(position.source, position);
@@ -114,12 +173,10 @@ export class PendingBatch {
     const channels: StoredChannel[] = [...this.channels].map(([name, unit]) => ({ name, unit }));
     const chunks: SampleChunk[] = [];
     for (const [channel, chunk] of this.chunks) {
-      let unstamped: Uint8Array | null = null;
-      if (chunk.unstamped.length > 0) {
-        unstamped = new Uint8Array(Math.ceil(chunk.values.length / 8));
-        for (const i of chunk.unstamped) unstamped[i >> 3] = (unstamped[i >> 3] as number) | (1 << (i & 7));
-      }
-      chunks.push({ channel, firstSeq: chunk.firstSeq, times: Float64Array.from(chunk.times), values: Float64Array.from(chunk.values), unstamped });
+      const n = chunk.length;
+      if (n === 0) continue;
+      const unstamped = chunk.unstamped === null ? null : chunk.unstamped.subarray(0, Math.ceil(n / 8));
+      chunks.push({ channel, firstSeq: chunk.firstSeq, times: chunk.times.subarray(0, n), values: chunk.values.subarray(0, n), unstamped });
     }
     return {
       channels,
@@ -131,6 +188,7 @@ export class PendingBatch {
       records: this.records.slice(),
       counters,
       positions: [...this.positions.values()],
+      state: [...this.state].map(([key, body]): StateEntry => ({ key, body })),
     };
   }
 
@@ -138,7 +196,16 @@ export class PendingBatch {
   clear(): AckToken[] {
     const tokens = this.tokens;
     this.channels.clear();
-    this.chunks.clear();
+    // Each channel's arrays serve its next chunk (a channel that took nothing since is let go;
+    // arrays beyond KEEP_CAPACITY are let go too, their size kept for the next chunk).
+    for (const [channel, chunk] of this.chunks) {
+      if (chunk.length === 0) this.chunks.delete(channel);
+      else if (chunk.values.length > KEEP_CAPACITY) chunk.release();
+      else {
+        chunk.length = 0;
+        chunk.unstamped = null;
+      }
+    }
     this.events = [];
     this.marks = [];
     this.checkpoints.clear();
@@ -146,6 +213,7 @@ export class PendingBatch {
     this.records = [];
     this.tokens = [];
     this.positions.clear();
+    this.state.clear();
     this.samples = 0;
     return tokens;
   }

@@ -55,6 +55,29 @@ export interface GapSummary {
   list: GapRecord[];
 }
 
+/**
+ * A detector's state as plain data (JSON-safe: null for NaN), to continue exactly after a restart.
+ * The configured interval is not part of it: the configuration at the restart decides.
+ */
+export interface GapDetectorState {
+  record: 'gap-detector';
+  version: 1;
+  intervalMs: number | null;
+  medianMs: number | null;
+  last: number | null;
+  ring: number[];
+  ringCount: number;
+  ringNext: number;
+  sinceMedian: number;
+  spanStart: number | null;
+  spanSteps: number;
+  skipNext: boolean;
+  totals: { gaps: number; missing: number; sequenceGaps: number };
+}
+
+/** The gaps a detector keeps (for records and traces), as plain data. */
+export type GapListState = GapRecord[];
+
 export const LEARN_WINDOW = 32;
 export const MIN_LEARNED = 8;
 export const MAX_KEPT = 256;
@@ -81,8 +104,10 @@ export class GapDetector {
   private spanStart = Number.NaN;
   private spanSteps = 0;
   private skipNext = false;
-  private readonly kept: GapRecord[] = [];
+  private kept: GapRecord[] = [];
   private totals = { gaps: 0, missing: 0, sequenceGaps: 0 };
+  /** Gaps added since keptSaved() was last called. */
+  private keptChanged = false;
 
   constructor(intervalMs: number | null = null) {
     this.configuredMs = intervalMs !== null && intervalMs > 0 && Number.isFinite(intervalMs) ? intervalMs : null;
@@ -146,7 +171,62 @@ export class GapDetector {
     return { gaps: list.length, missing, list };
   }
 
+  /** The running state (small: written with every commit that fed the detector). */
+  saveState(): GapDetectorState {
+    const orNull = (x: number | null) => (x === null || Number.isNaN(x) ? null : x);
+    return {
+      record: 'gap-detector',
+      version: 1,
+      intervalMs: this.configuredMs === null ? orNull(this.intervalMs) : null,
+      medianMs: orNull(this.medianMs),
+      last: orNull(this.last),
+      ring: Array.from(this.ring),
+      ringCount: this.ringCount,
+      ringNext: this.ringNext,
+      sinceMedian: this.sinceMedian,
+      spanStart: orNull(this.spanStart),
+      spanSteps: this.spanSteps,
+      skipNext: this.skipNext,
+      totals: { ...this.totals },
+    };
+  }
+
+  /** Whether gaps were added since the list was last taken (`takeKept`). */
+  get keptDirty(): boolean {
+    return this.keptChanged;
+  }
+
+  /** The kept gaps, to store (clears keptDirty). */
+  takeKept(): GapListState {
+    this.keptChanged = false;
+    return this.kept.map((g) => ({ ...g }));
+  }
+
+  /**
+   * Continues from a saved state (and the kept gaps, when saved). A learned interval is taken
+   * only while no interval is configured now.
+   * @throws RangeError for a record of another name or version, or one that is not well formed.
+   */
+  loadState(state: GapDetectorState, kept: GapListState | null): void {
+    if (state?.record !== 'gap-detector' || state.version !== 1) throw new RangeError('not a gap-detector record of version 1');
+    if (!Array.isArray(state.ring) || state.ring.length !== LEARN_WINDOW || !state.ring.every((x) => typeof x === 'number')) throw new RangeError('gap-detector record: ring of the wrong length');
+    const num = (x: number | null) => (x === null ? Number.NaN : x);
+    if (this.configuredMs === null) this.intervalMs = state.intervalMs;
+    this.medianMs = state.medianMs;
+    this.last = num(state.last);
+    this.ring.set(state.ring);
+    this.ringCount = state.ringCount;
+    this.ringNext = state.ringNext;
+    this.sinceMedian = state.sinceMedian;
+    this.spanStart = num(state.spanStart);
+    this.spanSteps = state.spanSteps;
+    this.skipNext = state.skipNext;
+    this.totals = { gaps: state.totals.gaps, missing: state.totals.missing, sequenceGaps: state.totals.sequenceGaps };
+    if (kept !== null) this.kept = kept.slice(-MAX_KEPT).map((g) => ({ ...g }));
+  }
+
   private add(gap: GapRecord): GapRecord {
+    this.keptChanged = true;
     this.totals.gaps++;
     this.totals.missing += gap.missing;
     this.kept.push(gap);

@@ -36,7 +36,8 @@ const utf8 = new TextDecoder('utf-8', { fatal: true });
 
 /**
  * The daemon's decoders: the pure ones above, and the Sparkplug B decoder with its state per edge
- * node (sparkplug-decoder.ts). One instance per daemon.
+ * node (sparkplug-decoder.ts). One instance per daemon. Binary frames and SenML packs (JSON and
+ * CBOR) come out as blocks of typed arrays, not an object per sample.
  */
 export class PayloadDecoders {
   readonly sparkplug = new SparkplugDecoder();
@@ -74,7 +75,7 @@ export function decodePayload(topic: string, payload: Uint8Array, spec: DecoderS
   if (spec.format === 'senml-cbor') {
     const read = senmlCborRecords(payload, spec.maxSamples);
     if ('error' in read) return reject(read.error.startsWith('payload is not CBOR') ? 'unparseable' : read.error.includes('more than the') ? 'too-many-samples' : 'wrong-type', read.error);
-    decodeSenml(topic, read.records, spec, arrivalMs, out);
+    decodeSenml(topic, read.records, spec, arrivalMs, out, scratch !== undefined);
     return out;
   }
   let text: string;
@@ -99,7 +100,7 @@ export function decodePayload(topic: string, payload: Uint8Array, spec: DecoderS
   } catch {
     return reject('unparseable', `payload is not JSON: "${truncate(text)}"`);
   }
-  if (spec.format === 'senml') decodeSenml(topic, document, spec, arrivalMs, out);
+  if (spec.format === 'senml') decodeSenml(topic, document, spec, arrivalMs, out, scratch !== undefined);
   else decodeJson(topic, document, spec, arrivalMs, out);
   return out;
 }
@@ -161,7 +162,11 @@ function decodeJson(topic: string, document: unknown, spec: DecoderSpec, arrival
   });
 }
 
-function decodeSenml(topic: string, document: unknown, spec: DecoderSpec, arrivalMs: number, out: DecodeResult): void {
+/**
+ * `asBlocks` (the daemon's decoders): the samples go into blocks, one per run of records with the
+ * same channel, unit and kind of time, in the pack's order, instead of an object per sample.
+ */
+function decodeSenml(topic: string, document: unknown, spec: DecoderSpec, arrivalMs: number, out: DecodeResult, asBlocks = false): void {
   const fail = (reason: RejectReason, detail: string) => out.rejections.push({ reason, detail: `topic ${truncate(topic)}: ${detail}` });
   if (!Array.isArray(document)) return void fail('wrong-type', `SenML needs a JSON array of records, got ${typeName(document)}`);
   if (document.length > spec.maxSamples) return void fail('too-many-samples', `${document.length} records in one pack, more than the ${spec.maxSamples} allowed`);
@@ -171,6 +176,7 @@ function decodeSenml(topic: string, document: unknown, spec: DecoderSpec, arriva
   let baseValue = 0;
   let lastName: string | null = null;
   let lastChannel: string | null = null;
+  let block: SampleBlock | null = null;
   document.forEach((record, index) => {
     const where = `record ${index}`;
     if (!isObject(record)) return void fail('wrong-type', `${where}: ${typeName(record)} where a SenML record object was expected`);
@@ -220,8 +226,22 @@ function decodeSenml(topic: string, document: unknown, spec: DecoderSpec, arriva
     }
     const channel = lastChannel;
     if (channel === null) return void fail('bad-channel', `${where}: name "${truncate(fullName)}" is not a valid channel name`);
-    const sample: Sample = { channel, timeMs, value: total, stamped: !relative };
     const fixed = spec.unit ?? unit;
+    if (asBlocks) {
+      const sampleUnit = fixed === null ? undefined : fixed;
+      if (block === null || block.channel !== channel || block.unit !== sampleUnit || block.stamped === relative) {
+        // A new run: room for every record left in the pack.
+        const room = (document as unknown[]).length - index;
+        block = { channel, times: new Float64Array(room), values: new Float64Array(room), length: 0, stamped: !relative };
+        if (sampleUnit !== undefined) block.unit = sampleUnit;
+        (out.blocks ??= []).push(block);
+      }
+      block.times[block.length] = timeMs;
+      block.values[block.length] = total;
+      block.length++;
+      return;
+    }
+    const sample: Sample = { channel, timeMs, value: total, stamped: !relative };
     if (fixed !== undefined && fixed !== null) sample.unit = fixed;
     out.samples.push(sample);
   });
@@ -318,8 +338,22 @@ function readTime(raw: unknown, unit: 's' | 'ms'): number | null {
   return Number.isFinite(ms) && ms >= 0 && ms < MAX_TIME_MS ? ms : null;
 }
 
+/** Channel names already worked out, by template, topic, name and field (most messages repeat them). */
+const NAMES = new Map<string, string | null>();
+const NAMES_KEPT = 4096;
+
 /** Fills a channel template from topic levels ({1}, {2}, ...), {topic}, {name} and {field}. */
 export function channelName(template: string, topic: string, extra: { name?: string; field?: string }): string | null {
+  const key = `${template}\u0000${topic}\u0000${extra.name ?? '\u0001'}\u0000${extra.field ?? '\u0001'}`;
+  const known = NAMES.get(key);
+  if (known !== undefined) return known;
+  const name = fillTemplate(template, topic, extra);
+  if (NAMES.size >= NAMES_KEPT) NAMES.clear();
+  NAMES.set(key, name);
+  return name;
+}
+
+function fillTemplate(template: string, topic: string, extra: { name?: string; field?: string }): string | null {
   const levels = topic.split('/');
   let missing = false;
   const name = template.replace(/\{(\w+)\}/g, (_match, key: string) => {

@@ -51,7 +51,7 @@ export const MAX_MAGNITUDE = 1e100;
 export const MAX_TIME_MS = 7_258_118_400_000;
 
 /**
- * Samples of one channel decoded into typed arrays (binary frames): no object per sample. Entries
+ * Samples of one channel decoded into typed arrays (binary frames; SenML packs in the daemon): no object per sample. Entries
  * 0 .. length-1 hold the samples, in order.
  */
 export interface SampleBlock {

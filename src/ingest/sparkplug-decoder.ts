@@ -81,6 +81,59 @@ function longNumber(value: unknown, signed = false): number {
 export class SparkplugDecoder {
   readonly counters: SparkplugCounters = { births: 0, deviceBirths: 0, deaths: 0, deviceDeaths: 0, staleDeaths: 0, sequenceGaps: 0, missedMessages: 0, unknownAliases: 0, needsRebirth: 0, rebirthRequests: 0, commands: 0 };
   private readonly nodes = new Map<string, EdgeNodeState>();
+  /** Nodes a message reached since the last saveChanges, and the tables version each had when last saved. */
+  private readonly touched = new Set<EdgeNodeState>();
+  private readonly savedTables = new WeakMap<EdgeNodeState, number>();
+  private countersChanged = false;
+
+  /**
+   * What changed since the last call, as state entries (key suffix, JSON body): each node a message
+   * reached (its sequence state, and its tables when a birth or death changed them) and the
+   * counters. The daemon commits them with the samples of the same messages, so a restart continues
+   * where the last commit left: aliases known, the next seq expected, a rebirth still needed.
+   */
+  saveChanges(put: (key: string, body: string) => void): void {
+    for (const node of this.touched) {
+      const key = `${node.group}/${node.node}`;
+      put(`node/${key}`, JSON.stringify(node.seqState()));
+      if (this.savedTables.get(node) !== node.tablesVersion) {
+        put(`tables/${key}`, JSON.stringify(node.tablesState()));
+        this.savedTables.set(node, node.tablesVersion);
+      }
+    }
+    this.touched.clear();
+    if (this.countersChanged) put('counters', JSON.stringify(this.counters));
+    this.countersChanged = false;
+  }
+
+  /**
+   * The saved entries (key suffixes as saveChanges wrote them). A node whose records cannot be read
+   * is left out and named in the returned problems: it needs a rebirth like a node never seen.
+   */
+  restore(entries: readonly { key: string; body: string }[]): string[] {
+    const problems: string[] = [];
+    const tables = new Map<string, string>();
+    for (const entry of entries) if (entry.key.startsWith('tables/')) tables.set(entry.key.slice('tables/'.length), entry.body);
+    for (const entry of entries) {
+      try {
+        if (entry.key === 'counters') {
+          const saved = JSON.parse(entry.body) as Partial<SparkplugCounters>;
+          for (const name of Object.keys(this.counters) as (keyof SparkplugCounters)[]) if (typeof saved[name] === 'number') this.counters[name] = saved[name] as number;
+        } else if (entry.key.startsWith('node/')) {
+          const key = entry.key.slice('node/'.length);
+          const seq = JSON.parse(entry.body);
+          const node = new EdgeNodeState(String(seq.group), String(seq.node));
+          const table = tables.get(key);
+          node.load(seq, table === undefined ? null : JSON.parse(table));
+          this.nodes.set(key, node);
+          this.savedTables.set(node, node.tablesVersion);
+        }
+      } catch (error) {
+        problems.push(`${entry.key}: ${(error as Error).message}`);
+      }
+    }
+    return problems;
+  }
 
   /** The edge nodes seen, for queries and tests. */
   node(group: string, node: string): EdgeNodeState | undefined {
@@ -92,6 +145,7 @@ export class SparkplugDecoder {
   }
 
   decode(topic: string, payload: Uint8Array, spec: DecoderSpec, arrivalMs: number): DecodeResult {
+    this.countersChanged = true;
     const effects: DecodeEffects = { publish: [], stale: [], sequenceGaps: [] };
     const out: DecodeResult = { samples: [], rejections: [], effects };
     const where = clip(topic);
@@ -129,6 +183,7 @@ export class SparkplugDecoder {
       node = new EdgeNodeState(group, nodeId);
       this.nodes.set(key, node);
     }
+    this.touched.add(node);
 
     if (type === 'NDEATH') {
       const bdSeq = bdSeqOf(metrics);
@@ -170,7 +225,7 @@ export class SparkplugDecoder {
       } else if (type === 'DDEATH') {
         this.counters.deviceDeaths++;
         effects.stale.push({ channels: node.channels(device as string), cause: `DDEATH of device ${key}/${device}` });
-        node.devices.delete(device as string);
+        node.deviceDeath(device as string);
         return out;
       }
     }

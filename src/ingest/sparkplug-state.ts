@@ -22,6 +22,33 @@ export interface MetricInfo {
   numeric: boolean;
 }
 
+/** An edge node's sequence state as plain data (small: written with every commit after a message of the node). */
+export interface EdgeNodeSeqState {
+  record: 'sparkplug-node';
+  version: 1;
+  group: string;
+  node: string;
+  born: boolean;
+  bdSeq: number | null;
+  lastSeq: number;
+  needsRebirth: boolean;
+  rebirthCause: string;
+  rebirthRequestedAt: number | null;
+}
+
+/** What an edge node's births announced, as plain data (written only when a birth or death changed it). */
+export interface EdgeNodeTablesState {
+  record: 'sparkplug-tables';
+  version: 1;
+  /** Every metric the tables hold. */
+  metrics: MetricInfo[];
+  /** Indices into `metrics` of the names table, in its order. */
+  names: number[];
+  /** [alias, index into `metrics`]. */
+  aliases: [number, number][];
+  devices: string[];
+}
+
 export class EdgeNodeState {
   readonly group: string;
   readonly node: string;
@@ -41,6 +68,8 @@ export class EdgeNodeState {
   readonly names = new Map<string, MetricInfo>();
   /** Devices that sent a DBIRTH since the node's birth and no DDEATH since. */
   readonly devices = new Set<string>();
+  /** Counts the changes of the tables (aliases, names, devices): they are saved only when it moved. */
+  tablesVersion = 0;
 
   constructor(group: string, node: string) {
     this.group = group;
@@ -58,6 +87,7 @@ export class EdgeNodeState {
     this.aliases.clear();
     this.names.clear();
     this.devices.clear();
+    this.tablesVersion++;
   }
 
   /** A device's DBIRTH: its earlier metrics are forgotten. */
@@ -65,11 +95,83 @@ export class EdgeNodeState {
     for (const [alias, info] of this.aliases) if (info.device === device) this.aliases.delete(alias);
     for (const [key, info] of this.names) if (info.device === device) this.names.delete(key);
     this.devices.add(device);
+    this.tablesVersion++;
+  }
+
+  /** A device's DDEATH. */
+  deviceDeath(device: string): void {
+    this.devices.delete(device);
+    this.tablesVersion++;
   }
 
   learn(info: MetricInfo, alias: number | null): void {
     this.names.set(nameKey(info.device, info.name), info);
     if (alias !== null) this.aliases.set(alias, info);
+    this.tablesVersion++;
+  }
+
+  seqState(): EdgeNodeSeqState {
+    return {
+      record: 'sparkplug-node',
+      version: 1,
+      group: this.group,
+      node: this.node,
+      born: this.born,
+      bdSeq: this.bdSeq,
+      lastSeq: this.lastSeq,
+      needsRebirth: this.needsRebirth,
+      rebirthCause: this.rebirthCause,
+      rebirthRequestedAt: Number.isNaN(this.rebirthRequestedAt) ? null : this.rebirthRequestedAt,
+    };
+  }
+
+  tablesState(): EdgeNodeTablesState {
+    const index = new Map<MetricInfo, number>();
+    const metrics: MetricInfo[] = [];
+    const indexOf = (info: MetricInfo) => {
+      let i = index.get(info);
+      if (i === undefined) {
+        i = metrics.length;
+        index.set(info, i);
+        metrics.push({ ...info });
+      }
+      return i;
+    };
+    const names = [...this.names.values()].map(indexOf);
+    const aliases = [...this.aliases].map(([alias, info]): [number, number] => [alias, indexOf(info)]);
+    return { record: 'sparkplug-tables', version: 1, metrics, names, aliases, devices: [...this.devices] };
+  }
+
+  /**
+   * Continues from saved state (the tables, when saved: a node seen only without a birth has none).
+   * @throws RangeError for records of another name or version, or ones that are not well formed.
+   */
+  load(seq: EdgeNodeSeqState, tables: EdgeNodeTablesState | null): void {
+    if (seq?.record !== 'sparkplug-node' || seq.version !== 1) throw new RangeError('not a sparkplug-node record of version 1');
+    if (!Number.isInteger(seq.lastSeq) || seq.lastSeq < -1 || seq.lastSeq > 255) throw new RangeError('sparkplug-node record: seq out of range');
+    this.born = seq.born === true;
+    this.bdSeq = seq.bdSeq;
+    this.lastSeq = seq.lastSeq;
+    this.needsRebirth = seq.needsRebirth === true;
+    this.rebirthCause = String(seq.rebirthCause ?? '');
+    this.rebirthRequestedAt = seq.rebirthRequestedAt ?? Number.NaN;
+    this.aliases.clear();
+    this.names.clear();
+    this.devices.clear();
+    if (tables === null) return;
+    if (tables?.record !== 'sparkplug-tables' || tables.version !== 1) throw new RangeError('not a sparkplug-tables record of version 1');
+    const infos = tables.metrics.map((m) => ({ name: String(m.name), device: m.device === null ? null : String(m.device), datatype: Number(m.datatype), channel: m.channel === null ? null : String(m.channel), numeric: m.numeric === true }));
+    const at = (i: number) => {
+      const info = infos[i];
+      if (info === undefined) throw new RangeError('sparkplug-tables record: index out of range');
+      return info;
+    };
+    for (const i of tables.names) {
+      const info = at(i);
+      this.names.set(nameKey(info.device, info.name), info);
+    }
+    for (const [alias, i] of tables.aliases) this.aliases.set(alias, at(i));
+    for (const device of tables.devices) this.devices.add(String(device));
   }
 
   lookup(device: string | null, name: string | null, alias: number | null): MetricInfo | undefined {

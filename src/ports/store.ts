@@ -76,6 +76,17 @@ export interface CommitBatch {
   counters: Record<string, number>;
   /** The newest committed position of each durable source (what a restart resumes after). */
   positions: SourcePosition[];
+  /**
+   * Ingest state by key (Sparkplug B edge nodes, gap detectors): the body replaces the stored one,
+   * null deletes it. Committed with the samples it was current for.
+   */
+  state?: StateEntry[];
+}
+
+export interface StateEntry {
+  key: string;
+  /** Text (JSON) chosen by the key's owner; null: delete the key. */
+  body: string | null;
 }
 
 export interface CommitResult {
@@ -108,6 +119,8 @@ export interface Store {
   records(testPointId: string): StoredRecord[];
   counters(): Record<string, number>;
   position(source: string): SourcePosition | null;
+  /** The ingest state entries whose key starts with `prefix`, in key order. */
+  stateEntries(prefix: string): { key: string; body: string }[];
   /** Deletes samples and events older than `beforeMs`, except samples a checkpoint still needs. */
   prune(beforeMs: number): { chunks: number; events: number };
   /** Bytes the store takes (0 when it keeps nothing on disk). */

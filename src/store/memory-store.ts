@@ -22,6 +22,7 @@ interface Tables {
   nextRecordId: number;
   counters: Map<string, number>;
   positions: Map<string, number>;
+  state: Map<string, string>;
 }
 
 export class MemoryStore implements Store {
@@ -38,6 +39,7 @@ export class MemoryStore implements Store {
     nextRecordId: 1,
     counters: new Map(),
     positions: new Map(),
+    state: new Map(),
   };
   private failures: { count: number; code: 'ERR_STORE_FULL' | 'ERR_STORE_BUSY' | 'ERR_STORE_IO' | 'ERR_STORE_FAILED' } = { count: 0, code: 'ERR_STORE_FAILED' };
   private closed = false;
@@ -67,6 +69,7 @@ export class MemoryStore implements Store {
       nextRecordId: t.nextRecordId,
       counters: new Map(t.counters),
       positions: new Map(t.positions),
+      state: batch.state !== undefined && batch.state.length > 0 ? new Map(t.state) : t.state,
     };
     const known = new Set(staged.channels.map((c) => c.name));
     const ensure = (name: string, unit: string | null = null) => {
@@ -106,6 +109,10 @@ export class MemoryStore implements Store {
     for (const record of batch.records) records.push({ id: nextRecordId++, createdMs: nowMs, body: JSON.parse(JSON.stringify({ testPointId: record.testPointId, body: record.body })) });
     for (const [key, value] of Object.entries(batch.counters)) staged.counters.set(key, value);
     for (const position of batch.positions) if (position.durable) staged.positions.set(position.source, position.sequence);
+    for (const entry of batch.state ?? []) {
+      if (entry.body === null) staged.state.delete(entry.key);
+      else staged.state.set(entry.key, entry.body);
+    }
     if (this.failures.count > 0) {
       this.failures.count--;
       throw new PlateauError(this.failures.code, { location: this.location, detail: 'injected failure' });
@@ -163,6 +170,13 @@ export class MemoryStore implements Store {
 
   counters(): Record<string, number> {
     return Object.fromEntries(this.tables.counters);
+  }
+
+  stateEntries(prefix: string): { key: string; body: string }[] {
+    return [...this.tables.state]
+      .filter(([key]) => key.startsWith(prefix))
+      .sort(([a], [b]) => (a < b ? -1 : a > b ? 1 : 0))
+      .map(([key, body]) => ({ key, body }));
   }
 
   position(source: string): SourcePosition | null {

@@ -73,4 +73,12 @@ export const MIGRATIONS: string[] = [
     updated_ms REAL NOT NULL
   );
   `,
+  // 3: what ingest knows beyond the channels, committed with the samples it concerns: the Sparkplug
+  // B state of each edge node, each channel's gap detector (keys named by their owner).
+  `
+  CREATE TABLE ingest_state (
+    key TEXT PRIMARY KEY,
+    body TEXT NOT NULL
+  );
+  `,
 ];

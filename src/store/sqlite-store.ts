@@ -77,6 +77,9 @@ export class SqliteStore implements Store {
       counters: this.db.prepare('SELECT key, value FROM counters'),
       putPosition: this.db.prepare('INSERT INTO source_positions (source, sequence, updated_ms) VALUES (?, ?, ?) ON CONFLICT(source) DO UPDATE SET sequence = excluded.sequence, updated_ms = excluded.updated_ms'),
       position: this.db.prepare('SELECT sequence FROM source_positions WHERE source = ?'),
+      putState: this.db.prepare('INSERT INTO ingest_state (key, body) VALUES (?, ?) ON CONFLICT(key) DO UPDATE SET body = excluded.body'),
+      deleteState: this.db.prepare('DELETE FROM ingest_state WHERE key = ?'),
+      stateEntries: this.db.prepare('SELECT key, body FROM ingest_state WHERE substr(key, 1, ?) = ? ORDER BY key'),
       pruneChunks: this.db.prepare(`DELETE FROM sample_chunks WHERE last_ms < ? AND first_seq + count <= COALESCE((SELECT seq FROM checkpoints WHERE checkpoints.channel_id = sample_chunks.channel_id), 0)`),
       pruneEvents: this.db.prepare('DELETE FROM events WHERE time_ms < ?'),
     };
@@ -133,6 +136,10 @@ export class SqliteStore implements Store {
         for (const record of batch.records) s.insertRecord.run(record.testPointId, nowMs, JSON.stringify(record.body));
         for (const [key, value] of Object.entries(batch.counters)) s.putCounter.run(key, value);
         for (const position of batch.positions) if (position.durable) s.putPosition.run(position.source, position.sequence, nowMs);
+        for (const entry of batch.state ?? []) {
+          if (entry.body === null) s.deleteState.run(entry.key);
+          else s.putState.run(entry.key, entry.body);
+        }
         this.inTransaction?.();
       })();
     } catch (error) {
@@ -191,6 +198,10 @@ export class SqliteStore implements Store {
     const out: Record<string, number> = {};
     for (const row of this.statements.counters.all() as { key: string; value: number }[]) out[row.key] = row.value;
     return out;
+  }
+
+  stateEntries(prefix: string): { key: string; body: string }[] {
+    return this.statements.stateEntries.all(prefix.length, prefix) as { key: string; body: string }[];
   }
 
   position(source: string): SourcePosition | null {

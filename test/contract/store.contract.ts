@@ -106,6 +106,7 @@ export function storeContract(name: string, make: () => StoreUnderTest): void {
         records: [{ testPointId: 'tp-1', body: { kind: 'stopped' } }],
         counters: { accepted: 13 },
         positions: [{ source: 'stream', sequence: 44, durable: true }],
+        state: [{ key: 'gaps/c', body: '{"last":10}' }],
       };
       under.failNextCommit();
       expect(() => store.commit(batch, 3)).toThrow(expect.objectContaining({ code: expect.stringMatching(/^ERR_STORE_/) }));
@@ -118,6 +119,7 @@ export function storeContract(name: string, make: () => StoreUnderTest): void {
       expect(store.records('tp-1')).toEqual([]);
       expect(store.counters()).toEqual({});
       expect(store.position('stream')).toBeNull();
+      expect(store.stateEntries('')).toEqual([]);
       const result = store.commit(batch, 3);
       expect(result.events.map((e) => [e.id, e.kind])).toEqual([[2, 'stale']]);
       expect(read(store, 'c', 0).seqs).toHaveLength(10);
@@ -125,6 +127,16 @@ export function storeContract(name: string, make: () => StoreUnderTest): void {
       expect(store.checkpoint('c')).toEqual({ seq: 10, state: { record: 'x', version: 1 } });
       expect(store.counters()).toEqual({ accepted: 13 });
       expect(store.position('stream')).toEqual({ source: 'stream', sequence: 44, durable: true });
+      expect(store.stateEntries('gaps/')).toEqual([{ key: 'gaps/c', body: '{"last":10}' }]);
+    });
+
+    it('ingest state: the newest body of a key wins, null deletes it, entries are read by key prefix in key order', () => {
+      const { store } = fresh();
+      store.commit({ ...emptyBatch(), state: [{ key: 'gaps/b', body: '1' }, { key: 'gaps/a', body: '2' }, { key: 'sparkplug/g/n', body: '3' }, { key: 'gaps_x', body: '4' }] }, 0);
+      store.commit({ ...emptyBatch(), state: [{ key: 'gaps/b', body: '5' }, { key: 'sparkplug/g/n', body: null }] }, 0);
+      expect(store.stateEntries('gaps/')).toEqual([{ key: 'gaps/a', body: '2' }, { key: 'gaps/b', body: '5' }]);
+      expect(store.stateEntries('sparkplug/')).toEqual([]);
+      expect(store.stateEntries('').map((e) => e.key)).toEqual(['gaps/a', 'gaps/b', 'gaps_x']);
     });
 
     it('events: ids increase in the order of the batch and are never reused, even after retention removed them all', () => {
@@ -202,7 +214,7 @@ export function storeContract(name: string, make: () => StoreUnderTest): void {
     it('what was committed is there again when the store is opened again', (context) => {
       const under = fresh();
       if (under.reopen === undefined) return context.skip();
-      under.store.commit({ ...emptyBatch(), channels: [{ name: 'c', unit: 'bar' }], chunks: [chunk('c', 0, 8, undefined, [2])], events: [{ timeMs: 5, source: 'c', kind: 'steady', at: 3, body: { a: 1 } }], checkpoints: [{ channel: 'c', seq: 8, state: { v: Float64Array.of(1, 2) } }], counters: { accepted: 8 } }, 1);
+      under.store.commit({ ...emptyBatch(), channels: [{ name: 'c', unit: 'bar' }], chunks: [chunk('c', 0, 8, undefined, [2])], events: [{ timeMs: 5, source: 'c', kind: 'steady', at: 3, body: { a: 1 } }], checkpoints: [{ channel: 'c', seq: 8, state: { v: Float64Array.of(1, 2) } }], counters: { accepted: 8 }, state: [{ key: 'sparkplug/g/n', body: '{"lastSeq":3}' }] }, 1);
       const again = under.reopen();
       opened.push(again);
       expect(again.channels()).toEqual([{ name: 'c', unit: 'bar' }]);
@@ -210,6 +222,7 @@ export function storeContract(name: string, make: () => StoreUnderTest): void {
       expect(again.lastEventId()).toBe(1);
       expect(again.checkpoint('c')).toEqual({ seq: 8, state: { v: Float64Array.of(1, 2) } });
       expect(again.counters()).toEqual({ accepted: 8 });
+      expect(again.stateEntries('sparkplug/')).toEqual([{ key: 'sparkplug/g/n', body: '{"lastSeq":3}' }]);
       // And it goes on: new ids after the stored ones.
       expect(again.commit({ ...emptyBatch(), events: [{ timeMs: 6, source: 'c', kind: 'stale', at: 7, body: {} }] }, 2).events[0]?.id).toBe(2);
     });

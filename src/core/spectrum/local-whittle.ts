@@ -19,7 +19,7 @@ import { goldenSection } from '../numeric/golden-section.js';
  * - m = floor(N^0.65) (a common bandwidth choice; Robinson's theory needs m -> inf, m / N -> 0).
  * - d is searched on [-0.49, 0.99] by golden section (core/numeric/golden-section.ts; R(d) is
  *   smooth and unimodal in practice).
- * Cost: O(m) per evaluation of R, about 40 evaluations (golden section to 1e-8 in d); plus the caller's shape.
+ * Cost: O(m) per evaluation of R (one exp per frequency), about 40 evaluations (golden section to 1e-8 in d); plus the caller's shape.
  */
 export interface LongMemoryEstimate {
   /** Memory parameter d = H - 1/2 (0 for short memory). */
@@ -34,19 +34,21 @@ export function localWhittle(periodogram: Periodogram, shape?: (lambda: number) 
   const { ordinates, length } = periodogram;
   const m = Math.min(ordinates.length, Math.floor(length ** bandwidthExponent));
   if (m < 8) return null;
-  const lambdas = new Float64Array(m);
+  const logs = new Float64Array(m);
   const y = new Float64Array(m);
   let meanLog = 0;
   for (let j = 0; j < m; j++) {
     const lambda = (2 * Math.PI * (j + 1)) / length;
-    lambdas[j] = lambda;
+    logs[j] = Math.log(lambda);
     y[j] = (ordinates[j] as number) / (shape ? Math.max(shape(lambda), Number.MIN_VALUE) : 1);
-    meanLog += Math.log(lambda);
+    meanLog += logs[j] as number;
   }
   meanLog /= m;
+  // ln lambda_j - mean, once: each evaluation of R then costs one exp per frequency.
+  for (let j = 0; j < m; j++) logs[j] = (logs[j] as number) - meanLog;
   const objective = (d: number): number => {
     let s = 0;
-    for (let j = 0; j < m; j++) s += Math.exp(2 * d * (Math.log(lambdas[j] as number) - meanLog)) * (y[j] as number);
+    for (let j = 0; j < m; j++) s += Math.exp(2 * d * (logs[j] as number)) * (y[j] as number);
     return Math.log(s / m);
   };
   const d = goldenSection(objective, -0.49, 0.99, 40, 'min');
