@@ -369,7 +369,7 @@ export class Daemon implements DaemonApi {
       channels: this.registry.size,
       restore: { samples: this.restored.samples, ms: this.restored.ms },
       redeliveriesSkipped: this.fence?.skipped ?? 0,
-      ...(this.worker ? { scale: this.scaleStatus() } : {}),
+      ...(this.worker ? { scale: { ...this.scaleStatus(), lostDeliveries: this.worker.source.gaps } } : {}),
       memory: process.memoryUsage(),
     };
   }
