@@ -4,6 +4,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { connect, type NatsConnection } from '@nats-io/transport-node';
 import { jetstream, jetstreamManager } from '@nats-io/jetstream';
+import pino from 'pino';
 import { parseConfig } from '../../src/config/load-config.js';
 import { Daemon } from '../../src/daemon/daemon.js';
 import { buildHttpApp } from '../../src/server/http-app.js';
@@ -52,6 +53,7 @@ describe('a lab on a 3-node JetStream cluster with R = 3', () => {
     phase('JetStream');
     const dir = mkdtempSync(join(tmpdir(), 'plateau-cluster-'));
     const stopProblems: string[] = [];
+    const logs: string[] = [];
     let finished = false;
     const daemons = ['c1', 'c2'].map(
       (worker) =>
@@ -64,6 +66,8 @@ describe('a lab on a 3-node JetStream cluster with R = 3', () => {
             store: { path: join(dir, `${worker}.sqlite`) },
             log: { level: 'silent' },
           }),
+          // The worker's log, kept to say what it went through when the test fails.
+          { logger: pino({ level: 'info', base: { worker } }, { write: (line: string) => void logs.push(line.trim()) }) },
         ),
     );
     try {
@@ -122,7 +126,8 @@ describe('a lab on a 3-node JetStream cluster with R = 3', () => {
           const channels = d.channels().map((c) => `${c.name}:${(c as unknown as { n: number }).n}`).join(' ');
           return `${d.config.scale?.worker} holds ${JSON.stringify(d.scaleStatus()?.partitions)}; ${channels}; skipped ${counters.redeliveriesSkipped}; lost deliveries noticed ${counters.scale.lostDeliveries}; samples ${JSON.stringify(counters.samples)}; broker ${JSON.stringify(counters.broker)}`;
         });
-        throw new Error(`${error.message}\n${detail.join('\n')}`);
+        const lines = logs.filter((l) => !l.includes('"msg":"broker ')).slice(-40).map((l) => l.slice(0, 400));
+        throw new Error(`${error.message}\n${detail.join('\n')}\nthe workers' last log lines:\n${lines.join('\n')}`);
       });
       phase('every sample taken');
       const view = await lab();
