@@ -192,6 +192,8 @@ export function parseConfig(document: unknown, source = 'config', options: { req
     flushIntervalMs: r.number(storeSection, 'flushIntervalMs', 'store', { min: 1, max: 5000, integer: true }, 20),
     checkpointSamples: r.number(storeSection, 'checkpointSamples', 'store', { min: 100, integer: true }, 100_000),
   };
+  // The partitions' shared checkpoints follow the same schedule as the local ones.
+  if (scale) scale.checkpointSamples = store.checkpointSamples;
   const httpSection = r.section(root.http, 'http', ['listen', 'token', 'maxBodyBytes']);
   const listen = r.string(httpSection, 'listen', 'http', '127.0.0.1:8080');
   const listenMatch = /^(.*):(\d{1,5})$/.exec(listen);

@@ -25,6 +25,10 @@ export interface ScaleConfig {
   leaseSeconds: number;
   /** The key-value bucket of the leases. */
   leaseBucket: string;
+  /** The key-value bucket of the partitions' shared checkpoints. */
+  checkpointBucket: string;
+  /** Channel samples between shared checkpoints (store.checkpointSamples). */
+  checkpointSamples: number;
   /** Messages fetched per pull request. */
   fetchBatch: number;
 }
@@ -41,12 +45,12 @@ export function isNatsUrl(url: string): boolean {
  * Reads `scale` for a NATS broker (`urls` the broker.url value or values); returns null and
  * notes a problem when `scale` is given for an MQTT broker. One problem per line, with its key.
  */
-export function readScale(r: ConfigReader, value: unknown, urls: string[], nats: boolean): ScaleConfig | null {
+export function readScale(r: ConfigReader, value: unknown, urls: string[], nats: boolean, checkpointSamples = 100_000): ScaleConfig | null {
   if (!nats) {
     if (value !== undefined) r.problem('scale', 'applies only to a NATS broker (broker.url: nats://host:port); remove it or point broker.url at a NATS server');
     return null;
   }
-  const s: Plain = r.section(value ?? {}, 'scale', ['partitions', 'stream', 'subjectPrefix', 'replicas', 'worker', 'leaseSeconds', 'leaseBucket', 'fetchBatch']);
+  const s: Plain = r.section(value ?? {}, 'scale', ['partitions', 'stream', 'subjectPrefix', 'replicas', 'worker', 'leaseSeconds', 'leaseBucket', 'checkpointBucket', 'fetchBatch']);
   const worker = r.string(s, 'worker', 'scale', '');
   if (s.worker === undefined) r.problem('scale.worker', "missing: this worker's name (unique among the lab's workers), such as worker-1");
   else if (!NAME.test(worker)) r.problem('scale.worker', `expected letters, digits, - and _ (at most 64), got ${describe(worker)}`);
@@ -56,6 +60,8 @@ export function readScale(r: ConfigReader, value: unknown, urls: string[], nats:
   if (!SUBJECT_TOKENS.test(subjectPrefix)) r.problem('scale.subjectPrefix', `expected subject tokens such as part or lab.part, got ${describe(subjectPrefix)}`);
   const leaseBucket = r.string(s, 'leaseBucket', 'scale', `${NAME.test(stream) ? stream : 'PLATEAU'}_leases`);
   if (!NAME.test(leaseBucket)) r.problem('scale.leaseBucket', `expected a bucket name of letters, digits, - and _, got ${describe(leaseBucket)}`);
+  const checkpointBucket = r.string(s, 'checkpointBucket', 'scale', `${NAME.test(stream) ? stream : 'PLATEAU'}_checkpoints`);
+  if (!NAME.test(checkpointBucket)) r.problem('scale.checkpointBucket', `expected a bucket name of letters, digits, - and _, got ${describe(checkpointBucket)}`);
   const replicas = r.number(s, 'replicas', 'scale', { min: 1, max: 5, integer: true }, 1);
   return {
     servers: urls,
@@ -66,6 +72,8 @@ export function readScale(r: ConfigReader, value: unknown, urls: string[], nats:
     worker,
     leaseSeconds: r.number(s, 'leaseSeconds', 'scale', { min: 1, max: 3600 }, 3),
     leaseBucket,
+    checkpointBucket,
+    checkpointSamples,
     fetchBatch: r.number(s, 'fetchBatch', 'scale', { min: 1, max: 10_000, integer: true }, 256),
   };
 }

@@ -2,10 +2,13 @@ import type { Channel } from '../engine/channel.js';
 import type { PendingBatch } from './pending-batch.js';
 
 /**
- * When a channel's checkpoint falls due: after `checkpointSamples` samples or two window lengths
- * since its last one, whichever is more (a replay after a restart then costs at most that many
- * samples), and for every channel with new samples at a clean stop. Only channels that took samples
- * since the last commit are looked at.
+ * When a channel's checkpoint falls due: after `checkpointSamples` samples since its last one,
+ * whatever its window (a restart then replays at most that many samples of the channel), and for
+ * every channel with new samples at a clean stop. Only channels that took samples since the last
+ * commit are looked at. (The rule used to wait for two window lengths as well, so a growing window
+ * was never checkpointed while it grew and a restart replayed it from its start.) A checkpoint holds
+ * the window's samples: its size grows with the window (about 24 bytes a sample for a growing one),
+ * which `checkpointSamples` trades against the replay.
  */
 export class CheckpointSchedule {
   private readonly last = new Map<string, number>();
@@ -25,8 +28,7 @@ export class CheckpointSchedule {
     for (const channel of channels) {
       const next = channel.nextSeq;
       const last = this.last.get(channel.name) ?? 0;
-      const due = Math.max(this.checkpointSamples, 2 * channel.pipeline.count);
-      if ((final && next > last) || next - last >= due) {
+      if ((final && next > last) || next - last >= this.checkpointSamples) {
         batch.setCheckpoint({ channel: channel.name, ...channel.checkpoint() });
         this.last.set(channel.name, next);
       }

@@ -43,6 +43,8 @@ export interface CommitCycleOptions {
   committed(events: StoredEvent[]): void;
   /** The store started failing, or recovered. */
   healthChanged(health: CommitHealth): void;
+  /** After each successful commit, the state in memory being exactly what is committed (the shared checkpoints are taken here). */
+  afterCommit?(): void;
 }
 
 const RETRY_INITIAL_MS = 50;
@@ -158,6 +160,7 @@ export class CommitCycle {
       this.options.healthChanged(this.health());
     }
     if (stored.length > 0) this.options.committed(stored);
+    this.options.afterCommit?.();
     return true;
   }
 

@@ -32,6 +32,8 @@ import { Publishing } from './publishing.js';
 import { Queries } from './queries.js';
 import { channelTrace } from './channel-trace.js';
 import { restoreChannels, restoreTestPoints } from './restore.js';
+import { PartitionCheckpoints } from './partition-checkpoints.js';
+import type { SharedCheckpoints } from '../ingest/shared-checkpoints.js';
 import { TestPointControl } from './test-point-control.js';
 
 /**
@@ -101,6 +103,8 @@ export class Daemon implements DaemonApi {
   /** With `broker.url: nats://...`: this worker's partitions, leases and JetStream source. */
   private worker: JetStreamWorker | null = null;
   private fence: DeliveryFence | null = null;
+  /** With JetStream ingest: the partitions' checkpoints in the shared bucket (takeover restores from them). */
+  private shared: PartitionCheckpoints | null = null;
   private timers: NodeJS.Timeout[] = [];
   private restored = { samples: 0, ms: 0 };
   private stopped = false;
@@ -136,6 +140,7 @@ export class Daemon implements DaemonApi {
         this.publishing.committed(events);
       },
       healthChanged: () => this.publishing.healthChanged(this.health()),
+      afterCommit: () => this.shared?.afterCommit(),
     });
     const raise = (source: string, kind: string, at: number | null, body: Record<string, unknown>) => this.queueEvent(source, kind, at, body);
     this.ingestion = new Ingest({
@@ -252,8 +257,22 @@ export class Daemon implements DaemonApi {
         subscriptions: daemonSubscriptions(this.config),
         log: this.log,
         startAfter: (source) => fence.covered(source),
+        restore: (partition, source) => this.shared?.restore(partition, source) ?? Promise.resolve(null),
       });
       await this.worker.open();
+      this.shared = new PartitionCheckpoints({
+        bucket: this.worker.checkpoints as SharedCheckpoints,
+        worker: this.config.scale.worker,
+        checkpointSamples: this.config.scale.checkpointSamples,
+        registry: this.registry,
+        ingest: this.ingestion,
+        fence,
+        batch: this.commits.batch,
+        held: () => (this.worker as JetStreamWorker).owned(),
+        partitionSource: (p) => (this.worker as JetStreamWorker).source.partitionName(p),
+        commit: () => this.commits.commit(false),
+        log: this.log,
+      });
       this.source = this.worker.source;
       if (this.options.publisher) this.publishers.push(this.options.publisher);
     } else {
@@ -378,7 +397,7 @@ export class Daemon implements DaemonApi {
       channels: this.registry.size,
       restore: { samples: this.restored.samples, ms: this.restored.ms },
       redeliveriesSkipped: this.fence?.skipped ?? 0,
-      ...(this.worker ? { scale: this.scaleStatus() } : {}),
+      ...(this.worker ? { scale: { ...this.scaleStatus(), lostDeliveries: this.worker.source.gaps, sharedCheckpoints: this.shared?.figures ?? null } } : {}),
       memory: process.memoryUsage(),
     };
   }

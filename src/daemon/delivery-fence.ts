@@ -29,6 +29,11 @@ export class DeliveryFence {
     return seq;
   }
 
+  /** The state now covers the log up to `seq` (restored from a shared checkpoint taken there). */
+  advance(source: string, seq: number): void {
+    if (seq > this.covered(source)) this.taken.set(source, seq);
+  }
+
   /** The batch without its redeliveries (the same token). */
   filter(batch: SourceBatch): SourceBatch {
     let kept = batch.deliveries;

@@ -147,6 +147,20 @@ export class Ingest {
     return this.tracked.get(name)?.log ?? null;
   }
 
+  /**
+   * A channel restored elsewhere (a partition's shared checkpoint) takes the place of the one
+   * tracked under its name; its samples come from `log`. The store gets it if it does not have it.
+   */
+  adopt(channel: Channel, log: string): void {
+    const tracked = this.track(channel.name, null);
+    tracked.channel = channel;
+    tracked.log = log;
+    if (!tracked.introduced) {
+      tracked.introduced = true;
+      this.options.batch.addChannel(channel.name, channel.unit);
+    }
+  }
+
   /** A channel the store already has (restored at start). */
   known(channel: Channel): void {
     this.track(channel.name, null).introduced = true;

@@ -38,6 +38,16 @@ export class ChannelRegistry {
     return channel;
   }
 
+  /** Puts a channel built elsewhere (restored from a shared checkpoint) in place of the one of that name. */
+  replace(channel: Channel): void {
+    this.channels.set(channel.name, channel);
+  }
+
+  /** A new channel with the settings its name selects, not registered (to be restored, then put in place). */
+  create(name: string, unit: string | null): Channel {
+    return new Channel(name, unit, this.optionsFor(name));
+  }
+
   /** The channel (created when new) applies its time policy and feeds the sample. */
   accept(name: string, value: number, timeMs: number, stamped: boolean, unit: string | null = null): AcceptResult & { channel: Channel } {
     const channel = this.ensure(name, unit);

@@ -320,6 +320,18 @@ export class Channel {
     return { seq: this.nextSeq, state: channelRecord(this.identity, this.offset, this.current.saveState(), this.steadiness.state(), this.current.criteria?.saveState() ?? null, windows) };
   }
 
+  /**
+   * The time policy's memory in short, for a checkpoint that travels without the stored samples (a
+   * partition's shared checkpoint): the last `count` accepted payload times, oldest first, and the
+   * newest time taken. `memoryHistory` turns it back into what `restore` reads before the index.
+   */
+  timeMemory(count: number): { times: number[]; lastMs: number } {
+    const n = Math.min(count, this.recentCount, RECENT_TIMES);
+    const times: number[] = [];
+    for (let i = this.recentCount - n; i < this.recentCount; i++) times.push(this.recentTimes[i % RECENT_TIMES] as number);
+    return { times, lastMs: this.lastStampMs };
+  }
+
   /** Rebuilds a new channel from its checkpoint (or none) and its stored samples and marks. */
   restore(checkpoint: { seq: number; state: unknown } | null, history: ChannelHistory): RestoreReport {
     let outcome: RestoreReport['outcome'] = 'fresh';
@@ -473,4 +485,24 @@ export class Channel {
     this.recentTimes[this.recentCount % RECENT_TIMES] = timeMs;
     this.recentCount++;
   }
+}
+
+/**
+ * A history holding only the time policy's memory before a checkpoint at `seq` (see
+ * `Channel.timeMemory`): the remembered times as stamped samples, then the newest time as an
+ * unstamped one when it is newer (an arrival-stamped sample). No marks: they are in the state.
+ */
+export function memoryHistory(seq: number, memory: { times: number[]; lastMs: number }): ChannelHistory {
+  const times = [...memory.times];
+  const newest = times.length > 0 ? (times[times.length - 1] as number) : Number.NEGATIVE_INFINITY;
+  const extra = Number.isFinite(memory.lastMs) && memory.lastMs > newest;
+  if (extra) times.push(memory.lastMs);
+  let unstamped: Uint8Array | null = null;
+  if (extra) {
+    unstamped = new Uint8Array(Math.ceil(times.length / 8));
+    const i = times.length - 1;
+    unstamped[i >> 3] = (unstamped[i >> 3] as number) | (1 << (i & 7));
+  }
+  const run: StoredSamples = { firstSeq: seq - times.length, times, values: new Float64Array(times.length), unstamped };
+  return { samplesFrom: () => (times.length > 0 ? [run] : []), marksFrom: () => [] };
 }

@@ -57,7 +57,13 @@ export async function declareLayout(nc: NatsConnection, scale: ScaleConfig): Pro
     if (c.max_age > 0) limits.push(`max_age ${Math.round(c.max_age / 1e9)} s`);
     if (c.max_msgs > 0) limits.push(`max_msgs ${c.max_msgs}`);
     if (c.max_bytes > 0) limits.push(`max_bytes ${c.max_bytes}`);
-    if (limits.length > 0) notes.push(`stream ${scale.stream} keeps messages only within ${limits.join(', ')}: a worker that takes over a partition rebuilds its channels from the stream, and what the limits removed is not in its results`);
+    // A takeover restores a partition's channels from its latest shared checkpoint and reads the
+    // stream after it: up to store.checkpointSamples samples of each channel must still be there.
+    if (c.max_msgs > 0 && c.max_msgs < scale.checkpointSamples) {
+      notes.push(`stream ${scale.stream} keeps at most ${c.max_msgs} messages, fewer than store.checkpointSamples (${scale.checkpointSamples}): the retention does not cover the checkpoint interval, and a worker that takes over a partition would miss samples between its latest shared checkpoint and the oldest message kept`);
+    } else if (limits.length > 0) {
+      notes.push(`stream ${scale.stream} keeps messages only within ${limits.join(', ')}: a worker that takes over a partition reads the stream after the partition's latest shared checkpoint, so the stream must keep at least store.checkpointSamples (${scale.checkpointSamples}) samples of every channel of a partition, and a partition with no checkpoint yet from its first message; what the limits removed before that is not in the results`);
+    }
     if (info.state.first_seq > 1) notes.push(`stream ${scale.stream} starts at sequence ${info.state.first_seq}: earlier messages are gone and a takeover cannot replay them`);
   }
   for (let p = 0; p < scale.partitions; p++) {

@@ -40,6 +40,15 @@ interface Partition {
    * daemon's sequence fence could not tell from a redelivery). Read again only after a new assign.
    */
   expired: boolean;
+  /**
+   * The consumer's delivery sequence expected next (0: take the first one seen). The server numbers
+   * every delivery of a consumer, first or again, one after the other, and this worker is the
+   * consumer's only reader: a number skipped is a delivery that never arrived (sent by a consumer
+   * leader on a node that died, or lost with a connection). The messages after it would move the
+   * sequence fence past the lost one, whose redelivery would then be skipped as a repeat: so the
+   * partition stops there, as past its deadline, and is read again from where the state ends.
+   */
+  nextDelivery: number;
   /** Messages handed out and not yet acknowledged, by stream sequence. */
   outstanding: Map<number, JsMsg>;
   /** Batches handed out and not yet acknowledged. */
@@ -75,6 +84,8 @@ export class JetStreamSampleSource implements SampleSource {
   private epochs = 0;
   private unsubscribe: (() => void) | null = null;
   private stopped = false;
+  /** Lost deliveries noticed (each made its partition be read again). */
+  gaps = 0;
 
   constructor(options: JetStreamSourceOptions) {
     this.options = options;
@@ -114,7 +125,7 @@ export class JetStreamSampleSource implements SampleSource {
       await jsm.consumers.add(stream, consumerConfig({ stream, subjectPrefix: this.options.subjectPrefix }, index, startAfter));
     }
     const consumer = await jetstream(nc).consumers.get(stream, durable);
-    const partition: Partition = { index, name: this.partitionName(index), epoch: ++this.epochs, messages: null, reader: null, deadline, expired: false, outstanding: new Map(), tokens: new Set() };
+    const partition: Partition = { index, name: this.partitionName(index), epoch: ++this.epochs, messages: null, reader: null, deadline, expired: false, nextDelivery: 0, outstanding: new Map(), tokens: new Set() };
     this.partitions.set(index, partition);
     const messages = await consumer.consume({ max_messages: this.options.fetchBatch ?? 256, expires: 5000 });
     partition.messages = messages;
@@ -163,6 +174,18 @@ export class JetStreamSampleSource implements SampleSource {
       p.messages?.stop();
       return;
     }
+    const delivery = msg.info.deliverySequence;
+    if (p.nextDelivery > 0 && delivery > p.nextDelivery) {
+      // A delivery was lost: hand out nothing more; the lease's next renewal sees the partition
+      // stopped, releases it and takes it again, which reads it from this worker's own position.
+      p.expired = true;
+      p.messages?.stop();
+      this.gaps++;
+      this.handlers.error(new Error(`partition ${p.index}: delivery ${delivery} came where ${p.nextDelivery} was due (a delivery was lost, as when a NATS node goes down): the partition is read again from the last stream sequence taken`));
+      return;
+    }
+    // A smaller number: a new consumer leader whose state was behind numbers again from there.
+    p.nextDelivery = delivery + 1;
     const topic = subjectToTopic(msg.subject, this.options.subjectPrefix);
     p.outstanding.set(msg.seq, msg);
     const token: JetStreamToken = { source: this.name, partition: p.index, epoch: p.epoch, messages: [msg] };

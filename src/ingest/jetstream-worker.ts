@@ -5,6 +5,7 @@ import { declareLayout, leaseBucket } from './jetstream-layout.js';
 import { JetStreamSampleSource } from './jetstream-sample-source.js';
 import { NatsLink } from './nats-link.js';
 import { PartitionLeases } from './partition-leases.js';
+import { SharedCheckpoints } from './shared-checkpoints.js';
 
 /**
  * One worker of a lab on NATS JetStream: its connection, the server objects (declared or checked),
@@ -24,6 +25,12 @@ export interface JetStreamWorkerOptions {
   log: WorkerLog;
   /** The stream sequence this worker's state covers for a partition's log (0: nothing). */
   startAfter(partitionSource: string): number;
+  /**
+   * Before a partition acquired is read: restore its channels from the partition's shared
+   * checkpoint when it is ahead of this worker's own state; returns the stream sequence the state
+   * now covers (null: nothing restored, read after `startAfter`).
+   */
+  restore?(partition: number, partitionSource: string): Promise<number | null>;
   /** Partitions held changed (for the API and the log). */
   changed?(owned: number[]): void;
 }
@@ -35,6 +42,8 @@ export class JetStreamWorker {
   private readonly options: JetStreamWorkerOptions;
   /** Monotonic time of each acquisition (for the takeover figures). */
   readonly acquisitions: { partition: number; at: number; startAfter: number }[] = [];
+  /** The partitions' shared checkpoints (opened by open()). */
+  checkpoints: SharedCheckpoints | null = null;
 
   constructor(options: JetStreamWorkerOptions) {
     this.options = options;
@@ -53,6 +62,13 @@ export class JetStreamWorker {
       throw new PlateauError('ERR_SCALE_UNREACHABLE', { servers: scale.servers.join(', '), detail: (error as Error).message });
     }
     const report = await declareLayout(nc, scale);
+    if (report.problems.length === 0) {
+      try {
+        this.checkpoints = await SharedCheckpoints.open(nc, scale.checkpointBucket, scale.replicas);
+      } catch (error) {
+        report.problems.push(`key-value bucket ${scale.checkpointBucket}: ${(error as Error).message}`);
+      }
+    }
     for (const note of report.notes) log.warn({ stream: scale.stream }, note);
     if (report.problems.length > 0) {
       await this.link.close();
@@ -82,8 +98,10 @@ export class JetStreamWorker {
       leaseSeconds: scale.leaseSeconds,
       handlers: {
         acquired: async (p, deadline) => {
-          const startAfter = this.options.startAfter(source.partitionName(p));
-          this.acquisitions.push({ partition: p, at: performance.now(), startAfter });
+          const at = performance.now();
+          const restored = (await this.options.restore?.(p, source.partitionName(p))) ?? null;
+          const startAfter = restored ?? this.options.startAfter(source.partitionName(p));
+          this.acquisitions.push({ partition: p, at, startAfter });
           await source.assign(p, startAfter, deadline);
           log.info({ partition: p, startAfter, worker: scale.worker }, `partition ${p} acquired: reading from stream sequence ${startAfter + 1}`);
           this.options.changed?.(this.owned());

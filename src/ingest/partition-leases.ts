@@ -140,9 +140,9 @@ export class PartitionLeases {
         handlers.lost(p, `the renewal failed: ${(error as Error).message}`);
       }
     }
-    const keys: string[] = [];
-    for await (const key of await kv.keys('w.*')) keys.push(key.slice(2));
-    this.workers = [...new Set([...keys, worker])].sort();
+    // Bounded by the heartbeat's period, so that a stalled listing does not hold up the next renewals.
+    const keys = await listKeys(kv, 'w.*', Math.max(100, this.leaseMs / 3));
+    this.workers = [...new Set([...keys.map((key) => key.slice(2)), worker])].sort();
     const share = new Set(PartitionLeases.share(worker, this.workers, partitions));
     for (const p of this.owned()) {
       if (share.has(p) || this.stopped) continue;
@@ -188,8 +188,43 @@ export class PartitionLeases {
     this.stopped = true;
     if (this.timer) clearInterval(this.timer);
     this.timer = null;
+    // A heartbeat in flight ends within its requests' timeouts (each bounded, keys too).
     await this.running;
     for (const p of this.owned()) await this.release(p);
     if (this.presence !== null) await this.options.kv.delete(`w.${this.options.worker}`).catch(() => undefined);
   }
+}
+
+/**
+ * The keys of a bucket matching `filter`, within `ms`: the client lists keys through a consumer that
+ * ends when the last key or an idle heartbeat arrives; on a cluster that loses a node meanwhile,
+ * neither may ever come, and a heartbeat waiting on it would wait for ever (and every later one
+ * behind it). Past `ms` the listing is stopped and this rejects: the heartbeat fails, is logged, and
+ * the next one tries again.
+ */
+export async function listKeys(kv: KV, filter: string, ms: number): Promise<string[]> {
+  const keys: string[] = [];
+  let timer: NodeJS.Timeout | undefined;
+  let timedOut = false;
+  const listing = (async () => {
+    const iterator = await kv.keys(filter);
+    timer = setTimeout(() => {
+      timedOut = true;
+      iterator.stop();
+    }, ms);
+    for await (const key of iterator) keys.push(key);
+  })();
+  // The requests that open the listing have their own timeouts; this bounds them all the same.
+  let outer: NodeJS.Timeout | undefined;
+  const limit = new Promise<never>((_, reject) => {
+    outer = setTimeout(() => reject(new Error(`listing the keys ${filter} did not end within ${Math.round(ms)} ms`)), ms + 1000);
+  });
+  try {
+    await Promise.race([listing, limit]);
+  } finally {
+    clearTimeout(timer);
+    clearTimeout(outer);
+  }
+  if (timedOut) throw new Error(`listing the keys ${filter} did not end within ${Math.round(ms)} ms`);
+  return keys;
 }

@@ -19,9 +19,9 @@ function problems(document: Record<string, unknown>): string[] {
 describe('scale configuration', () => {
   it('a nats:// URL selects JetStream ingest with its defaults; a list is a cluster', () => {
     const one = parseConfig({ subscriptions: SUBSCRIPTIONS, broker: { url: 'nats://127.0.0.1:4222' }, scale: { worker: 'bay-1' } });
-    expect(one.scale).toEqual({ servers: ['nats://127.0.0.1:4222'], partitions: 1, stream: 'PLATEAU', subjectPrefix: 'part', replicas: 1, worker: 'bay-1', leaseSeconds: 3, leaseBucket: 'PLATEAU_leases', fetchBatch: 256 });
+    expect(one.scale).toEqual({ servers: ['nats://127.0.0.1:4222'], partitions: 1, stream: 'PLATEAU', subjectPrefix: 'part', replicas: 1, worker: 'bay-1', leaseSeconds: 3, leaseBucket: 'PLATEAU_leases', checkpointBucket: 'PLATEAU_checkpoints', checkpointSamples: 100_000, fetchBatch: 256 });
     const cluster = parseConfig({ subscriptions: SUBSCRIPTIONS, broker: { url: ['nats://10.0.0.1:4222', 'nats://10.0.0.2:4222', 'nats://10.0.0.3:4222'] }, scale: { worker: 'bay-2', partitions: 12, replicas: 3, stream: 'HALL', leaseSeconds: 5 } });
-    expect(cluster.scale).toMatchObject({ servers: ['nats://10.0.0.1:4222', 'nats://10.0.0.2:4222', 'nats://10.0.0.3:4222'], partitions: 12, replicas: 3, stream: 'HALL', leaseBucket: 'HALL_leases', leaseSeconds: 5 });
+    expect(cluster.scale).toMatchObject({ servers: ['nats://10.0.0.1:4222', 'nats://10.0.0.2:4222', 'nats://10.0.0.3:4222'], partitions: 12, replicas: 3, stream: 'HALL', leaseBucket: 'HALL_leases', checkpointBucket: 'HALL_checkpoints', leaseSeconds: 5 });
     expect(cluster.broker.url).toBe('nats://10.0.0.1:4222,nats://10.0.0.2:4222,nats://10.0.0.3:4222');
     expect(parseConfig({ subscriptions: SUBSCRIPTIONS }).scale).toBeUndefined();
   });

@@ -31,7 +31,7 @@ sampleSourceContract(
   async (_prefix, subscriptions: SubscriptionConfig[]) => {
     const url = (server as OwnNatsServer).url;
     const n = streams++;
-    const scale: ScaleConfig = { servers: [url], partitions: 1, stream: `CONTRACT${n}`, subjectPrefix: `c${n}`, replicas: 1, worker: 'w', leaseSeconds: 3, leaseBucket: 'CONTRACT_leases', fetchBatch: 64 };
+    const scale: ScaleConfig = { servers: [url], partitions: 1, stream: `CONTRACT${n}`, subjectPrefix: `c${n}`, replicas: 1, worker: 'w', leaseSeconds: 3, leaseBucket: 'CONTRACT_leases', checkpointBucket: 'CONTRACT_checkpoints', checkpointSamples: 1000, fetchBatch: 64 };
     const setup = new NatsLink({ servers: [url], name: 'setup' });
     const report = await declareLayout(await setup.open(), scale);
     await setup.close();

@@ -74,4 +74,48 @@ describe('restore', () => {
     expect(second.store.position('stream')?.sequence).toBe(150);
     await second.stop();
   });
+
+  it('a restart replays at most store.checkpointSamples samples per channel, whatever its window, and ends where the live channel was', async () => {
+    // Before, a checkpoint waited for two window lengths as well: neither channel here (a growing
+    // window of 5300 samples, a sliding one of 4096) would have had one, and a restart replayed every sample.
+    const path = join(mkdtempSync(join(tmpdir(), 'plateau-restore-')), 'state.sqlite');
+    const CHECKPOINT = 1000;
+    const config = testConfig({
+      url: 'mqtt://127.0.0.1:9',
+      prefix: 'rig',
+      clientId: 'bounded-restart',
+      store: path,
+      channels: { defaults: { window: { kind: 'growing' } }, groups: [{ match: 'oven.*', window: { kind: 'sliding', samples: 4096 } }] },
+      extra: { store: { path, checkpointSamples: CHECKPOINT } },
+    });
+    const source = new MemorySampleSource(daemonSubscriptions(config), 'stream');
+    const first = new Daemon(config, { source, logger: pino({ level: 'silent' }) });
+    await first.start();
+    const N = 5300;
+    const oven = Array.from(lcgAr1(9, 0.3, N), (x) => 180 + 0.5 * x);
+    for (let i = 0; i < N; i++) {
+      source.publish('rig/press.line_bar', JSON.stringify({ v: VALUES[i % VALUES.length], t: T0 + i * 0.1 }));
+      source.publish('rig/oven.zone_degC', JSON.stringify({ v: oven[i], t: T0 + i * 0.1 }));
+      // Commits as the commit cycle makes them, every few hundred samples.
+      if (i % 250 === 249) first.commitNow();
+    }
+    first.commitNow();
+    const live = Object.fromEntries(['press.line_bar', 'oven.zone_degC'].map((name) => [name, first.registry.get(name)?.pipeline.snapshot()]));
+    // A crash: no clean stop (which would checkpoint every channel); the file is left as the last commit left it.
+    first.store.close();
+
+    const logs: Record<string, unknown>[] = [];
+    const second = new Daemon(config, { source: new MemorySampleSource(daemonSubscriptions(config), 'stream'), logger: pino({ level: 'info' }, { write: (line: string) => logs.push(JSON.parse(line) as Record<string, unknown>) }) });
+    await second.start();
+    const rebuilt = logs.find((l) => l.msg === 'state rebuilt from the store');
+    expect(rebuilt?.checkpoints).toEqual({ fresh: 0, loaded: 2, replayed: 0 });
+    for (const name of ['press.line_bar', 'oven.zone_degC']) {
+      const checkpoint = second.store.checkpoint(name);
+      const replayed = N - (checkpoint?.seq ?? 0);
+      expect(replayed, `${name}: samples replayed after the checkpoint`).toBeLessThanOrEqual(CHECKPOINT);
+      expect(second.registry.get(name)?.pipeline.snapshot(), name).toEqual(live[name]);
+    }
+    expect(second.counters.restoredSamples).toBeLessThanOrEqual(2 * CHECKPOINT);
+    await second.stop();
+  });
 });

@@ -31,10 +31,23 @@ export function publishAsync(client: MqttClient, topic: string, payload: string 
 export async function waitFor(condition: () => boolean | Promise<boolean>, timeoutMs: number, what: string, pollMs = 25): Promise<void> {
   const end = Date.now() + timeoutMs;
   for (;;) {
-    if (await condition()) return;
+    // A condition that never answers (a request to a server that is gone) counts against the same limit.
+    if (await within(Math.max(1, end - Date.now()), `${what} (a check that did not answer)`, Promise.resolve(condition()), timeoutMs)) return;
     if (Date.now() > end) throw new Error(`timed out after ${timeoutMs} ms waiting for ${what}`);
     await new Promise((resolve) => setTimeout(resolve, pollMs));
   }
+}
+
+/**
+ * The promise's value, or an error naming `what` when it has not settled within `ms`: every wait
+ * of a test that talks to servers is bounded, so a hang fails with a message saying where.
+ */
+export function within<T>(ms: number, what: string, promise: Promise<T>, reportMs = ms): Promise<T> {
+  let timer: NodeJS.Timeout | undefined;
+  const limit = new Promise<never>((_, reject) => {
+    timer = setTimeout(() => reject(new Error(`timed out after ${reportMs} ms waiting for ${what}`)), ms);
+  });
+  return Promise.race([promise, limit]).finally(() => clearTimeout(timer));
 }
 
 export function unique(prefix: string): string {

@@ -27,7 +27,7 @@ afterAll(async () => {
 });
 
 function scale(overrides: Partial<ScaleConfig>): ScaleConfig {
-  return { servers: [server?.url ?? ''], partitions: 4, stream: 'LAYOUT', subjectPrefix: 'part', replicas: 1, worker: 'bay-1', leaseSeconds: 2, leaseBucket: 'LAYOUT_leases', fetchBatch: 64, ...overrides };
+  return { servers: [server?.url ?? ''], partitions: 4, stream: 'LAYOUT', subjectPrefix: 'part', replicas: 1, worker: 'bay-1', leaseSeconds: 2, leaseBucket: 'LAYOUT_leases', checkpointBucket: 'LAYOUT_checkpoints', checkpointSamples: 1000, fetchBatch: 64, ...overrides };
 }
 
 const silent = { info: () => undefined, warn: () => undefined };
@@ -70,7 +70,11 @@ describe('the server objects, declared or checked at start-up', () => {
     ]);
     // A single server cannot hold three replicas of the lease bucket either: one line.
     expect(report.problems.filter((l) => l.startsWith('key-value bucket WRONG_leases'))).toHaveLength(1);
-    expect(report.notes).toEqual(['stream WRONG keeps messages only within max_age 3600 s: a worker that takes over a partition rebuilds its channels from the stream, and what the limits removed is not in its results']);
+    expect(report.notes).toEqual(['stream WRONG keeps messages only within max_age 3600 s: a worker that takes over a partition reads the stream after the partition\'s latest shared checkpoint, so the stream must keep at least store.checkpointSamples (1000) samples of every channel of a partition, and a partition with no checkpoint yet from its first message; what the limits removed before that is not in the results']);
+    // A message limit below the checkpoint interval cannot cover it: said so.
+    await jsm.streams.add({ name: 'SHORT', subjects: ['short.*.>'], max_msgs: 200 });
+    const short = await declareLayout(nc, scale({ stream: 'SHORT', subjectPrefix: 'short', leaseBucket: 'SHORT_leases', partitions: 1 }));
+    expect(short.notes).toEqual(['stream SHORT keeps at most 200 messages, fewer than store.checkpointSamples (1000): the retention does not cover the checkpoint interval, and a worker that takes over a partition would miss samples between its latest shared checkpoint and the oldest message kept']);
     const fresh = await declareLayout(nc, scale({ stream: 'TRIPLE', subjectPrefix: 'triple', leaseBucket: 'TRIPLE_leases', replicas: 3 }));
     expect(fresh.problems[0]).toMatch(/^stream TRIPLE: cannot be created with 3 replica\(s\): /);
   });

@@ -35,7 +35,7 @@ afterAll(async () => {
 const silent = { info: () => undefined, warn: () => undefined };
 
 function worker(username: string | null, password: string | null, caFile: string | null): JetStreamWorker {
-  const scale: ScaleConfig = { servers: [server?.url ?? ''], partitions: 1, stream: 'TLS', subjectPrefix: 'tls', replicas: 1, worker: 'bay-1', leaseSeconds: 2, leaseBucket: 'TLS_leases', fetchBatch: 16 };
+  const scale: ScaleConfig = { servers: [server?.url ?? ''], partitions: 1, stream: 'TLS', subjectPrefix: 'tls', replicas: 1, worker: 'bay-1', leaseSeconds: 2, leaseBucket: 'TLS_leases', checkpointBucket: 'TLS_checkpoints', checkpointSamples: 1000, fetchBatch: 16 };
   return new JetStreamWorker({ scale, broker: { username, password, tls: caFile === null ? null : { caFile, certFile: null, keyFile: null, rejectUnauthorized: true } }, subscriptions: [], log: silent, startAfter: () => 0 });
 }
 
