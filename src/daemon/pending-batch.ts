@@ -129,8 +129,10 @@ export class PendingBatch {
   }
 
   /** The channel's samples waiting for a commit (they follow the stored ones), or null. */
-  pendingSamples(channel: string): { firstSeq: number; times: readonly number[]; values: readonly number[] } | null {
-    return this.chunks.get(channel) ?? null;
+  pendingSamples(channel: string): { firstSeq: number; times: ArrayLike<number>; values: ArrayLike<number> } | null {
+    const chunk = this.chunks.get(channel);
+    if (chunk === undefined || chunk.length === 0) return null;
+    return { firstSeq: chunk.firstSeq, times: chunk.times.subarray(0, chunk.length), values: chunk.values.subarray(0, chunk.length) };
   }
 
   addEvent(event: EventToWrite): void {

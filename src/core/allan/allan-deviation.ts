@@ -194,10 +194,10 @@ export function averagingLimit(points: readonly AllanPoint[], options: Averaging
     let significantlyBelow = false;
     for (let j = i + 1; j <= last && !significantlyBelow; j++) significantlyBelow = (sorted[j] as AllanPoint).high < candidate.low;
     if (significantlyBelow) continue;
-    const candidateHigh = candidate.adev * Math.sqrt(candidate.edf / quantile((1 - confirm) / 2, candidate.edf));
+    const candidateHigh = candidate.adev * Math.sqrt(candidate.edf / chisquareQuantile((1 - confirm) / 2, candidate.edf));
     for (let j = i + 1; j <= last; j++) {
       const later = sorted[j] as AllanPoint;
-      const laterLow = later.adev * Math.sqrt(later.edf / quantile((1 + confirm) / 2, later.edf));
+      const laterLow = later.adev * Math.sqrt(later.edf / chisquareQuantile((1 + confirm) / 2, later.edf));
       if (laterLow > candidateHigh * Math.sqrt(candidate.m / later.m)) return { m: candidate.m, tau: candidate.tau, adev: candidate.adev };
     }
     return null;
@@ -208,28 +208,9 @@ export function averagingLimit(points: readonly AllanPoint[], options: Averaging
 /** Smallest edf reported (keeps the chi-square quantiles finite for degenerate tiny sets). */
 const MIN_EDF = 0.5;
 
-/**
- * Chi-square quantiles already computed, by probability and degrees of freedom: a channel's sliding
- * window asks for the same few again at every check (its length, hence every edf, is fixed). A pure
- * function's memo, so results do not depend on what was asked before; bounded.
- */
-const QUANTILES = new Map<string, number>();
-const QUANTILES_KEPT = 4096;
-
-function quantile(p: number, dof: number): number {
-  const key = `${p} ${dof}`;
-  let q = QUANTILES.get(key);
-  if (q === undefined) {
-    q = chisquareQuantile(p, dof);
-    if (QUANTILES.size >= QUANTILES_KEPT) QUANTILES.clear();
-    QUANTILES.set(key, q);
-  }
-  return q;
-}
-
 function makePoint(m: number, tau0: number, adev: number, count: number, edf: number, confidence: number): AllanPoint {
-  const upperQuantile = quantile((1 + confidence) / 2, edf);
-  const lowerQuantile = quantile((1 - confidence) / 2, edf);
+  const upperQuantile = chisquareQuantile((1 + confidence) / 2, edf);
+  const lowerQuantile = chisquareQuantile((1 - confidence) / 2, edf);
   const low = adev * Math.sqrt(edf / upperQuantile);
   const high = lowerQuantile > 0 ? adev * Math.sqrt(edf / lowerQuantile) : Number.MAX_VALUE;
   return { m, tau: m * tau0, adev, count, edf, low, high: adev === 0 ? 0 : high };
