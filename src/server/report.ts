@@ -247,7 +247,7 @@ function channelSection(channel: ReportChannel, entry: RecordEntry | null, recor
 <p class="note">${escapeHtml(source)}</p>
 ${provisionalBlock(entry)}<h3>${entry?.provisional ? 'Figures of the window (provisional: not a result to report)' : 'Result'}</h3>
 <table>${rows(result)}</table>
-${combinedBlock(entry ? (entry.combined ?? null) : s.combined, entry ? (entry.conformity ?? null) : s.conformity, unit)}
+${combinedBlock(entry ? (entry.combined ?? null) : s.combined, entry ? (entry.conformity ?? null) : s.conformity, unit)}${(entry ? (entry.conformity ?? null) : s.conformity) === null ? '<p class="note">Conformity: no specification limits are configured for this channel, so no decision rule applies and no statement of conformity is made.</p>\n' : ''}
 <h3>Standard uncertainty of the mean</h3>
 <p>Estimated with ${escapeHtml(ESTIMATOR_TEXT[estimator] ?? estimator)}${s.estimatorReason ? ` (${escapeHtml(s.estimatorReason)})` : ''}. The other estimators on the same window, for comparison${s.n !== values.n ? ` (window now n = ${s.n})` : ''}:</p>
 <table><tr><th>estimator</th><th>tau_int</th><th>n_eff</th><th>u</th><th>nu</th><th>window / batch</th><th>reliable</th></tr>${estimatorRows.join('')}</table>

@@ -242,6 +242,9 @@ describe('a channel never steady, or short of its target, when its test point st
       expect(html).toContain(`<p class="statement none">${entry.statement.replace(/&/g, '&amp;').replace(/'/g, '&#39;').replace(/"/g, '&quot;').replace(/</g, '&lt;').replace(/>/g, '&gt;')}</p>`);
       expect(html).not.toMatch(/<p class="statement">/);
       expect(html).toContain('HX-7 (bench HX-7, glycol/water plate heat exchanger)');
+      // The decision rule: none applies without limits, and the report says so rather than leave it out.
+      if (entry.conformity == null) expect(html).toContain('Conformity: no specification limits are configured for this channel, so no decision rule applies and no statement of conformity is made.');
+      else expect(html).toContain('decision rule');
       const csv = (await d.get(`/api/test-points/${id}/record.csv`)).body;
       const [header, row] = csv.trim().split('\r\n') as [string, string];
       const columns = header.split(',');
