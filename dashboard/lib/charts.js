@@ -31,6 +31,8 @@ function refreshPalette() {
     upper: v('--chart-mean', '#0d5c63'),
     lower: v('--warming', '#9a6a00'),
     decision: v('--unsteady', '#b3261e'),
+    gap: v('--chart-gap', 'rgba(179,38,30,0.10)'),
+    gapLine: v('--unsteady', '#b3261e'),
   });
 }
 
@@ -112,14 +114,45 @@ function markerPlugin(getMarkers) {
     const ctx = u.ctx;
     const { top, height, left, width } = u.bbox;
     ctx.save();
+    const ratio = window.devicePixelRatio || 1;
+    let marked = 0;
     for (const span of spans ?? []) {
-      const a = Math.max(left, u.valToPos(span.from, 'x', true));
-      const b = Math.min(left + width, u.valToPos(span.to, 'x', true));
+      let a = Math.max(left, u.valToPos(span.from, 'x', true));
+      let b = Math.min(left + width, u.valToPos(span.to, 'x', true));
       if (!(b > a)) continue;
+      if (span.hatch) marked++;
+      // A marked interval (a gap) stays visible however narrow: at least 3 px wide.
+      if (span.hatch && b - a < 3 * ratio) {
+        const mid = (a + b) / 2;
+        a = Math.max(left, mid - 1.5 * ratio);
+        b = Math.min(left + width, mid + 1.5 * ratio);
+      }
       ctx.fillStyle = span.fill;
       ctx.fillRect(a, top, b - a, height);
+      if (!span.hatch) continue;
+      // Hatching and edges: the interval reads without colour.
+      ctx.save();
+      ctx.beginPath();
+      ctx.rect(a, top, b - a, height);
+      ctx.clip();
+      ctx.strokeStyle = span.line;
+      ctx.globalAlpha = 0.5;
+      ctx.lineWidth = 1 * ratio;
+      const step = 7 * ratio;
+      ctx.beginPath();
+      for (let x = a - height; x < b; x += step) {
+        ctx.moveTo(x, top + height);
+        ctx.lineTo(x + height, top);
+      }
+      ctx.stroke();
+      ctx.restore();
+      ctx.strokeStyle = span.line;
+      ctx.lineWidth = 1 * ratio;
+      ctx.strokeRect(a, top, b - a, height);
     }
     ctx.restore();
+    // How many marked intervals are drawn in the visible range (read by the tests and assistive text).
+    u.root.dataset.markedIntervals = String(marked);
   };
   const drawLines = (u) => {
     const { lines } = getMarkers();
@@ -128,6 +161,8 @@ function markerPlugin(getMarkers) {
     const ratio = window.devicePixelRatio || 1;
     ctx.save();
     ctx.font = `${Math.round(11 * ratio)}px "DejaVu Sans", system-ui, sans-serif`;
+    // Labels of lines close together go one below the other instead of over each other.
+    const placed = [];
     for (const line of lines ?? []) {
       const x = u.valToPos(line.x, 'x', true);
       if (!(x >= left - 1 && x <= left + width + 1)) continue;
@@ -142,7 +177,12 @@ function markerPlugin(getMarkers) {
       ctx.fillStyle = line.color;
       const right = x > left + width * 0.7;
       ctx.textAlign = right ? 'right' : 'left';
-      ctx.fillText(line.label, right ? x - 4 * ratio : x + 4 * ratio, top + 13 * ratio);
+      const labelWidth = ctx.measureText(line.label).width;
+      const from = right ? x - 4 * ratio - labelWidth : x + 4 * ratio;
+      let row = 0;
+      while (placed.some((p) => p.row === row && from < p.to + 6 * ratio && from + labelWidth > p.from - 6 * ratio)) row++;
+      placed.push({ row, from, to: from + labelWidth });
+      ctx.fillText(line.label, right ? x - 4 * ratio : x + 4 * ratio, top + (13 + 14 * row) * ratio);
     }
     ctx.restore();
   };
@@ -232,6 +272,8 @@ export function traceChart(container, timeLabel = 'time of day (24 h, local)') {
         if (originOffset > 0 && originOffset < windowStart) lines.push({ x: x[originOffset], label: 'test point start', color: COLORS.axis });
         lines.push({ x: x[windowStart], label: detail.excluded > 0 ? 'warm-up cut' : 'window start', color: COLORS.cut });
       }
+      // Samples that never came: hatched intervals between the last sample before and the first after.
+      if (isTimed) for (const gap of trace.gaps ?? []) spans.push({ from: gap.from, to: gap.to, fill: COLORS.gap, line: COLORS.gapLine, hatch: true });
       markers = { spans, lines };
       const data = [x, trace.values, meanSeries, upper, lower];
       if (!chart || isTimed !== timed || unitChanged) {

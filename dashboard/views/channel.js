@@ -6,7 +6,7 @@
 
 import { h, setText, replaceChildren } from '../lib/dom.js';
 import { api } from '../lib/api.js';
-import { decimalsFor, formatValue, formatResult, formatCount, formatEffective, formatDuration, stateOf, trimNumber, unitSuffix, samplesProgress, coverageText } from '../lib/format.js';
+import { decimalsFor, formatValue, formatResult, formatCount, formatEffective, formatDuration, stateOf, trimNumber, unitSuffix, samplesProgress, coverageText, clockTime } from '../lib/format.js';
 import { traceChart, acfChart, allanChart, cusumChart } from '../lib/charts.js';
 import { DetailView } from '../lib/detail-view.js';
 import { ProgressBar } from '../lib/progress-bar.js';
@@ -51,6 +51,10 @@ export class ChannelView extends DetailView {
       evidence: h('tbody'),
       notes: h('ul', { className: 'notes' }),
       events: h('ol', { className: 'channel-events' }),
+      refusedNote: h('p', { className: 'intake-figure', dataset: { field: 'refused' } }),
+      refused: h('tbody'),
+      gapsNote: h('p', { className: 'intake-figure', dataset: { field: 'gaps' } }),
+      gaps: h('tbody'),
       error: h('p', { className: 'error', role: 'alert' }),
     };
     const p = this.parts;
@@ -83,6 +87,13 @@ export class ChannelView extends DetailView {
         stat('rate', p.rate, 'samples per second'),
       ),
       h('div', { className: 'panel' }, h('h2', { text: 'Samples, mean and ±U band' }), traceBox, p.traceNote),
+      // What did not reach the mean: samples refused for this channel and samples that never came.
+      h(
+        'div',
+        { className: 'chart-row intake-row' },
+        h('div', { className: 'panel intake-panel', id: 'channel-refused' }, h('h2', { text: 'Refused samples' }), p.refusedNote, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, h('th', { text: 'reason' }), h('th', { className: 'count', text: 'samples' }))), p.refused)),
+        h('div', { className: 'panel intake-panel', id: 'channel-gaps' }, h('h2', { text: 'Gaps (samples that never came)' }), p.gapsNote, h('div', { className: 'table-scroll gap-scroll' }, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['from', 'to', 'length', 'missing', 'found by'].map((t) => h('th', { text: t })))), p.gaps))),
+      ),
       h(
         'div',
         { className: 'chart-row' },
@@ -173,7 +184,7 @@ export class ChannelView extends DetailView {
     const trace = d.trace;
     const before = trace.windowStartIndex - trace.firstIndex;
     const clock = this.app.state.server?.sampleClock;
-    setText(p.traceNote, `${formatCount(trace.values.length)} most recent samples${before > 0 ? `; the first ${formatCount(before)} (shaded) are outside the averaging window` : ''}. Band: mean ± U over the window. Times: ${clock ? `${clock}, ` : ''}time of day, 24 h, this browser's time zone.`);
+    setText(p.traceNote, `${formatCount(trace.values.length)} most recent samples${before > 0 ? `; the first ${formatCount(before)} (shaded) are outside the averaging window` : ''}. ${trace.gaps?.length ? ` ${formatCount(trace.gaps.length)} ${trace.gaps.length === 1 ? 'gap' : 'gaps'} in this trace (hatched).` : ''} Band: mean ± U over the window. Times: ${clock ? `${clock}, ` : ''}time of day, 24 h, this browser's time zone.`);
     setText(p.cusumNote, d.cusumTrace ? `${d.cusumTrace.alarmed ? 'The sums as they stood at the alarm (the monitor starts again once the channel is steady). ' : ''}Blocks of ${d.cusumTrace.blockSize} samples; a sum crossing h = ${trimNumber(d.cusumTrace.decisionInterval, 3)} signals a shift.` : 'The CUSUM runs once the channel is steady.');
     replaceChildren(
       p.estimators,
@@ -182,6 +193,7 @@ export class ChannelView extends DetailView {
       ),
     );
     renderBudget(p, d);
+    renderIntake(p, d, this.app.state.server?.sampleClock);
     const t = d.stationarity?.tests;
     const rows = [
       ['steady from sample', d.stationarity?.warmupEnd ?? 'not steady'],
@@ -202,6 +214,57 @@ export class ChannelView extends DetailView {
     showEvents(p.events, d.storedEvents ?? [], 'No events yet.', d.unit ?? null);
   }
 }
+
+/** Refused samples by reason and gaps, since the daemon started (the API's intake). */
+function renderIntake(p, d, clock) {
+  const intake = d.intake;
+  if (!intake) {
+    setText(p.refusedNote, 'This daemon does not report its intake per channel.');
+    setText(p.gapsNote, '');
+    replaceChildren(p.refused, []);
+    replaceChildren(p.gaps, []);
+    return;
+  }
+  const reasons = Object.entries(intake.refused.byReason).filter(([, count]) => count > 0).sort((a, b) => b[1] - a[1] || a[0].localeCompare(b[0]));
+  setText(p.refusedNote, intake.refused.total === 0 ? 'None refused since the daemon started.' : `${formatCount(intake.refused.total)} ${intake.refused.total === 1 ? 'sample' : 'samples'} refused since the daemon started; none of them is in the mean.`);
+  replaceChildren(p.refused, reasons.map(([reason, count]) => h('tr', { dataset: { reason } }, h('td', { text: reason, title: REFUSAL_TEXT[reason] ?? '' }), h('td', { className: 'count', text: formatCount(count) }))));
+  const g = intake.gaps;
+  const interval = g.intervalMs === null ? 'expected interval not known yet' : `expected interval ${formatMs(g.intervalMs)}${g.learned ? ' (learned from the time stamps)' : ' (configured)'}`;
+  setText(p.gapsNote, g.count === 0 ? `No gap since the daemon started; ${interval}.` : `${formatCount(g.count)} ${g.count === 1 ? 'gap' : 'gaps'}, ${formatCount(g.missingSamples)} ${g.missingSamples === 1 ? 'sample' : 'samples'} missing since the daemon started; ${interval}. Gaps in the trace above are hatched.${g.recent.length < g.count ? ` The newest ${g.recent.length} are listed.` : ''}`);
+  replaceChildren(
+    p.gaps,
+    g.recent
+      .slice()
+      .reverse()
+      .map((gap) => {
+        const from = Date.parse(gap.from);
+        const to = Date.parse(gap.to);
+        return h('tr', {}, h('td', { className: 'time', text: clockTime(from) }), h('td', { className: 'time', text: clockTime(to) }), h('td', { text: formatMs(to - from) }), h('td', { text: `${formatCount(gap.missing)} ${gap.source === 'sequence' ? (gap.missing === 1 ? 'message' : 'messages') : gap.missing === 1 ? 'sample' : 'samples'}` }), h('td', { text: gap.source === 'sequence' ? 'sequence numbers' : 'time stamps' }));
+      }),
+  );
+  p.gapsNote.title = clock ? `times: ${clock}` : '';
+}
+
+/** A span of milliseconds in words: "250 ms", "1.5 s", "3 min 20 s". */
+function formatMs(ms) {
+  if (!Number.isFinite(ms)) return '–';
+  return ms < 1000 ? `${trimNumber(ms, 3)} ms` : ms < 60_000 ? `${trimNumber(ms / 1000, 3)} s` : formatDuration(ms / 1000);
+}
+
+/** What each refusal reason means, for the row's tooltip (the README lists them). */
+const REFUSAL_TEXT = {
+  'not-a-number': 'the value was not a number',
+  nan: 'the value was NaN',
+  infinite: 'the value was infinite',
+  'out-of-range': 'the value was beyond any physical magnitude',
+  'bad-time': 'the time stamp was not a time',
+  'missing-field': 'the value field was missing',
+  'wrong-type': 'a record of the wrong type',
+  duplicate: 'a second sample at a time already accepted',
+  'out-of-order': 'older than every time the channel remembers',
+  redelivered: 'stored before a restart and delivered again',
+  'engine-error': 'the engine failed on it (logged)',
+};
 
 /** The budget panel: one row per component (covariance lines included), u_c, ν_eff, k, U, stopping rule and conformity. */
 function renderBudget(p, d) {

@@ -58,6 +58,16 @@ export interface TraceGap {
   source: 'time-stamps' | 'sequence';
 }
 
+/**
+ * A channel's intake since the daemon started (GET /api/channels/:name): the samples refused for
+ * it, by reason (those whose payload named the channel before it failed; a payload not read at all
+ * counts for the daemon only, in /api/counters), and its gaps with the newest of them listed (ISO times).
+ */
+export interface ChannelIntake {
+  refused: { total: number; byReason: Record<string, number> };
+  gaps: { count: number; missingSamples: number; sequenceGaps: number; intervalMs: number | null; learned: boolean; recent: { from: string; to: string; missing: number; source: 'time-stamps' | 'sequence' }[] };
+}
+
 export interface CusumTrace {
   blockSize: number;
   decisionInterval: number;
@@ -79,6 +89,8 @@ export interface ChannelView {
   cusumTrace(): CusumTrace | null;
   /** The channel's newest stored events, oldest first. */
   storedEvents(limit: number): StoredEvent[];
+  /** Its refused samples and gaps since the daemon started (absent where the daemon does not ingest). */
+  intake?(): ChannelIntake;
 }
 
 /** A derived result as the API shows it: the engine's snapshot, the verdict and the GUM statement. */

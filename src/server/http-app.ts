@@ -15,6 +15,7 @@ import { sameOrigin } from './origin.js';
 import {
   acknowledgement,
   channelSnapshot,
+  channelIntake,
   channelSummary,
   channelTraceSchema,
   derivedResult,
@@ -245,7 +246,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
     '/api/channels/:name',
     {
       schema: {
-        summary: 'one channel: snapshot (with ACF, Allan deviation, stationarity tests, recent events), recent trace with the warm-up cut, CUSUM trace, stored events',
+        summary: 'one channel: snapshot (with ACF, Allan deviation, stationarity tests, recent events), recent trace with the warm-up cut and gaps, CUSUM trace, stored events, its intake (refused samples by reason, gaps)',
         description: 'Names may contain "/": percent-encode them (%2F). `trace` is how many recent samples to return (default 2000); when the window holds fewer, the samples before it (warm-up, or before the test point) are added from the store.',
         params: { type: 'object', properties: { name: { type: 'string', pattern: NAME_PATTERN } }, required: ['name'] },
         querystring: { type: 'object', properties: { trace: { type: 'integer', minimum: 0, maximum: 20000 }, events: { type: 'integer', minimum: 0, maximum: 1000 } }, additionalProperties: false },
@@ -257,6 +258,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
               trace: channelTraceSchema,
               cusumTrace: { type: ['object', 'null'], additionalProperties: true },
               storedEvents: { type: 'array', items: storedEvent },
+              intake: channelIntake,
             },
             additionalProperties: true,
           },
@@ -276,6 +278,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
         trace: channel.trace(query.trace ?? 2000),
         cusumTrace: channel.cusumTrace(),
         storedEvents: channel.storedEvents(query.events ?? 200),
+        ...(channel.intake !== undefined ? { intake: channel.intake() } : {}),
       };
     },
   );
