@@ -10,6 +10,7 @@ import { recordCsv, RECORD_CAUTION, type TestPointRecord } from '../engine/test-
 import { renderReport } from './report.js';
 import { openApiDocument, type DocumentedRoute } from './openapi.js';
 import { recordDerivedEntries } from './record-derived.js';
+import { recordsCsv } from './records-csv.js';
 import { derivedRecordCsv } from '../engine/derived/derived-record.js';
 import { sameOrigin } from './origin.js';
 import {
@@ -449,6 +450,48 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
       if (!daemon.testPoint(id)) return unknownTestPoint(reply, id);
       return { records: daemon.records(id) };
     },
+  );
+
+  /** Every test point with its records, in order of creation (records oldest first). */
+  const allRecords = () => daemon.testPointViews().map((point) => ({ testPoint: { id: point.id, name: point.name, setPoints: point.setPoints ?? {}, state: point.state, createdMs: point.createdMs, channels: point.channels, derived: point.derived }, records: daemon.records(point.id) }));
+
+  app.get(
+    '/api/records',
+    {
+      schema: {
+        summary: "every test point's records, test points in order of creation and each one's records oldest first (the records page)",
+        response: {
+          200: {
+            type: 'object',
+            required: ['testPoints', 'caution'],
+            properties: {
+              testPoints: {
+                type: 'array',
+                items: {
+                  type: 'object',
+                  required: ['testPoint', 'records'],
+                  properties: { testPoint: { type: 'object', additionalProperties: true }, records: { type: 'array', items: recordRow } },
+                  additionalProperties: false,
+                },
+              },
+              caution: { type: 'string' },
+            },
+            additionalProperties: false,
+          },
+        },
+      },
+    },
+    async () => ({ testPoints: allRecords(), caution: RECORD_CAUTION }),
+  );
+
+  app.get(
+    '/api/records.csv',
+    {
+      schema: {
+        summary: 'every record of every test point as one CSV (RFC 4180): one row per channel and per derived result of each record, with its test point, set points and record, the statement, provisional or not, and the caution in every row',
+      },
+    },
+    async (_request, reply) => reply.header('content-type', 'text/csv; charset=utf-8').header('content-disposition', 'attachment; filename="plateau-records.csv"').send(recordsCsv(allRecords())),
   );
 
   const latestRecord = (id: string): TestPointRecord | null => {

@@ -1,5 +1,5 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { existsSync, mkdirSync, mkdtempSync, rmSync } from 'node:fs';
+import { existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import pino from 'pino';
@@ -65,6 +65,12 @@ async function api<T>(path: string): Promise<{ status: number; body: T; text: st
   return { status: response.status, body: body as T, text, type: response.headers.get('content-type') };
 }
 
+async function untilTextOf(locator: import('playwright-core').Locator, expected: string | RegExp): Promise<void> {
+  const poll = expect.poll(() => locator.first().textContent({ timeout: 250 }).catch(() => null), { timeout: 10_000, interval: 50 });
+  if (typeof expected === 'string') await poll.toBe(expected);
+  else await poll.toMatch(expected);
+}
+
 async function checkSheet(view: string, ready: string, name: string): Promise<void> {
   for (const theme of ['light', 'dark'] as const) {
     for (const width of [1280, 1440]) {
@@ -105,17 +111,17 @@ describe.skipIf(!available)('the first-hour views in Chromium', () => {
     source.publish('rig/cc2/air_degC', JSON.stringify({ v: 23, t: T0 - 100_000 }));
     daemon.commitNow();
     // Set point 1 (23 °C), then set point 2 (30 °C): each test point stopped, so each has a record.
-    const first = daemon.startTestPoint({ name: 'set point 1, 23 °C', channels: [AIR, RH] });
+    const first = daemon.startTestPoint({ name: 'set point 1, 23 °C', channels: [AIR, RH], setPoints: { [AIR]: 23 } });
     publishSeconds(400, 23, 45);
     daemon.stopTestPoint(first.id);
-    const second = daemon.startTestPoint({ name: 'set point 2, 30 °C', channels: [AIR, RH] });
+    const second = daemon.startTestPoint({ name: 'set point 2, 30 °C', channels: [AIR, RH], setPoints: { [AIR]: 30 } });
     publishSeconds(400, 30, 40);
     daemon.stopTestPoint(second.id);
     daemon.commitNow();
     server = await startServer(daemon, { host: '127.0.0.1', port: 0, token: null, maxBodyBytes: 65536 });
     mkdirSync(OUTPUT, { recursive: true });
     userDir = mkdtempSync(join(tmpdir(), 'plateau-chromium-'));
-    context = await chromium.launchPersistentContext(userDir, { executablePath: CHROMIUM, headless: true, args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-background-networking'], viewport: { width: 1440, height: 900 } });
+    context = await chromium.launchPersistentContext(userDir, { executablePath: CHROMIUM, headless: true, args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-background-networking'], viewport: { width: 1440, height: 900 }, acceptDownloads: true });
     page = context.pages()[0] ?? (await context.newPage());
     page.on('pageerror', (error) => errors.push(error.message));
   });
@@ -162,6 +168,75 @@ describe.skipIf(!available)('the first-hour views in Chromium', () => {
     const box = await page.locator('#chart-trace').boundingBox();
     if (box) await page.screenshot({ path: join(OUTPUT, 'first-hour-trace-gap.png'), clip: box });
     await page.screenshot({ path: join(OUTPUT, 'first-hour-channel-intake.png'), fullPage: true });
+    expect(errors).toEqual([]);
+  });
+  it("the records page lists every test point's records across set points; one CSV of all of them matches the API", async () => {
+    const all = await api<{ testPoints: { testPoint: { id: string; name: string }; records: { body: { recordNumber: string; entries: { channel: string; mean: number; expandedUncertainty: number; unit: string; provisional: boolean }[]; caution: string } }[] }[]; caution: string }>('api/records');
+    expect(all.status).toBe(200);
+    expect(all.body.testPoints.map((t) => t.testPoint.name)).toEqual(['set point 1, 23 °C', 'set point 2, 30 °C']);
+    const records = all.body.testPoints.flatMap((t) => t.records.map((r) => ({ point: t.testPoint, body: r.body })));
+    expect(records.length).toBeGreaterThanOrEqual(2);
+    // Keyboard only: from the top of the test points view, Tab to its link to the records and Enter.
+    await page.goto(`${server.url}#/test-points`);
+    await page.locator('#tp-records-link').waitFor();
+    let focused = '';
+    for (let i = 0; i < 30 && focused !== 'tp-records-link'; i++) {
+      await page.keyboard.press('Tab');
+      focused = await page.evaluate<string>('document.activeElement?.id ?? ""');
+    }
+    expect(focused).toBe('tp-records-link');
+    await page.keyboard.press('Enter');
+    await expect.poll(() => page.url()).toMatch(/#\/records$/);
+    const tables = page.locator('.records-table');
+    await expect.poll(() => tables.count(), { timeout: 10_000 }).toBe(records.length);
+    // Each row states the record's mean ± U with the channel's unit, and whether it is a result or provisional.
+    for (const [i, record] of records.entries()) {
+      const rows = tables.nth(i).locator('tbody tr');
+      expect(await rows.count()).toBe(record.body.entries.length);
+      for (const entry of record.body.entries) {
+        const row = tables.nth(i).locator(`tr[data-quantity="${entry.channel}"]`);
+        const statement = (await row.locator('[data-field="statement"]').textContent()) as string;
+        const [value, rest] = statement.split(' ± ');
+        expect(Math.abs(Number(value) - entry.mean)).toBeLessThanOrEqual(entry.expandedUncertainty / 10);
+        expect(rest).toMatch(entry.unit === 'degC' ? / °C$/ : / % RH$/);
+        expect(await row.locator('[data-field="result"]').textContent()).toMatch(entry.provisional ? /^↗ provisional: .+/ : /^✓ result$/);
+        expect(await row.locator('[data-field="conformity"]').textContent()).toBe('no limits set');
+      }
+    }
+    await untilTextOf(page.locator('.view-records .sheet-summary'), `${records.length} records of 2 test points`);
+    // The CSV link, by keyboard: the same file as the API's, a row per channel of each record, the caution in every row.
+    await page.locator('#records-csv').focus();
+    const [download] = await Promise.all([page.waitForEvent('download'), page.keyboard.press('Enter')]);
+    const fromPage = readFileSync((await download.path()) as string, 'utf8');
+    const fromApi = await api<null>('api/records.csv');
+    expect(fromApi.type).toBe('text/csv; charset=utf-8');
+    expect(fromPage).toBe(fromApi.text);
+    expect(download.suggestedFilename()).toBe('plateau-records.csv');
+    const lines = fromPage.trim().split('\r\n');
+    const header = (lines[0] as string).split(',');
+    expect(header.slice(0, 10)).toEqual(['testPoint', 'testPointName', 'setPoints', 'record', 'recordKind', 'recordedAt', 'quantityKind', 'quantity', 'unit', 'value']);
+    expect(header.at(-1)).toBe('caution');
+    expect(lines.length - 1).toBe(records.reduce((sum, r) => sum + r.body.entries.length, 0));
+    for (const line of lines.slice(1)) expect(line.endsWith(`"${all.body.caution}"`) || line.endsWith(all.body.caution)).toBe(true);
+    const firstRow = lines[1] as string;
+    const firstEntry = records[0]?.body.entries[0] as { channel: string; mean: number };
+    expect(firstRow.startsWith(`${records[0]?.point.id},"set point 1, 23 °C",${AIR}=23,${records[0]?.body.recordNumber},`)).toBe(true);
+    await untilTextOf(page.locator('.record-block .tp-meta').nth(1), /set points: cc2\.air_degC = 30 °C$/);
+    expect(firstRow).toContain(`,channel,${firstEntry.channel},`);
+    expect(firstRow).toContain(`,${firstEntry.mean},`);
+    await page.screenshot({ path: join(OUTPUT, 'first-hour-records.png'), fullPage: true });
+    expect(errors).toEqual([]);
+  });
+
+  it('the new views in light and dark at 1280 and 1440 px: no text overflows its box, no NaN, null or undefined', async () => {
+    // The check can fail: a word too long for its box is found.
+    await page.goto(`${server.url}#/records`);
+    await page.locator('.records-table').first().waitFor();
+    await page.evaluate(`(() => { const s = document.createElement('span'); s.id = 'overflow-probe'; s.style.whiteSpace = 'nowrap'; s.textContent = 'x'.repeat(400); document.querySelector('.record-block .tp-meta').appendChild(s); })()`);
+    expect((await page.evaluate<{ bad: string[] }>(SHEET_CHECK)).bad.length).toBeGreaterThan(0);
+    await checkSheet('#/records', '.records-table', 'first-hour-records');
+    await checkSheet(`#/channel/${encodeURIComponent(AIR)}`, '#channel-gaps tbody tr', 'first-hour-channel');
+    await checkSheet('#/', '.entry[data-channel]', 'first-hour-overview');
     expect(errors).toEqual([]);
   });
 });
