@@ -62,7 +62,7 @@ function timeAxis(label) {
  * The readout: a small box that follows the cursor with the x value and each shown series' value
  * (our replacement for a hover legend). `formatX` turns the x value into text.
  */
-function readoutPlugin(formatX) {
+function readoutPlugin(formatX, unitOf = () => '') {
   let box = null;
   return {
     hooks: {
@@ -83,7 +83,8 @@ function readoutPlugin(formatX) {
           if (k === 0 || !series.show) return;
           const value = u.data[k][i];
           if (value === null || value === undefined || !Number.isFinite(value)) return;
-          lines.push(`${series.label}: ${Number(value.toPrecision(6))}`);
+          const unit = unitOf(series);
+          lines.push(`${series.label}: ${Number(value.toPrecision(6))}${unit ? ` ${unit}` : ''}`);
         });
         box.replaceChildren(...lines.map((text, k) => {
           const line = document.createElement('div');
@@ -218,20 +219,53 @@ function makeChart(container, options, data, height) {
 
 /**
  * The trace: samples, the mean over the averaging window with its +/-U band, the samples outside
- * the window shaded (the warm-up, or before the test point) and the cut marked.
+ * the window shaded (the warm-up, or before the test point), the cut marked, and gaps hatched.
+ *
+ * A time range: `setRange(range)` with null (every sample loaded), { kind: 'last', seconds },
+ * { kind: 'origin' } (since the test point's start), { kind: 'window' } (the averaging window) or
+ * { kind: 'zoom', min, max } (x values); a relative range follows the newest sample at each update.
+ * Dragging across the chart zooms to the dragged span and reports it through `onZoom(min, max)`.
+ * `shown()` tells the x span on screen and whether x is time.
  */
-export function traceChart(container, timeLabel = 'time of day (24 h, local)') {
+export function traceChart(container, timeLabel = 'time of day (24 h, local)', onZoom = () => {}) {
   let unit = null;
   let markers = { spans: [], lines: [] };
   let chart = null;
   let timed = true;
+  let range = null;
+  let lastX = [];
+  let origin = null;
+  let windowStart = null;
+  let rate = null;
+  let applying = false;
+  let dragged = false;
+  const resolve = () => {
+    if (!range || lastX.length === 0) return null;
+    const first = lastX[0];
+    const last = lastX[lastX.length - 1];
+    if (range.kind === 'zoom') return { min: range.min, max: range.max };
+    if (range.kind === 'last') {
+      const span = timed ? range.seconds : rate > 0 ? range.seconds * rate : range.seconds;
+      return { min: Math.max(first, last - span), max: last };
+    }
+    if (range.kind === 'origin') return { min: origin ?? first, max: last };
+    if (range.kind === 'window') return { min: windowStart ?? first, max: last };
+    return null;
+  };
+  const apply = () => {
+    const span = resolve();
+    if (!chart || !span || !(span.max > span.min)) return;
+    applying = true;
+    chart.plot.setScale('x', span);
+    applying = false;
+  };
   const build = (data) => {
     chart?.destroy();
     refreshPalette();
     chart = makeChart(
       container,
       {
-        cursor: { drag: { x: true, y: false } },
+        cursor: { drag: { x: true, y: false, setScale: true } },
         scales: { x: { time: timed } },
         axes: [timed ? timeAxis(timeLabel) : axis('sample'), axis(unit || 'value', { size: 70 })],
         series: [
@@ -242,7 +276,27 @@ export function traceChart(container, timeLabel = 'time of day (24 h, local)') {
           { label: '−U', stroke: COLORS.bandLine, width: 1, dash: [4, 4], points: { show: false } },
         ],
         bands: [{ series: [3, 4], fill: COLORS.band }],
-        plugins: [markerPlugin(() => markers), readoutPlugin(timed ? timeText : plainX('sample'))],
+        hooks: {
+          // A drag across the chart: the dragged span becomes the range (kept over the reloads).
+          // (uPlot settles a scale after the selection is cleared: the selection is noted when it is made.)
+          setSelect: [
+            (u) => {
+              if (u.select.width > 0) dragged = true;
+            },
+          ],
+          setScale: [
+            (u, key) => {
+              if (key !== 'x' || applying || !dragged) return;
+              dragged = false;
+              const { min, max } = u.scales.x;
+              if (Number.isFinite(min) && Number.isFinite(max) && max > min) {
+                range = { kind: 'zoom', min, max };
+                onZoom(min, max);
+              }
+            },
+          ],
+        },
+        plugins: [markerPlugin(() => markers), readoutPlugin(timed ? timeText : plainX('sample'), () => unit ?? '')],
       },
       data,
       300,
@@ -252,13 +306,15 @@ export function traceChart(container, timeLabel = 'time of day (24 h, local)') {
     update(detail) {
       const trace = detail.trace;
       const n = trace.values.length;
-      const unitChanged = (detail.unit ?? null) !== unit;
+      // (Compared as printed: the chart is built again only when the unit really changes.)
+      const unitChanged = (unitText(detail.unit) || null) !== unit;
       unit = unitText(detail.unit) || null;
+      rate = detail.rate ?? null;
       // Time on the x axis when every sample has one and they never go back (late samples can).
       const isTimed = n > 0 && trace.times.every((t, i) => t !== null && (i === 0 || t >= trace.times[i - 1]));
       const x = isTimed ? trace.times.slice() : trace.values.map((_, i) => trace.firstIndex + i);
-      const windowStart = Math.max(0, trace.windowStartIndex - trace.firstIndex);
-      const inWindow = (i) => i >= windowStart;
+      const start = Math.max(0, trace.windowStartIndex - trace.firstIndex);
+      const inWindow = (i) => i >= start;
       const mean = detail.mean;
       const U = detail.expandedUncertainty;
       const meanSeries = trace.values.map((_, i) => (mean !== null && inWindow(i) ? mean : null));
@@ -266,20 +322,49 @@ export function traceChart(container, timeLabel = 'time of day (24 h, local)') {
       const lower = trace.values.map((_, i) => (mean !== null && U !== null && inWindow(i) ? mean - U : null));
       const spans = [];
       const lines = [];
-      if (windowStart > 0 && windowStart < n) {
-        spans.push({ from: x[0], to: x[windowStart], fill: COLORS.excluded });
-        const originOffset = trace.originIndex - trace.firstIndex;
-        if (originOffset > 0 && originOffset < windowStart) lines.push({ x: x[originOffset], label: 'test point start', color: COLORS.axis });
-        lines.push({ x: x[windowStart], label: detail.excluded > 0 ? 'warm-up cut' : 'window start', color: COLORS.cut });
+      const originOffset = trace.originIndex - trace.firstIndex;
+      origin = originOffset >= 0 && originOffset < n ? x[originOffset] : null;
+      windowStart = start < n ? x[start] : null;
+      if (start > 0 && start < n) {
+        spans.push({ from: x[0], to: x[start], fill: COLORS.excluded });
+        if (originOffset > 0 && originOffset < start) lines.push({ x: x[originOffset], label: 'test point start', color: COLORS.axis });
+        lines.push({ x: x[start], label: detail.excluded > 0 ? 'warm-up cut' : 'window start', color: COLORS.cut });
       }
       // Samples that never came: hatched intervals between the last sample before and the first after.
       if (isTimed) for (const gap of trace.gaps ?? []) spans.push({ from: gap.from, to: gap.to, fill: COLORS.gap, line: COLORS.gapLine, hatch: true });
       markers = { spans, lines };
+      lastX = x;
       const data = [x, trace.values, meanSeries, upper, lower];
       if (!chart || isTimed !== timed || unitChanged) {
+        if (isTimed !== timed && range?.kind === 'zoom') range = null;
         timed = isTimed;
         build(data);
-      } else chart.plot.setData(data);
+      } else {
+        applying = true;
+        chart.plot.setData(data, range === null);
+        applying = false;
+      }
+      apply();
+    },
+    /** null: every sample loaded; otherwise a range (see above). */
+    setRange(next) {
+      range = next;
+      if (!chart) return;
+      if (range === null) {
+        applying = true;
+        chart.plot.setData(chart.plot.data, true);
+        applying = false;
+      } else apply();
+    },
+    /** The x span on screen ({ min, max, timed }), or null before the first update. */
+    shown() {
+      if (!chart) return null;
+      const { min, max } = chart.plot.scales.x;
+      return { min, max, timed };
+    },
+    /** What the origin (the test point's start) and the window's start are, as x values (null when not in the trace). */
+    marks() {
+      return { origin, windowStart };
     },
     destroy() {
       chart?.destroy();
@@ -357,7 +442,7 @@ export function allanChart(container) {
               { label: 'white-noise slope', stroke: COLORS.reference, width: 1, dash: [4, 4], points: { show: false } },
             ],
             bands: [{ series: [2, 3], fill: COLORS.band }],
-            plugins: [markerPlugin(() => markers), readoutPlugin(plainX(isTimed ? 's' : 'm'))],
+            plugins: [markerPlugin(() => markers), readoutPlugin(isTimed ? (v) => `τ ${Number(Number(v).toPrecision(6))} s` : plainX('m'), (series) => (series.label === 'white-noise slope' || !unit ? '' : unit))],
           },
           data,
           240,

@@ -86,7 +86,7 @@ export class ChannelView extends DetailView {
         stat('estimator', p.estimator),
         stat('rate', p.rate, 'samples per second'),
       ),
-      h('div', { className: 'panel' }, h('h2', { text: 'Samples, mean and ±U band' }), traceBox, p.traceNote),
+      h('div', { className: 'panel trace-panel' }, h('h2', { text: 'Samples, mean and ±U band' }), this.buildRangeBar(), traceBox, p.traceNote),
       // What did not reach the mean: samples refused for this channel and samples that never came.
       h(
         'div',
@@ -116,7 +116,11 @@ export class ChannelView extends DetailView {
       h('div', { className: 'panel budget-panel' }, h('h2', { text: 'Uncertainty budget' }), p.budgetNote, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['quantity', 'source', 'type', 'u', 'distribution', 'sensitivity', 'contribution', 'ν', 'share'].map((t) => h('th', { text: t })))), p.budget)),
     );
     const clock = this.app.state.server?.sampleClock;
-    this.charts = [traceChart(traceBox, clock ? `${clock}, time of day (24 h)` : undefined), acfChart(acfBox), allanChart(allanBox), cusumChart(cusumBox)];
+    this.trace = traceChart(traceBox, clock ? `${clock}, time of day (24 h)` : undefined, () => this.zoomed());
+    this.charts = [this.trace, acfChart(acfBox), allanChart(allanBox), cusumChart(cusumBox)];
+    this.range = null;
+    this.loadedCount = DEFAULT_TRACE;
+    this.markRange();
     if (summary) this.updateSummary(summary);
   }
 
@@ -167,13 +171,77 @@ export class ChannelView extends DetailView {
     if (verdict) replaceChildren(p.verdict, verdict.ready ? [h('li', { className: 'ready', text: 'Ready to record: steady, and at the target where one is set.' })] : verdict.pending.map((c) => h('li', {}, h('strong', { text: `${c.condition}: ` }), c.message)));
   }
 
+  /** The range buttons above the trace: each sets the span shown (and how many samples are loaded for it). */
+  buildRangeBar() {
+    this.rangeButtons = RANGES.map((r) =>
+      h('button', { type: 'button', className: 'range-button', dataset: { range: r.key }, 'aria-pressed': 'false', title: r.hint, text: r.label, on: { click: () => this.setRange(r.key) } }),
+    );
+    this.rangeText = h('span', { className: 'range-text', dataset: { field: 'range' }, 'aria-live': 'polite' });
+    return h('div', { className: 'range-bar', role: 'group', 'aria-label': 'time range of the trace' }, h('span', { className: 'label', text: 'show' }), this.rangeButtons, this.rangeText);
+  }
+
+  setRange(key) {
+    const spec = RANGES.find((r) => r.key === key);
+    this.range = spec?.range ?? null;
+    this.trace.setRange(this.range);
+    this.markRange();
+    this.refresh();
+  }
+
+  /** A drag across the trace zoomed it: the zoom holds over the reloads until a button is pressed. */
+  zoomed() {
+    this.range = { kind: 'zoom' };
+    this.markRange();
+  }
+
+  markRange() {
+    const key = this.range === null ? 'all' : this.range.kind === 'zoom' ? null : RANGES.find((r) => r.range && r.range.kind === this.range.kind && r.range.seconds === this.range.seconds)?.key;
+    for (const button of this.rangeButtons) button.setAttribute('aria-pressed', String(button.dataset.range === key));
+    this.describeRange();
+  }
+
+  /** Says the span on screen once the chart has drawn it (uPlot settles its scales after the call that changes them). */
+  describeRange() {
+    if (this.describing) return;
+    this.describing = true;
+    requestAnimationFrame(() => {
+      this.describing = false;
+      this.describeNow();
+    });
+  }
+
+  describeNow() {
+    const shown = this.trace?.shown();
+    if (!shown || !Number.isFinite(shown.min) || !Number.isFinite(shown.max)) {
+      setText(this.rangeText, '');
+      return;
+    }
+    const what = this.range?.kind === 'zoom' ? 'zoomed to' : 'showing';
+    const span = shown.timed ? `${clockTime(shown.min * 1000)} – ${clockTime(shown.max * 1000)} (${formatDuration(shown.max - shown.min)})` : `samples ${formatCount(shown.min)} – ${formatCount(shown.max)}`;
+    setText(this.rangeText, `${what} ${span}${this.range?.kind === 'zoom' ? ' · “all loaded” resets' : ' · drag across the chart to zoom'}`);
+  }
+
+  /** How many samples to load for the range shown (the API gives at most MAX_TRACE). */
+  traceCount() {
+    const d = this.lastDetail;
+    const r = this.range;
+    if (!r || !d) return DEFAULT_TRACE;
+    if (r.kind === 'zoom') return this.loadedCount;
+    const n = d.n ?? 0;
+    const wanted = r.kind === 'last' ? (d.rate > 0 ? Math.ceil(d.rate * r.seconds * 1.05) + 10 : DEFAULT_TRACE) : r.kind === 'origin' ? n + (d.excluded ?? 0) + 10 : n + 10;
+    return Math.max(DEFAULT_TRACE, Math.min(MAX_TRACE, wanted));
+  }
+
   load(name) {
-    return api.channel(name);
+    this.loadedCount = this.traceCount();
+    return api.channel(name, this.loadedCount);
   }
 
   render(d) {
     const p = this.parts;
+    this.lastDetail = d;
     for (const chart of this.charts) chart.update(d);
+    this.describeRange();
     setText(p.estimator, d.estimator);
     setText(p.estimatorReason, d.estimatorReason ? `Used: ${d.estimator}, ${d.estimatorReason}.` : '');
     setText(p.rate, d.rate === null ? '–' : `${trimNumber(d.rate, 3)} /s`);
@@ -214,6 +282,18 @@ export class ChannelView extends DetailView {
     showEvents(p.events, d.storedEvents ?? [], 'No events yet.', d.unit ?? null);
   }
 }
+
+const DEFAULT_TRACE = 2000;
+const MAX_TRACE = 20000;
+
+/** The ranges of the trace: the newest minute, ten minutes, since the test point's start, the averaging window, every sample loaded. */
+const RANGES = [
+  { key: 'last-1', label: 'last 1 min', hint: 'the newest minute of samples', range: { kind: 'last', seconds: 60 } },
+  { key: 'last-10', label: 'last 10 min', hint: 'the newest ten minutes of samples', range: { kind: 'last', seconds: 600 } },
+  { key: 'origin', label: 'since test point start', hint: 'from the start of the current window run (the test point, or the daemon) with the warm-up', range: { kind: 'origin' } },
+  { key: 'window', label: 'averaging window', hint: 'the samples in the mean now', range: { kind: 'window' } },
+  { key: 'all', label: 'all loaded', hint: 'every sample loaded (the newest 2 000 or more); resets a zoom', range: null },
+];
 
 /** Refused samples by reason and gaps, since the daemon started (the API's intake). */
 function renderIntake(p, d, clock) {

@@ -228,6 +228,69 @@ describe.skipIf(!available)('the first-hour views in Chromium', () => {
     expect(errors).toEqual([]);
   });
 
+  it('the trace zooms: range buttons by keyboard, a drag across the chart, reset; the warm-up since the test point start is in view', async () => {
+    await page.goto(`${server.url}#/channel/${encodeURIComponent(AIR)}`);
+    await page.locator('#chart-trace canvas').first().waitFor();
+    const rangeText = page.locator('.view-channel [data-field="range"]');
+    await untilTextOf(rangeText, /^showing \d\d:\d\d:\d\d – \d\d:\d\d:\d\d \(.+\) · drag across the chart to zoom$/);
+    const shown = () => page.evaluate<{ min: number; max: number; timed: boolean }>('window.plateau.channel.trace.shown()');
+    const pressed = () => page.locator('.range-button[aria-pressed="true"]').evaluateAll((b) => b.map((e) => e.getAttribute('data-range')));
+    expect(await pressed()).toEqual(['all']);
+    // Keyboard only: Tab from the back link to the first range button, then along to the others.
+    await page.locator('.view-channel .back').focus();
+    let focused = '';
+    for (let i = 0; i < 10 && focused !== 'last-1'; i++) {
+      await page.keyboard.press('Tab');
+      focused = await page.evaluate<string>('document.activeElement?.dataset?.range ?? ""');
+    }
+    expect(focused).toBe('last-1');
+    await page.keyboard.press('Enter');
+    await untilTextOf(rangeText, /^showing \d\d:\d\d:\d\d – \d\d:\d\d:\d\d \(1 min\)/);
+    expect(await pressed()).toEqual(['last-1']);
+    let span = await shown();
+    expect(span.timed).toBe(true);
+    expect(span.max - span.min).toBeCloseTo(60, 6);
+    // The newest sample of the air channel is at the end of the range.
+    expect(span.max).toBe(t);
+    // Since the test point's start: the test point's first sample to the newest, with the warm-up cut inside.
+    await page.keyboard.press('Tab');
+    await page.keyboard.press('Tab');
+    expect(await page.evaluate<string>('document.activeElement.dataset.range')).toBe('origin');
+    await page.keyboard.press('Enter');
+    await expect.poll(pressed).toEqual(['origin']);
+    const marks = await page.evaluate<{ origin: number; windowStart: number }>('window.plateau.channel.trace.marks()');
+    await expect.poll(async () => (await shown()).min).toBe(marks.origin);
+    span = await shown();
+    expect(span.max).toBe(t);
+    expect(marks.windowStart).toBeGreaterThan(span.min);
+    expect(marks.windowStart).toBeLessThan(span.max);
+    // Test point 2 started after 200 + 400 s and a few refused samples: its first sample is 601 s after the first.
+    expect(marks.origin).toBe(T0 + 601);
+    await page.locator('.trace-panel').screenshot({ path: join(OUTPUT, 'first-hour-trace-since-start.png') });
+    // A drag across the chart zooms to the dragged span; the zoom holds over the reloads.
+    const over = page.locator('#chart-trace .u-over');
+    const box = (await over.boundingBox()) as { x: number; y: number; width: number; height: number };
+    await page.mouse.move(box.x + box.width * 0.2, box.y + box.height / 2);
+    await page.mouse.down();
+    await page.mouse.move(box.x + box.width * 0.35, box.y + box.height / 2, { steps: 5 });
+    await page.mouse.up();
+    await untilTextOf(rangeText, /^zoomed to \d\d:\d\d:\d\d – \d\d:\d\d:\d\d \(.+\) · “all loaded” resets$/);
+    expect(await pressed()).toEqual([]);
+    const zoom = await shown();
+    expect(zoom.max - zoom.min).toBeLessThan((span.max - span.min) * 0.2);
+    expect(zoom.min).toBeGreaterThan(span.min);
+    await page.waitForTimeout(2600);
+    expect(await shown()).toEqual(zoom);
+    await page.locator('.trace-panel').screenshot({ path: join(OUTPUT, 'first-hour-trace-zoomed.png') });
+    // Reset by keyboard: every sample loaded again.
+    await page.locator('.range-button[data-range="all"]').focus();
+    await page.keyboard.press('Enter');
+    await expect.poll(pressed).toEqual(['all']);
+    const all = await shown();
+    expect(all.max - all.min).toBeGreaterThan(span.max - span.min);
+    expect(errors).toEqual([]);
+  });
+
   it('the new views in light and dark at 1280 and 1440 px: no text overflows its box, no NaN, null or undefined', async () => {
     // The check can fail: a word too long for its box is found.
     await page.goto(`${server.url}#/records`);
