@@ -13,12 +13,14 @@ import { DerivedView } from './views/derived.js';
 import { TestPointsView } from './views/test-points.js';
 import { FeedView } from './views/feed.js';
 import { RecordsView } from './views/records.js';
+import { ChannelHistory } from './lib/history.js';
 
 const MAX_EVENTS = 500;
 
 class App {
   constructor() {
     this.state = { channels: new Map(), derived: new Map(), testPoints: [], events: [], acknowledgements: new Map(), server: null, lastEventId: 0, connection: 'connecting' };
+    this.history = new ChannelHistory();
     const main = byId('main');
     this.overview = new OverviewView(main, this);
     this.channel = new ChannelView(main, this);
@@ -106,6 +108,7 @@ class App {
       case 'hello': {
         const seenBefore = this.state.lastEventId;
         this.state.channels = new Map(message.channels.map((c) => [c.name, c]));
+        for (const summary of message.channels) this.history.note(summary);
         this.state.derived = new Map((message.derived ?? []).map((d) => [d.name, d]));
         this.state.testPoints = message.testPoints;
         this.mergeEvents(message.events ?? []);
@@ -134,6 +137,7 @@ class App {
         for (const summary of message.channels) {
           if (!this.state.channels.has(summary.name)) added = true;
           this.state.channels.set(summary.name, summary);
+          this.history.note(summary);
           names.push(summary.name);
         }
         this.lastUpdateMs = Date.now();

@@ -190,6 +190,12 @@ function markerPlugin(getMarkers) {
   return { hooks: { drawAxes: [drawSpans], draw: [drawLines] } };
 }
 
+/** Value ticks with as many decimals as the step between them needs (uPlot's own can repeat one label on a narrow range). */
+function valueTicks(_u, splits, _axisIdx, _space, increment) {
+  const decimals = increment > 0 && Number.isFinite(increment) ? Math.max(0, Math.min(12, -Math.floor(Math.log10(increment) + 1e-9))) : 3;
+  return splits.map((v) => (v === null || v === undefined ? '' : Math.abs(v) >= 1e9 ? v.toExponential(3) : v.toFixed(decimals)));
+}
+
 /** Tick labels for log axes: plain numbers in the middle decades, powers of ten beyond. */
 function logTicks(_u, splits) {
   return splits.map((v) => {
@@ -267,7 +273,7 @@ export function traceChart(container, timeLabel = 'time of day (24 h, local)', o
       {
         cursor: { drag: { x: true, y: false, setScale: true } },
         scales: { x: { time: timed } },
-        axes: [timed ? timeAxis(timeLabel) : axis('sample'), axis(unit || 'value', { size: 70 })],
+        axes: [timed ? timeAxis(timeLabel) : axis('sample'), axis(unit || 'value', { size: 80, values: valueTicks })],
         series: [
           {},
           { label: 'samples', stroke: COLORS.trace, width: 1, points: { show: false } },
@@ -365,6 +371,54 @@ export function traceChart(container, timeLabel = 'time of day (24 h, local)', o
     /** What the origin (the test point's start) and the window's start are, as x values (null when not in the trace). */
     marks() {
       return { origin, windowStart };
+    },
+    destroy() {
+      chart?.destroy();
+    },
+  };
+}
+
+/**
+ * The running mean ± U: the mean of the window and its expanded uncertainty as the daemon stated
+ * them at each live update (lib/history.js), against the time of the newest sample then; the
+ * statement of now drawn across as dashed lines, so the convergence towards it shows.
+ * update(points, unit) with points [{ time, mean, U }].
+ */
+export function convergenceChart(container, timeLabel = 'time of day (24 h, local)') {
+  let chart = null;
+  let unit = null;
+  return {
+    update(points, unitCode) {
+      const printed = unitText(unitCode) || null;
+      const x = points.map((p) => p.time);
+      const last = points.at(-1);
+      const nowUpper = last && last.U !== null ? last.mean + last.U : null;
+      const nowLower = last && last.U !== null ? last.mean - last.U : null;
+      const data = [x, points.map((p) => p.mean), points.map((p) => (p.U === null ? null : p.mean + p.U)), points.map((p) => (p.U === null ? null : p.mean - p.U)), x.map(() => nowUpper), x.map(() => nowLower)];
+      if (!chart || printed !== unit) {
+        unit = printed;
+        chart?.destroy();
+        refreshPalette();
+        chart = makeChart(
+          container,
+          {
+            scales: { x: { time: true } },
+            axes: [timeAxis(timeLabel), axis(unit ? `mean (${unit})` : 'mean', { size: 80, values: valueTicks })],
+            series: [
+              {},
+              { label: 'running mean', stroke: COLORS.mean, width: 2, points: { show: false } },
+              { label: 'mean + U', stroke: COLORS.bandLine, width: 1, points: { show: false } },
+              { label: 'mean − U', stroke: COLORS.bandLine, width: 1, points: { show: false } },
+              { label: 'now: mean + U', stroke: COLORS.axis, width: 1, dash: [5, 4], points: { show: false } },
+              { label: 'now: mean − U', stroke: COLORS.axis, width: 1, dash: [5, 4], points: { show: false } },
+            ],
+            bands: [{ series: [2, 3], fill: COLORS.band }],
+            plugins: [readoutPlugin(timeText, () => unit ?? '')],
+          },
+          data,
+          240,
+        );
+      } else chart.plot.setData(data);
     },
     destroy() {
       chart?.destroy();

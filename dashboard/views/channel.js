@@ -7,7 +7,7 @@
 import { h, setText, replaceChildren } from '../lib/dom.js';
 import { api } from '../lib/api.js';
 import { decimalsFor, formatValue, formatResult, formatCount, formatEffective, formatDuration, stateOf, trimNumber, unitSuffix, samplesProgress, coverageText, clockTime } from '../lib/format.js';
-import { traceChart, acfChart, allanChart, cusumChart } from '../lib/charts.js';
+import { traceChart, acfChart, allanChart, cusumChart, convergenceChart } from '../lib/charts.js';
 import { DetailView } from '../lib/detail-view.js';
 import { ProgressBar } from '../lib/progress-bar.js';
 import { showEvents } from '../lib/event-list.js';
@@ -42,6 +42,7 @@ export class ChannelView extends DetailView {
       tauNote: h('p', { className: 'chart-note' }),
       allanNote: h('p', { className: 'chart-note' }),
       traceNote: h('p', { className: 'chart-note' }),
+      convergenceNote: h('p', { className: 'chart-note', dataset: { field: 'convergence' } }),
       cusumNote: h('p', { className: 'chart-note' }),
       estimators: h('tbody'),
       budget: h('tbody'),
@@ -64,6 +65,7 @@ export class ChannelView extends DetailView {
     const acfBox = h('div', { className: 'chart', id: 'chart-acf' });
     const allanBox = h('div', { className: 'chart', id: 'chart-allan' });
     const cusumBox = h('div', { className: 'chart', id: 'chart-cusum' });
+    const convergenceBox = h('div', { className: 'chart', id: 'chart-convergence' });
     replaceChildren(
       this.element,
       h('div', { className: 'view-head' }, h('a', { className: 'back', href: '#/', text: '← sheet' }), h('h1', { className: 'channel-title' }, h('span', { text: name }), p.unit), p.badge),
@@ -87,6 +89,7 @@ export class ChannelView extends DetailView {
         stat('rate', p.rate, 'samples per second'),
       ),
       h('div', { className: 'panel trace-panel' }, h('h2', { text: 'Samples, mean and ±U band' }), this.buildRangeBar(), traceBox, p.traceNote),
+      h('div', { className: 'panel convergence-panel' }, h('h2', { text: 'Running mean ± U' }), convergenceBox, p.convergenceNote),
       // What did not reach the mean: samples refused for this channel and samples that never came.
       h(
         'div',
@@ -117,7 +120,8 @@ export class ChannelView extends DetailView {
     );
     const clock = this.app.state.server?.sampleClock;
     this.trace = traceChart(traceBox, clock ? `${clock}, time of day (24 h)` : undefined, () => this.zoomed());
-    this.charts = [this.trace, acfChart(acfBox), allanChart(allanBox), cusumChart(cusumBox)];
+    this.convergence = convergenceChart(convergenceBox, clock ? `${clock}, time of day (24 h)` : undefined);
+    this.charts = [this.trace, acfChart(acfBox), allanChart(allanBox), cusumChart(cusumBox), this.convergence];
     this.range = null;
     this.loadedCount = DEFAULT_TRACE;
     this.markRange();
@@ -128,6 +132,7 @@ export class ChannelView extends DetailView {
   updateSummary(s) {
     if (!this.name || s.name !== this.name) return;
     const p = this.parts;
+    this.showConvergence(s);
     const state = stateOf(s.state);
     const unit = unitSuffix(s.unit);
     setText(p.unit, unit);
@@ -169,6 +174,34 @@ export class ChannelView extends DetailView {
     this.progress.show(fraction, Boolean(target?.reached && steady));
     setText(p.progressText, text);
     if (verdict) replaceChildren(p.verdict, verdict.ready ? [h('li', { className: 'ready', text: 'Ready to record: steady, and at the target where one is set.' })] : verdict.pending.map((c) => h('li', {}, h('strong', { text: `${c.condition}: ` }), c.message)));
+  }
+
+  /** The running mean ± U from what this page has seen (lib/history.js), at most once a second. */
+  showConvergence(s) {
+    const now = Date.now();
+    // At most once a second, and the last update of a burst is drawn when the second is over.
+    clearTimeout(this.convergenceTimer);
+    if (this.convergenceDrawnMs && now - this.convergenceDrawnMs < 1000) {
+      this.convergenceTimer = setTimeout(() => {
+        const latest = this.app.state.channels.get(s.name);
+        if (this.name === s.name && latest) this.showConvergence(latest);
+      }, 1000 - (now - this.convergenceDrawnMs));
+      return;
+    }
+    this.convergenceDrawnMs = now;
+    const points = this.app.history.run(s.name);
+    this.convergence.update(points, s.unit);
+    const unit = unitSuffix(s.unit);
+    const first = points[0];
+    const last = points.at(-1);
+    let text;
+    if (points.length < 2) text = `Collected by this page from the live figures since it opened (${clockTime(this.app.history.runStartMs(s.name))}, this computer's clock): no mean with an uncertainty to draw yet.`;
+    else {
+      const moved = last.mean - first.mean;
+      const shrink = first.U > 0 && last.U !== null ? last.U / first.U : null;
+      text = `Collected by this page from the live figures: ${formatCount(points.length)} points from ${clockTime(first.time * 1000)} (sample time), n from ${formatCount(first.n)} to ${formatCount(last.n)}. The mean moved ${moved >= 0 ? '+' : '−'}${trimNumber(Math.abs(moved), 3)}${unit}${shrink !== null ? `; U went from ${trimNumber(first.U, 2)}${unit} to ${trimNumber(last.U, 2)}${unit} (× ${trimNumber(shrink, 2)})` : ''}. A restart of the window starts a new run; a reload of the page starts again.`;
+    }
+    setText(this.parts.convergenceNote, text);
   }
 
   /** The range buttons above the trace: each sets the span shown (and how many samples are loaded for it). */
@@ -240,7 +273,7 @@ export class ChannelView extends DetailView {
   render(d) {
     const p = this.parts;
     this.lastDetail = d;
-    for (const chart of this.charts) chart.update(d);
+    for (const chart of this.charts) if (chart !== this.convergence) chart.update(d);
     this.describeRange();
     setText(p.estimator, d.estimator);
     setText(p.estimatorReason, d.estimatorReason ? `Used: ${d.estimator}, ${d.estimatorReason}.` : '');

@@ -291,6 +291,44 @@ describe.skipIf(!available)('the first-hour views in Chromium', () => {
     expect(errors).toEqual([]);
   });
 
+  it('as samples come: the running mean ± U converges on the channel view, and each entry of the sheet draws its trend line', async () => {
+    // The sheet and the channel view, each fed live while 400 s of samples arrive in 20 steps.
+    const sheet = await context.newPage();
+    sheet.on('pageerror', (error) => errors.push(error.message));
+    await sheet.goto(server.url);
+    await sheet.locator(`.entry[data-channel="${AIR}"]`).waitFor();
+    await page.goto(`${server.url}#/channel/${encodeURIComponent(AIR)}`);
+    await page.locator('#chart-convergence canvas').first().waitFor();
+    const nBefore = (await api<{ n: number }>(`api/channels/${AIR}`)).body.n;
+    for (let step = 0; step < 20; step++) {
+      publishSeconds(20, 30, 40);
+      await page.waitForTimeout(400);
+    }
+    const now = await api<{ n: number; mean: number; expandedUncertainty: number }>(`api/channels/${AIR}`);
+    expect(now.body.n).toBe(nBefore + 400);
+    // The page's run: one point per live update it saw, the last one the daemon's statement now, U falling as n grows.
+    const run = () => page.evaluate<{ n: number; mean: number; U: number }[]>(`window.plateau.history.run(${JSON.stringify(AIR)})`);
+    await expect.poll(async () => (await run()).at(-1)?.n, { timeout: 10_000 }).toBe(now.body.n);
+    const points = await run();
+    expect(points.length).toBeGreaterThanOrEqual(10);
+    expect(points.at(-1)?.mean).toBe(now.body.mean);
+    expect(points.at(-1)?.U).toBe(now.body.expandedUncertainty);
+    expect((points.at(-1) as { U: number }).U).toBeLessThan((points[0] as { U: number }).U);
+    await untilTextOf(page.locator('[data-field="convergence"]'), new RegExp(`^Collected by this page from the live figures: [\\d\\u2009]+ points from \\d\\d:\\d\\d:\\d\\d \\(sample time\\), n from [\\d\\u2009]+ to ${now.body.n}\\. The mean moved [+−][\\d.e-]+ °C; U went from [\\d.e-]+ °C to [\\d.e-]+ °C \\(× 0\\.\\d+\\)\\.`));
+    await page.waitForTimeout(1200);
+    await page.locator('.convergence-panel').screenshot({ path: join(OUTPUT, 'first-hour-convergence.png') });
+    // The sheet: a trend line per channel entry, with its range in words and units.
+    const trend = sheet.locator(`.entry[data-channel="${AIR}"] .trend-line`);
+    await expect.poll(async () => Number(await trend.getAttribute('data-points')), { timeout: 10_000 }).toBeGreaterThanOrEqual(10);
+    expect(await trend.getAttribute('aria-label')).toMatch(/^trend of the last \d+ values seen: from 29\.\d+ °C to 30\.\d+ °C, now 29\.\d+|30\.\d+ °C$/);
+    expect(await sheet.locator(`.entry[data-channel="${RH}"] .trend-line`).getAttribute('aria-label')).toMatch(/ % RH$/);
+    const drawn = await trend.locator('polyline').getAttribute('points');
+    expect((drawn ?? '').split(' ').length).toBe(Number(await trend.getAttribute('data-points')));
+    await sheet.locator(`.entry[data-channel="${AIR}"]`).screenshot({ path: join(OUTPUT, 'first-hour-trend-entry.png') });
+    await sheet.close();
+    expect(errors).toEqual([]);
+  });
+
   it('the new views in light and dark at 1280 and 1440 px: no text overflows its box, no NaN, null or undefined', async () => {
     // The check can fail: a word too long for its box is found.
     await page.goto(`${server.url}#/records`);
