@@ -22,9 +22,11 @@ export class TrendLine {
     this.line.setAttribute('vector-effect', 'non-scaling-stroke');
     this.end = document.createElementNS(SVG, 'circle');
     this.end.setAttribute('r', '2');
-    this.title = document.createElementNS(SVG, 'title');
-    this.svg.append(this.title, this.line, this.end);
-    this.element = this.svg;
+    this.svg.append(this.line, this.end);
+    // The tooltip is the wrapper's title attribute (an SVG <title> would be a text node on the page).
+    this.element = document.createElement('span');
+    this.element.className = 'trend-wrap';
+    this.element.appendChild(this.svg);
     this.drawnMs = 0;
   }
 
@@ -45,7 +47,7 @@ export class TrendLine {
       this.end.setAttribute('r', '0');
       const text = 'trend: too few values seen yet';
       this.svg.setAttribute('aria-label', text);
-      this.title.textContent = text;
+      this.element.title = text;
       return;
     }
     let min = Infinity;
@@ -66,6 +68,6 @@ export class TrendLine {
     const u = unitSuffix(unit);
     const text = `trend of the last ${values.length} values seen: from ${formatValue(min, decimals)}${u} to ${formatValue(max, decimals)}${u}, now ${formatValue(values.at(-1), decimals)}${u}`;
     this.svg.setAttribute('aria-label', text);
-    this.title.textContent = text;
+    this.element.title = text;
   }
 }

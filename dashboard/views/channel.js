@@ -65,7 +65,8 @@ export class ChannelView extends DetailView {
     const acfBox = h('div', { className: 'chart', id: 'chart-acf' });
     const allanBox = h('div', { className: 'chart', id: 'chart-allan' });
     const cusumBox = h('div', { className: 'chart', id: 'chart-cusum' });
-    const convergenceBox = h('div', { className: 'chart', id: 'chart-convergence' });
+    const convergenceBox = h('div', { className: 'chart', id: 'chart-convergence', hidden: true });
+    this.convergenceBox = convergenceBox;
     replaceChildren(
       this.element,
       h('div', { className: 'view-head' }, h('a', { className: 'back', href: '#/', text: '← sheet' }), h('h1', { className: 'channel-title' }, h('span', { text: name }), p.unit), p.badge),
@@ -190,6 +191,8 @@ export class ChannelView extends DetailView {
     }
     this.convergenceDrawnMs = now;
     const points = this.app.history.run(s.name);
+    // Nothing to draw before two points: the note alone says so.
+    this.convergenceBox.hidden = points.length < 2;
     this.convergence.update(points, s.unit);
     const unit = unitSuffix(s.unit);
     const first = points[0];

@@ -298,7 +298,7 @@ describe.skipIf(!available)('the first-hour views in Chromium', () => {
     await sheet.goto(server.url);
     await sheet.locator(`.entry[data-channel="${AIR}"]`).waitFor();
     await page.goto(`${server.url}#/channel/${encodeURIComponent(AIR)}`);
-    await page.locator('#chart-convergence canvas').first().waitFor();
+    await page.locator('#chart-convergence canvas').first().waitFor({ state: 'attached' });
     const nBefore = (await api<{ n: number }>(`api/channels/${AIR}`)).body.n;
     for (let step = 0; step < 20; step++) {
       publishSeconds(20, 30, 40);
@@ -315,6 +315,7 @@ describe.skipIf(!available)('the first-hour views in Chromium', () => {
     expect(points.at(-1)?.U).toBe(now.body.expandedUncertainty);
     expect((points.at(-1) as { U: number }).U).toBeLessThan((points[0] as { U: number }).U);
     await untilTextOf(page.locator('[data-field="convergence"]'), new RegExp(`^Collected by this page from the live figures: [\\d\\u2009]+ points from \\d\\d:\\d\\d:\\d\\d \\(sample time\\), n from [\\d\\u2009]+ to ${now.body.n}\\. The mean moved [+−][\\d.e-]+ °C; U went from [\\d.e-]+ °C to [\\d.e-]+ °C \\(× 0\\.\\d+\\)\\.`));
+    expect(await page.locator('#chart-convergence').isVisible()).toBe(true);
     await page.waitForTimeout(1200);
     await page.locator('.convergence-panel').screenshot({ path: join(OUTPUT, 'first-hour-convergence.png') });
     // The sheet: a trend line per channel entry, with its range in words and units.
