@@ -18,6 +18,7 @@ export class RecordsView {
     this.caution = h('p', { className: 'records-caution' });
     this.message = h('p', { className: 'error', role: 'alert' });
     this.list = h('div', { className: 'records-list', id: 'records-list' });
+    this.across = h('div', { className: 'panel records-across', id: 'records-across', hidden: true });
     this.csv = h('a', { className: 'button', id: 'records-csv', href: recordsCsvUrl(), download: 'plateau-records.csv', dataset: { export: 'all-csv' }, text: 'CSV of all records' });
     this.element = h(
       'section',
@@ -26,6 +27,7 @@ export class RecordsView {
       h('div', { className: 'records-tools' }, this.csv, h('span', { className: 'muted small', text: 'one CSV of every record below: a row per channel and per derived result, with its test point and set points, and the caution in every row' })),
       this.caution,
       this.message,
+      this.across,
       this.list,
     );
     this.element.hidden = true;
@@ -72,8 +74,67 @@ export class RecordsView {
     const count = withRecords.reduce((sum, t) => sum + t.records.length, 0);
     setText(this.summary, count === 0 ? 'no record yet' : `${formatCount(count)} ${count === 1 ? 'record' : 'records'} of ${formatCount(withRecords.length)} ${withRecords.length === 1 ? 'test point' : 'test points'}`);
     this.csv.hidden = count === 0;
+    renderAcross(this.across, withRecords);
     replaceChildren(this.list, count === 0 ? h('p', { className: 'empty', text: 'No record yet: a test point writes one when it is ready and when it stops.' }) : withRecords.map((t) => testPointBlock(t, this.app)));
   }
+}
+
+/**
+ * Across set points: one row per quantity, one column per test point, each cell the statement of
+ * the test point's latest record (a provisional one in italics with ↗), so that a calibration's
+ * points read across.
+ */
+function renderAcross(container, withRecords) {
+  container.hidden = withRecords.length === 0;
+  if (withRecords.length === 0) return;
+  const latest = withRecords.map((t) => ({ point: t.testPoint, record: t.records.at(-1)?.body ?? {} }));
+  const quantities = [];
+  const cells = new Map();
+  latest.forEach(({ record }, column) => {
+    const add = (kind, name, unit, value, e) => {
+      const key = `${kind}:${name}`;
+      if (!cells.has(key)) {
+        cells.set(key, []);
+        quantities.push({ key, kind, name });
+      }
+      cells.get(key)[column] = { unit, value, e };
+    };
+    for (const e of Array.isArray(record.entries) ? record.entries : []) add('channel', e.channel, e.unit, e.mean, e);
+    for (const e of Array.isArray(record.derived) ? record.derived : []) if (e && typeof e.name === 'string') add('derived', e.name, e.unit, e.value, e);
+  });
+  replaceChildren(
+    container,
+    h('h2', { text: 'Across set points' }),
+    h('p', { className: 'muted small', text: 'The latest record of each test point: mean ± U (k as in its record below); ↗ marks a provisional result.' }),
+    h(
+      'div',
+      { className: 'table-scroll' },
+      h(
+        'table',
+        { className: 'table across-table' },
+        h('thead', {}, h('tr', {}, h('th', { text: 'quantity' }), latest.map(({ point }) => h('th', { className: 'across-point', dataset: { testPoint: point.id }, text: point.name })))),
+        h(
+          'tbody',
+          {},
+          quantities.map((q) =>
+            h(
+              'tr',
+              { dataset: { quantity: q.name, kind: q.kind } },
+              h('td', { className: 'quantity' }, q.kind === 'derived' ? h('span', { className: 'derived-mark', text: 'ƒ ', 'aria-hidden': 'true' }) : null, breakable(q.name)),
+              latest.map((_, column) => {
+                const cell = cells.get(q.key)[column];
+                if (!cell) return h('td', { className: 'muted', text: '–' });
+                const c = cell.e.combined ?? null;
+                const text = formatResult(c ? c.value : cell.value, c ? c.expandedUncertainty : cell.e.expandedUncertainty, unitSuffix(cell.unit));
+                const provisional = cell.e.provisional === true;
+                return h('td', { className: `across-cell${provisional ? ' provisional' : ''}`, title: cell.e.statement ?? '', text: provisional ? `↗ ${text}` : text });
+              }),
+            ),
+          ),
+        ),
+      ),
+    ),
+  );
 }
 
 function testPointBlock({ testPoint, records }, app) {

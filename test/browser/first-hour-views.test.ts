@@ -25,6 +25,7 @@ const OUTPUT = join(ROOT, 'test-output');
 const T0 = 1_790_000_000;
 const AIR = 'cc2.air_degC';
 const RH = 'cc2.rh_pct';
+const DERIVED = 'cc2.cell_index';
 /** Samples of the air channel left out on purpose: one gap of this many. */
 const GAP_MISSING = 7;
 
@@ -95,6 +96,8 @@ describe.skipIf(!available)('the first-hour views in Chromium', () => {
     const config = parseConfig({
       subscriptions: [{ topic: 'rig/cc2/+', format: 'json', channel: 'cc2.{3}' }],
       channels: { groups: [{ match: AIR, unit: 'degC' }, { match: RH, unit: '%RH' }] },
+      // An invented index of the cell: a derived result, so that each record has one.
+      derived: [{ name: DERIVED, unit: 'degC', expression: `${AIR} + 0.05 * ${RH}` }],
       store: { path: ':memory:' },
       log: { level: 'silent' },
     });
@@ -111,10 +114,10 @@ describe.skipIf(!available)('the first-hour views in Chromium', () => {
     source.publish('rig/cc2/air_degC', JSON.stringify({ v: 23, t: T0 - 100_000 }));
     daemon.commitNow();
     // Set point 1 (23 °C), then set point 2 (30 °C): each test point stopped, so each has a record.
-    const first = daemon.startTestPoint({ name: 'set point 1, 23 °C', channels: [AIR, RH], setPoints: { [AIR]: 23 } });
+    const first = daemon.startTestPoint({ name: 'set point 1, 23 °C', channels: [AIR, RH], derived: [DERIVED], setPoints: { [AIR]: 23 } });
     publishSeconds(400, 23, 45);
     daemon.stopTestPoint(first.id);
-    const second = daemon.startTestPoint({ name: 'set point 2, 30 °C', channels: [AIR, RH], setPoints: { [AIR]: 30 } });
+    const second = daemon.startTestPoint({ name: 'set point 2, 30 °C', channels: [AIR, RH], derived: [DERIVED], setPoints: { [AIR]: 30 } });
     publishSeconds(400, 30, 40);
     daemon.stopTestPoint(second.id);
     daemon.commitNow();
@@ -171,7 +174,7 @@ describe.skipIf(!available)('the first-hour views in Chromium', () => {
     expect(errors).toEqual([]);
   });
   it("the records page lists every test point's records across set points; one CSV of all of them matches the API", async () => {
-    const all = await api<{ testPoints: { testPoint: { id: string; name: string }; records: { body: { recordNumber: string; entries: { channel: string; mean: number; expandedUncertainty: number; unit: string; provisional: boolean }[]; caution: string } }[] }[]; caution: string }>('api/records');
+    const all = await api<{ testPoints: { testPoint: { id: string; name: string }; records: { body: { recordNumber: string; entries: { channel: string; mean: number; expandedUncertainty: number; unit: string; provisional: boolean }[]; derived: { name: string; value: number; expandedUncertainty: number; provisional: boolean }[]; caution: string } }[] }[]; caution: string }>('api/records');
     expect(all.status).toBe(200);
     expect(all.body.testPoints.map((t) => t.testPoint.name)).toEqual(['set point 1, 23 °C', 'set point 2, 30 °C']);
     const records = all.body.testPoints.flatMap((t) => t.records.map((r) => ({ point: t.testPoint, body: r.body })));
@@ -192,7 +195,15 @@ describe.skipIf(!available)('the first-hour views in Chromium', () => {
     // Each row states the record's mean ± U with the channel's unit, and whether it is a result or provisional.
     for (const [i, record] of records.entries()) {
       const rows = tables.nth(i).locator('tbody tr');
-      expect(await rows.count()).toBe(record.body.entries.length);
+      expect(record.body.derived.map((d) => d.name)).toEqual([DERIVED]);
+      expect(await rows.count()).toBe(record.body.entries.length + record.body.derived.length);
+      for (const d of record.body.derived) {
+        const row = tables.nth(i).locator(`tr[data-quantity="${d.name}"][data-kind="derived"]`);
+        const [value, rest] = ((await row.locator('[data-field="statement"]').textContent()) as string).split(' ± ');
+        expect(Math.abs(Number(value) - d.value)).toBeLessThanOrEqual(d.expandedUncertainty / 10);
+        expect(rest).toMatch(/ °C$/);
+        expect(await row.locator('[data-field="result"]').textContent()).toMatch(d.provisional ? /^↗ provisional: .+/ : /^✓ result$/);
+      }
       for (const entry of record.body.entries) {
         const row = tables.nth(i).locator(`tr[data-quantity="${entry.channel}"]`);
         const statement = (await row.locator('[data-field="statement"]').textContent()) as string;
@@ -204,6 +215,17 @@ describe.skipIf(!available)('the first-hour views in Chromium', () => {
       }
     }
     await untilTextOf(page.locator('.view-records .sheet-summary'), `${records.length} records of 2 test points`);
+    // Across set points: a row per quantity, a column per test point, each cell its latest record's statement.
+    const across = page.locator('#records-across');
+    expect(await across.locator('thead th').allTextContents()).toEqual(['quantity', 'set point 1, 23 °C', 'set point 2, 30 °C']);
+    expect(await across.locator('tbody tr').evaluateAll((rows) => rows.map((r) => r.getAttribute('data-quantity')))).toEqual([AIR, RH, DERIVED]);
+    const latestAir = all.body.testPoints.map((tp) => tp.records.at(-1)?.body.entries.find((e) => e.channel === AIR) as { mean: number; provisional: boolean });
+    const airCells = await across.locator(`tr[data-quantity="${AIR}"] td.across-cell`).allTextContents();
+    expect(airCells).toHaveLength(2);
+    airCells.forEach((cell, i) => {
+      expect(cell).toMatch(latestAir[i]?.provisional ? /^↗ \d+\.\d+ ± [\d.]+ °C$/ : /^\d+\.\d+ ± [\d.]+ °C$/);
+      expect(Math.abs(Number(cell.replace('↗ ', '').split(' ± ')[0]) - (latestAir[i]?.mean as number))).toBeLessThan(0.001);
+    });
     // The CSV link, by keyboard: the same file as the API's, a row per channel of each record, the caution in every row.
     await page.locator('#records-csv').focus();
     const [download] = await Promise.all([page.waitForEvent('download'), page.keyboard.press('Enter')]);
@@ -216,7 +238,11 @@ describe.skipIf(!available)('the first-hour views in Chromium', () => {
     const header = (lines[0] as string).split(',');
     expect(header.slice(0, 10)).toEqual(['testPoint', 'testPointName', 'setPoints', 'record', 'recordKind', 'recordedAt', 'quantityKind', 'quantity', 'unit', 'value']);
     expect(header.at(-1)).toBe('caution');
-    expect(lines.length - 1).toBe(records.reduce((sum, r) => sum + r.body.entries.length, 0));
+    expect(lines.length - 1).toBe(records.reduce((sum, r) => sum + r.body.entries.length + r.body.derived.length, 0));
+    // Each record's derived result follows its channels, as a row of kind derived with its value.
+    const derivedRows = lines.slice(1).filter((line) => line.includes(`,derived,${DERIVED},`));
+    expect(derivedRows.length).toBe(records.length);
+    expect(derivedRows[0]).toContain(`,${records[0]?.body.derived[0]?.value},`);
     for (const line of lines.slice(1)) expect(line.endsWith(`"${all.body.caution}"`) || line.endsWith(all.body.caution)).toBe(true);
     const firstRow = lines[1] as string;
     const firstEntry = records[0]?.body.entries[0] as { channel: string; mean: number };
