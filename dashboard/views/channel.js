@@ -339,14 +339,19 @@ function renderIntake(p, d, clock) {
     setText(p.gapsNote, '');
     replaceChildren(p.refused, []);
     replaceChildren(p.gaps, []);
+    p.refused.parentElement.hidden = true;
+    p.gaps.closest('.table-scroll').hidden = true;
     return;
   }
   const reasons = Object.entries(intake.refused.byReason).filter(([, count]) => count > 0).sort((a, b) => b[1] - a[1] || a[0].localeCompare(b[0]));
   setText(p.refusedNote, intake.refused.total === 0 ? 'None refused since the daemon started.' : `${formatCount(intake.refused.total)} ${intake.refused.total === 1 ? 'sample' : 'samples'} refused since the daemon started; none of them is in the mean.`);
+  // An empty table is not drawn: the line above says there is nothing.
+  p.refused.parentElement.hidden = reasons.length === 0;
   replaceChildren(p.refused, reasons.map(([reason, count]) => h('tr', { dataset: { reason } }, h('td', { text: reason, title: REFUSAL_TEXT[reason] ?? '' }), h('td', { className: 'count', text: formatCount(count) }))));
   const g = intake.gaps;
   const interval = g.intervalMs === null ? 'expected interval not known yet' : `expected interval ${formatMs(g.intervalMs)}${g.learned ? ' (learned from the time stamps)' : ' (configured)'}`;
   setText(p.gapsNote, g.count === 0 ? `No gap since the daemon started; ${interval}.` : `${formatCount(g.count)} ${g.count === 1 ? 'gap' : 'gaps'}, ${formatCount(g.missingSamples)} ${g.missingSamples === 1 ? 'sample' : 'samples'} missing since the daemon started; ${interval}. Gaps in the trace above are hatched.${g.recent.length < g.count ? ` The newest ${g.recent.length} are listed.` : ''}`);
+  p.gaps.closest('.table-scroll').hidden = g.recent.length === 0;
   replaceChildren(
     p.gaps,
     g.recent
