@@ -6,7 +6,7 @@
 
 import { h, setText, replaceChildren } from '../lib/dom.js';
 import { api } from '../lib/api.js';
-import { decimalsFor, formatValue, formatResult, formatCount, formatEffective, formatDuration, stateOf, trimNumber, unitSuffix, samplesProgress, coverageText, clockTime } from '../lib/format.js';
+import { decimalsFor, formatValue, formatResult, formatCount, formatEffective, formatDuration, stateOf, trimNumber, unitSuffix, unitText, samplesProgress, coverageText, clockTime } from '../lib/format.js';
 import { traceChart, acfChart, allanChart, cusumChart, convergenceChart } from '../lib/charts.js';
 import { DetailView } from '../lib/detail-view.js';
 import { ProgressBar } from '../lib/progress-bar.js';
@@ -57,6 +57,9 @@ export class ChannelView extends DetailView {
       gapsNote: h('p', { className: 'intake-figure', dataset: { field: 'gaps' } }),
       gaps: h('tbody'),
       error: h('p', { className: 'error', role: 'alert' }),
+      // Headings that carry the channel's unit (set when it is known).
+      uHead: h('th', { text: inUnit('u', summary?.unit) }),
+      contributionHead: h('th', { text: inUnit('contribution', summary?.unit) }),
     };
     const p = this.parts;
     this.progress = new ProgressBar('progress towards the target precision');
@@ -113,11 +116,11 @@ export class ChannelView extends DetailView {
       h(
         'div',
         { className: 'chart-row' },
-        h('div', { className: 'panel' }, h('h2', { text: 'Estimators of the uncertainty' }), p.estimatorReason, h('div', { className: 'table-scroll' }, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['estimator', 'τ_int', 'n_eff', 'u', 'ν_eff', 'window', 'reliable'].map((t) => h('th', { text: t })))), p.estimators))),
+        h('div', { className: 'panel' }, h('h2', { text: 'Estimators of the uncertainty' }), p.estimatorReason, h('div', { className: 'table-scroll' }, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['estimator', 'τ_int (samples)', 'n_eff', p.uHead, 'ν_eff', 'window', 'reliable'].map((t) => (typeof t === 'string' ? h('th', { text: t }) : t)))), p.estimators))),
         h('div', { className: 'panel' }, h('h2', { text: 'Steady-state evidence' }), h('div', { className: 'table-scroll' }, h('table', { className: 'table' }, p.evidence)), p.notes),
       ),
       // the combined uncertainty with its budget and the conformity outcome (issue 10)
-      h('div', { className: 'panel budget-panel' }, h('h2', { text: 'Uncertainty budget' }), p.budgetNote, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['quantity', 'source', 'type', 'u', 'distribution', 'sensitivity', 'contribution', 'ν', 'share'].map((t) => h('th', { text: t })))), p.budget)),
+      h('div', { className: 'panel budget-panel' }, h('h2', { text: 'Uncertainty budget' }), p.budgetNote, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['quantity', 'source', 'type', 'u', 'distribution', 'sensitivity', p.contributionHead, 'ν', 'share'].map((t) => (typeof t === 'string' ? h('th', { text: t }) : t)))), p.budget)),
     );
     const clock = this.app.state.server?.sampleClock;
     this.trace = traceChart(traceBox, clock ? `${clock}, time of day (24 h)` : undefined, () => this.zoomed());
@@ -276,6 +279,8 @@ export class ChannelView extends DetailView {
   render(d) {
     const p = this.parts;
     this.lastDetail = d;
+    setText(p.uHead, inUnit('u', d.unit));
+    setText(p.contributionHead, inUnit('contribution', d.unit));
     for (const chart of this.charts) if (chart !== this.convergence) chart.update(d);
     this.describeRange();
     setText(p.estimator, d.estimator);
@@ -330,6 +335,12 @@ const RANGES = [
   { key: 'window', label: 'averaging window', hint: 'the samples in the mean now', range: { kind: 'window' } },
   { key: 'all', label: 'all loaded', hint: 'every sample loaded (the newest 2 000 or more); resets a zoom', range: null },
 ];
+
+/** A column heading with the unit of its numbers: "u (°C)"; the heading alone without a unit. */
+function inUnit(heading, unitCode) {
+  const text = unitText(unitCode);
+  return text ? `${heading} (${text})` : heading;
+}
 
 /** Refused samples by reason and gaps, since the daemon started (the API's intake). */
 function renderIntake(p, d, clock) {
@@ -397,7 +408,8 @@ function renderBudget(p, d) {
   }
   const f = d.conformity;
   const stop = c.stopping;
-  const parts = [`u_c = ${trimNumber(c.standardUncertainty, 2)}, ν_eff = ${c.dof === null ? '∞' : trimNumber(c.dof, 3)}, k = ${trimNumber(c.coverageFactor, 3)}, U = ${trimNumber(c.expandedUncertainty, 2)}`];
+  const unit = unitSuffix(d.unit);
+  const parts = [`u_c = ${trimNumber(c.standardUncertainty, 2)}${unit}, ν_eff = ${c.dof === null ? '∞' : trimNumber(c.dof, 3)}, k = ${trimNumber(c.coverageFactor, 3)}, U = ${trimNumber(c.expandedUncertainty, 2)}${unit}`];
   if (stop) parts.push(stop.stop ? `stopping rule met (${stop.reason === 'dominance' ? `u_A ≤ ${stop.fraction} u_c` : stop.target?.basis === 'type-a' ? 'Type A target' : 'combined target'})` : `stopping rule: waiting for ${stop.waitingFor === 'dominance' ? `u_A ≤ ${stop.fraction} u_c` : stop.waitingFor === 'target' ? (stop.target?.basis === 'type-a' ? 'the Type A target' : 'the combined target') : 'nothing it can reach'}`);
   if (f) parts.push(`conformity (${f.rule}): ${f.verdict ?? 'no verdict'}${typeof f.probability === 'number' ? `, p_c = ${trimNumber(f.probability, 3)}` : ''}`);
   setText(p.budgetNote, `${parts.join('; ')}.`);
@@ -410,7 +422,8 @@ function renderBudget(p, d) {
         h('td', { text: b.quantity }),
         h('td', { text: `${b.component}${b.proposed ? ' (proposed)' : ''}`, title: b.basis ?? '' }),
         h('td', { text: b.evaluation === 'covariance' ? '–' : b.evaluation }),
-        h('td', { text: b.standardUncertainty === null ? '–' : trimNumber(b.standardUncertainty, 2) }),
+        // u in its quantity's unit: the channel's own where the quantity is the channel.
+        h('td', { text: b.standardUncertainty === null ? '–' : `${trimNumber(b.standardUncertainty, 2)}${b.quantity === d.name ? unit : ''}` }),
         h('td', { text: b.distribution }),
         h('td', { text: b.sensitivity === null ? '–' : trimNumber(b.sensitivity, 3) }),
         h('td', { text: trimNumber(b.contribution, 2) }),

@@ -178,6 +178,10 @@ describe.skipIf(!available)('the first-hour views in Chromium', () => {
     expect(await gaps.locator('[data-field="gaps"]').textContent()).toMatch(/^1 gap, 7 samples missing since the daemon started; expected interval 1 s \(learned from the time stamps\)\. Gaps in the trace above are hatched\.$/);
     expect(await gaps.locator('tbody tr td').evaluateAll((cells) => cells.slice(2).map((c) => c.textContent))).toEqual(['8 s', '7 samples', 'time stamps']);
     await expect.poll(() => page.locator('.view-channel .chart-note').first().textContent()).toMatch(/1 gap in this trace \(hatched\)/);
+    // Units in the tables' headings and the budget's line.
+    await untilTextOf(page.locator('.view-channel .budget-panel p.chart-note'), /^u_c = [\d.e-]+ °C, ν_eff = [\d.∞]+, k = [\d.]+, U = [\d.e-]+ °C/);
+    expect(await page.locator('.view-channel th', { hasText: 'u (°C)' }).count()).toBe(1);
+    expect(await page.locator('.view-channel th', { hasText: 'contribution (°C)' }).count()).toBe(1);
     // The gap is drawn on the trace: one marked interval in the visible range.
     await page.locator('#chart-trace canvas').first().waitFor();
     await expect.poll(() => page.locator('#chart-trace .sheet-chart').getAttribute('data-marked-intervals'), { timeout: 5000 }).toBe('1');
