@@ -285,7 +285,7 @@ describe.skipIf(!available)('dashboard in Chromium', () => {
     await page.keyboard.press('Enter');
     await expect.poll(paper).toBe(before);
     expect(alarms).toEqual([]);
-  });
+  }, 120_000);
 
   it('keyboard only: open a channel from the sheet, come back, acknowledge an alert with a note (or cancel)', async () => {
     await page.goto(base);
