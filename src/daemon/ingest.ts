@@ -10,7 +10,7 @@ import { sameUnit } from '../engine/unit-label.js';
 import type { Clock } from '../ports/clock.js';
 import type { SourceBatch } from '../ports/sample-source.js';
 import type { PendingBatch } from './pending-batch.js';
-import type { ChannelIntake } from '../ports/daemon-api.js';
+import type { ChannelIntake, IntakeBrief } from '../ports/daemon-api.js';
 
 /**
  * Ingest: a source batch in, samples out to their channels and into the pending batch.
@@ -134,6 +134,8 @@ export class Ingest {
   private readonly lastRejectLog = new Map<string, number>();
   /** Refusals per channel (those that name one), by reason, since the daemon started. */
   private readonly refusedBy = new Map<string, Partial<Record<RejectReason, number>>>();
+  /** Their totals per channel. */
+  private readonly refusedTotal = new Map<string, number>();
   /** Per source (topic), in order of the last sample heard (oldest first). */
   private readonly lags = new Map<string, SourceLag>();
   private lagJudgedMs = Number.NEGATIVE_INFINITY;
@@ -378,6 +380,12 @@ export class Ingest {
     };
   }
 
+  /** The totals of intake(name) in O(1), for the live summaries. */
+  intakeBrief(name: string): IntakeBrief {
+    const stats = this.tracked.get(name)?.gaps.stats();
+    return { refused: this.refusedTotal.get(name) ?? 0, gaps: stats?.gaps ?? 0, missingSamples: stats?.missing ?? 0 };
+  }
+
   /** Channels with gaps: their counts and expected intervals. */
   gapReport(): Record<string, { gaps: number; missing: number; intervalMs: number | null; learned: boolean }> {
     const out: Record<string, { gaps: number; missing: number; intervalMs: number | null; learned: boolean }> = {};
@@ -400,7 +408,10 @@ export class Ingest {
     if (channel !== undefined) {
       let counts = this.refusedBy.get(channel);
       if (counts === undefined && this.refusedBy.size < REFUSED_MAX_CHANNELS) this.refusedBy.set(channel, (counts = {}));
-      if (counts !== undefined) counts[reason] = (counts[reason] ?? 0) + 1;
+      if (counts !== undefined) {
+        counts[reason] = (counts[reason] ?? 0) + 1;
+        this.refusedTotal.set(channel, (this.refusedTotal.get(channel) ?? 0) + 1);
+      }
     }
     const now = this.options.clock.now();
     const last = this.lastRejectLog.get(reason) ?? Number.NEGATIVE_INFINITY;

@@ -68,6 +68,13 @@ export interface ChannelIntake {
   gaps: { count: number; missingSamples: number; sequenceGaps: number; intervalMs: number | null; learned: boolean; recent: { from: string; to: string; missing: number; source: 'time-stamps' | 'sequence' }[] };
 }
 
+/** A channel's intake in three numbers (the live summary's `intake`). */
+export interface IntakeBrief {
+  refused: number;
+  gaps: number;
+  missingSamples: number;
+}
+
 export interface CusumTrace {
   blockSize: number;
   decisionInterval: number;
@@ -91,6 +98,8 @@ export interface ChannelView {
   storedEvents(limit: number): StoredEvent[];
   /** Its refused samples and gaps since the daemon started (absent where the daemon does not ingest). */
   intake?(): ChannelIntake;
+  /** The totals of intake(), in O(1): for the live summaries. */
+  intakeBrief?(): IntakeBrief;
 }
 
 /** A derived result as the API shows it: the engine's snapshot, the verdict and the GUM statement. */

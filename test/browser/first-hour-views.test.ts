@@ -376,6 +376,10 @@ describe.skipIf(!available)('the first-hour views in Chromium', () => {
     expect(await sheet.locator(`.entry[data-channel="${RH}"] .trend-line`).getAttribute('aria-label')).toMatch(/ % RH$/);
     const drawn = await trend.locator('polyline').getAttribute('points');
     expect((drawn ?? '').split(' ').length).toBe(Number(await trend.getAttribute('data-points')));
+    // Its refusals and gaps, on the entry that has some, not on the one that has none.
+    // (The air channel was silent for the 20 s of set point 3: its next sample made that a second gap.)
+    expect(await sheet.locator(`.entry[data-channel="${AIR}"] [data-field="intake"]`).textContent()).toBe(`※ 2 gaps, ${GAP_MISSING + 20} samples missing · 4 samples refused`);
+    expect(await sheet.locator(`.entry[data-channel="${RH}"] [data-field="intake"]`).isVisible()).toBe(false);
     await sheet.locator(`.entry[data-channel="${AIR}"]`).screenshot({ path: join(OUTPUT, 'first-hour-trend-entry.png') });
     await sheet.close();
     expect(errors).toEqual([]);
