@@ -1,6 +1,6 @@
 // plateau dashboard: wiring. State comes from the live link (hello, then channel and derived-result
 // updates, events and test points); views read it and update in place. Routes: #/ (derived results
-// and channels), #/channel/<name>, #/derived/<name>, #/test-points. Nothing from the network is
+// and channels), #/channel/<name>, #/derived/<name>, #/test-points, #/records. Nothing from the network is
 // ever parsed as HTML (see lib/dom.js).
 
 import { h, byId, setText } from './lib/dom.js';
@@ -12,17 +12,21 @@ import { ChannelView } from './views/channel.js';
 import { DerivedView } from './views/derived.js';
 import { TestPointsView } from './views/test-points.js';
 import { FeedView } from './views/feed.js';
+import { RecordsView } from './views/records.js';
+import { ChannelHistory } from './lib/history.js';
 
 const MAX_EVENTS = 500;
 
 class App {
   constructor() {
     this.state = { channels: new Map(), derived: new Map(), testPoints: [], events: [], acknowledgements: new Map(), server: null, lastEventId: 0, connection: 'connecting' };
+    this.history = new ChannelHistory();
     const main = byId('main');
     this.overview = new OverviewView(main, this);
     this.channel = new ChannelView(main, this);
     this.derived = new DerivedView(main, this);
     this.testPoints = new TestPointsView(main, this);
+    this.records = new RecordsView(main, this);
     this.feed = new FeedView(byId('side'), this);
     this.firstData = false;
     this.lastUpdateMs = 0;
@@ -62,6 +66,7 @@ class App {
         return text;
       }
     };
+    if (hash !== '#/records') this.records.show(false);
     if (channelMatch) {
       const name = decoded(channelMatch[1]);
       this.overview.show(false);
@@ -76,6 +81,13 @@ class App {
       this.channel.close();
       this.derived.open(name);
       document.title = `${name} · plateau`;
+    } else if (hash === '#/records') {
+      this.channel.close();
+      this.derived.close();
+      this.overview.show(false);
+      this.testPoints.show(false);
+      this.records.show(true);
+      document.title = 'Records · plateau';
     } else if (hash === '#/test-points') {
       this.channel.close();
       this.derived.close();
@@ -96,6 +108,7 @@ class App {
       case 'hello': {
         const seenBefore = this.state.lastEventId;
         this.state.channels = new Map(message.channels.map((c) => [c.name, c]));
+        for (const summary of message.channels) this.history.note(summary);
         this.state.derived = new Map((message.derived ?? []).map((d) => [d.name, d]));
         this.state.testPoints = message.testPoints;
         this.mergeEvents(message.events ?? []);
@@ -110,6 +123,7 @@ class App {
         this.refreshOpenDerived();
         this.testPoints.updateChannels();
         this.testPoints.update();
+        this.records.testPointsChanged();
         this.feed.render();
         if (!this.firstData) {
           this.firstData = true;
@@ -123,6 +137,7 @@ class App {
         for (const summary of message.channels) {
           if (!this.state.channels.has(summary.name)) added = true;
           this.state.channels.set(summary.name, summary);
+          this.history.note(summary);
           names.push(summary.name);
         }
         this.lastUpdateMs = Date.now();
@@ -156,6 +171,7 @@ class App {
       case 'testPoints':
         this.state.testPoints = message.testPoints;
         if (!this.testPoints.element.hidden) this.testPoints.update();
+        this.records.testPointsChanged();
         break;
       default:
         break;
@@ -203,6 +219,7 @@ class App {
     list.push(point);
     this.state.testPoints = list;
     this.testPoints.update();
+    this.records.testPointsChanged();
   }
 
   // ---- connection indicator -----------------------------------------------------------------

@@ -64,7 +64,13 @@ export const api = {
   annotate: (id, text) => request('POST', `/api/test-points/${encodeURIComponent(id)}/annotations`, { text }),
   acknowledge: (eventId, note) => request('POST', `/api/events/${encodeURIComponent(eventId)}/acknowledge`, note ? { note } : {}),
   eventsAfter: (after) => request('GET', `/api/events?after=${after}&limit=1000`),
+  records: () => request('GET', '/api/records'),
 };
+
+/** Every record of every test point as one CSV. */
+export function recordsCsvUrl() {
+  return '/api/records.csv';
+}
 
 export function recordUrl(id, format) {
   return `/api/test-points/${encodeURIComponent(id)}/record.${format}`;

@@ -175,6 +175,7 @@ const EVENT_TEXT = {
   'command-refused': ['alert', 'Command refused'],
   'store-recovered': ['alert', 'Samples could not be stored for a while'],
   'alert-acknowledged': ['info', 'Alert acknowledged'],
+  gap: ['notice', 'Gap: samples missing'],
 };
 
 /** An event in words; `unit` is the unit of its source (a channel's), printed after its numbers. */
@@ -226,6 +227,7 @@ function eventDetail(event, unit) {
     case 'broker-session-lost':
       return `${body.detail ?? ''}`;
     case 'ingest-lag':
+    case 'gap':
       return `${body.detail ?? ''}`;
     case 'command-refused':
       return `${body.command ?? ''}: ${body.reason ?? ''}`;

@@ -6,8 +6,8 @@
 
 import { h, setText, replaceChildren } from '../lib/dom.js';
 import { api } from '../lib/api.js';
-import { decimalsFor, formatValue, formatResult, formatCount, formatEffective, formatDuration, stateOf, trimNumber, unitSuffix, samplesProgress, coverageText } from '../lib/format.js';
-import { traceChart, acfChart, allanChart, cusumChart } from '../lib/charts.js';
+import { decimalsFor, formatValue, formatResult, formatCount, formatEffective, formatDuration, stateOf, trimNumber, unitSuffix, unitText, samplesProgress, coverageText, clockTime } from '../lib/format.js';
+import { traceChart, acfChart, allanChart, cusumChart, convergenceChart } from '../lib/charts.js';
 import { DetailView } from '../lib/detail-view.js';
 import { ProgressBar } from '../lib/progress-bar.js';
 import { showEvents } from '../lib/event-list.js';
@@ -42,6 +42,7 @@ export class ChannelView extends DetailView {
       tauNote: h('p', { className: 'chart-note' }),
       allanNote: h('p', { className: 'chart-note' }),
       traceNote: h('p', { className: 'chart-note' }),
+      convergenceNote: h('p', { className: 'chart-note', dataset: { field: 'convergence' } }),
       cusumNote: h('p', { className: 'chart-note' }),
       estimators: h('tbody'),
       budget: h('tbody'),
@@ -51,7 +52,14 @@ export class ChannelView extends DetailView {
       evidence: h('tbody'),
       notes: h('ul', { className: 'notes' }),
       events: h('ol', { className: 'channel-events' }),
+      refusedNote: h('p', { className: 'intake-figure', dataset: { field: 'refused' } }),
+      refused: h('tbody'),
+      gapsNote: h('p', { className: 'intake-figure', dataset: { field: 'gaps' } }),
+      gaps: h('tbody'),
       error: h('p', { className: 'error', role: 'alert' }),
+      // Headings that carry the channel's unit (set when it is known).
+      uHead: h('th', { text: inUnit('u', summary?.unit) }),
+      contributionHead: h('th', { text: inUnit('contribution', summary?.unit) }),
     };
     const p = this.parts;
     this.progress = new ProgressBar('progress towards the target precision');
@@ -60,6 +68,8 @@ export class ChannelView extends DetailView {
     const acfBox = h('div', { className: 'chart', id: 'chart-acf' });
     const allanBox = h('div', { className: 'chart', id: 'chart-allan' });
     const cusumBox = h('div', { className: 'chart', id: 'chart-cusum' });
+    const convergenceBox = h('div', { className: 'chart', id: 'chart-convergence', hidden: true });
+    this.convergenceBox = convergenceBox;
     replaceChildren(
       this.element,
       h('div', { className: 'view-head' }, h('a', { className: 'back', href: '#/', text: '← sheet' }), h('h1', { className: 'channel-title' }, h('span', { text: name }), p.unit), p.badge),
@@ -82,7 +92,15 @@ export class ChannelView extends DetailView {
         stat('estimator', p.estimator),
         stat('rate', p.rate, 'samples per second'),
       ),
-      h('div', { className: 'panel' }, h('h2', { text: 'Samples, mean and ±U band' }), traceBox, p.traceNote),
+      h('div', { className: 'panel trace-panel' }, h('h2', { text: 'Samples, mean and ±U band' }), this.buildRangeBar(), traceBox, p.traceNote),
+      h('div', { className: 'panel convergence-panel' }, h('h2', { text: 'Running mean ± U' }), convergenceBox, p.convergenceNote),
+      // What did not reach the mean: samples refused for this channel and samples that never came.
+      h(
+        'div',
+        { className: 'chart-row intake-row' },
+        h('div', { className: 'panel intake-panel', id: 'channel-refused' }, h('h2', { text: 'Refused samples' }), p.refusedNote, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, h('th', { text: 'reason' }), h('th', { className: 'count', text: 'samples' }))), p.refused)),
+        h('div', { className: 'panel intake-panel', id: 'channel-gaps' }, h('h2', { text: 'Gaps (samples that never came)' }), p.gapsNote, h('div', { className: 'table-scroll gap-scroll' }, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['from', 'to', 'length', 'missing', 'found by'].map((t) => h('th', { text: t })))), p.gaps))),
+      ),
       h(
         'div',
         { className: 'chart-row' },
@@ -98,14 +116,19 @@ export class ChannelView extends DetailView {
       h(
         'div',
         { className: 'chart-row' },
-        h('div', { className: 'panel' }, h('h2', { text: 'Estimators of the uncertainty' }), p.estimatorReason, h('div', { className: 'table-scroll' }, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['estimator', 'τ_int', 'n_eff', 'u', 'ν_eff', 'window', 'reliable'].map((t) => h('th', { text: t })))), p.estimators))),
+        h('div', { className: 'panel' }, h('h2', { text: 'Estimators of the uncertainty' }), p.estimatorReason, h('div', { className: 'table-scroll' }, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['estimator', 'τ_int (samples)', 'n_eff', p.uHead, 'ν_eff', 'window', 'reliable'].map((t) => (typeof t === 'string' ? h('th', { text: t }) : t)))), p.estimators))),
         h('div', { className: 'panel' }, h('h2', { text: 'Steady-state evidence' }), h('div', { className: 'table-scroll' }, h('table', { className: 'table' }, p.evidence)), p.notes),
       ),
       // the combined uncertainty with its budget and the conformity outcome (issue 10)
-      h('div', { className: 'panel budget-panel' }, h('h2', { text: 'Uncertainty budget' }), p.budgetNote, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['quantity', 'source', 'type', 'u', 'distribution', 'sensitivity', 'contribution', 'ν', 'share'].map((t) => h('th', { text: t })))), p.budget)),
+      h('div', { className: 'panel budget-panel' }, h('h2', { text: 'Uncertainty budget' }), p.budgetNote, h('table', { className: 'table' }, h('thead', {}, h('tr', {}, ...['quantity', 'source', 'type', 'u', 'distribution', 'sensitivity', p.contributionHead, 'ν', 'share'].map((t) => (typeof t === 'string' ? h('th', { text: t }) : t)))), p.budget)),
     );
     const clock = this.app.state.server?.sampleClock;
-    this.charts = [traceChart(traceBox, clock ? `${clock}, time of day (24 h)` : undefined), acfChart(acfBox), allanChart(allanBox), cusumChart(cusumBox)];
+    this.trace = traceChart(traceBox, clock ? `${clock}, time of day (24 h)` : undefined, () => this.zoomed());
+    this.convergence = convergenceChart(convergenceBox, clock ? `${clock}, time of day (24 h)` : undefined);
+    this.charts = [this.trace, acfChart(acfBox), allanChart(allanBox), cusumChart(cusumBox), this.convergence];
+    this.range = null;
+    this.loadedCount = DEFAULT_TRACE;
+    this.markRange();
     if (summary) this.updateSummary(summary);
   }
 
@@ -113,6 +136,7 @@ export class ChannelView extends DetailView {
   updateSummary(s) {
     if (!this.name || s.name !== this.name) return;
     const p = this.parts;
+    this.showConvergence(s);
     const state = stateOf(s.state);
     const unit = unitSuffix(s.unit);
     setText(p.unit, unit);
@@ -156,13 +180,109 @@ export class ChannelView extends DetailView {
     if (verdict) replaceChildren(p.verdict, verdict.ready ? [h('li', { className: 'ready', text: 'Ready to record: steady, and at the target where one is set.' })] : verdict.pending.map((c) => h('li', {}, h('strong', { text: `${c.condition}: ` }), c.message)));
   }
 
+  /** The running mean ± U from what this page has seen (lib/history.js), at most once a second. */
+  showConvergence(s) {
+    const now = Date.now();
+    // At most once a second, and the last update of a burst is drawn when the second is over.
+    clearTimeout(this.convergenceTimer);
+    if (this.convergenceDrawnMs && now - this.convergenceDrawnMs < 1000) {
+      this.convergenceTimer = setTimeout(() => {
+        const latest = this.app.state.channels.get(s.name);
+        if (this.name === s.name && latest) this.showConvergence(latest);
+      }, 1000 - (now - this.convergenceDrawnMs));
+      return;
+    }
+    this.convergenceDrawnMs = now;
+    const points = this.app.history.run(s.name);
+    // Nothing to draw before two points: the note alone says so.
+    this.convergenceBox.hidden = points.length < 2;
+    this.convergence.update(points, s.unit);
+    const unit = unitSuffix(s.unit);
+    const first = points[0];
+    const last = points.at(-1);
+    let text;
+    if (points.length < 2) text = `Collected by this page from the live figures since it opened (${clockTime(this.app.history.runStartMs(s.name))}, this computer's clock): no mean with an uncertainty to draw yet.`;
+    else {
+      const moved = last.mean - first.mean;
+      const shrink = first.U > 0 && last.U !== null ? last.U / first.U : null;
+      text = `Collected by this page from the live figures: ${formatCount(points.length)} points from ${clockTime(first.time * 1000)} (sample time), n from ${formatCount(first.n)} to ${formatCount(last.n)}. The mean moved ${moved >= 0 ? '+' : '−'}${trimNumber(Math.abs(moved), 3)}${unit}${shrink !== null ? `; U went from ${trimNumber(first.U, 2)}${unit} to ${trimNumber(last.U, 2)}${unit} (× ${trimNumber(shrink, 2)})` : ''}. A restart of the window starts a new run; a reload of the page starts again.`;
+    }
+    setText(this.parts.convergenceNote, text);
+  }
+
+  /** The range buttons above the trace: each sets the span shown (and how many samples are loaded for it). */
+  buildRangeBar() {
+    this.rangeButtons = RANGES.map((r) =>
+      h('button', { type: 'button', className: 'range-button', dataset: { range: r.key }, 'aria-pressed': 'false', title: r.hint, text: r.label, on: { click: () => this.setRange(r.key) } }),
+    );
+    this.rangeText = h('span', { className: 'range-text', dataset: { field: 'range' }, 'aria-live': 'polite' });
+    return h('div', { className: 'range-bar', role: 'group', 'aria-label': 'time range of the trace' }, h('span', { className: 'label', text: 'show' }), this.rangeButtons, this.rangeText);
+  }
+
+  setRange(key) {
+    const spec = RANGES.find((r) => r.key === key);
+    this.range = spec?.range ?? null;
+    this.trace.setRange(this.range);
+    this.markRange();
+    this.refresh();
+  }
+
+  /** A drag across the trace zoomed it: the zoom holds over the reloads until a button is pressed. */
+  zoomed() {
+    this.range = { kind: 'zoom' };
+    this.markRange();
+  }
+
+  markRange() {
+    const key = this.range === null ? 'all' : this.range.kind === 'zoom' ? null : RANGES.find((r) => r.range && r.range.kind === this.range.kind && r.range.seconds === this.range.seconds)?.key;
+    for (const button of this.rangeButtons) button.setAttribute('aria-pressed', String(button.dataset.range === key));
+    this.describeRange();
+  }
+
+  /** Says the span on screen once the chart has drawn it (uPlot settles its scales after the call that changes them). */
+  describeRange() {
+    if (this.describing) return;
+    this.describing = true;
+    requestAnimationFrame(() => {
+      this.describing = false;
+      this.describeNow();
+    });
+  }
+
+  describeNow() {
+    const shown = this.trace?.shown();
+    if (!shown || !Number.isFinite(shown.min) || !Number.isFinite(shown.max)) {
+      setText(this.rangeText, '');
+      return;
+    }
+    const what = this.range?.kind === 'zoom' ? 'zoomed to' : 'showing';
+    const span = shown.timed ? `${clockTime(shown.min * 1000)} – ${clockTime(shown.max * 1000)} (${formatDuration(shown.max - shown.min)})` : `samples ${formatCount(shown.min)} – ${formatCount(shown.max)}`;
+    setText(this.rangeText, `${what} ${span}${this.range?.kind === 'zoom' ? ' · “all loaded” resets' : ' · drag across the chart to zoom'}`);
+  }
+
+  /** How many samples to load for the range shown (the API gives at most MAX_TRACE). */
+  traceCount() {
+    const d = this.lastDetail;
+    const r = this.range;
+    if (!r || !d) return DEFAULT_TRACE;
+    if (r.kind === 'zoom') return this.loadedCount;
+    const n = d.n ?? 0;
+    const wanted = r.kind === 'last' ? (d.rate > 0 ? Math.ceil(d.rate * r.seconds * 1.05) + 10 : DEFAULT_TRACE) : r.kind === 'origin' ? n + (d.excluded ?? 0) + 10 : n + 10;
+    return Math.max(DEFAULT_TRACE, Math.min(MAX_TRACE, wanted));
+  }
+
   load(name) {
-    return api.channel(name);
+    this.loadedCount = this.traceCount();
+    return api.channel(name, this.loadedCount);
   }
 
   render(d) {
     const p = this.parts;
-    for (const chart of this.charts) chart.update(d);
+    this.lastDetail = d;
+    setText(p.uHead, inUnit('u', d.unit));
+    setText(p.contributionHead, inUnit('contribution', d.unit));
+    for (const chart of this.charts) if (chart !== this.convergence) chart.update(d);
+    this.describeRange();
     setText(p.estimator, d.estimator);
     setText(p.estimatorReason, d.estimatorReason ? `Used: ${d.estimator}, ${d.estimatorReason}.` : '');
     setText(p.rate, d.rate === null ? '–' : `${trimNumber(d.rate, 3)} /s`);
@@ -173,7 +293,7 @@ export class ChannelView extends DetailView {
     const trace = d.trace;
     const before = trace.windowStartIndex - trace.firstIndex;
     const clock = this.app.state.server?.sampleClock;
-    setText(p.traceNote, `${formatCount(trace.values.length)} most recent samples${before > 0 ? `; the first ${formatCount(before)} (shaded) are outside the averaging window` : ''}. Band: mean ± U over the window. Times: ${clock ? `${clock}, ` : ''}time of day, 24 h, this browser's time zone.`);
+    setText(p.traceNote, `${formatCount(trace.values.length)} most recent samples${before > 0 ? `; the first ${formatCount(before)} (shaded) are outside the averaging window` : ''}. ${trace.gaps?.length ? ` ${formatCount(trace.gaps.length)} ${trace.gaps.length === 1 ? 'gap' : 'gaps'} in this trace (hatched).` : ''} Band: mean ± U over the window. Times: ${clock ? `${clock}, ` : ''}time of day, 24 h, this browser's time zone.`);
     setText(p.cusumNote, d.cusumTrace ? `${d.cusumTrace.alarmed ? 'The sums as they stood at the alarm (the monitor starts again once the channel is steady). ' : ''}Blocks of ${d.cusumTrace.blockSize} samples; a sum crossing h = ${trimNumber(d.cusumTrace.decisionInterval, 3)} signals a shift.` : 'The CUSUM runs once the channel is steady.');
     replaceChildren(
       p.estimators,
@@ -182,6 +302,7 @@ export class ChannelView extends DetailView {
       ),
     );
     renderBudget(p, d);
+    renderIntake(p, d, this.app.state.server?.sampleClock);
     const t = d.stationarity?.tests;
     const rows = [
       ['steady from sample', d.stationarity?.warmupEnd ?? 'not steady'],
@@ -203,6 +324,80 @@ export class ChannelView extends DetailView {
   }
 }
 
+const DEFAULT_TRACE = 2000;
+const MAX_TRACE = 20000;
+
+/** The ranges of the trace: the newest minute, ten minutes, since the test point's start, the averaging window, every sample loaded. */
+const RANGES = [
+  { key: 'last-1', label: 'last 1 min', hint: 'the newest minute of samples', range: { kind: 'last', seconds: 60 } },
+  { key: 'last-10', label: 'last 10 min', hint: 'the newest ten minutes of samples', range: { kind: 'last', seconds: 600 } },
+  { key: 'origin', label: 'since test point start', hint: 'from the start of the current window run (the test point, or the daemon) with the warm-up', range: { kind: 'origin' } },
+  { key: 'window', label: 'averaging window', hint: 'the samples in the mean now', range: { kind: 'window' } },
+  { key: 'all', label: 'all loaded', hint: 'every sample loaded (the newest 2 000 or more); resets a zoom', range: null },
+];
+
+/** A column heading with the unit of its numbers: "u (°C)"; the heading alone without a unit. */
+function inUnit(heading, unitCode) {
+  const text = unitText(unitCode);
+  return text ? `${heading} (${text})` : heading;
+}
+
+/** Refused samples by reason and gaps, since the daemon started (the API's intake). */
+function renderIntake(p, d, clock) {
+  const intake = d.intake;
+  if (!intake) {
+    setText(p.refusedNote, 'This daemon does not report its intake per channel.');
+    setText(p.gapsNote, '');
+    replaceChildren(p.refused, []);
+    replaceChildren(p.gaps, []);
+    p.refused.parentElement.hidden = true;
+    p.gaps.closest('.table-scroll').hidden = true;
+    return;
+  }
+  const reasons = Object.entries(intake.refused.byReason).filter(([, count]) => count > 0).sort((a, b) => b[1] - a[1] || a[0].localeCompare(b[0]));
+  setText(p.refusedNote, intake.refused.total === 0 ? 'None refused since the daemon started.' : `${formatCount(intake.refused.total)} ${intake.refused.total === 1 ? 'sample' : 'samples'} refused since the daemon started; none of them is in the mean.`);
+  // An empty table is not drawn: the line above says there is nothing.
+  p.refused.parentElement.hidden = reasons.length === 0;
+  replaceChildren(p.refused, reasons.map(([reason, count]) => h('tr', { dataset: { reason } }, h('td', { text: reason, title: REFUSAL_TEXT[reason] ?? '' }), h('td', { className: 'count', text: formatCount(count) }))));
+  const g = intake.gaps;
+  const interval = g.intervalMs === null ? 'expected interval not known yet' : `expected interval ${formatMs(g.intervalMs)}${g.learned ? ' (learned from the time stamps)' : ' (configured)'}`;
+  setText(p.gapsNote, g.count === 0 ? `No gap since the daemon started; ${interval}.` : `${formatCount(g.count)} ${g.count === 1 ? 'gap' : 'gaps'}, ${formatCount(g.missingSamples)} ${g.missingSamples === 1 ? 'sample' : 'samples'} missing since the daemon started; ${interval}. Gaps in the trace above are hatched.${g.recent.length < g.count ? ` The newest ${g.recent.length} are listed.` : ''}`);
+  p.gaps.closest('.table-scroll').hidden = g.recent.length === 0;
+  replaceChildren(
+    p.gaps,
+    g.recent
+      .slice()
+      .reverse()
+      .map((gap) => {
+        const from = Date.parse(gap.from);
+        const to = Date.parse(gap.to);
+        return h('tr', {}, h('td', { className: 'time', text: clockTime(from) }), h('td', { className: 'time', text: clockTime(to) }), h('td', { text: formatMs(to - from) }), h('td', { text: `${formatCount(gap.missing)} ${gap.source === 'sequence' ? (gap.missing === 1 ? 'message' : 'messages') : gap.missing === 1 ? 'sample' : 'samples'}` }), h('td', { text: gap.source === 'sequence' ? 'sequence numbers' : 'time stamps' }));
+      }),
+  );
+  p.gapsNote.title = clock ? `times: ${clock}` : '';
+}
+
+/** A span of milliseconds in words: "250 ms", "1.5 s", "3 min 20 s". */
+function formatMs(ms) {
+  if (!Number.isFinite(ms)) return '–';
+  return ms < 1000 ? `${trimNumber(ms, 3)} ms` : ms < 60_000 ? `${trimNumber(ms / 1000, 3)} s` : formatDuration(ms / 1000);
+}
+
+/** What each refusal reason means, for the row's tooltip (the README lists them). */
+const REFUSAL_TEXT = {
+  'not-a-number': 'the value was not a number',
+  nan: 'the value was NaN',
+  infinite: 'the value was infinite',
+  'out-of-range': 'the value was beyond any physical magnitude',
+  'bad-time': 'the time stamp was not a time',
+  'missing-field': 'the value field was missing',
+  'wrong-type': 'a record of the wrong type',
+  duplicate: 'a second sample at a time already accepted',
+  'out-of-order': 'older than every time the channel remembers',
+  redelivered: 'stored before a restart and delivered again',
+  'engine-error': 'the engine failed on it (logged)',
+};
+
 /** The budget panel: one row per component (covariance lines included), u_c, ν_eff, k, U, stopping rule and conformity. */
 function renderBudget(p, d) {
   const c = d.combined;
@@ -213,7 +408,8 @@ function renderBudget(p, d) {
   }
   const f = d.conformity;
   const stop = c.stopping;
-  const parts = [`u_c = ${trimNumber(c.standardUncertainty, 2)}, ν_eff = ${c.dof === null ? '∞' : trimNumber(c.dof, 3)}, k = ${trimNumber(c.coverageFactor, 3)}, U = ${trimNumber(c.expandedUncertainty, 2)}`];
+  const unit = unitSuffix(d.unit);
+  const parts = [`u_c = ${trimNumber(c.standardUncertainty, 2)}${unit}, ν_eff = ${c.dof === null ? '∞' : trimNumber(c.dof, 3)}, k = ${trimNumber(c.coverageFactor, 3)}, U = ${trimNumber(c.expandedUncertainty, 2)}${unit}`];
   if (stop) parts.push(stop.stop ? `stopping rule met (${stop.reason === 'dominance' ? `u_A ≤ ${stop.fraction} u_c` : stop.target?.basis === 'type-a' ? 'Type A target' : 'combined target'})` : `stopping rule: waiting for ${stop.waitingFor === 'dominance' ? `u_A ≤ ${stop.fraction} u_c` : stop.waitingFor === 'target' ? (stop.target?.basis === 'type-a' ? 'the Type A target' : 'the combined target') : 'nothing it can reach'}`);
   if (f) parts.push(`conformity (${f.rule}): ${f.verdict ?? 'no verdict'}${typeof f.probability === 'number' ? `, p_c = ${trimNumber(f.probability, 3)}` : ''}`);
   setText(p.budgetNote, `${parts.join('; ')}.`);
@@ -226,7 +422,8 @@ function renderBudget(p, d) {
         h('td', { text: b.quantity }),
         h('td', { text: `${b.component}${b.proposed ? ' (proposed)' : ''}`, title: b.basis ?? '' }),
         h('td', { text: b.evaluation === 'covariance' ? '–' : b.evaluation }),
-        h('td', { text: b.standardUncertainty === null ? '–' : trimNumber(b.standardUncertainty, 2) }),
+        // u in its quantity's unit: the channel's own where the quantity is the channel.
+        h('td', { text: b.standardUncertainty === null ? '–' : `${trimNumber(b.standardUncertainty, 2)}${b.quantity === d.name ? unit : ''}` }),
         h('td', { text: b.distribution }),
         h('td', { text: b.sensitivity === null ? '–' : trimNumber(b.sensitivity, 3) }),
         h('td', { text: trimNumber(b.contribution, 2) }),

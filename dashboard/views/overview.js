@@ -9,6 +9,7 @@
 import { h, setText, breakable } from '../lib/dom.js';
 import { ProgressBar } from '../lib/progress-bar.js';
 import { renderRuleStrip } from '../lib/rule-strip.js';
+import { TrendLine } from '../lib/trend-line.js';
 import { decimalsFor, formatValue, formatUncertainty, formatResult, formatCount, formatEffective, formatDuration, stateOf, trimNumber, derivedStateOf, unitText, unitSuffix, samplesProgress, coverageText, STATES } from '../lib/format.js';
 
 const STEADY = new Set(['steady', 'precise']);
@@ -55,6 +56,7 @@ export class OverviewView {
         added = true;
       }
       fillChannel(entry, summary);
+      entry.parts.trend.show(this.app.history.trend(name), summary.unit, decimalsFor(summary.expandedUncertainty));
     }
     if (added) for (const name of [...this.entries.keys()].sort((a, b) => a.localeCompare(b))) this.sheet.appendChild(this.entries.get(name).element);
     this.empty.hidden = this.entries.size > 0;
@@ -122,6 +124,8 @@ function channelEntry(name) {
     progressText: field('progress', 'progress-text'),
     progress: new ProgressBar('samples taken of the samples needed for the target'),
     rules: h('span', { className: 'rule-strip', 'aria-label': 'stability rules', hidden: true }),
+    trend: new TrendLine(),
+    intake: field('intake', 'intake-note'),
   };
   const figure = (label, ...nodes) => h('span', { className: 'figure' }, h('span', { className: 'label', text: label }), ...nodes);
   const element = h(
@@ -134,12 +138,24 @@ function channelEntry(name) {
       h('span', { className: 'entry-head' }, h('span', { className: 'channel-name' }, breakable(name)), parts.state),
       parts.verdict,
       h('span', { className: 'entry-statement' }, parts.meanLabel, parts.mean, parts.coverage),
-      h('span', { className: 'entry-figures' }, figure('last', parts.last, parts.unit), figure('n', parts.n), figure('n_eff', parts.nEff), figure('τ_int', parts.tau)),
+      h('span', { className: 'entry-figures' }, figure('last', parts.last, parts.unit), figure('n', parts.n), figure('n_eff', parts.nEff), figure('τ_int', parts.tau), h('span', { className: 'figure trend-figure' }, h('span', { className: 'label', text: 'trend' }), parts.trend.element)),
       h('span', { className: 'entry-progress' }, parts.progress.element, parts.progressText),
+      parts.intake,
       parts.rules,
     ),
   );
   return { element, parts, state: null };
+}
+
+/** Refusals and gaps since the daemon started, on the entry only when there are some (the channel's view lists them). */
+function fillIntake(p, s) {
+  const i = s.intake;
+  const parts = [];
+  if (i?.gaps > 0) parts.push(`${formatCount(i.gaps)} ${i.gaps === 1 ? 'gap' : 'gaps'}, ${formatCount(i.missingSamples)} ${i.missingSamples === 1 ? 'sample' : 'samples'} missing`);
+  if (i?.refused > 0) parts.push(`${formatCount(i.refused)} ${i.refused === 1 ? 'sample' : 'samples'} refused`);
+  p.intake.hidden = parts.length === 0;
+  setText(p.intake, parts.length === 0 ? '' : `※ ${parts.join(' · ')}`);
+  p.intake.title = parts.length === 0 ? '' : 'since the daemon started; the channel’s view lists them';
 }
 
 function fillChannel(entry, s) {
@@ -147,6 +163,7 @@ function fillChannel(entry, s) {
   fillStatement(entry.parts, s);
   fillFigures(entry.parts, s);
   fillProgress(entry.parts, s);
+  fillIntake(entry.parts, s);
   renderRuleStrip(entry.parts.rules, s.criteria, s.unit);
 }
 

@@ -35,7 +35,7 @@ export class TestPointsView {
       this.message,
     );
     this.list = h('div', { className: 'tp-list', id: 'tp-list' });
-    this.element = h('section', { className: 'view view-test-points', 'aria-label': 'Test points' }, h('div', { className: 'view-head' }, h('h1', { text: 'Test points' })), h('div', { className: 'tp-layout' }, form, h('div', { className: 'tp-column' }, this.list)));
+    this.element = h('section', { className: 'view view-test-points', 'aria-label': 'Test points' }, h('div', { className: 'view-head' }, h('h1', { text: 'Test points' }), h('a', { className: 'records-link', href: '#/records', id: 'tp-records-link', text: 'all records across set points, one CSV →' })), h('div', { className: 'tp-layout' }, form, h('div', { className: 'tp-column' }, this.list)));
     this.element.hidden = true;
     root.appendChild(this.element);
   }

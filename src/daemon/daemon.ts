@@ -193,7 +193,7 @@ export class Daemon implements DaemonApi {
         return true;
       },
     });
-    this.queries = new Queries({ registry: this.registry, derived: this.derived, testPoints: this.control, store: () => this.storeAdapter, lastEventId: () => this.publishing.lastEventId, gaps: (channel, fromMs, toMs) => this.ingestion.gapTrace(channel, fromMs, toMs) });
+    this.queries = new Queries({ registry: this.registry, derived: this.derived, testPoints: this.control, store: () => this.storeAdapter, lastEventId: () => this.publishing.lastEventId, gaps: (channel, fromMs, toMs) => this.ingestion.gapTrace(channel, fromMs, toMs), intake: (channel) => this.ingestion.intake(channel), intakeBrief: (channel) => this.ingestion.intakeBrief(channel) });
   }
 
   /** The store (opened by start()). */

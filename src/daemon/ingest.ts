@@ -10,6 +10,7 @@ import { sameUnit } from '../engine/unit-label.js';
 import type { Clock } from '../ports/clock.js';
 import type { SourceBatch } from '../ports/sample-source.js';
 import type { PendingBatch } from './pending-batch.js';
+import type { ChannelIntake, IntakeBrief } from '../ports/daemon-api.js';
 
 /**
  * Ingest: a source batch in, samples out to their channels and into the pending batch.
@@ -74,6 +75,11 @@ const LAG_RECENT_MS = 10_000;
 const LAG_JUDGE_MS = 250;
 /** Sources (topics) followed one by one; beyond this many, the least recently heard is forgotten. */
 const LAG_MAX_SOURCES = 1024;
+/** Channels whose refusals are counted one by one; refusals for further names count for the daemon only. */
+const REFUSED_MAX_CHANNELS = 10_000;
+/** Gaps listed per channel in its intake (the newest; the totals count every one). */
+const INTAKE_GAPS_LISTED = 50;
+
 
 /** One source's usual difference between arrival and time stamp: per-second minima over LAG_BASELINE_SECONDS. */
 class SourceLag {
@@ -130,6 +136,10 @@ export class Ingest {
   /** Channels whose gap detector changed since the last saveState. */
   private gapsChanged: Tracked[] = [];
   private readonly lastRejectLog = new Map<string, number>();
+  /** Refusals per channel (those that name one), by reason, since the daemon started. */
+  private readonly refusedBy = new Map<string, Partial<Record<RejectReason, number>>>();
+  /** Their totals per channel. */
+  private readonly refusedTotal = new Map<string, number>();
   /** Per source (topic), in order of the last sample heard (oldest first). */
   private readonly lags = new Map<string, SourceLag>();
   private lagJudgedMs = Number.NEGATIVE_INFINITY;
@@ -233,7 +243,7 @@ export class Ingest {
     if (topic.startsWith(this.commandPrefix)) return this.options.command(topic.slice(this.commandPrefix.length), payload);
     if (subscription === null) return this.rejected('unknown-topic', `topic ${topic.slice(0, 80)}: no subscription of this daemon matches it`);
     const decoded = this.decoders.decode(topic, payload, subscription, arrival);
-    for (const rejection of decoded.rejections) this.rejected(rejection.reason, rejection.detail);
+    for (const rejection of decoded.rejections) this.rejected(rejection.reason, rejection.detail, undefined, rejection.channel);
     if (decoded.effects !== undefined && decoded.effects.sequenceGaps.length > 0) this.sequenceGaps(decoded.effects);
     let latestStamp = 0;
     for (const sample of decoded.samples) {
@@ -241,7 +251,7 @@ export class Ingest {
       try {
         tracked = this.track(sample.channel, sample.unit ?? null);
       } catch (error) {
-        this.rejected('engine-error', `channel ${sample.channel}: ${(error as Error).message}`, error);
+        this.rejected('engine-error', `channel ${sample.channel}: ${(error as Error).message}`, error, sample.channel);
         continue;
       }
       if (this.take(tracked, sample.value, sample.timeMs, sample.stamped, arrival) && sample.stamped && sample.timeMs > latestStamp) latestStamp = sample.timeMs;
@@ -253,7 +263,7 @@ export class Ingest {
         try {
           tracked = this.track(block.channel, block.unit ?? null);
         } catch (error) {
-          this.rejected('engine-error', `channel ${block.channel}: ${(error as Error).message}`, error);
+          this.rejected('engine-error', `channel ${block.channel}: ${(error as Error).message}`, error, block.channel);
           continue;
         }
         const newest = this.takeBlock(tracked, block.times, block.values, block.length, block.stamped, arrival);
@@ -310,7 +320,7 @@ export class Ingest {
       result = channel.accept(value, timeMs, stamped);
     } catch (error) {
       // A defect in the engine must not take the daemon down: the sample is counted and logged (with the stack).
-      this.rejected('engine-error', `channel ${channel.name}: ${(error as Error).message}`, error);
+      this.rejected('engine-error', `channel ${channel.name}: ${(error as Error).message}`, error, channel.name);
       return false;
     }
     if (!result.accepted) {
@@ -325,7 +335,7 @@ export class Ingest {
     this.options.batch.addSample(channel.name, result.seq, result.timeMs, value, stamped);
     // The channel took the sample and then the engine failed on it: the sample is stored (nothing
     // accepted is lost) and the defect counted and logged.
-    if (result.engineError !== null) this.rejected('engine-error', `channel ${channel.name}: sample ${result.seq} stored, but the engine failed on it: ${result.engineError.message}`, result.engineError);
+    if (result.engineError !== null) this.rejected('engine-error', `channel ${channel.name}: sample ${result.seq} stored, but the engine failed on it: ${result.engineError.message}`, result.engineError, channel.name);
     if (!tracked.active) this.activate(tracked);
     for (const event of result.events) this.channelEvent(channel, event);
     if (stamped && !result.late) {
@@ -355,7 +365,7 @@ export class Ingest {
       try {
         result = channel.accept(value, timeMs, stamped);
       } catch (error) {
-        this.rejected('engine-error', `channel ${channel.name}: ${(error as Error).message}`, error);
+        this.rejected('engine-error', `channel ${channel.name}: ${(error as Error).message}`, error, channel.name);
         continue;
       }
       if (!result.accepted) {
@@ -371,7 +381,7 @@ export class Ingest {
       taken++;
       if (result.late) this.counters.late++;
       batch.addSample(channel.name, result.seq, result.timeMs, value, stamped);
-      if (result.engineError !== null) this.rejected('engine-error', `channel ${channel.name}: sample ${result.seq} stored, but the engine failed on it: ${result.engineError.message}`, result.engineError);
+      if (result.engineError !== null) this.rejected('engine-error', `channel ${channel.name}: sample ${result.seq} stored, but the engine failed on it: ${result.engineError.message}`, result.engineError, channel.name);
       const events = result.events;
       for (let e = 0; e < events.length; e++) this.channelEvent(channel, events[e] as ChannelEvent);
       if (stamped && !result.late) {
@@ -387,7 +397,7 @@ export class Ingest {
   }
 
   private refused(channel: Channel, reason: 'duplicate' | 'out-of-order' | 'redelivered', timeMs: number): void {
-    this.rejected(reason, `channel ${channel.name}: sample at ${new Date(timeMs).toISOString()} ${reason === 'duplicate' ? 'repeats an accepted time' : reason === 'redelivered' ? 'was stored before the restart (delivered again)' : 'is older than every remembered one'}`);
+    this.rejected(reason, `channel ${channel.name}: sample at ${new Date(timeMs).toISOString()} ${reason === 'duplicate' ? 'repeats an accepted time' : reason === 'redelivered' ? 'was stored before the restart (delivered again)' : 'is older than every remembered one'}`, undefined, channel.name);
   }
 
   private gapsTouched(tracked: Tracked): void {
@@ -470,6 +480,33 @@ export class Ingest {
     return tracked.gaps.within(fromMs, toMs).list.map((g) => ({ from: g.fromMs / 1000, to: g.toMs / 1000, missing: g.missing, source: g.source }));
   }
 
+  /** A channel's refusals by reason and its gaps (the newest INTAKE_GAPS_LISTED listed), since the daemon started. */
+  intake(name: string): ChannelIntake {
+    const byReason = { ...(this.refusedBy.get(name) ?? {}) };
+    let total = 0;
+    for (const count of Object.values(byReason)) total += count;
+    const detector = this.tracked.get(name)?.gaps;
+    const stats = detector?.stats() ?? { gaps: 0, missing: 0, sequenceGaps: 0, intervalMs: null, learned: false };
+    const kept = detector?.within(Number.NEGATIVE_INFINITY, Number.POSITIVE_INFINITY).list ?? [];
+    return {
+      refused: { total, byReason },
+      gaps: {
+        count: stats.gaps,
+        missingSamples: stats.missing,
+        sequenceGaps: stats.sequenceGaps,
+        intervalMs: stats.intervalMs,
+        learned: stats.learned,
+        recent: kept.slice(-INTAKE_GAPS_LISTED).map((g) => ({ from: new Date(g.fromMs).toISOString(), to: new Date(g.toMs).toISOString(), missing: g.missing, source: g.source })),
+      },
+    };
+  }
+
+  /** The totals of intake(name) in O(1), for the live summaries. */
+  intakeBrief(name: string): IntakeBrief {
+    const stats = this.tracked.get(name)?.gaps.stats();
+    return { refused: this.refusedTotal.get(name) ?? 0, gaps: stats?.gaps ?? 0, missingSamples: stats?.missing ?? 0 };
+  }
+
   /** Channels with gaps: their counts and expected intervals. */
   gapReport(): Record<string, { gaps: number; missing: number; intervalMs: number | null; learned: boolean }> {
     const out: Record<string, { gaps: number; missing: number; intervalMs: number | null; learned: boolean }> = {};
@@ -487,8 +524,16 @@ export class Ingest {
   }
 
   /** Counts (and logs, at a limited rate) a refused payload or sample; an engine defect is logged with its error. */
-  rejected(reason: RejectReason, detail: string, err?: unknown): void {
+  rejected(reason: RejectReason, detail: string, err?: unknown, channel?: string): void {
     this.counters.rejected[reason]++;
+    if (channel !== undefined) {
+      let counts = this.refusedBy.get(channel);
+      if (counts === undefined && this.refusedBy.size < REFUSED_MAX_CHANNELS) this.refusedBy.set(channel, (counts = {}));
+      if (counts !== undefined) {
+        counts[reason] = (counts[reason] ?? 0) + 1;
+        this.refusedTotal.set(channel, (this.refusedTotal.get(channel) ?? 0) + 1);
+      }
+    }
     const now = this.options.clock.now();
     const last = this.lastRejectLog.get(reason) ?? Number.NEGATIVE_INFINITY;
     if (now - last >= REJECT_LOG_INTERVAL_MS) {

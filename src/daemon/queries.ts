@@ -1,6 +1,6 @@
 import type { ChannelRegistry } from '../engine/channel-registry.js';
 import type { Channel } from '../engine/channel.js';
-import type { ChannelView, DerivedView, TestPointView, TestPointWindowView, TraceGap } from '../ports/daemon-api.js';
+import type { ChannelIntake, ChannelView, DerivedView, IntakeBrief, TestPointView, TestPointWindowView, TraceGap } from '../ports/daemon-api.js';
 import type { Store, StoredEvent, StoredRecord } from '../ports/store.js';
 import { channelTrace } from './channel-trace.js';
 import type { DerivedResults } from './derived-results.js';
@@ -21,6 +21,9 @@ export interface QueriesOptions {
   lastEventId(): number;
   /** A channel's gaps between two times (ms), for its trace. */
   gaps?(channel: string, fromMs: number, toMs: number): TraceGap[];
+  /** A channel's refused samples and gaps since the daemon started, in full and as totals. */
+  intake?(channel: string): ChannelIntake;
+  intakeBrief?(channel: string): IntakeBrief;
 }
 
 export class Queries {
@@ -122,6 +125,8 @@ export class Queries {
         },
         cusumTrace: () => channel.pipeline.cusumTrace(),
         storedEvents: (limit) => store()?.eventsFor(channel.name, limit) ?? [],
+        ...(this.options.intake !== undefined ? { intake: () => (this.options.intake as (name: string) => ChannelIntake)(channel.name) } : {}),
+        ...(this.options.intakeBrief !== undefined ? { intakeBrief: () => (this.options.intakeBrief as (name: string) => IntakeBrief)(channel.name) } : {}),
       };
       this.views.set(channel, view);
     }

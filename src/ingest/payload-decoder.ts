@@ -85,9 +85,13 @@ export function decodePayload(topic: string, payload: Uint8Array, spec: DecoderS
     return reject('unparseable', 'payload is not UTF-8 text');
   }
   if (spec.format === 'number') {
-    const value = readNumberText(text);
-    if (typeof value === 'string') return reject(value, `payload "${truncate(text)}" is ${REASON_TEXT[value]}`);
     const channel = channelName(spec.channel, topic, {});
+    const value = readNumberText(text);
+    if (typeof value === 'string') {
+      reject(value, `payload "${truncate(text)}" is ${REASON_TEXT[value]}`);
+      if (channel !== null) (out.rejections.at(-1) as Rejection).channel = channel;
+      return out;
+    }
     if (channel === null) return reject('bad-channel', `channel template "${spec.channel}" gives no valid name for this topic`);
     out.samples.push(withUnit({ channel, timeMs: arrivalMs, value, stamped: false }, spec.unit));
     return out;
@@ -132,7 +136,8 @@ function decodeJson(topic: string, document: unknown, spec: DecoderSpec, arrival
   const messageChannel = perRecordName ? null : channelName(spec.channel, topic, {});
   records.forEach((record, index) => {
     const where = records.length > 1 ? `record ${index}` : 'payload';
-    const fail = (reason: RejectReason, detail: string) => out.rejections.push({ reason, detail: `topic ${truncate(topic)}: ${where}: ${detail}` });
+    // The channel is known before the record is read when the name comes from the topic alone.
+    const fail = (reason: RejectReason, detail: string) => out.rejections.push({ reason, detail: `topic ${truncate(topic)}: ${where}: ${detail}`, ...(messageChannel !== null ? { channel: messageChannel } : {}) });
     let raw: unknown = record;
     if (isObject(record)) raw = getPath(record, spec.valueField);
     else if (typeof record !== 'number') return void fail('wrong-type', `${typeName(record)} where an object or number was expected`);

@@ -38,6 +38,8 @@ export interface Rejection {
   reason: RejectReason;
   /** Where and what, for the log: "topic rig/hx1/inlet: record 3 field v is a string". */
   detail: string;
+  /** The channel the refused sample was for, when the payload named one before it failed (counted per channel too). */
+  channel?: string;
 }
 
 /**

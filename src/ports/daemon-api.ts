@@ -58,6 +58,23 @@ export interface TraceGap {
   source: 'time-stamps' | 'sequence';
 }
 
+/**
+ * A channel's intake since the daemon started (GET /api/channels/:name): the samples refused for
+ * it, by reason (those whose payload named the channel before it failed; a payload not read at all
+ * counts for the daemon only, in /api/counters), and its gaps with the newest of them listed (ISO times).
+ */
+export interface ChannelIntake {
+  refused: { total: number; byReason: Record<string, number> };
+  gaps: { count: number; missingSamples: number; sequenceGaps: number; intervalMs: number | null; learned: boolean; recent: { from: string; to: string; missing: number; source: 'time-stamps' | 'sequence' }[] };
+}
+
+/** A channel's intake in three numbers (the live summary's `intake`). */
+export interface IntakeBrief {
+  refused: number;
+  gaps: number;
+  missingSamples: number;
+}
+
 export interface CusumTrace {
   blockSize: number;
   decisionInterval: number;
@@ -79,6 +96,10 @@ export interface ChannelView {
   cusumTrace(): CusumTrace | null;
   /** The channel's newest stored events, oldest first. */
   storedEvents(limit: number): StoredEvent[];
+  /** Its refused samples and gaps since the daemon started (absent where the daemon does not ingest). */
+  intake?(): ChannelIntake;
+  /** The totals of intake(), in O(1): for the live summaries. */
+  intakeBrief?(): IntakeBrief;
 }
 
 /** A derived result as the API shows it: the engine's snapshot, the verdict and the GUM statement. */

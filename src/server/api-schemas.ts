@@ -219,6 +219,30 @@ export const channelTraceSchema = {
   additionalProperties: false,
 } as const;
 
+/** A channel's refused samples by reason and its gaps since the daemon started (ChannelIntake in src/ports/daemon-api.ts). */
+export const channelIntake = {
+  type: 'object',
+  description: 'since the daemon started: samples refused for this channel by reason (payloads that named it before failing; a payload not read at all counts in /api/counters only) and its gaps, the newest 50 listed',
+  required: ['refused', 'gaps'],
+  properties: {
+    refused: { type: 'object', required: ['total', 'byReason'], properties: { total: { type: 'integer' }, byReason: { type: 'object', additionalProperties: { type: 'integer' } } }, additionalProperties: false },
+    gaps: {
+      type: 'object',
+      required: ['count', 'missingSamples', 'recent'],
+      properties: {
+        count: { type: 'integer' },
+        missingSamples: { type: 'integer' },
+        sequenceGaps: { type: 'integer' },
+        intervalMs: nullableNumber,
+        learned: { type: 'boolean' },
+        recent: { type: 'array', items: { type: 'object', properties: { from: { type: 'string' }, to: { type: 'string' }, missing: { type: 'integer' }, source: { type: 'string', enum: ['time-stamps', 'sequence'] } }, additionalProperties: false } },
+      },
+      additionalProperties: false,
+    },
+  },
+  additionalProperties: false,
+} as const;
+
 const derivedInterval = {
   type: ['object', 'null'],
   properties: { standardUncertainty: { type: 'number' }, dof: nullableNumber, coverageFactor: nullableNumber, expandedUncertainty: nullableNumber },

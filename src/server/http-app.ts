@@ -10,11 +10,13 @@ import { recordCsv, RECORD_CAUTION, type TestPointRecord } from '../engine/test-
 import { renderReport, reportTrace } from './report.js';
 import { openApiDocument, type DocumentedRoute } from './openapi.js';
 import { recordDerivedEntries } from './record-derived.js';
+import { recordsCsv } from './records-csv.js';
 import { derivedRecordCsv } from '../engine/derived/derived-record.js';
 import { sameOrigin } from './origin.js';
 import {
   acknowledgement,
   channelSnapshot,
+  channelIntake,
   channelSummary,
   channelTraceSchema,
   derivedResult,
@@ -278,7 +280,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
     '/api/channels/:name',
     {
       schema: {
-        summary: 'one channel: snapshot (with ACF, Allan deviation, stationarity tests, recent events), recent trace with the warm-up cut, CUSUM trace, stored events',
+        summary: 'one channel: snapshot (with ACF, Allan deviation, stationarity tests, recent events), recent trace with the warm-up cut and gaps, CUSUM trace, stored events, its intake (refused samples by reason, gaps)',
         description: 'Names may contain "/": percent-encode them (%2F). `trace` is how many recent samples to return (default 2000); when the window holds fewer, the samples before it (warm-up, or before the test point) are added from the store.',
         params: { type: 'object', properties: { name: { type: 'string', pattern: NAME_PATTERN } }, required: ['name'] },
         querystring: { type: 'object', properties: { trace: { type: 'integer', minimum: 0, maximum: 20000 }, events: { type: 'integer', minimum: 0, maximum: 1000 } }, additionalProperties: false },
@@ -290,6 +292,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
               trace: channelTraceSchema,
               cusumTrace: { type: ['object', 'null'], additionalProperties: true },
               storedEvents: { type: 'array', items: storedEvent },
+              intake: channelIntake,
             },
             additionalProperties: true,
           },
@@ -309,6 +312,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
         trace: channel.trace(query.trace ?? 2000),
         cusumTrace: channel.cusumTrace(),
         storedEvents: channel.storedEvents(query.events ?? 200),
+        ...(channel.intake !== undefined ? { intake: channel.intake() } : {}),
       };
     },
   );
@@ -479,6 +483,48 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
       if (!daemon.testPoint(id)) return unknownTestPoint(reply, id);
       return { records: daemon.records(id) };
     },
+  );
+
+  /** Every test point with its records, in order of creation (records oldest first). */
+  const allRecords = () => daemon.testPointViews().map((point) => ({ testPoint: { id: point.id, name: point.name, setPoints: point.setPoints ?? {}, state: point.state, createdMs: point.createdMs, channels: point.channels, derived: point.derived }, records: daemon.records(point.id) }));
+
+  app.get(
+    '/api/records',
+    {
+      schema: {
+        summary: "every test point's records, test points in order of creation and each one's records oldest first (the records page)",
+        response: {
+          200: {
+            type: 'object',
+            required: ['testPoints', 'caution'],
+            properties: {
+              testPoints: {
+                type: 'array',
+                items: {
+                  type: 'object',
+                  required: ['testPoint', 'records'],
+                  properties: { testPoint: { type: 'object', additionalProperties: true }, records: { type: 'array', items: recordRow } },
+                  additionalProperties: false,
+                },
+              },
+              caution: { type: 'string' },
+            },
+            additionalProperties: false,
+          },
+        },
+      },
+    },
+    async () => ({ testPoints: allRecords(), caution: RECORD_CAUTION }),
+  );
+
+  app.get(
+    '/api/records.csv',
+    {
+      schema: {
+        summary: 'every record of every test point as one CSV (RFC 4180): one row per channel and per derived result of each record, with its test point, set points and record, the statement, provisional or not, and the caution in every row',
+      },
+    },
+    async (_request, reply) => reply.header('content-type', 'text/csv; charset=utf-8').header('content-disposition', 'attachment; filename="plateau-records.csv"').send(recordsCsv(allRecords())),
   );
 
   const latestRecord = (id: string): TestPointRecord | null => {

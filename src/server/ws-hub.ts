@@ -3,7 +3,7 @@ import { WebSocketServer, type WebSocket } from 'ws';
 import type { IncomingMessage } from 'node:http';
 import type { Duplex } from 'node:stream';
 import type { ChannelSummary } from '../engine/channel-pipeline.js';
-import type { DaemonApi, DaemonHealth } from '../ports/daemon-api.js';
+import type { DaemonApi, DaemonHealth, IntakeBrief } from '../ports/daemon-api.js';
 import type { StoredEvent } from '../ports/store.js';
 import { sameOrigin } from './origin.js';
 
@@ -93,7 +93,9 @@ export class WsHub {
   private readonly daemon: DaemonApi;
   private readonly settings: Required<WsHubOptions>;
   private readonly timers: NodeJS.Timeout[] = [];
-  private readonly summaries = new Map<string, { version: number; summary: ChannelSummary & { unit: string | null; unitLabel?: string | null; unitNote?: string | null } }>();
+  /** Per channel: the summary, what it was made from (the channel's version, its intake totals) and a stamp clients compare. */
+  private summaryStamp = 0;
+  private readonly summaries = new Map<string, { version: number; channelVersion: number; intakeKey: string; summary: ChannelSummary & { unit: string | null; unitLabel?: string | null; unitNote?: string | null; intake?: IntakeBrief } }>();
   private readonly unsubscribe: (() => void)[];
   private testPointsChanged = false;
   private closed = false;
@@ -217,8 +219,12 @@ export class WsHub {
     for (const channel of this.daemon.channels()) {
       const version = channel.version;
       const entry = this.summaries.get(channel.name);
-      if (entry && entry.version === version && entry.summary.unit === channel.unit) continue;
-      this.summaries.set(channel.name, { version, summary: { ...channel.summary(), unit: channel.unit, unitLabel: channel.unit === null ? null : unitLabel(channel.unit), unitNote: channel.unitNote } });
+      // Refusals and gaps change without a new sample of the channel: their totals are compared too.
+      const intake = channel.intakeBrief?.();
+      const intakeKey = intake === undefined ? '' : `${intake.refused}:${intake.gaps}:${intake.missingSamples}`;
+      if (entry && entry.channelVersion === version && entry.summary.unit === channel.unit && entry.intakeKey === intakeKey) continue;
+      this.summaryStamp++;
+      this.summaries.set(channel.name, { version: this.summaryStamp, channelVersion: version, intakeKey, summary: { ...channel.summary(), unit: channel.unit, unitLabel: channel.unit === null ? null : unitLabel(channel.unit), unitNote: channel.unitNote, ...(intake !== undefined ? { intake } : {}) } });
     }
   }
 

@@ -285,7 +285,7 @@ describe.skipIf(!available)('dashboard in Chromium', () => {
     await page.keyboard.press('Enter');
     await expect.poll(paper).toBe(before);
     expect(alarms).toEqual([]);
-  });
+  }, 120_000);
 
   it('keyboard only: open a channel from the sheet, come back, acknowledge an alert with a note (or cancel)', async () => {
     await page.goto(base);
@@ -409,7 +409,9 @@ describe.skipIf(!available)('dashboard in Chromium', () => {
     // The test point restarted this channel's window: the trace shows the samples before it, shaded.
     await untilText(page.locator('.view-channel'), /are outside the averaging window/);
     // The uncertainty budget (issue 10): the Type A line, and u_c, nu_eff, k and U above it.
-    await untilText(page.locator('.view-channel .budget-panel'), /u_c = [\d.e-]+, ν_eff = [\d.∞]+, k = [\d.]+, U = [\d.e-]+/);
+    await untilText(page.locator('.view-channel .budget-panel'), /u_c = [\d.e-]+ kg\/s, ν_eff = [\d.∞]+, k = [\d.]+, U = [\d.e-]+ kg\/s/);
+    // Units in the headings of the tables' numbers.
+    await untilText(page.locator('.view-channel .budget-panel thead'), /contribution \(kg\/s\)/);
     await untilText(page.locator('.view-channel .budget-panel tbody'), /Type A: scatter of the readings/);
     // The demo's time stamps are simulated, and the page says so under the trace.
     await untilText(page.locator('.view-channel'), /Times: simulated time of the demo's rig \(40x real time\), time of day, 24 h/);
