@@ -64,7 +64,9 @@ describe('the API while commits to the store fail', () => {
     const alert = t.daemon.events(0, 1000).find((e) => e.kind === 'steady' || e.kind === 'precision-reached');
     expect(alert).toBeDefined();
 
-    store.failNextCommits(2, 'ERR_STORE_FULL');
+    // Six failed attempts: the retries (50 ms doubling) leave about 1.5 s of failing for the checks
+    // below, so a loaded machine does not see the store recover before they run.
+    store.failNextCommits(6, 'ERR_STORE_FULL');
     t.publish('glycol_in_degC', 40.01, RIG_START_SECONDS + 31);
     const health = await app.inject({ method: 'GET', url: '/healthz' });
     expect(health.statusCode).toBe(503);
@@ -81,8 +83,9 @@ describe('the API while commits to the store fail', () => {
     await until(() => later.messages.length > 0);
     expect((later.messages[0]?.health as { status: string; store: { lastError: { code: string } } }).store.lastError.code).toBe('ERR_STORE_FULL');
 
-    // The retries (50 ms, then 100 ms later) fail once more, then succeed: no one has to do anything.
-    const end = Date.now() + 3000;
+    // The retries (50, 100, 200, 400, 800 ms later) fail until the sixth attempt, then succeed: no one
+    // has to do anything.
+    const end = Date.now() + 10_000;
     while ((await app.inject({ method: 'GET', url: '/healthz' })).statusCode !== 200) {
       if (Date.now() > end) throw new Error('the daemon did not recover');
       await new Promise((resolve) => setTimeout(resolve, 20));
@@ -90,7 +93,7 @@ describe('the API while commits to the store fail', () => {
     await until(() => before.messages.some((m) => m.type === 'health' && (m.health as { status: string }).status === 'ok'));
     await until(() => before.messages.some((m) => m.type === 'event' && (m.event as { kind: string }).kind === 'store-recovered'));
     const recovered = t.daemon.events(0, 10_000).find((e) => e.kind === 'store-recovered');
-    expect(recovered?.body).toMatchObject({ failedAttempts: 2, error: { code: 'ERR_STORE_FULL' }, samples: 1 });
+    expect(recovered?.body).toMatchObject({ failedAttempts: 6, error: { code: 'ERR_STORE_FULL' }, samples: 1 });
     expect((await app.inject({ method: 'POST', url: '/api/test-points', payload: { channels: ['hx7.glycol_in_degC'] } })).statusCode).toBe(201);
     before.socket.close();
     later.socket.close();
