@@ -12,8 +12,7 @@ import type { CheckpointToWrite, CommitBatch, EventToWrite, MarkToWrite, SampleC
  * them all. Cost: O(1) per sample, no object per sample: the samples go straight into typed arrays
  * (doubled when full) and the store's batch gets views of them, not copies. The arrays are kept for
  * the channel's next chunk after a commit (the store copies what it keeps: SQLite writes blobs, the
- * memory store copies); arrays that grew beyond KEEP_CAPACITY are let go and the next chunk starts at
- * their size.
+ * memory store copies), unless they are much larger than the chunk needed (see clear).
  */
 class OpenChunk {
   firstSeq = 0;
@@ -45,9 +44,9 @@ class OpenChunk {
     }
   }
 
-  /** Lets the arrays go, remembering their size for the next chunk. */
-  release(): void {
-    this.hint = this.values.length;
+  /** Lets the arrays go; the next chunk starts at `hint` slots. */
+  release(hint: number): void {
+    this.hint = hint;
     this.times = EMPTY;
     this.values = EMPTY;
     this.unstamped = null;
@@ -198,11 +197,14 @@ export class PendingBatch {
   clear(): AckToken[] {
     const tokens = this.tokens;
     this.channels.clear();
-    // Each channel's arrays serve its next chunk (a channel that took nothing since is let go;
-    // arrays beyond KEEP_CAPACITY are let go too, their size kept for the next chunk).
+    // Each channel's arrays serve its next chunk. A channel that took nothing since is let go; arrays
+    // beyond KEEP_CAPACITY, or more than twice the size this chunk needed (after a burst, or the
+    // long batch of a store outage), are let go too and the next chunk starts at the size this one
+    // needed: what stays allocated follows what the channels take per commit.
     for (const [channel, chunk] of this.chunks) {
+      const capacity = chunk.values.length;
       if (chunk.length === 0) this.chunks.delete(channel);
-      else if (chunk.values.length > KEEP_CAPACITY) chunk.release();
+      else if (capacity > KEEP_CAPACITY || capacity > 2 * Math.max(FIRST_CAPACITY, chunk.length)) chunk.release(Math.max(FIRST_CAPACITY, 2 ** Math.ceil(Math.log2(chunk.length))));
       else {
         chunk.length = 0;
         chunk.unstamped = null;

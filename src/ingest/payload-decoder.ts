@@ -36,8 +36,8 @@ const utf8 = new TextDecoder('utf-8', { fatal: true });
 
 /**
  * The daemon's decoders: the pure ones above, and the Sparkplug B decoder with its state per edge
- * node (sparkplug-decoder.ts). One instance per daemon. Binary frames and SenML packs (JSON and
- * CBOR) come out as blocks of typed arrays, not an object per sample.
+ * node (sparkplug-decoder.ts). One instance per daemon. Binary frames, SenML packs (JSON and CBOR)
+ * and JSON arrays come out as blocks of typed arrays, not an object per sample.
  */
 export class PayloadDecoders {
   readonly sparkplug = new SparkplugDecoder();
@@ -105,11 +105,12 @@ export function decodePayload(topic: string, payload: Uint8Array, spec: DecoderS
     return reject('unparseable', `payload is not JSON: "${truncate(text)}"`);
   }
   if (spec.format === 'senml') decodeSenml(topic, document, spec, arrivalMs, out, scratch !== undefined);
-  else decodeJson(topic, document, spec, arrivalMs, out);
+  else decodeJson(topic, document, spec, arrivalMs, out, scratch !== undefined);
   return out;
 }
 
-function decodeJson(topic: string, document: unknown, spec: DecoderSpec, arrivalMs: number, out: DecodeResult): void {
+/** `asBlocks`: as in decodeSenml, runs of one channel and kind of time become blocks. */
+function decodeJson(topic: string, document: unknown, spec: DecoderSpec, arrivalMs: number, out: DecodeResult, asBlocks = false): void {
   let records: unknown[];
   if (typeof document === 'number') {
     // A bare JSON number is accepted as a value at arrival time.
@@ -134,10 +135,13 @@ function decodeJson(topic: string, document: unknown, spec: DecoderSpec, arrival
   // The channel name depends only on the topic unless the template takes a field from each record.
   const perRecordName = spec.channelField !== null && spec.channel.includes('{field}');
   const messageChannel = perRecordName ? null : channelName(spec.channel, topic, {});
-  records.forEach((record, index) => {
-    const where = records.length > 1 ? `record ${index}` : 'payload';
-    // The channel is known before the record is read when the name comes from the topic alone.
-    const fail = (reason: RejectReason, detail: string) => out.rejections.push({ reason, detail: `topic ${truncate(topic)}: ${where}: ${detail}`, ...(messageChannel !== null ? { channel: messageChannel } : {}) });
+  const unit = spec.unit === null ? undefined : spec.unit;
+  let block: SampleBlock | null = null;
+  let index = 0;
+  // The channel is known before the record is read when the name comes from the topic alone.
+  const fail = (reason: RejectReason, detail: string) => out.rejections.push({ reason, detail: `topic ${truncate(topic)}: ${records.length > 1 ? `record ${index}` : 'payload'}: ${detail}`, ...(messageChannel !== null ? { channel: messageChannel } : {}) });
+  for (; index < records.length; index++) take(records[index]);
+  function take(record: unknown): void {
     let raw: unknown = record;
     if (isObject(record)) raw = getPath(record, spec.valueField);
     else if (typeof record !== 'number') return void fail('wrong-type', `${typeName(record)} where an object or number was expected`);
@@ -163,8 +167,20 @@ function decodeJson(topic: string, document: unknown, spec: DecoderSpec, arrival
     }
     const channel = perRecordName ? channelName(spec.channel, topic, field === undefined ? {} : { field }) : messageChannel;
     if (channel === null) return void fail('bad-channel', `channel template "${spec.channel}" gives no valid name`);
-    out.samples.push(withUnit({ channel, timeMs, value, stamped }, spec.unit));
-  });
+    if (!asBlocks) {
+      out.samples.push(withUnit({ channel, timeMs, value, stamped }, spec.unit));
+      return;
+    }
+    if (block === null || block.channel !== channel || block.stamped !== stamped) {
+      const room = records.length - index;
+      block = { channel, times: new Float64Array(room), values: new Float64Array(room), length: 0, stamped };
+      if (unit !== undefined) block.unit = unit;
+      (out.blocks ??= []).push(block);
+    }
+    block.times[block.length] = timeMs;
+    block.values[block.length] = value;
+    block.length++;
+  }
 }
 
 /**

@@ -409,7 +409,7 @@ export function buildHttpApp(daemon: DaemonApi, options: HttpAppOptions): Fastif
     {
       onRequest: requireWriteAccess,
       schema: {
-        summary: 'create and start a test point: the growing window of each channel restarts at its next sample',
+        summary: 'create and start a test point: its own window over each channel starts at the next sample (other test points keep theirs)',
         security: [{ token: [] }],
         body: {
           type: 'object',
