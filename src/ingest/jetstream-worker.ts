@@ -1,3 +1,4 @@
+import { jetstreamManager } from '@nats-io/jetstream';
 import type { BrokerConfig, SubscriptionConfig } from '../config/plateau-config.js';
 import type { ScaleConfig } from '../config/scale-config.js';
 import { PlateauError } from '../errors/catalogue.js';
@@ -91,11 +92,20 @@ export class JetStreamWorker {
     const { scale, log } = this.options;
     const kv = await leaseBucket(this.link.nc, scale);
     const source = this.source;
+    // The live workers in one request: the subjects of the bucket's stream under `w.` (an expired
+    // presence is removed by the bucket's age limit; a clean stop purges its own).
+    const jsm = await jetstreamManager(this.link.nc, { timeout: Math.max(100, (scale.leaseSeconds * 1000) / 3) });
+    const stream = `KV_${scale.leaseBucket}`;
+    const prefix = `$KV.${scale.leaseBucket}.w.`;
     this.leases = new PartitionLeases({
       kv,
       worker: scale.worker,
       partitions: scale.partitions,
       leaseSeconds: scale.leaseSeconds,
+      liveWorkers: async () => Object.keys((await jsm.streams.info(stream, { subjects_filter: `${prefix}>` })).state.subjects ?? {}).map((subject) => subject.slice(prefix.length)),
+      removePresence: async () => {
+        await jsm.streams.purge(stream, { filter: `${prefix}${scale.worker}` });
+      },
       handlers: {
         acquired: async (p, deadline) => {
           const at = performance.now();
