@@ -152,7 +152,7 @@ async function checkpoints(url) {
 }
 
 async function takeover(url, dir) {
-  const cfg = (worker) => ({ broker: { url }, scale: { worker, partitions: 2, stream: 'TAKE', leaseSeconds: 3 }, subscriptions: [{ topic: 'lab/+/+', format: 'json', channel: '{3}' }], store: { path: join(dir, `${worker}.sqlite`), checkpointSamples: 1000 }, http: { listen: '127.0.0.1:0' }, log: { level: 'warn' } });
+  const cfg = (worker) => ({ broker: { url }, scale: { worker, partitions: 2, stream: 'TAKE', leaseSeconds: 3 }, subscriptions: [{ topic: 'lab/+/+', format: 'json', channel: '{3}' }], store: { path: join(dir, `${worker}.sqlite`), checkpointSamples: 250 }, http: { listen: '127.0.0.1:0' }, log: { level: 'warn' } });
   const start = (worker) => new Promise((resolve, reject) => {
     const file = join(dir, `${worker}.yaml`);
     writeFileSync(file, stringify(cfg(worker)));
@@ -170,17 +170,21 @@ async function takeover(url, dir) {
   let i = 0;
   let stop = false;
   const publisher = (async () => { while (!stop) { await Promise.all(Array.from({ length: 8 }, (_, c) => js.publish(`lab.rig${c}.c${c}`, JSON.stringify({ v: 1, t: 1_764_000_000 + i * 0.01 })))); i++; await sleep(2); } })();
-  await sleep(1000);
-  const before = (await counters(b)).samples.accepted;
+  // Long enough for shared checkpoints (every 250 samples per channel) before the kill.
+  await sleep(2500);
   const victimHeld = (await counters(a)).scale.partitions;
+  const victimChannels = (await counters(a)).scale.channels.filter((c) => c.held).map((c) => c.name);
   const t0 = performance.now();
   a.child.kill('SIGKILL');
-  // The survivor's own partition keeps it busy: wait until it holds both and its intake jumps by
-  // the victim's share (its replay of the taken-over partition starts with the first sample).
+  // The first sample of the victim's partitions processed by the survivor: one of the victim's
+  // channels on the survivor has taken more samples than it was restored with (its shared
+  // checkpoint's count; none when there was no checkpoint).
   let first = null;
   while (first === null && performance.now() - t0 < 30_000) {
     const k = await counters(b);
-    if (k.scale.partitions.length === 2 && k.samples.accepted > before + 8 * (i + 1) / 2) first = performance.now() - t0;
+    const base = k.scale.sharedCheckpoints?.lastRestore?.from ?? {};
+    const views = (await (await fetch(new URL('api/channels', b.url))).json()).channels;
+    if (k.scale.partitions.length === 2 && views.some((v) => victimChannels.includes(v.name) && v.received > (base[v.name] ?? 0) && k.scale.channels.some((c) => c.name === v.name && c.held))) first = performance.now() - t0;
     else await sleep(20);
   }
   stop = true;
