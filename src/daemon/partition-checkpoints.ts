@@ -164,8 +164,14 @@ export class PartitionCheckpoints {
     }
     if (found === null) return null;
     const read = performance.now();
-    const record = deserialize(found.bytes) as PartitionCheckpointRecord;
-    if (record.record !== 'partition-checkpoint' || record.version !== 1 || record.partition !== p) {
+    let record: PartitionCheckpointRecord;
+    try {
+      record = deserialize(found.bytes) as PartitionCheckpointRecord;
+    } catch (error) {
+      log.warn({ err: error, partition: p }, `partition ${p}: its shared checkpoint cannot be read; it is read from the stream after this worker's own position`);
+      return null;
+    }
+    if (record?.record !== 'partition-checkpoint' || record.version !== 1 || record.partition !== p || !Array.isArray(record.channels)) {
       log.warn({ partition: p }, `partition ${p}: its shared checkpoint is not one this plateau reads; it is read from the stream after this worker's own position`);
       return null;
     }
