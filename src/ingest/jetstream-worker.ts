@@ -2,7 +2,7 @@ import { jetstreamManager } from '@nats-io/jetstream';
 import type { BrokerConfig, SubscriptionConfig } from '../config/plateau-config.js';
 import type { ScaleConfig } from '../config/scale-config.js';
 import { PlateauError } from '../errors/catalogue.js';
-import { declareLayout, leaseBucket } from './jetstream-layout.js';
+import { declareLayout, leaseBucket, patiently } from './jetstream-layout.js';
 import { JetStreamSampleSource } from './jetstream-sample-source.js';
 import { NatsLink } from './nats-link.js';
 import { PartitionLeases } from './partition-leases.js';
@@ -65,7 +65,7 @@ export class JetStreamWorker {
     const report = await declareLayout(nc, scale);
     if (report.problems.length === 0) {
       try {
-        this.checkpoints = await SharedCheckpoints.open(nc, scale.checkpointBucket, scale.replicas);
+        this.checkpoints = await patiently(() => SharedCheckpoints.open(nc, scale.checkpointBucket, scale.replicas));
       } catch (error) {
         report.problems.push(`key-value bucket ${scale.checkpointBucket}: ${(error as Error).message}`);
       }
@@ -90,7 +90,7 @@ export class JetStreamWorker {
   /** Starts the leases (after the source has started): partitions are read as they are acquired. */
   async startLeases(): Promise<void> {
     const { scale, log } = this.options;
-    const kv = await leaseBucket(this.link.nc, scale);
+    const kv = await patiently(() => leaseBucket(this.link.nc, scale));
     const source = this.source;
     // The live workers in one request: the subjects of the bucket's stream under `w.` (an expired
     // presence is removed by the bucket's age limit; a clean stop purges its own).
