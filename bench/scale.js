@@ -4,9 +4,12 @@
 //    message, on the same stream contents in the same run (goal >= 0.7x);
 //  - takeover: from kill -9 of a worker process to the first sample of its partitions taken by
 //    the survivor (goal < 5 s with the default lease of 3 s);
+//  - the time and bytes to checkpoint 1,000 channels of a partition to the shared key-value bucket
+//    and to restore them from it (what a takeover does before it reads the stream);
 //  - a projection of the workers a 10^7 samples/s lab needs from the measured worker rate.
 // It starts its own nats-server (Debian's package) on free loopback ports. Run: npm run bench:scale
-// (FETCH=n sets scale.fetchBatch of the worker; SKIP_TAKEOVER=1 measures the rates only; QUICK=1 is smaller).
+// (FETCH=n sets scale.fetchBatch of the worker; SKIP_TAKEOVER=1 and SKIP_CHECKPOINTS=1 leave those out;
+// CK_SAMPLES=n samples per channel in the checkpoint figures; QUICK=1 is smaller).
 import { spawn } from 'node:child_process';
 import { createServer, connect as tcp } from 'node:net';
 import { mkdirSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
@@ -19,6 +22,10 @@ import { jetstream, jetstreamManager, AckPolicy } from '@nats-io/jetstream';
 import { stringify } from 'yaml';
 import { parseConfig } from '../dist/config/load-config.js';
 import { Daemon } from '../dist/daemon/daemon.js';
+import { serialize, deserialize } from 'node:v8';
+import { Channel, memoryHistory } from '../dist/engine/channel.js';
+import { DEFAULT_CHANNEL_OPTIONS } from '../dist/engine/channel-options.js';
+import { SharedCheckpoints } from '../dist/ingest/shared-checkpoints.js';
 import { line, header, verdict } from './harness.js';
 
 const here = dirname(fileURLToPath(import.meta.url));
@@ -97,16 +104,55 @@ async function oneWorker(url, stream, dir) {
   });
   const daemon = new Daemon(config);
   const expected = MESSAGES * PACK;
-  const t0 = performance.now();
+  // Timed from the end of start() (connection, server objects, the first heartbeat and the
+  // partition's consumer are set up by then), as the bare consumer is timed from its consume().
   await daemon.start();
+  const t0 = performance.now();
+  const before = daemon.counters.accepted;
   while (daemon.counters.accepted < expected) await sleep(5);
   const ms = performance.now() - t0;
   await daemon.stop();
-  return { samples: daemon.counters.accepted, ms };
+  return { samples: daemon.counters.accepted - before, ms };
+}
+
+/**
+ * 1,000 channels (growing windows, CK_SAMPLES samples each, the default engine) checkpointed as a
+ * worker does for a partition (src/daemon/partition-checkpoints.ts: the channel records and their
+ * recent times, v8-serialised, written in chunks to the bucket), then read back and restored into
+ * new channels as a takeover does. Times are wall times on this machine, one run each.
+ */
+const CK_CHANNELS = 1000;
+const CK_SAMPLES = Number(process.env.CK_SAMPLES ?? 1000);
+async function checkpoints(url) {
+  const channels = [];
+  for (let c = 0; c < CK_CHANNELS; c++) {
+    const channel = new Channel(`c${c}`, 'degC', DEFAULT_CHANNEL_OPTIONS);
+    for (let i = 0; i < CK_SAMPLES; i++) channel.accept(20 + uniform() - 0.5, 1_764_000_000_000 + i * 10, true);
+    channels.push(channel);
+  }
+  const nc = await connect({ servers: url });
+  const bucket = await SharedCheckpoints.open(nc, 'BENCH_checkpoints', 1);
+  const t0 = performance.now();
+  const record = { record: 'partition-checkpoint', version: 1, partition: 0, seq: CK_CHANNELS * CK_SAMPLES, channels: channels.map((c) => ({ name: c.name, unit: c.unit, checkpoint: c.checkpoint(), memory: c.timeMemory(64) })) };
+  const bytes = serialize(record);
+  const t1 = performance.now();
+  await bucket.write(0, record.seq, bytes, 'bench');
+  const t2 = performance.now();
+  const found = await bucket.read(0);
+  const t3 = performance.now();
+  const back = deserialize(found.bytes);
+  let loaded = 0;
+  for (const c of back.channels) {
+    const channel = new Channel(c.name, c.unit, DEFAULT_CHANNEL_OPTIONS);
+    if (channel.restore(c.checkpoint, memoryHistory(c.checkpoint.seq, c.memory)).outcome === 'loaded') loaded++;
+  }
+  const t4 = performance.now();
+  await nc.close();
+  return { bytes: bytes.length, serializeMs: t1 - t0, writeMs: t2 - t1, readMs: t3 - t2, restoreMs: t4 - t3, loaded };
 }
 
 async function takeover(url, dir) {
-  const cfg = (worker) => ({ broker: { url }, scale: { worker, partitions: 2, stream: 'TAKE', leaseSeconds: 3 }, subscriptions: [{ topic: 'lab/+/+', format: 'json', channel: '{3}' }], store: { path: join(dir, `${worker}.sqlite`) }, http: { listen: '127.0.0.1:0' }, log: { level: 'warn' } });
+  const cfg = (worker) => ({ broker: { url }, scale: { worker, partitions: 2, stream: 'TAKE', leaseSeconds: 3 }, subscriptions: [{ topic: 'lab/+/+', format: 'json', channel: '{3}' }], store: { path: join(dir, `${worker}.sqlite`), checkpointSamples: 250 }, http: { listen: '127.0.0.1:0' }, log: { level: 'warn' } });
   const start = (worker) => new Promise((resolve, reject) => {
     const file = join(dir, `${worker}.yaml`);
     writeFileSync(file, stringify(cfg(worker)));
@@ -124,24 +170,29 @@ async function takeover(url, dir) {
   let i = 0;
   let stop = false;
   const publisher = (async () => { while (!stop) { await Promise.all(Array.from({ length: 8 }, (_, c) => js.publish(`lab.rig${c}.c${c}`, JSON.stringify({ v: 1, t: 1_764_000_000 + i * 0.01 })))); i++; await sleep(2); } })();
-  await sleep(1000);
-  const before = (await counters(b)).samples.accepted;
+  // Long enough for shared checkpoints (every 250 samples per channel) before the kill.
+  await sleep(2500);
   const victimHeld = (await counters(a)).scale.partitions;
+  const victimChannels = (await counters(a)).scale.channels.filter((c) => c.held).map((c) => c.name);
   const t0 = performance.now();
   a.child.kill('SIGKILL');
-  // The survivor's own partition keeps it busy: wait until it holds both and its intake jumps by
-  // the victim's share (its replay of the taken-over partition starts with the first sample).
+  // The first sample of the victim's partitions processed by the survivor: one of the victim's
+  // channels on the survivor has taken more samples than it was restored with (its shared
+  // checkpoint's count; none when there was no checkpoint).
   let first = null;
   while (first === null && performance.now() - t0 < 30_000) {
     const k = await counters(b);
-    if (k.scale.partitions.length === 2 && k.samples.accepted > before + 8 * (i + 1) / 2) first = performance.now() - t0;
+    const base = k.scale.sharedCheckpoints?.lastRestore?.from ?? {};
+    const views = (await (await fetch(new URL('api/channels', b.url))).json()).channels;
+    if (k.scale.partitions.length === 2 && views.some((v) => victimChannels.includes(v.name) && v.received > (base[v.name] ?? 0) && k.scale.channels.some((c) => c.name === v.name && c.held))) first = performance.now() - t0;
     else await sleep(20);
   }
   stop = true;
   await publisher;
+  const restored = (await counters(b)).scale?.sharedCheckpoints?.lastRestore ?? null;
   await nc.close();
   b.child.kill('SIGKILL');
-  return { ms: first, victimHeld };
+  return { ms: first, victimHeld, restored };
 }
 
 header('scale-out on NATS JetStream');
@@ -156,6 +207,9 @@ try {
   line(`bare JetStream consumer, packs of ${PACK}, ack each`, Math.round(bareRate), 'samples/s', `${MESSAGES} messages`);
   line(`one worker (decode, engine, SQLite, ack after commit)`, Math.round(workerRate), 'samples/s', `${(workerRate / bareRate).toFixed(2)}x the bare consumer; ${verdict(workerRate / bareRate >= 0.7)} (>= 0.7x)`);
   line('workers for a 10^7 samples/s lab at this rate', Math.ceil(1e7 / workerRate), 'workers', 'one core each, before the broker\'s own limits');
+  const ck = process.env.SKIP_CHECKPOINTS === '1' ? null : await checkpoints(server.url);
+  if (ck) line(`checkpoint ${CK_CHANNELS} channels (${CK_SAMPLES} samples, growing windows)`, Math.round(ck.serializeMs + ck.writeMs), 'ms', `${(ck.bytes / 1e6).toFixed(1)} MB: serialise ${Math.round(ck.serializeMs)} ms, write to the bucket ${Math.round(ck.writeMs)} ms`);
+  if (ck) line(`restore ${CK_CHANNELS} channels from the bucket`, Math.round(ck.readMs + ck.restoreMs), 'ms', `read ${Math.round(ck.readMs)} ms, deserialise and load ${Math.round(ck.restoreMs)} ms; ${ck.loaded} loaded`);
 } finally {
   await server.stop();
 }
@@ -164,7 +218,7 @@ if (process.env.SKIP_TAKEOVER === '1') process.exit(0);
 const server2 = await natsServer(join(dir, 'two'), 2);
 try {
   const t = await takeover(server2.url, join(dir, 'two'));
-  line('takeover: kill -9 to the survivor taking the victim\'s samples', t.ms === null ? 'none' : Math.round(t.ms), 'ms', `lease 3 s (default); ${verdict(t.ms !== null && t.ms < 5000)} (< 5 s)`);
+  line('takeover: kill -9 to the survivor taking the victim\'s samples', t.ms === null ? 'none' : Math.round(t.ms), 'ms', `lease 3 s (default); ${verdict(t.ms !== null && t.ms < 5000)} (< 5 s); ${t.restored ? `restored ${t.restored.channels} channels from the shared checkpoint at sequence ${t.restored.seq} (${t.restored.bytes} bytes)` : 'no shared checkpoint restored'}`);
 } finally {
   await server2.stop();
   rmSync(dir, { recursive: true, force: true });

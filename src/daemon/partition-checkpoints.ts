@@ -67,6 +67,10 @@ export class PartitionCheckpoints {
   /** Per partition, the channels its last shared checkpoint held (read at acquisition; a channel idle since still belongs). */
   private readonly members = new Map<number, Set<string>>();
   private readonly writing = new Set<number>();
+  /** Partitions being restored (no checkpoint of them is written meanwhile). */
+  private readonly restoring = new Set<number>();
+  /** Per partition, the sequence of the latest shared checkpoint seen (never written over by an older state). */
+  private readonly sharedSeq = new Map<number, number>();
   readonly figures: SharedCheckpointFigures = { written: 0, restored: 0, last: null, lastRestore: null, failures: 0 };
 
   constructor(options: PartitionCheckpointsOptions) {
@@ -87,7 +91,8 @@ export class PartitionCheckpoints {
 
   afterCommit(): void {
     for (const p of this.options.held()) {
-      if (this.writing.has(p)) continue;
+      if (this.writing.has(p) || this.restoring.has(p)) continue;
+      if (this.options.fence.covered(this.options.partitionSource(p)) <= (this.sharedSeq.get(p) ?? 0)) continue;
       const channels = this.channelsOf(p);
       if (!channels.some((c) => c.nextSeq - (this.sharedAt.get(c.name) ?? 0) >= this.options.checkpointSamples)) continue;
       this.write(p, channels);
@@ -113,6 +118,7 @@ export class PartitionCheckpoints {
       .write(p, seq, bytes, worker)
       .then(() => {
         for (const [name, next] of at) this.sharedAt.set(name, next);
+        this.sharedSeq.set(p, Math.max(seq, this.sharedSeq.get(p) ?? 0));
         this.members.set(p, new Set(at.keys()));
         this.figures.written++;
         this.figures.last = { partition: p, seq, channels: channels.length, bytes: bytes.length, serializeMs: serialized - started, writeMs: performance.now() - serialized };
@@ -131,12 +137,22 @@ export class PartitionCheckpoints {
 
   /** Restores partition p's channels from its shared checkpoint when that is ahead of this worker's state; returns the sequence they cover (null: nothing restored). */
   async restore(p: number, source: string): Promise<number | null> {
+    this.restoring.add(p);
+    try {
+      return await this.restoreFrom(p, source);
+    } finally {
+      this.restoring.delete(p);
+    }
+  }
+
+  private async restoreFrom(p: number, source: string): Promise<number | null> {
     const { bucket, fence, registry, ingest, batch, log } = this.options;
     const started = performance.now();
     let found;
     try {
       const manifest = await bucket.manifest(p);
       if (manifest === null) return null;
+      this.sharedSeq.set(p, Math.max(manifest.seq, this.sharedSeq.get(p) ?? 0));
       if (manifest.seq <= fence.covered(source)) {
         // This worker's own state is as far on: its channels of the partition are those of the checkpoint at least.
         return null;
@@ -148,13 +164,21 @@ export class PartitionCheckpoints {
     }
     if (found === null) return null;
     const read = performance.now();
-    const record = deserialize(found.bytes) as PartitionCheckpointRecord;
-    if (record.record !== 'partition-checkpoint' || record.version !== 1 || record.partition !== p) {
+    let record: PartitionCheckpointRecord;
+    try {
+      record = deserialize(found.bytes) as PartitionCheckpointRecord;
+    } catch (error) {
+      log.warn({ err: error, partition: p }, `partition ${p}: its shared checkpoint cannot be read; it is read from the stream after this worker's own position`);
+      return null;
+    }
+    if (record?.record !== 'partition-checkpoint' || record.version !== 1 || record.partition !== p || !Array.isArray(record.channels)) {
       log.warn({ partition: p }, `partition ${p}: its shared checkpoint is not one this plateau reads; it is read from the stream after this worker's own position`);
       return null;
     }
     const restored: Channel[] = [];
-    for (const c of record.channels) {
+    for (const [i, c] of record.channels.entries()) {
+      // A partition of many channels takes a while: the lease's renewals and the other partitions go on between them.
+      if (i % 50 === 49) await new Promise((resolve) => setImmediate(resolve));
       const channel = registry.create(c.name, c.unit);
       const report = channel.restore(c.checkpoint, memoryHistory(c.checkpoint.seq, c.memory));
       if (report.outcome !== 'loaded') {

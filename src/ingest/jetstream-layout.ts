@@ -37,13 +37,13 @@ export async function declareLayout(nc: NatsConnection, scale: ScaleConfig): Pro
   const subjects = streamSubjects(scale.subjectPrefix);
   let info: StreamInfo | null = null;
   try {
-    info = await jsm.streams.info(scale.stream);
+    info = await patiently(() => jsm.streams.info(scale.stream));
   } catch (error) {
     if (!/not found/i.test((error as Error).message)) return { problems: [`stream ${scale.stream}: ${(error as Error).message}`], notes };
   }
   if (info === null) {
     try {
-      info = await jsm.streams.add({ name: scale.stream, subjects, retention: RetentionPolicy.Limits, storage: StorageType.File, num_replicas: scale.replicas });
+      info = await patiently(() => jsm.streams.add({ name: scale.stream, subjects, retention: RetentionPolicy.Limits, storage: StorageType.File, num_replicas: scale.replicas }));
     } catch (error) {
       return { problems: [`stream ${scale.stream}: cannot be created with ${scale.replicas} replica(s): ${(error as Error).message}`], notes };
     }
@@ -70,7 +70,7 @@ export async function declareLayout(nc: NatsConnection, scale: ScaleConfig): Pro
     const name = consumerName(scale.stream, p);
     const filter = partitionFilter(scale.subjectPrefix, p);
     try {
-      const ci = await jsm.consumers.info(scale.stream, name);
+      const ci = await patiently(() => jsm.consumers.info(scale.stream, name));
       const c = ci.config;
       if (c.filter_subject !== filter) problems.push(`consumer ${name} of stream ${scale.stream} filters ${JSON.stringify(c.filter_subject ?? '')}; partition ${p} needs ${JSON.stringify(filter)}`);
       if (c.ack_policy !== AckPolicy.Explicit) problems.push(`consumer ${name} of stream ${scale.stream} acknowledges "${c.ack_policy}"; plateau needs explicit acknowledgements`);
@@ -81,7 +81,7 @@ export async function declareLayout(nc: NatsConnection, scale: ScaleConfig): Pro
         continue;
       }
       try {
-        await jsm.consumers.add(scale.stream, consumerConfig(scale, p, null));
+        await patiently(() => jsm.consumers.add(scale.stream, consumerConfig(scale, p, null)));
       } catch (err) {
         problems.push(`consumer ${name} of stream ${scale.stream}: cannot be created: ${(err as Error).message}`);
       }
@@ -97,8 +97,8 @@ export async function declareLayout(nc: NatsConnection, scale: ScaleConfig): Pro
     // Listing is a check only.
   }
   try {
-    const kv = await leaseBucket(nc, scale);
-    const status = await kv.status();
+    const kv = await patiently(() => leaseBucket(nc, scale));
+    const status = await patiently(() => kv.status());
     if (Math.abs(status.ttl - scale.leaseSeconds * 1000) > 1) problems.push(`key-value bucket ${scale.leaseBucket} expires entries after ${status.ttl / 1000} s; scale.leaseSeconds is ${scale.leaseSeconds}`);
     if (status.replicas < scale.replicas) problems.push(`key-value bucket ${scale.leaseBucket} has ${status.replicas} replica(s); scale.replicas asks for ${scale.replicas}`);
   } catch (error) {
@@ -123,4 +123,20 @@ export function consumerConfig(scale: Pick<ScaleConfig, 'stream' | 'subjectPrefi
     max_deliver: -1,
     ...(startAfter !== null && startAfter > 0 ? { deliver_policy: DeliverPolicy.StartSequence, opt_start_seq: startAfter + 1 } : { deliver_policy: DeliverPolicy.All }),
   };
+}
+
+/**
+ * A request to the server, asked again when it times out or finds no responder (a cluster that has
+ * just created a replicated stream, or is electing a leader, answers late for a few seconds): up
+ * to `attempts` times. Any other error, or the last timeout, is the caller's.
+ */
+export async function patiently<T>(request: () => Promise<T>, attempts = 4): Promise<T> {
+  for (let attempt = 1; ; attempt++) {
+    try {
+      return await request();
+    } catch (error) {
+      if (attempt >= attempts || !/timeout|no responders/i.test((error as Error).message)) throw error;
+      await new Promise((resolve) => setTimeout(resolve, 250 * attempt));
+    }
+  }
 }

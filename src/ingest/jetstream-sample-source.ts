@@ -80,6 +80,8 @@ export class JetStreamSampleSource implements SampleSource {
   readonly name: string;
   private readonly options: JetStreamSourceOptions;
   private readonly partitions = new Map<number, Partition>();
+  /** Partitions whose consumer is being positioned by assign(), with the deadline to start with. */
+  private readonly assigning = new Map<number, { deadline: number; released: boolean }>();
   private handlers: SourceHandlers | null = null;
   private epochs = 0;
   private unsubscribe: (() => void) | null = null;
@@ -116,6 +118,17 @@ export class JetStreamSampleSource implements SampleSource {
 
   async assign(index: number, startAfter: number | null, deadline = Number.POSITIVE_INFINITY): Promise<void> {
     if (this.partitions.has(index)) await this.release(index);
+    // Renewals that come while the consumer is being positioned move this deadline (setDeadline).
+    const pending = { deadline, released: false };
+    this.assigning.set(index, pending);
+    try {
+      await this.open(index, startAfter, pending);
+    } finally {
+      if (this.assigning.get(index) === pending) this.assigning.delete(index);
+    }
+  }
+
+  private async open(index: number, startAfter: number | null, pending: { deadline: number; released: boolean }): Promise<void> {
     const nc = this.options.link.nc;
     const stream = this.options.stream;
     const durable = consumerName(stream, index);
@@ -125,7 +138,9 @@ export class JetStreamSampleSource implements SampleSource {
       await jsm.consumers.add(stream, consumerConfig({ stream, subjectPrefix: this.options.subjectPrefix }, index, startAfter));
     }
     const consumer = await jetstream(nc).consumers.get(stream, durable);
-    const partition: Partition = { index, name: this.partitionName(index), epoch: ++this.epochs, messages: null, reader: null, deadline, expired: false, nextDelivery: 0, outstanding: new Map(), tokens: new Set() };
+    // Released (the lease lost or given up) while the consumer was being positioned: not read.
+    if (pending.released || this.stopped) return;
+    const partition: Partition = { index, name: this.partitionName(index), epoch: ++this.epochs, messages: null, reader: null, deadline: pending.deadline, expired: false, nextDelivery: 0, outstanding: new Map(), tokens: new Set() };
     this.partitions.set(index, partition);
     const messages = await consumer.consume({ max_messages: this.options.fetchBatch ?? 256, expires: 5000 });
     partition.messages = messages;
@@ -140,6 +155,11 @@ export class JetStreamSampleSource implements SampleSource {
 
   /** A renewed lease's deadline; false when the partition is not read here any more (it must be assigned again). */
   setDeadline(index: number, deadline: number): boolean {
+    const pending = this.assigning.get(index);
+    if (pending && !pending.released) {
+      pending.deadline = deadline;
+      return true;
+    }
     const p = this.partitions.get(index);
     if (!p || p.expired) return false;
     p.deadline = deadline;
@@ -148,6 +168,8 @@ export class JetStreamSampleSource implements SampleSource {
 
   /** Stops reading partition p; what it handed out and was not acknowledged is sent again (to the next owner). */
   async release(index: number): Promise<void> {
+    const pending = this.assigning.get(index);
+    if (pending) pending.released = true;
     const p = this.partitions.get(index);
     if (!p) return;
     this.partitions.delete(index);

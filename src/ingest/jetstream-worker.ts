@@ -1,7 +1,8 @@
+import { jetstreamManager } from '@nats-io/jetstream';
 import type { BrokerConfig, SubscriptionConfig } from '../config/plateau-config.js';
 import type { ScaleConfig } from '../config/scale-config.js';
 import { PlateauError } from '../errors/catalogue.js';
-import { declareLayout, leaseBucket } from './jetstream-layout.js';
+import { declareLayout, leaseBucket, patiently } from './jetstream-layout.js';
 import { JetStreamSampleSource } from './jetstream-sample-source.js';
 import { NatsLink } from './nats-link.js';
 import { PartitionLeases } from './partition-leases.js';
@@ -64,7 +65,7 @@ export class JetStreamWorker {
     const report = await declareLayout(nc, scale);
     if (report.problems.length === 0) {
       try {
-        this.checkpoints = await SharedCheckpoints.open(nc, scale.checkpointBucket, scale.replicas);
+        this.checkpoints = await patiently(() => SharedCheckpoints.open(nc, scale.checkpointBucket, scale.replicas));
       } catch (error) {
         report.problems.push(`key-value bucket ${scale.checkpointBucket}: ${(error as Error).message}`);
       }
@@ -89,13 +90,22 @@ export class JetStreamWorker {
   /** Starts the leases (after the source has started): partitions are read as they are acquired. */
   async startLeases(): Promise<void> {
     const { scale, log } = this.options;
-    const kv = await leaseBucket(this.link.nc, scale);
+    const kv = await patiently(() => leaseBucket(this.link.nc, scale));
     const source = this.source;
+    // The live workers in one request: the subjects of the bucket's stream under `w.` (an expired
+    // presence is removed by the bucket's age limit; a clean stop purges its own).
+    const jsm = await jetstreamManager(this.link.nc, { timeout: Math.max(100, (scale.leaseSeconds * 1000) / 3) });
+    const stream = `KV_${scale.leaseBucket}`;
+    const prefix = `$KV.${scale.leaseBucket}.w.`;
     this.leases = new PartitionLeases({
       kv,
       worker: scale.worker,
       partitions: scale.partitions,
       leaseSeconds: scale.leaseSeconds,
+      liveWorkers: async () => Object.keys((await jsm.streams.info(stream, { subjects_filter: `${prefix}>` })).state.subjects ?? {}).map((subject) => subject.slice(prefix.length)),
+      removePresence: async () => {
+        await jsm.streams.purge(stream, { filter: `${prefix}${scale.worker}` });
+      },
       handlers: {
         acquired: async (p, deadline) => {
           const at = performance.now();

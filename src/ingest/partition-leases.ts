@@ -42,6 +42,14 @@ export interface PartitionLeasesOptions {
   leaseSeconds: number;
   handlers: LeaseHandlers;
   now?: () => number;
+  /**
+   * The live workers' names (default: the bucket's `w.` keys through the client's key listing,
+   * which opens a consumer each time: on a cluster that is a round through the meta leader per
+   * heartbeat). Bounded by the heartbeat's period either way.
+   */
+  liveWorkers?: () => Promise<string[]>;
+  /** Removes this worker's presence at a clean stop (default: delete its key). */
+  removePresence?: () => Promise<void>;
 }
 
 interface Held {
@@ -55,6 +63,8 @@ export class PartitionLeases {
   private timer: NodeJS.Timeout | null = null;
   private running: Promise<void> | null = null;
   private presence: number | null = null;
+  /** Partitions acquired whose set-up (`handlers.acquired`) is still running. */
+  private readonly acquiring = new Map<number, Promise<void>>();
   private stopped = false;
   /** Live workers seen at the last heartbeat. */
   workers: string[] = [];
@@ -141,8 +151,9 @@ export class PartitionLeases {
       }
     }
     // Bounded by the heartbeat's period, so that a stalled listing does not hold up the next renewals.
-    const keys = await listKeys(kv, 'w.*', Math.max(100, this.leaseMs / 3));
-    this.workers = [...new Set([...keys.map((key) => key.slice(2)), worker])].sort();
+    const period = Math.max(100, this.leaseMs / 3);
+    const live = this.options.liveWorkers ? await bounded(this.options.liveWorkers(), period, 'listing the live workers') : (await listKeys(kv, 'w.*', period)).map((key) => key.slice(2));
+    this.workers = [...new Set([...live, worker])].sort();
     const share = new Set(PartitionLeases.share(worker, this.workers, partitions));
     for (const p of this.owned()) {
       if (share.has(p) || this.stopped) continue;
@@ -159,16 +170,27 @@ export class PartitionLeases {
       }
       const deadline = sent + this.leaseMs - this.marginMs;
       this.held.set(p, { revision, deadline });
-      try {
-        await handlers.acquired(p, deadline);
-      } catch (error) {
+      // Not awaited: setting a partition up (its consumer positioned, its channels restored from a
+      // shared checkpoint) can take longer than a lease on a busy cluster, and the renewals must go
+      // on meanwhile. The source hands out nothing past the deadline it holds, whatever happens.
+      const acquiring = handlers.acquired(p, deadline).catch(async (error: unknown) => {
         handlers.error(error as Error);
-        await this.release(p);
-      }
+        if (this.held.has(p)) await this.releaseNow(p);
+      });
+      this.acquiring.set(p, acquiring);
+      void acquiring.finally(() => {
+        if (this.acquiring.get(p) === acquiring) this.acquiring.delete(p);
+      });
     }
   }
 
   private async release(p: number): Promise<void> {
+    // A partition still being set up is released once that is done (else its reading would start after the release).
+    await this.acquiring.get(p);
+    await this.releaseNow(p);
+  }
+
+  private async releaseNow(p: number): Promise<void> {
     const h = this.held.get(p);
     if (!h) return;
     await this.options.handlers.release(p);
@@ -191,7 +213,7 @@ export class PartitionLeases {
     // A heartbeat in flight ends within its requests' timeouts (each bounded, keys too).
     await this.running;
     for (const p of this.owned()) await this.release(p);
-    if (this.presence !== null) await this.options.kv.delete(`w.${this.options.worker}`).catch(() => undefined);
+    if (this.presence !== null) await (this.options.removePresence?.() ?? this.options.kv.delete(`w.${this.options.worker}`)).catch(() => undefined);
   }
 }
 
@@ -227,4 +249,14 @@ export async function listKeys(kv: KV, filter: string, ms: number): Promise<stri
   }
   if (timedOut) throw new Error(`listing the keys ${filter} did not end within ${Math.round(ms)} ms`);
   return keys;
+}
+
+/** The promise's value, or an error after `ms` (what did not end, and its bound). */
+async function bounded<T>(promise: Promise<T>, ms: number, what: string): Promise<T> {
+  let timer: NodeJS.Timeout | undefined;
+  try {
+    return await Promise.race([promise, new Promise<never>((_, reject) => (timer = setTimeout(() => reject(new Error(`${what} did not end within ${Math.round(ms)} ms`)), ms)))]);
+  } finally {
+    clearTimeout(timer);
+  }
 }

@@ -103,6 +103,43 @@ describe('a heartbeat never waits for ever', () => {
   }, 10_000);
 });
 
+describe('a slow partition set-up does not hold up the renewals', () => {
+  it('leases stay renewed while their partitions take longer than a lease to set up', async () => {
+    const kv = memoryKv({ on: false });
+    const lost: number[] = [];
+    const renewals: number[] = [];
+    let setUp = 0;
+    const leases = new PartitionLeases({
+      kv,
+      worker: 'bay-1',
+      partitions: 2,
+      leaseSeconds: 1,
+      handlers: {
+        // Restoring a partition's channels from its shared checkpoint, on a busy cluster: 2.5 leases.
+        acquired: async () => {
+          await new Promise((resolve) => setTimeout(resolve, 2500));
+          setUp++;
+        },
+        renewed: (p) => {
+          renewals.push(p);
+          return true;
+        },
+        lost: (p) => lost.push(p),
+        release: async () => undefined,
+        error: () => undefined,
+      },
+    });
+    await leases.start();
+    await new Promise((resolve) => setTimeout(resolve, 3000));
+    // Before, the heartbeat waited for the set-up: no renewal for 2.5 s, and both leases ran out.
+    expect(setUp).toBe(2);
+    expect(lost).toEqual([]);
+    expect(renewals.length).toBeGreaterThanOrEqual(6);
+    expect(leases.owned()).toEqual([0, 1]);
+    await leases.stop();
+  }, 10_000);
+});
+
 /** A delivered message as the client hands it over: stream sequence, delivery number, subject. */
 function message(seq: number, delivery: number): JsMsg {
   return {
