@@ -7,7 +7,7 @@
 
 import { h, setText, replaceChildren, breakable } from '../lib/dom.js';
 import { api } from '../lib/api.js';
-import { formatResult, formatUncertainty, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber, derivedStateOf, signedPercent, unitSuffix, coverageText } from '../lib/format.js';
+import { formatResult, formatUncertainty, formatCount, formatEffective, formatDuration, percent, stateOf, trimNumber, derivedStateOf, signedPercent, unitSuffix, unitText, coverageText } from '../lib/format.js';
 import { budgetChart } from '../lib/budget-chart.js';
 import { DetailView } from '../lib/detail-view.js';
 import { ProgressBar } from '../lib/progress-bar.js';
@@ -157,15 +157,20 @@ export class DerivedView extends DetailView {
       p.inputs,
       (d.budget ?? []).map((b) => {
         const s = stateOf(d.inputStates?.[b.channel] ?? 'no data');
+        // Units as people write them: the input's on its mean and u, the result's on c_i·u(x_i),
+        // their ratio on the sensitivity.
+        const inputUnit = unitText(this.app.state.channels.get(b.channel)?.unit);
+        const resultUnit = unitText(d.unit);
+        const perUnit = resultUnit || inputUnit ? ` ${resultUnit || '1'}/${inputUnit || '1'}` : '';
         return h(
           'tr',
           { dataset: { input: b.channel } },
           h('td', {}, h('a', { href: `#/channel/${encodeURIComponent(b.channel)}`, text: b.channel })),
           h('td', { className: s.className }, h('span', { className: 'state-word', text: `${s.symbol} ${s.label.toLowerCase()}` })),
-          h('td', { text: trimNumber(b.mean, 7) }),
-          h('td', { text: trimNumber(b.standardUncertainty, 3) }),
-          h('td', { text: trimNumber(b.sensitivity, 4) }),
-          h('td', { text: trimNumber(b.contribution, 3) }),
+          h('td', { text: `${trimNumber(b.mean, 7)}${inputUnit ? ` ${inputUnit}` : ''}` }),
+          h('td', { text: `${trimNumber(b.standardUncertainty, 3)}${inputUnit ? ` ${inputUnit}` : ''}` }),
+          h('td', { text: `${trimNumber(b.sensitivity, 4)}${perUnit}` }),
+          h('td', { text: `${trimNumber(b.contribution, 3)}${resultUnit ? ` ${resultUnit}` : ''}` }),
           h('td', { text: signedPercent(b.varianceShare) }),
           h('td', { text: signedPercent(b.share) }),
         );

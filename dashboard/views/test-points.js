@@ -4,7 +4,7 @@
 
 import { h, setText, replaceChildren } from '../lib/dom.js';
 import { api, recordUrl, derivedRecordUrl, reportUrl, writeKey } from '../lib/api.js';
-import { POINT_STATES, stateOf, dateTime, formatResult, trimNumber, formatCount, percent, derivedStateOf } from '../lib/format.js';
+import { POINT_STATES, stateOf, dateTime, formatResult, trimNumber, formatCount, percent, derivedStateOf, unitSuffix } from '../lib/format.js';
 
 export class TestPointsView {
   constructor(root, app) {
@@ -225,7 +225,7 @@ export class TestPointsView {
       if (!latest) return;
       replaceChildren(
         container,
-        h('h4', { text: `Record (${latest.kind === 'ready' ? 'when ready' : 'at stop'}, ${latest.createdAt})` }),
+        h('h4', { text: `Record (${latest.kind === 'ready' ? 'when ready' : 'at stop'}, ${typeof latest.createdAt === 'string' ? dateTime(Date.parse(latest.createdAt)) : '–'})` }),
         h(
           'table',
           { className: 'table record-table' },
@@ -235,7 +235,7 @@ export class TestPointsView {
             {},
             latest.entries.map((e) => {
               const value = formatResult(e.mean, e.expandedUncertainty);
-              return h('tr', { title: e.statement }, h('td', { text: e.channel }), h('td', { text: `${value}${e.unit ? ` ${e.unit}` : ''}` }), h('td', { text: trimNumber(e.coverageFactor, 3) }), h('td', { text: trimNumber(e.dof, 3) }), h('td', { text: formatCount(e.n) }), h('td', { text: stateOf(e.state).label.toLowerCase() }));
+              return h('tr', { title: e.statement }, h('td', { text: e.channel }), h('td', { text: `${value}${unitSuffix(e.unit)}` }), h('td', { text: trimNumber(e.coverageFactor, 3) }), h('td', { text: trimNumber(e.dof, 3) }), h('td', { text: formatCount(e.n) }), h('td', { text: stateOf(e.state).label.toLowerCase() }));
             }),
           ),
         ),
@@ -252,7 +252,7 @@ export class TestPointsView {
                   const value = formatResult(e.value, e.expandedUncertainty);
                   const mc = !e.monteCarlo ? '–' : e.monteCarlo.error ? 'failed' : e.monteCarlo.validated === null ? '–' : e.monteCarlo.validated ? 'validates' : 'differs';
                   const boot = !e.bootstrap || e.bootstrap.agrees === null ? '–' : e.bootstrap.agrees ? 'agrees' : 'differs';
-                  return h('tr', { title: e.statement }, h('td', { text: e.name }), h('td', { text: `${value}${e.unit ? ` ${e.unit}` : ''}` }), h('td', { text: trimNumber(e.coverageFactor, 3) }), h('td', { text: trimNumber(e.dof, 3) }), h('td', { text: formatCount(e.rows) }), h('td', { text: mc, title: e.monteCarlo?.note ?? e.monteCarlo?.error ?? '' }), h('td', { text: boot, title: e.bootstrap?.note ?? '' }));
+                  return h('tr', { title: e.statement }, h('td', { text: e.name }), h('td', { text: `${value}${unitSuffix(e.unit)}` }), h('td', { text: trimNumber(e.coverageFactor, 3) }), h('td', { text: trimNumber(e.dof, 3) }), h('td', { text: formatCount(e.rows) }), h('td', { text: mc, title: e.monteCarlo?.note ?? e.monteCarlo?.error ?? '' }), h('td', { text: boot, title: e.bootstrap?.note ?? '' }));
                 }),
               ),
             ),
