@@ -111,7 +111,7 @@ export async function runAnalyze(argv: string[], io: Io): Promise<number> {
   const config = configPath === undefined ? null : loadConfigFile(configPath, { requireSubscriptions: false });
   const settings = config === null ? undefined : configuredChannels(config, flags, options);
   if (config !== null) derive.configured = { derived: config.derived, typeBOf: (name) => settingsFor(config, name).typeB };
-  const report = await analyzeFile(file, options, { timeColumn: values['time-column'], delimiter: values.delimiter, decimalComma: decimalComma === true }, derive, settings);
+  const report = await analyzeFile(file, options, { timeColumn: values['time-column'], delimiter: values.delimiter, decimalComma: decimalComma === true }, derive, settings, units);
   for (const name of units.keys()) {
     if (!report.channels.some((c) => c.name === name)) throw new UsageError(`--unit ${name}=${units.get(name)}: no channel column named "${name}" (channels: ${report.channels.map((c) => c.name).join(', ')})`);
   }
@@ -210,7 +210,7 @@ export function configuredChannels(config: PlateauConfig, flags: Flags, fromFlag
 }
 
 /** Replays a CSV file through one pipeline per channel: the streaming code path, row by row. */
-export async function analyzeFile(file: string, options: ChannelOptions, csv: { timeColumn?: string | undefined; delimiter?: string | undefined; decimalComma?: boolean } = {}, derive: DeriveOptions = { requests: [] }, settings?: ChannelSettingsSource): Promise<AnalyzeReport> {
+export async function analyzeFile(file: string, options: ChannelOptions, csv: { timeColumn?: string | undefined; delimiter?: string | undefined; decimalComma?: boolean } = {}, derive: DeriveOptions = { requests: [] }, settings?: ChannelSettingsSource, units: ReadonlyMap<string, string> = new Map()): Promise<AnalyzeReport> {
   const layout = await probeCsv(file, {
     ...(csv.timeColumn !== undefined ? { timeColumn: csv.timeColumn } : {}),
     ...(csv.delimiter !== undefined ? { delimiter: csv.delimiter } : {}),
@@ -221,6 +221,8 @@ export async function analyzeFile(file: string, options: ChannelOptions, csv: { 
     throw new UsageError(`${options.window.seconds !== undefined ? '--window-seconds' : 'a window in seconds (from --config)'} needs a time column, and ${file} has none (name one with --time-column)`);
   }
   const pipelines = layout.channels.map((column, c) => new ChannelPipeline(column.name, channelOptions[c] as ChannelOptions));
+  // The unit as people write it in the verdict's words (--unit first, then the configuration).
+  pipelines.forEach((pipeline) => pipeline.setUnitLabel(unitLabel(units.get(pipeline.name) ?? settings?.unitOf(pipeline.name) ?? null)));
   // When each channel was steady (derived results judge their inputs by it).
   const steadiness = pipelines.map(() => new SteadyHistory());
   // Derived results: compiled against the columns before the rows are read (a bad --derive stops

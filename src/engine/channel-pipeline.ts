@@ -307,6 +307,8 @@ export class ChannelPipeline {
   private eventCount = 0;
   private pendingEvents: ChannelEvent[] | null = null;
   private snapshotCache: { key: string; snapshot: ChannelSnapshot } | null = null;
+  /** The unit as printed, for the verdict's words (setUnitLabel). */
+  private unitText = '';
   /** The stability rules, fed every sample beside the statistics (null without any). */
   readonly criteria: ChannelCriteria | null;
   /** Its tracker, called directly on the per-sample path (one call less). */
@@ -1033,7 +1035,18 @@ export class ChannelPipeline {
       target,
       rate: this.rate(),
       constant: n >= 2 && !(this.series.variance > 0),
+      unit: this.unitText,
     };
+  }
+
+  /**
+   * The channel's unit as people write it (°C), for the numbers in the verdict's words; display
+   * only: no statistic, event or checkpoint depends on it.
+   */
+  setUnitLabel(label: string): void {
+    if (label === this.unitText) return;
+    this.unitText = label;
+    this.snapshotCache = null;
   }
 
   /** Snapshot of an empty, one-sample or constant window: the mean where there is one, and why no uncertainty. */

@@ -51,6 +51,8 @@ export interface VerdictInput {
   target: TargetStatus | null;
   rate: number | null;
   constant: boolean;
+  /** The channel's unit as people write it (°C), for the numbers in the messages; '' or absent: none. */
+  unit?: string;
 }
 
 export function channelVerdict(input: VerdictInput): ChannelVerdict {
@@ -58,6 +60,7 @@ export function channelVerdict(input: VerdictInput): ChannelVerdict {
   const seconds = (samples: number | null) => (samples !== null && input.rate && input.rate > 0 ? samples / input.rate : null);
   const add = (condition: VerdictConditionName, message: string, samplesToGo: number | null = null) => pending.push({ condition, message, samplesToGo, secondsToGo: seconds(samplesToGo) });
   const steady = input.state === 'steady' || input.state === 'precise';
+  const unit = input.unit ? ` ${input.unit}` : '';
   if (input.n === 0) add('no-data', input.received === 0 ? 'no samples yet' : 'no samples in the window');
   if (input.state === 'stale') add('stale', 'no new samples: the channel is stale');
   if (input.constant) add('constant', 'every sample in the window is equal: no spread to judge steady state or uncertainty by');
@@ -65,7 +68,7 @@ export function channelVerdict(input: VerdictInput): ChannelVerdict {
     const p = input.warmupPending;
     if (input.state === 'unsteady' && input.lastBreak) {
       const b = input.lastBreak;
-      const slope = b.slope ? `, slope ${b.slope.perSample.toPrecision(2)} \u00b1 ${b.slope.standardUncertainty.toPrecision(2)} per sample` : '';
+      const slope = b.slope ? `, slope ${b.slope.perSample.toPrecision(2)} \u00b1 ${b.slope.standardUncertainty.toPrecision(2)}${unit} per sample` : '';
       add('break', `stationarity lost: ${b.cause} from sample ${b.changePoint}${slope}`);
       if (p && p.condition !== 'break') add(p.condition, p.message, p.samplesToGo);
     } else if (p) add(p.condition, p.message, p.samplesToGo);
@@ -77,7 +80,7 @@ export function channelVerdict(input: VerdictInput): ChannelVerdict {
   if (t && !t.reached) {
     const toGo = steady ? t.samplesToTarget : null;
     const eta = toGo !== null && toGo > 0 ? `: about ${formatSamples(toGo)} more samples` : '';
-    add('target', `target ${t.on} <= ${t.bound === null ? 'n/a' : t.bound.toPrecision(3)} not met yet${steady ? eta : ' (no estimate of the time to go until the channel is steady)'}${t.note ? ` (${t.note})` : ''}`, toGo);
+    add('target', `target ${t.on} <= ${t.bound === null ? 'n/a' : `${t.bound.toPrecision(3)}${unit}`} not met yet${steady ? eta : ' (no estimate of the time to go until the channel is steady)'}${t.note ? ` (${t.note})` : ''}`, toGo);
   }
   return { ready: pending.length === 0, summary: pending.length === 0 ? 'ready to record' : (pending[0] as VerdictCondition).message, pending };
 }

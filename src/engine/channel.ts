@@ -6,6 +6,7 @@ import type { ChannelEvent } from './channel-events.js';
 import { channelRecord, decideCheckpoint, optionsIdentity, type ChannelRecord, type ChannelWindowsState, type OptionsIdentity } from './channel-state.js';
 import { SteadyHistory } from './steadiness.js';
 import { parseSetPointMark, setPointMark } from './criteria/set-point-mark.js';
+import { unitLabel } from './unit-label.js';
 
 /**
  * One channel of the daemon: its pipeline, the time policy that decides which samples enter, its
@@ -111,7 +112,7 @@ export interface RestoreReport {
 
 export class Channel {
   readonly name: string;
-  unit: string | null;
+  private unitValue: string | null = null;
   /** Why the unit shown is not the one a payload gave (a conflict with the configuration), or null. */
   unitNote: string | null = null;
   private readonly options: ChannelOptions;
@@ -138,7 +139,27 @@ export class Channel {
     this.unit = unit;
     this.options = options;
     this.identity = optionsIdentity(options);
-    this.current = new ChannelPipeline(name, options);
+    this.current = this.newPipeline();
+  }
+
+  /** The channel's unit (configured, or from the first payload that gave one), or null. */
+  get unit(): string | null {
+    return this.unitValue;
+  }
+
+  /** Every window over the channel prints the new unit in its verdict's words. */
+  set unit(unit: string | null) {
+    this.unitValue = unit;
+    const label = unitLabel(unit);
+    this.current?.setUnitLabel(label);
+    for (const fork of this.forks.values()) fork.setUnitLabel(label);
+  }
+
+  /** A new window over the channel, with its options and the unit for its words. */
+  private newPipeline(): ChannelPipeline {
+    const pipeline = new ChannelPipeline(this.name, this.options);
+    pipeline.setUnitLabel(unitLabel(this.unitValue));
+    return pipeline;
   }
 
   get pipeline(): ChannelPipeline {
@@ -205,7 +226,7 @@ export class Channel {
   }
 
   private fork(): ChannelPipeline {
-    const copy = new ChannelPipeline(this.name, this.options);
+    const copy = this.newPipeline();
     copy.loadState(structuredClone(this.current.saveState()));
     const criteria = this.current.criteria;
     if (criteria !== null) copy.criteria?.loadState(structuredClone(criteria.saveState()));
@@ -345,7 +366,7 @@ export class Channel {
           // The rules' state must fit the rules now configured (their fingerprint), else a replay.
           const criteria = this.current.criteria;
           if (criteria !== null && !criteria.loadState(decision.criteria)) {
-            this.current = new ChannelPipeline(this.name, this.options);
+            this.current = this.newPipeline();
             outcome = 'replayed';
             detail = 'the stability rules changed since the checkpoint (or it holds no state of them)';
           } else {
@@ -358,7 +379,7 @@ export class Channel {
             if (decision.carriedOver.length > 0) detail = `carried over to the changed options ${decision.carriedOver.join(', ')}`;
           }
         } catch (error) {
-          this.current = new ChannelPipeline(this.name, this.options);
+          this.current = this.newPipeline();
           outcome = 'replayed';
           detail = `the checkpoint could not be read (${(error as Error).message})`;
         }
@@ -392,7 +413,7 @@ export class Channel {
     for (const id of windows.attached) this.attached.add(id);
     this.lastRestartAt = windows.lastRestartAt;
     for (const w of windows.forks) {
-      const fork = new ChannelPipeline(this.name, this.options);
+      const fork = this.newPipeline();
       fork.loadState(w.pipeline);
       if (fork.criteria !== null && !fork.criteria.loadState(w.criteria)) throw new Error(`the window of test point ${w.id} holds no state of the stability rules now configured`);
       this.forks.set(w.id, fork);

@@ -81,6 +81,16 @@ describe('the verdict names what is pending, with numbers', () => {
     expect(target?.message).toMatch(/target U <= 0\.0100 not met yet: about .* more samples/);
   });
 
+  it('numbers in the words carry the channel\'s unit as people write it, once it is known; the statistics do not change', () => {
+    const { pipeline } = stream(F.ar1(new SeededRandom(14), 0.5, 20_000), { target: { value: 0.01, relative: false, on: 'U' } });
+    const before = pipeline.summary();
+    pipeline.setUnitLabel('°C');
+    const after = pipeline.summary();
+    expect(after.verdict.pending.find((p) => p.condition === 'target')?.message).toMatch(/target U <= 0\.0100 °C not met yet/);
+    expect(after.expandedUncertainty).toBe(before.expandedUncertainty);
+    expect(after.mean).toBe(before.mean);
+  });
+
   it('long memory: not ready, and said so, with the Hurst exponent', () => {
     const { pipeline } = stream(F.fractionalGaussianNoise(new SeededRandom(15), 0.85, 32_768), { detectors: false });
     const pending = pipeline.summary().verdict.pending.find((p) => p.condition === 'long-memory');
@@ -94,6 +104,8 @@ describe('the verdict names what is pending, with numbers', () => {
     const pending = pipeline.summary().verdict.pending[0];
     expect(pending?.condition).toBe('break');
     expect(pending?.message).toMatch(/stationarity lost: trend from sample (59|60)\d{3}, slope 0\.000(1|2)\d* ± .* per sample/);
+    pipeline.setUnitLabel('kPa');
+    expect(pipeline.summary().verdict.pending[0]?.message).toMatch(/slope 0\.000(1|2)\d* ± \S+ kPa per sample/);
   });
 });
 

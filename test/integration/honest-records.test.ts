@@ -223,7 +223,7 @@ describe('a channel never steady, or short of its target, when its test point st
     d.daemon.startTestPoint({ id: 'short', name: 'short of target', channels: [FLOW] });
     d.feed(25);
     d.daemon.stopTestPoint('short');
-    for (const [id, reason] of [['early', /steady state not confirmed/], ['short', /^target U <= [0-9.]+ not met yet/]] as const) {
+    for (const [id, reason] of [['early', /steady state not confirmed/], ['short', /^target U <= [0-9.e-]+ kg\/s not met yet/]] as const) {
       const record = (await d.get(`/api/test-points/${id}/record.json`)).json() as TestPointRecord;
       expect(record.provisional, id).toBe(true);
       expect(record.rig).toEqual({ id: 'HX-7', name: 'bench HX-7, glycol/water plate heat exchanger' });
