@@ -6,6 +6,7 @@
 // how many the broker has not acknowledged, and the client's reconnections (a stall then shows which
 // side lost the acknowledgements: the harness compares with what its subscriber received).
 import mqtt from 'mqtt';
+import { InflightWindow } from './inflight-window.js';
 
 const [url, qosText, countText, packText, prefix, channelsText] = process.argv.slice(2);
 const qos = Number(qosText);
@@ -29,26 +30,9 @@ if (!connected) {
 client.stream?.setMaxListeners?.(0);
 const start = Date.now();
 let t = Date.now() / 1000;
-let inflight = 0;
 /** Messages published when the acknowledgements stopped for 60 s (0: they never did). */
 let stalled = 0;
-const MAX_INFLIGHT = 2000;
-let wake = null;
-function acknowledged() {
-  inflight--;
-  if (wake !== null && inflight < MAX_INFLIGHT) {
-    const resolve = wake;
-    wake = null;
-    resolve(true);
-  }
-}
-/** Resolves once fewer than MAX_INFLIGHT messages wait for their acknowledgement, or after 60 s (false). */
-function belowLimit() {
-  return new Promise((resolve) => {
-    const timer = setTimeout(() => ((wake = null), resolve(false)), 60_000);
-    wake = (ok) => (clearTimeout(timer), resolve(ok));
-  });
-}
+const inflight = new InflightWindow(2000, 60_000);
 for (let i = 0; i < count; i++) {
   const channel = `c${i % channels}`;
   let payload;
@@ -63,14 +47,11 @@ for (let i = 0; i < count; i++) {
     t += 1e-4;
     payload = `{"v":${20 + Math.sin(i)},"t":${t}}`;
   }
-  inflight++;
-  client.publish(`${prefix}/${channel}`, payload, { qos }, acknowledged);
+  inflight.track();
+  client.publish(`${prefix}/${channel}`, payload, { qos }, inflight.acknowledged);
   // Keep the client's own queue bounded so memory stays flat; hold a steady rate when asked.
-  // At most MAX_INFLIGHT unacknowledged: the client's 16-bit message ids wrap after 65,535 and
-  // reuse the id of a message still in flight, whose acknowledgement callback is then lost (with
-  // 'yield once per publish' here, a broker slower than the publisher let bench:e2e's 100,000
-  // one-sample messages pass that and the publisher waited forever). The wait is bounded.
-  if (inflight >= MAX_INFLIGHT && !(await belowLimit())) {
+  // At most 2000 unacknowledged (bench/inflight-window.js says why); the wait is bounded.
+  if (!(await inflight.room())) {
     stalled = i + 1;
     break;
   }
@@ -80,15 +61,13 @@ for (let i = 0; i < count; i++) {
     if (wait > 0) await new Promise((resolve) => setTimeout(resolve, wait));
   }
 }
-const published = Date.now();
-const deadline = published + ackWaitMs;
-while (inflight > 0 && Date.now() < deadline) await new Promise((resolve) => setTimeout(resolve, 5));
-const result = { published: stalled || count, unacknowledged: inflight, reconnects, ms: Date.now() - start };
-if (stalled) result.failed = `no acknowledgement for 60 s with ${inflight} QoS ${qos} messages in flight: published ${stalled} of ${count} (client connected: ${client.connected}, reconnections: ${reconnects})`;
-else if (inflight > 0) {
+await inflight.drained(ackWaitMs);
+const result = { published: stalled || count, unacknowledged: inflight.count, reconnects, ms: Date.now() - start };
+if (stalled) result.failed = `no acknowledgement for 60 s with ${inflight.count} QoS ${qos} messages in flight: published ${stalled} of ${count} (client connected: ${client.connected}, reconnections: ${reconnects})`;
+else if (inflight.count > 0) {
   // What the client still holds: messages it sent and got no PUBACK for (its outgoing store), and
   // whether its connection is up; a broker that dropped acknowledgements leaves them here.
-  result.failed = `${inflight} QoS ${qos} messages without an acknowledgement ${ackWaitMs / 1000} s after the last publish (client connected: ${client.connected}, reconnections: ${reconnects}, outgoing held by the client: ${Object.keys(client.outgoing ?? {}).length})`;
+  result.failed = `${inflight.count} QoS ${qos} messages without an acknowledgement ${ackWaitMs / 1000} s after the last publish (client connected: ${client.connected}, reconnections: ${reconnects}, outgoing held by the client: ${Object.keys(client.outgoing ?? {}).length})`;
 }
 process.stdout.write(JSON.stringify(result) + '\n');
 client.end(true);

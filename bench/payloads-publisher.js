@@ -3,6 +3,7 @@
 // as the client allows with at most 2000 publishes in flight. Prints {published, ms}.
 // Usage: node bench/payloads-publisher.js URL QOS COUNT PACK PREFIX CHANNELS FORMAT
 import mqtt from 'mqtt';
+import { InflightWindow } from './inflight-window.js';
 import { Encoder } from 'cbor-x';
 import { encodeFrame } from '../dist/ingest/binary-frame.js';
 
@@ -19,26 +20,9 @@ const start = Date.now();
 const t0 = Date.now() / 1000 - 3600;
 const values = new Float64Array(pack);
 let x = 0;
-let inflight = 0;
 /** Messages published when the acknowledgements stopped for 60 s (0: they never did). */
 let stalled = 0;
-const MAX_INFLIGHT = 2000;
-let wake = null;
-function acknowledged() {
-  inflight--;
-  if (wake !== null && inflight < MAX_INFLIGHT) {
-    const resolve = wake;
-    wake = null;
-    resolve(true);
-  }
-}
-/** Resolves once fewer than MAX_INFLIGHT messages wait for their acknowledgement, or after 60 s (false). */
-function belowLimit() {
-  return new Promise((resolve) => {
-    const timer = setTimeout(() => ((wake = null), resolve(false)), 60_000);
-    wake = (ok) => (clearTimeout(timer), resolve(ok));
-  });
-}
+const inflight = new InflightWindow(2000, 60_000);
 for (let i = 0; i < count; i++) {
   const c = i % channels;
   const first = t0 + Math.floor(i / channels) * pack * 1e-3;
@@ -54,18 +38,14 @@ for (let i = 0; i < count; i++) {
     for (let k = 1; k < pack; k++) records[k] = new Map([[6, k * 1e-3], [2, values[k]]]);
     payload = cbor.encode(records);
   }
-  inflight++;
-  client.publish(`${prefix}/c${c}`, payload, { qos }, acknowledged);
-  // At most MAX_INFLIGHT unacknowledged: the client's 16-bit message ids wrap after 65,535 and
-  // reuse the id of a message still in flight, whose acknowledgement callback is then lost (with
-  // 'yield once per publish' here, a broker slower than the publisher let bench:e2e's 100,000
-  // one-sample messages pass that and the publisher waited forever). The wait is bounded.
-  if (inflight >= MAX_INFLIGHT && !(await belowLimit())) {
+  inflight.track();
+  client.publish(`${prefix}/c${c}`, payload, { qos }, inflight.acknowledged);
+  // At most 2000 unacknowledged (bench/inflight-window.js says why); the wait is bounded.
+  if (!(await inflight.room())) {
     stalled = i + 1;
     break;
   }
 }
-const deadline = Date.now() + 60_000;
-while (inflight > 0 && Date.now() < deadline) await new Promise((resolve) => setTimeout(resolve, 5));
-process.stdout.write(JSON.stringify({ published: stalled || count, unacknowledged: inflight, ms: Date.now() - start, ...(stalled ? { failed: `no acknowledgement for 60 s: published ${stalled} of ${count}` } : {}) }) + '\n');
+await inflight.drained();
+process.stdout.write(JSON.stringify({ published: stalled || count, unacknowledged: inflight.count, ms: Date.now() - start, ...(stalled ? { failed: `no acknowledgement for 60 s: published ${stalled} of ${count}` } : {}) }) + '\n');
 client.end(true);
