@@ -93,7 +93,28 @@ export function budgetChart(container) {
     }
     const longest = Math.max(...terms.map((t) => t.label.length));
     const labelWidth = Math.round(Math.min(width * 0.4, Math.max(90, longest * CHARACTER_WIDTH + 14)));
-    const top = 46;
+    // The legend: from the plot's left edge when it fits there, else from the left, wrapped into
+    // as many rows as the width needs (a narrow panel must not cut its last words).
+    const legend = [
+      ['variance of an input', colors().variance, null],
+      ['covariance, adds to u_c²', `url(#budget-positive-${id})`, colors().positive],
+      ['covariance, takes away from u_c²', `url(#budget-negative-${id})`, colors().negative],
+    ];
+    const itemWidth = (text) => 34 + text.length * 6.4;
+    const legendWidth = legend.reduce((sum, [text]) => sum + itemWidth(text), 0) - 15;
+    const legendStart = legendWidth <= width - labelWidth ? labelWidth : 0;
+    const legendPlaces = [];
+    let legendX = legendStart;
+    let legendRow = 0;
+    for (const [text] of legend) {
+      if (legendX > legendStart && legendX + itemWidth(text) - 15 > width) {
+        legendRow++;
+        legendX = legendStart;
+      }
+      legendPlaces.push({ x: legendX, y: 6 + legendRow * 18 });
+      legendX += itemWidth(text);
+    }
+    const top = 46 + legendRow * 18;
     const plotWidth = width - labelWidth - VALUE_COLUMN - 8;
     const plotHeight = terms.length * ROW;
     const height = top + plotHeight + 40;
@@ -109,18 +130,11 @@ export function budgetChart(container) {
     const strokes = { 'covariance-positive': colors().positive, 'covariance-negative': colors().negative };
     const svg = el('svg', { class: 'budget-svg', width, height, viewBox: `0 0 ${width} ${height}`, role: 'img', 'aria-label': `Uncertainty budget of ${current.name}: each term as a share of u_c²` });
     svg.appendChild(el('defs', {}, hatch('positive', colors().positive), hatch('negative', colors().negative)));
-    // Legend.
-    const legend = [
-      ['variance of an input', colors().variance, null],
-      ['covariance, adds to u_c²', `url(#budget-positive-${id})`, colors().positive],
-      ['covariance, takes away from u_c²', `url(#budget-negative-${id})`, colors().negative],
-    ];
-    let x = labelWidth;
-    for (const [text, fill, stroke] of legend) {
-      svg.appendChild(el('rect', { x, y: 6, width: 14, height: 11, fill, stroke: stroke ?? undefined }));
-      svg.appendChild(el('text', { x: x + 19, y: 16, 'font-size': 12, fill: colors().text }, text));
-      x += 34 + text.length * 6.4;
-    }
+    legend.forEach(([text, fill, stroke], i) => {
+      const { x, y } = legendPlaces[i];
+      svg.appendChild(el('rect', { x, y, width: 14, height: 11, fill, stroke: stroke ?? undefined }));
+      svg.appendChild(el('text', { x: x + 19, y: y + 10, 'font-size': 12, fill: colors().text }, text));
+    });
     // Grid and ticks.
     svg.appendChild(el('rect', { x: labelWidth, y: top, width: plotWidth, height: plotHeight, fill: 'none', stroke: colors().rule }));
     for (const tick of ticks(low, high)) {
