@@ -253,9 +253,9 @@ describe.skipIf(!available)('dashboard in Chromium', () => {
     // The check can fail: a word too long for its entry is found.
     await page.goto(base);
     await page.locator('.entry[data-channel]').first().waitFor();
-    await page.evaluate(`(() => { const s = document.createElement('span'); s.id = 'overflow-probe'; s.style.whiteSpace = 'nowrap'; s.textContent = 'x'.repeat(400); document.querySelector('.entry .entry-figures').appendChild(s); })()`);
-    expect((await page.evaluate<{ bad: string[] }>(check)).bad.length).toBeGreaterThan(0);
-    await page.evaluate(`document.getElementById('overflow-probe').remove()`);
+    // Probe and check in one evaluation (a re-render in between would drop the probe).
+    const probed = await page.evaluate<{ bad: string[] }>(`(() => { const s = document.createElement('span'); s.id = 'overflow-probe'; s.style.whiteSpace = 'nowrap'; s.textContent = 'x'.repeat(400); document.querySelector('.entry .entry-figures').appendChild(s); const result = ${check}; s.remove(); return result; })()`);
+    expect(probed.bad.length).toBeGreaterThan(0);
     for (const theme of ['light', 'dark'] as const) {
       for (const width of [1280, 1440]) {
         const sheet = await context.newPage();
