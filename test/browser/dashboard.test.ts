@@ -1,3 +1,4 @@
+import { SHEET_CHECK } from './sheet-checks.js';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
@@ -234,22 +235,8 @@ describe.skipIf(!available)('dashboard in Chromium', () => {
 
   it('light and dark sheets, at 1280 and 1440 px: no text overflows its box, no NaN, null or undefined on any view', async () => {
     const views = ['#/', `#/channel/${encodeURIComponent('hx7.glycol_in_degC')}`, `#/derived/${encodeURIComponent('hx7.heat_duty_kW')}`, '#/test-points'];
-    const check = `(() => {
-      const clipped = (el) => { for (let a = el.parentElement; a; a = a.parentElement) { const o = getComputedStyle(a).overflowX; if (o === 'auto' || o === 'scroll') return true; if (a.matches('main, aside, .entry, .panel, .stat-card, .feed-item, .tp-card, .result-box, .view-head, .masthead')) return false; } return false; };
-      const box = (el) => el.closest('.entry, .stat-card, .feed-item, .tp-card, .result-box, .panel, .view-head, .masthead, main, aside');
-      const bad = [];
-      for (const el of document.querySelectorAll('main *, aside *, header *')) {
-        if (el.offsetParent === null || el.closest('.chart')) continue;
-        if (![...el.childNodes].some((n) => n.nodeType === 3 && n.textContent.trim())) continue;
-        const container = box(el);
-        if (!container || container === el || clipped(el)) continue;
-        const r = el.getBoundingClientRect();
-        const c = container.getBoundingClientRect();
-        if (r.right > c.right + 1 || r.left < c.left - 1) bad.push((el.className || el.tagName) + ': ' + el.textContent.slice(0, 40));
-      }
-      const words = document.body.innerText.match(/\\b(NaN|null|undefined)\\b/g) ?? [];
-      return { bad, words };
-    })()`;
+    // The shared sheet check (test/browser/sheet-checks.ts): overflow out of its box, NaN/null/undefined text.
+    const check = SHEET_CHECK;
     // The check can fail: a word too long for its entry is found.
     await page.goto(base);
     await page.locator('.entry[data-channel]').first().waitFor();
